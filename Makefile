@@ -1,0 +1,85 @@
+# framelaw build. `make` builds the program, `make test` installs what is missing (deps),
+# builds and runs every cmocka suite; `make sanitize` runs the same suites under ASan + UBSan.
+
+CC      ?= cc
+CSTD    := -std=c11 -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE
+WARN    := -Wall -Wextra
+OPT     ?= -O2 -g
+CFLAGS  += $(CSTD) $(WARN) $(OPT) -I. -fno-fast-math
+LDLIBS  := -lopenblas -lstb -lcjson -lm -lpthread
+TESTLIBS:= -lcmocka
+
+# Debian packages the build and the test suite need; `make deps` installs the missing ones.
+DEB_BUILD := libopenblas-dev libstb-dev libcjson-dev libcmocka-dev
+DEB_TEST  := python3 python3-numpy
+DEB_PKGS  := $(DEB_BUILD) $(DEB_TEST)
+
+LIB_SRC  := $(wildcard nn/*.c) $(wildcard sparse/*.c) $(filter-out io/main.c,$(wildcard io/*.c)) $(wildcard demo/*.c)
+TEST_SRC := $(wildcard tests/test_*.c)
+BENCH_SRC:= $(wildcard tests/bench_*.c)
+
+BUILD    ?= build
+LIB_OBJ  := $(LIB_SRC:%.c=$(BUILD)/%.o)
+TEST_BIN := $(TEST_SRC:tests/%.c=$(BUILD)/tests/%)
+BENCH_BIN:= $(BENCH_SRC:tests/%.c=$(BUILD)/tests/%)
+
+.PHONY: all deps test test-bin sanitize bench demo clean check-deps
+all: framelaw
+
+framelaw: $(BUILD)/framelaw
+	cp $< $@
+
+$(BUILD)/framelaw: $(BUILD)/io/main.o $(BUILD)/libframelaw.a
+	$(CC) $(CFLAGS) -o $@ $^ $(LDLIBS)
+
+$(BUILD)/libframelaw.a: $(LIB_OBJ)
+	rm -f $@
+	ar rcs $@ $^
+
+$(BUILD)/%.o: %.c $(wildcard */*.h)
+	@mkdir -p $(dir $@)
+	$(CC) $(CFLAGS) -c -o $@ $<
+
+$(BUILD)/tests/%: tests/%.c $(BUILD)/libframelaw.a tests/testutil.h
+	@mkdir -p $(dir $@)
+	$(CC) $(CFLAGS) -o $@ $< $(BUILD)/libframelaw.a $(TESTLIBS) $(LDLIBS)
+
+# Install missing Debian packages (needs root); otherwise print the command and stop.
+deps:
+	@missing=""; for p in $(DEB_PKGS); do \
+	  dpkg-query -W -f='$${Status}' $$p 2>/dev/null | grep -q "install ok installed" || missing="$$missing $$p"; \
+	done; \
+	if [ -n "$$missing" ]; then \
+	  if [ "$$(id -u)" = 0 ]; then \
+	    echo "deps: installing$$missing"; \
+	    (apt-get update -qq || true) && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends $$missing; \
+	  else \
+	    echo "deps: missing Debian packages:$$missing"; \
+	    echo "deps: run: sudo apt-get install -y --no-install-recommends$$missing"; exit 1; \
+	  fi; \
+	fi
+
+test-bin: $(TEST_BIN) $(BUILD)/framelaw
+
+# Every suite runs even when an earlier one fails; the target fails if any did.
+test: deps
+	@$(MAKE) --no-print-directory test-bin
+	@fail=0; for t in $(TEST_BIN); do \
+	  echo "== $$t"; FRAMELAW=$(CURDIR)/$(BUILD)/framelaw $$t || fail=1; \
+	done; \
+	if [ $$fail = 0 ]; then echo "make test: all suites passed"; else echo "make test: FAILED"; fi; exit $$fail
+
+# The same suites, built with AddressSanitizer + UndefinedBehaviorSanitizer into build-san/.
+sanitize: deps
+	@$(MAKE) --no-print-directory BUILD=build-san OPT="-O1 -g -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=undefined" \
+	  LDFLAGS="-fsanitize=address,undefined" test-bin
+	@fail=0; for t in $(TEST_BIN:$(BUILD)/%=build-san/%); do \
+	  echo "== $$t"; FRAMELAW=$(CURDIR)/build-san/framelaw ASAN_OPTIONS=detect_leaks=1 UBSAN_OPTIONS=print_stacktrace=1 $$t || fail=1; \
+	done; \
+	if [ $$fail = 0 ]; then echo "make sanitize: all suites passed"; else echo "make sanitize: FAILED"; fi; exit $$fail
+
+bench: deps $(BENCH_BIN)
+	@for b in $(BENCH_BIN); do echo "== $$b"; $$b || exit 1; done
+
+clean:
+	rm -rf build build-san framelaw

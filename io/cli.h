@@ -1,0 +1,22 @@
+/* io/cli.h: the commands of the front end. Each returns the process exit status:
+ * 0 success, 1 runtime failure, 2 bad usage or bad input. */
+#ifndef IO_CLI_H
+#define IO_CLI_H
+
+#define FRAMELAW_VERSION "0.1.0"
+
+typedef struct {
+    const char *name;
+    const char *summary;
+    int (*run)(int argc, char **argv);  /* argv[0] is the command name */
+} Command;
+
+/* Print "framelaw: <message>" to stderr and return code (for `return cli_error(2, ...)`). */
+int cli_error(int code, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
+/* 1 when argv holds --help or -h. */
+int cli_wants_help(int argc, char **argv);
+
+
+
+
+#endif

@@ -1,0 +1,67 @@
+/* io/main.c: the command-line front end. Dispatches to the commands of io/cli.h; only the front end
+ * decides the exit status. */
+#include <stdarg.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "io/cli.h"
+
+static int cmd_help(int argc, char **argv);
+
+/* One row per command; add a command here and declare it in io/cli.h. */
+static const Command commands[] = {
+    {"help", "show this overview", cmd_help},
+};
+enum { N_COMMANDS = sizeof commands / sizeof commands[0] };
+
+int cli_error(int code, const char *fmt, ...) {
+    va_list ap;
+    va_start(ap, fmt);
+    fputs("framelaw: ", stderr);
+    vfprintf(stderr, fmt, ap);
+    fputc('\n', stderr);
+    va_end(ap);
+    return code;
+}
+
+int cli_wants_help(int argc, char **argv) {
+    for (int i = 1; i < argc; i++)
+        if (!strcmp(argv[i], "--help") || !strcmp(argv[i], "-h")) return 1;
+    return 0;
+}
+
+static void usage(FILE *f) {
+    fprintf(f,
+            "usage: framelaw COMMAND [ARGS...]\n"
+            "       framelaw COMMAND --help\n"
+            "       framelaw --version\n\n"
+            "Learns a few ordinary differential equations, and the coordinates they live in, from video\n"
+            "frames of a moving system.\n\ncommands:\n");
+    for (int i = 0; i < N_COMMANDS; i++) fprintf(f, "  %-10s %s\n", commands[i].name, commands[i].summary);
+    fprintf(f, "\nexit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n");
+}
+
+static int cmd_help(int argc, char **argv) {
+    (void)argc;
+    (void)argv;
+    usage(stdout);
+    return 0;
+}
+
+int main(int argc, char **argv) {
+    if (argc < 2) {
+        usage(stderr);
+        return 2;
+    }
+    if (!strcmp(argv[1], "--help") || !strcmp(argv[1], "-h") || !strcmp(argv[1], "help")) {
+        usage(stdout);
+        return 0;
+    }
+    if (!strcmp(argv[1], "--version")) {
+        printf("framelaw %s\n", FRAMELAW_VERSION);
+        return 0;
+    }
+    for (int i = 0; i < N_COMMANDS; i++)
+        if (!strcmp(argv[1], commands[i].name)) return commands[i].run(argc - 1, argv + 1);
+    return cli_error(2, "unknown command '%s' (framelaw --help lists the commands)", argv[1]);
+}

@@ -1,0 +1,232 @@
+/* tests/test_nn_ops.c: the matrix product, the arena, the random generator and every tape op. */
+#include "nn/core.h"
+#include "nn/mat.h"
+#include "nn/rng.h"
+#include "nn/tape.h"
+#include "tests/gradcheck.h"
+
+/* Gradient-check tolerances for float32 ops (see tests/gradcheck.h). float32 carries about 7
+ * significant digits; with inputs of order 1 and h = 1e-2 the rounding error of the difference
+ * quotient is about 1e-7 / 1e-2 = 1e-5 of the loss scale and the truncation error O(h^2) about 1e-4,
+ * so an error measure of 5e-3 leaves a wide margin while a wrong term gives an error of order 1.
+ * The losses here are of order 1, whose float rounding (6e-8) over 2h leaves an absolute noise of
+ * about 3e-6 in the numeric gradient: the floor 1e-3 keeps tiny gradients from failing on it, and a
+ * gradient of 1e-4 computed as 0 still fails (error 0.09). */
+static const GcOpts OPTS = {.h = 1e-2f, .tol = 5e-3f, .floor = 1e-3f, .max_checked = 64, .at_kink = NULL};
+
+static void fill(Mat m, Rng *r, float lo, float hi) {
+    for (long i = 0; i < mat_size(m); i++) m.d[i] = (float)(lo + (hi - lo) * rng_uniform(r));
+}
+
+/* The cblas wrapper against the triple loop, every transpose combination (common practice). */
+static void test_gemm_matches_reference(void **state) {
+    (void)state;
+    Rng r;
+    rng_seed(&r, 1);
+    for (int ta = 0; ta < 2; ta++)
+        for (int tb = 0; tb < 2; tb++) {
+            int m = 7, n = 5, k = 9;
+            float A[63], B[45], C1[35], C2[35];
+            Mat a = ta ? mat_view(A, k, m) : mat_view(A, m, k);
+            Mat b = tb ? mat_view(B, n, k) : mat_view(B, k, n);
+            fill(a, &r, -1, 1);
+            fill(b, &r, -1, 1);
+            fill(mat_view(C1, m, n), &r, -1, 1);
+            memcpy(C2, C1, sizeof C1);
+            mat_gemm(ta, tb, 0.5f, a, b, 0.25f, mat_view(C1, m, n));
+            mat_gemm_ref(ta, tb, 0.5f, a, b, 0.25f, mat_view(C2, m, n));
+            for (int i = 0; i < m * n; i++) assert_close(C1[i], C2[i], 1e-5, 1e-5);
+        }
+}
+
+/* A hand example: [1 2; 3 4] [5 6; 7 8] = [19 22; 43 50]. */
+static void test_gemm_hand_example(void **state) {
+    (void)state;
+    float A[] = {1, 2, 3, 4}, B[] = {5, 6, 7, 8}, C[4];
+    mat_gemm(0, 0, 1, mat_view(A, 2, 2), mat_view(B, 2, 2), 0, mat_view(C, 2, 2));
+    assert_true(C[0] == 19 && C[1] == 22 && C[2] == 43 && C[3] == 50);
+}
+
+static void test_arena_reuses_memory_after_first_step(void **state) {
+    (void)state;
+    Arena a;
+    arena_init(&a, 4096);
+    for (int step = 0; step < 5; step++) {
+        long before = a.sys_allocs;
+        for (int i = 0; i < 100; i++) {
+            float *p = arena_floats(&a, 1000);
+            assert_int_equal((uintptr_t)p % 64, 0);
+            p[999] = 1.0f;
+        }
+        if (step >= 1) assert_int_equal(a.sys_allocs, before); /* steady state: no system allocation */
+        arena_reset(&a);
+    }
+    assert_true(a.high >= 100 * 4000);
+    arena_free(&a);
+}
+
+/* xoshiro256** reference output. The first outputs for the state s = {1, 2, 3, 4} are computed
+ * here from the algorithm's definition in "Scrambled Linear Pseudorandom Number Generators" (ACM
+ * TOMS 2021, Fig. 1): result = rotl(s1 * 5, 7) * 9 = rotl(10, 7) * 9 = 1280 * 9 = 11520; the second
+ * follows from the state update (s = {7, 0, 262146, 211106232532992}): rotl(0, 7) * 9 = 0. */
+static void test_rng_reference_values(void **state) {
+    (void)state;
+    Rng r = {{1, 2, 3, 4}};
+    assert_int_equal(rng_u64(&r), 11520);
+    assert_int_equal(rng_u64(&r), 0);
+    /* save and restore reproduces the stream */
+    rng_seed(&r, 42);
+    Rng saved = r;
+    uint64_t a = rng_u64(&r), b = rng_u64(&r);
+    r = saved;
+    assert_true(rng_u64(&r) == a && rng_u64(&r) == b);
+    /* uniform in [0,1) with mean 1/2 and variance 1/12 (common practice), 1e5 draws: 4 sigma */
+    double s = 0, s2 = 0;
+    for (int i = 0; i < 100000; i++) {
+        double u = rng_uniform(&r);
+        assert_true(u >= 0 && u < 1);
+        s += u;
+        s2 += u * u;
+    }
+    assert_close(s / 1e5, 0.5, 4 * sqrt(1.0 / 12 / 1e5), 0);
+    assert_close(s2 / 1e5 - (s / 1e5) * (s / 1e5), 1.0 / 12, 2e-3, 0);
+}
+
+/* ---- per-op gradient checks ------------------------------------------------------------------- */
+
+typedef struct {
+    int op;     /* which op to check */
+    int ta, tb;
+    ActId act;
+    float *target;
+} OpCase;
+
+static Node *build_op(Tape *t, ParamSet *ps, void *ctx) {
+    OpCase *c = ctx;
+    Node *a = nn_param(t, ps, 0), *b = nn_param(t, ps, 1), *y = NULL;
+    switch (c->op) {
+    case OP_MATMUL: y = nn_matmul(t, a, b, c->ta, c->tb); break;
+    case OP_BIAS_ADD: y = nn_bias_add(t, a, nn_rows(t, b, 0, 1)); break;
+    case OP_ADD: y = nn_add(t, a, b); break;
+    case OP_SUB: y = nn_sub(t, a, b); break;
+    case OP_MUL: y = nn_mul(t, a, b); break;
+    case OP_SCALE: y = nn_scale(t, a, -1.7f); break;
+    case OP_ACT: y = nn_act(t, a, c->act); break;
+    case OP_ROWS: y = nn_mul(t, nn_rows(t, a, 1, 3), nn_rows(t, b, 0, 3)); break;
+    case OP_VSTACK: y = nn_vstack(t, a, b); break;
+    case OP_HSTACK: y = nn_hstack(t, a, b); break;
+    case OP_SUM_ABS: return nn_sum_abs(t, nn_mul(t, a, b));
+    default: fail_msg("no case for op %d", c->op);
+    }
+    /* a smooth scalar on top: mean((y - target)^2) exercises OP_SUB and OP_MEAN_SQ too */
+    Node *tg = nn_input(t, c->target, y->val.rows, y->val.cols);
+    return nn_mean_sq(t, nn_sub(t, y, tg));
+}
+
+static int near_zero(float v, float h) { return fabsf(v) < 2 * h; }
+
+static void check_op(int op, int ar, int ac, int br, int bc, int ta, int tb, ActId act) {
+    ParamSet ps;
+    params_init(&ps);
+    params_add(&ps, "a", ar, ac);
+    params_add(&ps, "b", br, bc);
+    params_alloc(&ps);
+    Rng r;
+    rng_seed(&r, 7 + op);
+    fill(params_val(&ps, 0), &r, -1.5f, 1.5f);
+    fill(params_val(&ps, 1), &r, -1.5f, 1.5f);
+    float target[256];
+    for (int i = 0; i < 256; i++) target[i] = (float)(rng_uniform(&r) - 0.5);
+    OpCase c = {op, ta, tb, act, target};
+    Tape t;
+    tape_init(&t, 64, 1 << 16);
+    GcOpts o = OPTS;
+    if (op == OP_SUM_ABS) o.at_kink = near_zero; /* |a b| has a kink where a b = 0: skip a, b near 0 */
+    gradcheck(&t, &ps, build_op, &c, &o);
+    tape_free(&t);
+    params_free(&ps);
+}
+
+static void test_grad_matmul(void **state) {
+    (void)state;
+    check_op(OP_MATMUL, 4, 3, 3, 5, 0, 0, 0);
+    check_op(OP_MATMUL, 3, 4, 3, 5, 1, 0, 0);
+    check_op(OP_MATMUL, 4, 3, 5, 3, 0, 1, 0);
+    check_op(OP_MATMUL, 3, 4, 5, 3, 1, 1, 0);
+}
+static void test_grad_bias_add(void **state) { (void)state; check_op(OP_BIAS_ADD, 4, 3, 2, 3, 0, 0, 0); }
+static void test_grad_add(void **state) { (void)state; check_op(OP_ADD, 4, 3, 4, 3, 0, 0, 0); }
+static void test_grad_sub(void **state) { (void)state; check_op(OP_SUB, 4, 3, 4, 3, 0, 0, 0); }
+static void test_grad_mul(void **state) { (void)state; check_op(OP_MUL, 4, 3, 4, 3, 0, 0, 0); }
+static void test_grad_scale(void **state) { (void)state; check_op(OP_SCALE, 4, 3, 4, 3, 0, 0, 0); }
+static void test_grad_sum_abs(void **state) { (void)state; check_op(OP_SUM_ABS, 4, 3, 4, 3, 0, 0, 0); }
+static void test_grad_rows(void **state) { (void)state; check_op(OP_ROWS, 4, 3, 4, 3, 0, 0, 0); }
+static void test_grad_vstack(void **state) { (void)state; check_op(OP_VSTACK, 4, 3, 2, 3, 0, 0, 0); }
+static void test_grad_hstack(void **state) { (void)state; check_op(OP_HSTACK, 4, 3, 4, 2, 0, 0, 0); }
+static void test_grad_activations(void **state) {
+    (void)state;
+    for (int a = 0; a < ACT_COUNT; a++) check_op(OP_ACT, 4, 3, 4, 3, 0, 0, (ActId)a);
+}
+
+/* Each activation's tabulated derivatives against central differences of the one below it
+ * (common practice): s' ~ (s(x+h) - s(x-h)) / 2h, likewise s'' from s' and s''' from s''. The closed
+ * forms are evaluated in float: h = 1e-2 gives truncation ~1e-5 and rounding ~1e-5. */
+static void test_activation_derivatives(void **state) {
+    (void)state;
+    const float h = 1e-2f;
+    for (int a = 0; a < ACT_COUNT; a++) {
+        for (float x = -4.0f; x <= 4.0f; x += 0.37f) {
+            float dp[4], dm[4], d[4];
+            act_table[a].fn(x + h, dp);
+            act_table[a].fn(x - h, dm);
+            act_table[a].fn(x, d);
+            for (int o = 1; o < 4; o++) assert_close(d[o], (dp[o - 1] - dm[o - 1]) / (2 * h), 2e-4, 2e-3);
+        }
+    }
+    /* published values: sigmoid(0) = 1/2, tanh(1) = 0.7615941559557649, softplus(0) = ln 2 */
+    float d[4];
+    act_table[ACT_SIGMOID].fn(0, d);
+    assert_close(d[0], 0.5, 1e-7, 0);
+    assert_close(d[1], 0.25, 1e-7, 0);
+    act_table[ACT_TANH].fn(1, d);
+    assert_close(d[0], 0.7615941559557649, 1e-7, 0);
+    act_table[ACT_SOFTPLUS].fn(0, d);
+    assert_close(d[0], 0.6931471805599453, 1e-7, 0);
+    assert_int_equal(act_from_name("silu"), ACT_SILU);
+    assert_int_equal(act_from_name("nonsense"), ACT_COUNT);
+}
+
+/* Forward values of the reductions, by hand. */
+static void test_reduction_values(void **state) {
+    (void)state;
+    float a[] = {1, -2, 3, -4};
+    Tape t;
+    tape_init(&t, 8, 4096);
+    Node *x = nn_input(&t, a, 2, 2);
+    assert_close(nn_mean_sq(&t, x)->val.d[0], (1 + 4 + 9 + 16) / 4.0, 1e-6, 0);
+    assert_close(nn_sum_abs(&t, x)->val.d[0], 10.0, 1e-6, 0);
+    tape_free(&t);
+}
+
+int main(void) {
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_gemm_matches_reference),
+        cmocka_unit_test(test_gemm_hand_example),
+        cmocka_unit_test(test_arena_reuses_memory_after_first_step),
+        cmocka_unit_test(test_rng_reference_values),
+        cmocka_unit_test(test_grad_matmul),
+        cmocka_unit_test(test_grad_bias_add),
+        cmocka_unit_test(test_grad_add),
+        cmocka_unit_test(test_grad_sub),
+        cmocka_unit_test(test_grad_mul),
+        cmocka_unit_test(test_grad_scale),
+        cmocka_unit_test(test_grad_sum_abs),
+        cmocka_unit_test(test_grad_rows),
+        cmocka_unit_test(test_grad_vstack),
+        cmocka_unit_test(test_grad_hstack),
+        cmocka_unit_test(test_grad_activations),
+        cmocka_unit_test(test_activation_derivatives),
+        cmocka_unit_test(test_reduction_values),
+    };
+    return cmocka_run_group_tests_name("nn ops", tests, NULL, NULL);
+}

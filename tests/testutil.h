@@ -1,0 +1,39 @@
+/* tests/testutil.h: what every cmocka suite includes. */
+#ifndef TESTUTIL_H
+#define TESTUTIL_H
+
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <cmocka.h>
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* Fail with both values and the tolerance when |a - b| > atol + rtol |b|. */
+#define assert_close(a, b, atol, rtol)                                                          \
+    do {                                                                                        \
+        double a_ = (a), b_ = (b);                                                              \
+        if (!(fabs(a_ - b_) <= (atol) + (rtol) * fabs(b_))) {                                   \
+            fail_msg("%s = %.9g, expected %s = %.9g (atol %g, rtol %g)", #a, a_, #b, b_,        \
+                     (double)(atol), (double)(rtol));                                           \
+        }                                                                                       \
+    } while (0)
+
+/* Path of a fresh temporary directory for a test (mkdtemp under TMPDIR or /tmp). */
+static inline char *test_tmpdir(char *buf, size_t n) {
+    const char *base = getenv("TMPDIR");
+    snprintf(buf, n, "%s/framelaw-test-XXXXXX", base && *base ? base : "/tmp");
+    return mkdtemp(buf);
+}
+
+/* The framelaw binary under test (set by `make test`). */
+static inline const char *test_framelaw(void) {
+    const char *p = getenv("FRAMELAW");
+    return p && *p ? p : "./framelaw";
+}
+
+#endif
