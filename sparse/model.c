@@ -1,0 +1,115 @@
+/* sparse/model.c: the joint model and its loss (see model.h for the math). */
+#include "sparse/model.h"
+
+#include <string.h>
+
+#include "nn/core.h"
+#include "sparse/coef.h"
+
+int model_init(Model *m, ParamSet *ps, const ModelSpec *sp, Status *st) {
+    memset(m, 0, sizeof *m);
+    m->n_in = sp->n_in;
+    m->n_latent = sp->n_latent;
+    m->order = sp->order;
+    LibrarySpec ls = sp->lib;
+    ls.n_latent = sp->n_latent;
+    ls.order = sp->order;
+    int rc = library_init(&m->lib, &ls, st);
+    if (rc) return rc;
+    int w[MLP_MAX_LAYERS + 1], n = 0;
+    w[n++] = sp->n_in;
+    for (int i = 0; i < sp->n_enc; i++) w[n++] = sp->enc_widths[i];
+    w[n++] = sp->n_latent;
+    mlp_declare(&m->enc, ps, "enc", w, n - 1, sp->act);
+    n = 0;
+    w[n++] = sp->n_latent;
+    if (sp->dec_mirror)
+        for (int i = sp->n_enc - 1; i >= 0; i--) w[n++] = sp->enc_widths[i];
+    else
+        for (int i = 0; i < sp->n_dec; i++) w[n++] = sp->dec_widths[i];
+    w[n++] = sp->n_in;
+    mlp_declare(&m->dec, ps, "dec", w, n - 1, sp->act);
+    m->xi = params_add(ps, "xi", m->lib.n_terms, sp->n_latent);
+    long nc = (long)m->lib.n_terms * sp->n_latent;
+    m->mask = nn_alloc((size_t)nc);
+    m->maskf = nn_alloc((size_t)nc * sizeof(float));
+    memset(m->mask, 1, (size_t)nc);
+    for (long i = 0; i < nc; i++) m->maskf[i] = 1.0f;
+    return 0;
+}
+
+void model_free(Model *m) {
+    library_free(&m->lib);
+    nn_free(m->mask);
+    nn_free(m->maskf);
+    memset(m, 0, sizeof *m);
+}
+
+void model_init_params(Model *m, ParamSet *ps, Rng *rng) {
+    mlp_init_glorot(&m->enc, ps, rng);
+    mlp_init_glorot(&m->dec, ps, rng);
+    Mat xi = params_val(ps, m->xi);
+    memset(xi.d, 0, (size_t)mat_size(xi) * sizeof(float));
+}
+
+static Node *weighted(Tape *t, Node *acc, Node *term, float w) {
+    if (w == 0.0f) return acc;
+    Node *x = w == 1.0f ? term : nn_scale(t, term, w);
+    return acc ? nn_add(t, acc, x) : x;
+}
+
+Node *model_loss(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const LossWeights *w,
+                 LossParts *parts) {
+    int k = m->order + 1, d = m->n_latent;
+    Node *x = nn_input(t, X, k * B, m->n_in);                   /* (kB, n_in) */
+    Node *z = mlp_forward(t, &m->enc, ps, x, k);                /* (kB, d) */
+    Node *z0 = nn_rows(t, z, 0, B), *z1 = nn_rows(t, z, B, B);  /* (B, d) each */
+    Node *s = m->order == 1 ? z0 : nn_hstack(t, z0, z1);        /* (B, n_vars) */
+    Node *theta = library_op(t, &m->lib, s);                    /* (B, n_terms) */
+    Node *xi = nn_mul(t, nn_param(t, ps, m->xi), nn_input(t, m->maskf, m->lib.n_terms, d));
+    Node *pred = nn_matmul(t, theta, xi, 0, 0);                 /* (B, d): z' or z'' predicted */
+    Node *zt = m->order == 1 ? z1 : nn_rows(t, z, 2 * B, B);    /* the encoder's z' or z'' */
+    Node *dec_in = m->order == 1 ? nn_vstack(t, z0, pred) : nn_vstack(t, nn_rows(t, z, 0, 2 * B), pred);
+    Node *xh = mlp_forward(t, &m->dec, ps, dec_in, k);          /* (kB, n_in) */
+    int last = (k - 1) * B;                                     /* rows of x' or x'' */
+    Node *rec = nn_mean_sq(t, nn_sub(t, nn_rows(t, x, 0, B), nn_rows(t, xh, 0, B)));
+    Node *ddx = nn_mean_sq(t, nn_sub(t, nn_rows(t, x, last, B), nn_rows(t, xh, last, B)));
+    Node *ddz = nn_mean_sq(t, nn_sub(t, zt, pred));
+    Node *l1 = nn_sum_abs(t, xi);
+    Node *loss = weighted(t, NULL, rec, w->rec);
+    loss = weighted(t, loss, ddx, w->dx);
+    loss = weighted(t, loss, ddz, w->dz);
+    loss = weighted(t, loss, l1, w->l1);
+    if (!loss) loss = nn_scale(t, rec, 0.0f);
+    if (parts) {
+        parts->rec = rec->val.d[0];
+        parts->dx = ddx->val.d[0];
+        parts->dz = ddz->val.d[0];
+        parts->l1 = l1->val.d[0];
+        parts->total = loss->val.d[0];
+    }
+    return loss;
+}
+
+void model_encode(Tape *t, const Model *m, ParamSet *ps, float *X, int B, int k, float *out) {
+    Node *z = mlp_forward(t, &m->enc, ps, nn_input(t, X, k * B, m->n_in), k);
+    memcpy(out, z->val.d, (size_t)k * B * m->n_latent * sizeof(float));
+}
+
+void model_apply_mask(Model *m, ParamSet *ps) {
+    const ParamView *v = &ps->views[m->xi];
+    long n = (long)v->rows * v->cols;
+    for (long i = 0; i < n; i++)
+        if (!m->mask[i]) ps->val[v->off + i] = ps->m[v->off + i] = ps->v[v->off + i] = 0.0f;
+}
+
+long model_threshold(Model *m, ParamSet *ps, float threshold) {
+    const ParamView *v = &ps->views[m->xi];
+    long n = (long)v->rows * v->cols;
+    long active = coef_threshold_f(ps->val + v->off, m->mask, ps->val + v->off, m->mask, n, threshold);
+    for (long i = 0; i < n; i++) m->maskf[i] = m->mask[i] ? 1.0f : 0.0f;
+    model_apply_mask(m, ps);
+    return active;
+}
+
+long model_active(const Model *m) { return coef_active(m->mask, (long)m->lib.n_terms * m->n_latent); }

@@ -1,0 +1,75 @@
+/* sparse/model.h: the joint model (encoder, decoder, sparse latent dynamics) and its loss on one
+ * batch given as arrays. Pure computation: no files, no time, no terminal.
+ *
+ * A batch is stacked as in nn/: X (k B, n_in) holds x in rows [0, B), x' in [B, 2B) and, for a
+ * second-order model, x'' in [2B, 3B); k = order + 1.
+ *
+ * First order (s = z):
+ *   (z, z') = enc(x, x');  z'_pred = Theta(z) (Xi * M);  (x_hat, x_hat') = dec(z, z'_pred)
+ *   L = w_rec |x - x_hat|^2 + w_dx |x' - x_hat'|^2 + w_dz |z' - z'_pred|^2 + w_l1 |Xi * M|_1
+ * Second order (s = (z, z')):
+ *   (z, z', z'') = enc(x, x', x'');  z''_pred = Theta(z, z') (Xi * M)
+ *   (x_hat, x_hat', x_hat'') = dec(z, z', z''_pred)
+ *   L = w_rec |x - x_hat|^2 + w_dx |x'' - x_hat''|^2 + w_dz |z'' - z''_pred|^2 + w_l1 |Xi * M|_1
+ * Every squared term is a mean over the batch and the components (so the weights compare terms of
+ * unit size); the L1 term is a plain sum over the coefficients. */
+#ifndef SPARSE_MODEL_H
+#define SPARSE_MODEL_H
+
+#include <stdint.h>
+
+#include "nn/mlp.h"
+#include "nn/params.h"
+#include "nn/rng.h"
+#include "nn/tape.h"
+#include "sparse/library.h"
+
+typedef struct {
+    float rec, dx, dz, l1;      /* loss weights */
+} LossWeights;
+
+typedef struct {
+    double total, rec, dx, dz, l1;  /* l1 is |Xi * M|_1 before weighting; the others likewise */
+} LossParts;
+
+typedef struct {
+    int n_in, n_latent, order;
+    Mlp enc, dec;
+    Library lib;
+    int xi;                     /* ParamSet index of Xi (n_terms, n_latent) */
+    uint8_t *mask;              /* (n_terms, n_latent), 1 = active */
+    float *maskf;               /* (n_terms, n_latent) the same as floats, for the tape */
+} Model;
+
+typedef struct {
+    int n_in, n_latent, order;
+    int n_enc;                  /* hidden layers of the encoder */
+    int enc_widths[MLP_MAX_LAYERS];
+    int n_dec;                  /* hidden layers of the decoder; 0 with dec_mirror */
+    int dec_widths[MLP_MAX_LAYERS];
+    int dec_mirror;             /* 1: decoder hidden widths are the encoder's reversed */
+    ActId act;
+    LibrarySpec lib;
+} ModelSpec;
+
+/* Declare the model's parameters in ps (call params_alloc after). ST_INPUT for a bad library. */
+int model_init(Model *m, ParamSet *ps, const ModelSpec *spec, Status *st);
+void model_free(Model *m);
+/* Glorot weights, zero biases, Xi = 0 (after params_alloc). */
+void model_init_params(Model *m, ParamSet *ps, Rng *rng);
+
+/* Record the loss of one batch on the tape; returns the scalar loss node and fills parts. The
+ * caller runs tape_backward for training, or only reads the value for validation. */
+Node *model_loss(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const LossWeights *w,
+                 LossParts *parts);
+
+/* Encode only: z (k B, n_latent) rows copied to out; returns out. For trajectories and forecasts. */
+void model_encode(Tape *t, const Model *m, ParamSet *ps, float *X, int B, int k, float *out);
+
+/* Zero the masked coefficients of Xi and their Adam moments (after each optimiser step). */
+void model_apply_mask(Model *m, ParamSet *ps);
+/* Sequential thresholding: mask out |Xi| < threshold for good. Returns the active count after. */
+long model_threshold(Model *m, ParamSet *ps, float threshold);
+long model_active(const Model *m);
+
+#endif
