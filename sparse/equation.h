@@ -1,0 +1,64 @@
+/* sparse/equation.h: a sparse model written as equations people read, and as JSON.
+ *
+ * Plain text, one line per latent variable j (n_latent lines, each ending in '\n'):
+ *     dz1/dt = -10 z1 + 10 z2                      (first order)
+ *     d2z1/dt2 = -0.98 sin(z1) - 0.05 dz1/dt       (second order)
+ * LaTeX, an aligned block:
+ *     \begin{aligned}
+ *     \dot{z}_{1} &= -10 z_{1} + 10 z_{2} \\
+ *     \dot{z}_{2} &= ...
+ *     \end{aligned}
+ * Terms appear in library order; a term whose coefficient is zero or masked out is left out; a
+ * coefficient is written with `digits` significant digits (1..17), a coefficient of exactly 1 or
+ * -1 at that precision is written as the sign alone (z2, - z1), and an equation without terms reads
+ * "= 0". LaTeX writes 1.5e-05 as 1.5 \times 10^{-5}.
+ *
+ * JSON (docs/sparse.md has the full format): the library settings, the term names, and per
+ * equation the full coefficient and mask vectors (coefficients with full double precision, so the
+ * model reloads exactly) beside its text and LaTeX forms at `digits`.
+ *
+ * Nothing here opens a file: the functions write to a caller's buffer or FILE*, or return a cJSON
+ * tree or string for io/ to store. */
+#ifndef SPARSE_EQUATION_H
+#define SPARSE_EQUATION_H
+
+#include <stddef.h>
+#include <stdint.h>
+#include <stdio.h>
+
+#include <cjson/cJSON.h>
+
+#include "nn/core.h"
+#include "sparse/coef.h"
+#include "sparse/library.h"
+
+#define EQ_JSON_FORMAT "framelaw-equations"
+#define EQ_JSON_VERSION 1
+
+typedef enum { EQ_TEXT, EQ_LATEX } EqStyle;
+
+/* Equation j alone ("dz1/dt = ...", no newline). Like snprintf: writes at most n bytes (always
+ * terminated when n > 0) and returns the length the whole text needs. xi, mask (n_terms, n_latent);
+ * mask may be NULL. */
+size_t equation_line(char *buf, size_t n, EqStyle style, const Library *lib, const double *xi,
+                     const uint8_t *mask, int j, int digits);
+
+/* Every equation (text: one line each; LaTeX: the aligned block), snprintf-like. */
+size_t equation_format(char *buf, size_t n, EqStyle style, const Library *lib, const double *xi,
+                       const uint8_t *mask, int digits);
+
+/* The same to a FILE*; 0, or -1 when writing failed. */
+int equation_fprint(FILE *f, EqStyle style, const Library *lib, const double *xi, const uint8_t *mask,
+                    int digits);
+
+/* The JSON object described in docs/sparse.md (the caller may add members, then cJSON_Delete). */
+cJSON *equation_json(const Library *lib, const double *xi, const uint8_t *mask, int digits);
+/* The same printed (indented); free() the result. NULL only when memory runs out. */
+char *equation_json_string(const Library *lib, const double *xi, const uint8_t *mask, int digits);
+
+/* Read a model back from its JSON text: builds lib (library_free it) and coef (coef_free it). The
+ * term names in the file must match the ones the library settings give. Returns 0 or ST_INPUT
+ * with a one-line message naming the member at fault (the caller adds the file name). */
+int equation_from_json(const char *text, Library *lib, Coef *coef, Status *st);
+
+#endif

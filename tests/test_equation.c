@@ -1,0 +1,186 @@
+/* tests/test_equation.c: equations as text, LaTeX and JSON. The expected strings are the
+ * notation of docs/sparse.md (our own format, ordinary mathematical notation: common practice). */
+#include "sparse/equation.h"
+#include "tests/testutil.h"
+
+static Library make(int k, int order, int degree, int trig) {
+    LibrarySpec sp = library_spec_default(k, order);
+    sp.degree = degree;
+    sp.trig = trig;
+    Library lib;
+    Status st;
+    if (library_init(&lib, &sp, &st)) fail_msg("%s", st.msg);
+    return lib;
+}
+
+/* Lorenz's system ("Deterministic Nonperiodic Flow", J. Atmos. Sci. 1963) as a model of ours. */
+static void lorenz_xi(const Library *lib, double *xi) {
+    memset(xi, 0, sizeof(double) * lib->n_terms * 3);
+    xi[library_find(lib, "z1") * 3 + 0] = -10, xi[library_find(lib, "z2") * 3 + 0] = 10;
+    xi[library_find(lib, "z1") * 3 + 1] = 28, xi[library_find(lib, "z2") * 3 + 1] = -1;
+    xi[library_find(lib, "z1 z3") * 3 + 1] = -1;
+    xi[library_find(lib, "z3") * 3 + 2] = -8.0 / 3, xi[library_find(lib, "z1 z2") * 3 + 2] = 1;
+}
+
+static void test_text_lorenz(void **state) {
+    (void)state;
+    Library lib = make(3, 1, 2, 0);
+    double xi[30];
+    lorenz_xi(&lib, xi);
+    char buf[512];
+    size_t n = equation_format(buf, sizeof buf, EQ_TEXT, &lib, xi, NULL, 4);
+    const char *want = "dz1/dt = -10 z1 + 10 z2\n"
+                       "dz2/dt = 28 z1 - z2 - z1 z3\n"
+                       "dz3/dt = -2.667 z3 + z1 z2\n";
+    assert_string_equal(buf, want);
+    assert_int_equal(n, strlen(want));
+    equation_format(buf, sizeof buf, EQ_TEXT, &lib, xi, NULL, 2);
+    assert_non_null(strstr(buf, "dz3/dt = -2.7 z3 + z1 z2\n"));
+    /* snprintf semantics: a short buffer is cut and terminated, the needed length returned */
+    char small[10];
+    assert_int_equal(equation_format(small, sizeof small, EQ_TEXT, &lib, xi, NULL, 4), strlen(want));
+    assert_string_equal(small, "dz1/dt = ");
+    /* a masked-out coefficient is left out even when nonzero */
+    uint8_t mask[30];
+    memset(mask, 1, sizeof mask);
+    mask[library_find(&lib, "z2") * 3 + 0] = 0;
+    equation_line(buf, sizeof buf, EQ_TEXT, &lib, xi, mask, 0, 4);
+    assert_string_equal(buf, "dz1/dt = -10 z1");
+    library_free(&lib);
+}
+
+/* The example of DESIGN.md and docs/sparse.md, second order. */
+static void test_text_pendulum(void **state) {
+    (void)state;
+    Library lib = make(1, 2, 1, 1);
+    double *xi = calloc((size_t)lib.n_terms, sizeof *xi);
+    xi[library_find(&lib, "sin(z1)")] = -0.98;
+    xi[library_find(&lib, "dz1/dt")] = -0.05;
+    char buf[256];
+    equation_format(buf, sizeof buf, EQ_TEXT, &lib, xi, NULL, 4);
+    assert_string_equal(buf, "d2z1/dt2 = -0.05 dz1/dt - 0.98 sin(z1)\n");   /* library order */
+    equation_format(buf, sizeof buf, EQ_LATEX, &lib, xi, NULL, 4);
+    assert_string_equal(buf, "\\begin{aligned}\n"
+                             "\\ddot{z}_{1} &= -0.05 \\dot{z}_{1} - 0.98 \\sin(z_{1})\n"
+                             "\\end{aligned}\n");
+    /* constant, all-zero, unit and tiny coefficients */
+    memset(xi, 0, sizeof(double) * lib.n_terms);
+    equation_line(buf, sizeof buf, EQ_TEXT, &lib, xi, NULL, 0, 4);
+    assert_string_equal(buf, "d2z1/dt2 = 0");
+    xi[0] = 1.0;
+    xi[library_find(&lib, "z1")] = -1.0;
+    xi[library_find(&lib, "cos(z1)")] = 1.5e-5;
+    equation_line(buf, sizeof buf, EQ_TEXT, &lib, xi, NULL, 0, 3);
+    assert_string_equal(buf, "d2z1/dt2 = 1 - z1 + 1.5e-05 cos(z1)");
+    equation_line(buf, sizeof buf, EQ_LATEX, &lib, xi, NULL, 0, 3);
+    assert_string_equal(buf, "\\ddot{z}_{1} &= 1 - z_{1} + 1.5 \\times 10^{-5} \\cos(z_{1})");
+    xi[0] = -2;
+    xi[library_find(&lib, "z1")] = 0;
+    equation_line(buf, sizeof buf, EQ_TEXT, &lib, xi, NULL, 0, 3);
+    assert_string_equal(buf, "d2z1/dt2 = -2 + 1.5e-05 cos(z1)");
+    free(xi);
+    library_free(&lib);
+}
+
+static void test_latex_lorenz(void **state) {
+    (void)state;
+    Library lib = make(3, 1, 2, 0);
+    double xi[30];
+    lorenz_xi(&lib, xi);
+    char buf[512];
+    equation_format(buf, sizeof buf, EQ_LATEX, &lib, xi, NULL, 4);
+    assert_string_equal(buf, "\\begin{aligned}\n"
+                             "\\dot{z}_{1} &= -10 z_{1} + 10 z_{2} \\\\\n"
+                             "\\dot{z}_{2} &= 28 z_{1} - z_{2} - z_{1} z_{3} \\\\\n"
+                             "\\dot{z}_{3} &= -2.667 z_{3} + z_{1} z_{2}\n"
+                             "\\end{aligned}\n");
+    FILE *f = tmpfile();
+    assert_non_null(f);
+    assert_int_equal(equation_fprint(f, EQ_TEXT, &lib, xi, NULL, 4), 0);
+    rewind(f);
+    char line[128];
+    assert_non_null(fgets(line, sizeof line, f));
+    assert_string_equal(line, "dz1/dt = -10 z1 + 10 z2\n");
+    fclose(f);
+    library_free(&lib);
+}
+
+/* JSON round trip: the library settings, names, coefficients (bit for bit) and mask come back. */
+static void test_json_roundtrip(void **state) {
+    (void)state;
+    LibrarySpec sp = library_spec_default(2, 2);
+    sp.trig = 1;
+    sp.n_freq = 2;
+    sp.freq[1] = 3;
+    sp.trig_velocity = 0;
+    sp.n_include = 1;
+    strcpy(sp.include[0], "z1^3");
+    sp.n_exclude = 1;
+    strcpy(sp.exclude[0], "z1 z2");
+    Library lib;
+    Status st;
+    assert_int_equal(library_init(&lib, &sp, &st), 0);
+    int T = lib.n_terms;
+    double *xi = malloc(sizeof(double) * T * 2);
+    uint8_t *mask = malloc((size_t)T * 2);
+    for (int i = 0; i < T * 2; i++) xi[i] = (i % 3) ? 0.1 * i - 1.0 / 3 : 0, mask[i] = (uint8_t)(i % 5 != 1);
+    for (int i = 0; i < T * 2; i++)
+        if (!mask[i]) xi[i] = 0;
+    char *js = equation_json_string(&lib, xi, mask, 4);
+    assert_non_null(js);
+    assert_non_null(strstr(js, "\"format\":\t\"framelaw-equations\""));
+    assert_non_null(strstr(js, "\"lhs\":\t\"d2z1/dt2\""));
+    Library l2;
+    Coef c;
+    if (equation_from_json(js, &l2, &c, &st)) fail_msg("%s", st.msg);
+    assert_int_equal(l2.n_terms, T);
+    assert_int_equal(l2.spec.order, 2);
+    assert_int_equal(l2.spec.n_freq, 2);
+    for (int t = 0; t < T; t++) assert_string_equal(l2.names[t], lib.names[t]);
+    for (int i = 0; i < T * 2; i++) {
+        if (c.xi[i] != xi[i]) fail_msg("xi[%d] %.17g read back as %.17g", i, xi[i], c.xi[i]);
+        assert_int_equal(c.mask[i], mask[i]);
+    }
+    library_free(&l2);
+    coef_free(&c);
+
+    /* damaged files: one-line errors naming the member */
+    const char *bad[][2] = {
+        {"{", "not valid JSON"},
+        {"{\"format\": \"other\"}", "\"format\""},
+        {"{\"format\": \"framelaw-equations\", \"version\": 2}", "version 2"},
+    };
+    for (int i = 0; i < 3; i++) {
+        assert_int_equal(equation_from_json(bad[i][0], &l2, &c, &st), ST_INPUT);
+        if (!strstr(st.msg, bad[i][1])) fail_msg("'%s' lacks '%s'", st.msg, bad[i][1]);
+    }
+    /* a renamed term and a short coefficient vector */
+    char *js2 = strdup(js);
+    char *at = strstr(strstr(js2, "\"terms\""), "\"z1^3\"");
+    assert_non_null(at);
+    memcpy(at, "\"z2^3\"", 6);
+    assert_int_equal(equation_from_json(js2, &l2, &c, &st), ST_INPUT);
+    assert_non_null(strstr(st.msg, "is not \"z1^3\""));
+    free(js2);
+    cJSON *root = cJSON_Parse(js);
+    cJSON *e0 = cJSON_GetArrayItem(cJSON_GetObjectItem(root, "equations"), 0);
+    cJSON_DeleteItemFromArray(cJSON_GetObjectItem(e0, "coefficients"), 0);
+    char *js3 = cJSON_Print(root);
+    assert_int_equal(equation_from_json(js3, &l2, &c, &st), ST_INPUT);
+    assert_non_null(strstr(st.msg, "equation 1 needs"));
+    free(js3);
+    cJSON_Delete(root);
+    free(js);
+    free(xi), free(mask);
+    library_free(&lib);
+}
+
+int main(void) {
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_text_lorenz),
+        cmocka_unit_test(test_text_pendulum),
+        cmocka_unit_test(test_latex_lorenz),
+        cmocka_unit_test(test_json_roundtrip),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
