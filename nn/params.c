@@ -21,6 +21,7 @@ int params_add(ParamSet *ps, const char *name, int rows, int cols) {
         ps->cap_views = cap;
     }
     ParamView *v = &ps->views[ps->n_views];
+    memset(v, 0, sizeof *v); /* no stray bytes after the name: checkpoints are byte-reproducible */
     snprintf(v->name, sizeof v->name, "%s", name);
     v->rows = rows;
     v->cols = cols;
