@@ -40,6 +40,7 @@ typedef struct {
     int n_encoder;                  /* model.encoder: hidden widths                      [[128, 64, 32]] */
     int encoder[CFG_MAX_LIST];
     int n_decoder;                  /* model.decoder: hidden widths; null = encoder mirrored    [null] */
+                                    /*   (n_decoder = -1 for null)                                     */
     int decoder[CFG_MAX_LIST];
     char activation[16];            /* model.activation: sigmoid | tanh | softplus | silu     [sigmoid] */
     char init[16];                  /* model.init: "glorot"                                    [glorot] */
@@ -81,16 +82,21 @@ typedef struct {
 /* Defaults for every key (data.frames empty). */
 void config_defaults(Config *c);
 
-/* Parse JSON text over the defaults; `origin` names the source in messages (file name). Relative
- * paths in data.frames and output are resolved against base_dir (the config file's folder; NULL for
- * the current directory). Returns 0 or ST_INPUT. */
+/* Parse JSON text over the defaults; `origin` names the source in messages (file name; NULL: none).
+ * A relative data.frames is resolved against base_dir (the config file's folder; NULL or "" leaves
+ * it as written, i.e. relative to the current directory); output is always relative to the current
+ * directory. On error *c is left unchanged. Returns 0 or ST_INPUT. */
 int config_parse(Config *c, const char *json, const char *origin, const char *base_dir, Status *st);
 
-/* Read and parse a config file (also fills output with runs/<file stem> when absent). */
+/* Read and parse a config file over *c (also fills output with runs/<file stem> when absent).
+ * base_dir is the file's folder made absolute, so the resolved data.frames is absolute. A missing
+ * or unreadable file is ST_INPUT naming the file. */
 int config_load(Config *c, const char *path, Status *st);
 
-/* Apply one `KEY.PATH=VALUE` override (VALUE is JSON; a bare word is taken as a string).
- * Same validation and messages as the file. */
+/* Apply one `KEY.PATH=VALUE` override (VALUE is JSON; a bare word is taken as a string). KEY.PATH
+ * may also name a section with an object value (`data.derivative={"method":"savgol"}`). Same
+ * validation and messages as the file, prefixed "--set"; a relative data.frames is made absolute
+ * against the current directory. On error *c is left unchanged. */
 int config_set(Config *c, const char *assignment, Status *st);
 
 /* Cross-key checks after parsing and overrides (e.g. refine_epochs < epochs, data.frames given). */
@@ -104,6 +110,13 @@ char *config_to_json(const Config *c);
 uint64_t config_digest(const Config *c);
 
 /* The names of the keys that may change on resume, for messages and docs. */
-extern const char *const config_resume_safe_keys[];
+extern const char *const config_resume_safe_keys[];   /* NULL-terminated */
+
+/* The key table, for docs and tests: the path of key i (0, 1, ...), NULL past the last key. */
+const char *config_key_path(int i);
+
+/* The key table as Markdown (one row per key: key, type, default, allowed values, meaning), as it
+ * appears in docs/config.md; malloc'ed, caller frees. */
+char *config_keys_markdown(void);
 
 #endif
