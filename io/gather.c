@@ -1,0 +1,202 @@
+/* io/gather.c: split, valid samples, scaling and the batch gather (see gather.h). */
+#include "io/gather.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <stdint.h>
+#include <stdlib.h>
+#include <string.h>
+
+void dataset_free(Dataset *ds) {
+    free(ds->gain);
+    free(ds->offset);
+    free(ds->rec_split);
+    for (int s = 0; s < SPLIT_COUNT; s++) free(ds->samples[s]);
+    memset(ds, 0, sizeof *ds);
+}
+
+static double unit_gain(StoreElem e) { return e == STORE_U8 ? 1.0 / 255.0 : e == STORE_U16 ? 1.0 / 65535.0 : 1.0; }
+
+static double load_value(const void *frame, StoreElem e, long p) {
+    switch (e) {
+    case STORE_U8: return ((const uint8_t *)frame)[p];
+    case STORE_U16: return ((const uint16_t *)frame)[p];
+    default: return ((const float *)frame)[p];
+    }
+}
+
+/* Assign recordings to splits. */
+static int split_recordings(Dataset *ds, const FrameStore *fs, const FrameSettings *s, Status *st) {
+    for (int r = 0; r < fs->n_rec; r++) ds->rec_split[r] = SPLIT_TRAIN;
+    if (s->val_names[0]) {
+        char buf[FRAMES_MAX_VAL_NAMES];
+        snprintf(buf, sizeof buf, "%s", s->val_names);
+        for (char *save = NULL, *tok = strtok_r(buf, ",", &save); tok; tok = strtok_r(NULL, ",", &save)) {
+            while (*tok == ' ') tok++;
+            char *e = tok + strlen(tok);
+            while (e > tok && e[-1] == ' ') *--e = 0;
+            if (!*tok) continue;
+            int found = -1;
+            for (int r = 0; r < fs->n_rec; r++)
+                if (!strcmp(fs->rec[r].name, tok)) found = r;
+            if (found < 0) {
+                char list[512] = "";
+                size_t k = 0;
+                for (int r = 0; r < fs->n_rec && k < sizeof list - 80; r++)
+                    k += (size_t)snprintf(list + k, sizeof list - k, "%s%s", r ? ", " : "", fs->rec[r].name);
+                return status_set(st, ST_INPUT, "validation recording '%s' not found (recordings: %s%s)", tok, list,
+                                  k >= sizeof list - 80 ? ", ..." : "");
+            }
+            ds->rec_split[found] = SPLIT_VAL;
+        }
+    } else if (s->val_last > 0 && fs->n_rec > s->val_last) {
+        for (int r = fs->n_rec - s->val_last; r < fs->n_rec; r++) ds->rec_split[r] = SPLIT_VAL;
+    }
+    for (int r = 0; r < fs->n_rec; r++) ds->n_rec_split[ds->rec_split[r]]++;
+    if (!ds->n_rec_split[SPLIT_TRAIN])
+        return status_set(st, ST_INPUT, "every recording is held out for validation: no training recording left");
+    return 0;
+}
+
+static int compute_scaling(Dataset *ds, const FrameStore *fs, Status *st) {
+    double u = unit_gain(fs->elem);
+    long n = ds->n;
+    for (long p = 0; p < n; p++) ds->gain[p] = (float)u, ds->offset[p] = 0;
+    if (ds->scale != SCALE_STANDARD) return 0;
+    double *sum = calloc((size_t)n, sizeof(double)), *sq = calloc((size_t)n, sizeof(double));   /* (n) each */
+    if (!sum || !sq) {
+        free(sum), free(sq);
+        return status_set(st, ST_RUNTIME, "out of memory for per-pixel statistics");
+    }
+    /* Shifted sums (by the first training frame) keep the variance accurate. */
+    const void *ref = NULL;
+    long cnt = 0;
+    for (int r = 0; r < fs->n_rec; r++) {
+        if (ds->rec_split[r] != SPLIT_TRAIN) continue;
+        for (long f = fs->rec[r].first; f < fs->rec[r].first + fs->rec[r].count; f++) {
+            const void *fr = store_frame(fs, f);
+            if (!ref) ref = fr;
+            for (long p = 0; p < n; p++) {
+                double d = load_value(fr, fs->elem, p) - load_value(ref, fs->elem, p);
+                sum[p] += d, sq[p] += d * d;
+            }
+            cnt++;
+        }
+    }
+    for (long p = 0; p < n; p++) {
+        double mean_d = sum[p] / cnt, var = sq[p] / cnt - mean_d * mean_d;
+        double mean = (mean_d + load_value(ref, fs->elem, p)) * u, sd = sqrt(var > 0 ? var : 0) * u;
+        if (sd < 1e-6) sd = 1;
+        ds->gain[p] = (float)(u / sd);
+        ds->offset[p] = (float)(-mean / sd);
+    }
+    free(sum), free(sq);
+    return 0;
+}
+
+int dataset_init(Dataset *ds, const FrameStore *fs, const FrameSettings *s, Status *st) {
+    memset(ds, 0, sizeof *ds);
+    if (frame_settings_check(s, st) || frame_settings_stencil(s, &ds->sten, st)) return st->code;
+    ds->fs = fs;
+    ds->dt = frame_settings_dt(s);
+    ds->scale = s->scale;
+    ds->n = fs->n;
+    int m = ds->sten.m;
+    for (int r = 0; r < fs->n_rec; r++)
+        if (fs->rec[r].count < 2L * m + 1)
+            return status_set(st, ST_INPUT,
+                              "recording '%s' has %ld frames (after stride %d), the %s stencil needs at least %d",
+                              fs->rec[r].name, fs->rec[r].count, s->stride, stencil_kind_names[ds->sten.kind], 2 * m + 1);
+    ds->gain = malloc(sizeof(float) * (size_t)ds->n);
+    ds->offset = malloc(sizeof(float) * (size_t)ds->n);
+    ds->rec_split = malloc(sizeof(int) * (size_t)fs->n_rec);
+    if (!ds->gain || !ds->offset || !ds->rec_split) {
+        dataset_free(ds);
+        return status_set(st, ST_RUNTIME, "out of memory");
+    }
+    if (split_recordings(ds, fs, s, st) || compute_scaling(ds, fs, st)) {
+        dataset_free(ds);
+        return st->code;
+    }
+    for (int sp = 0; sp < SPLIT_COUNT; sp++) {
+        long cnt = 0;
+        for (int r = 0; r < fs->n_rec; r++)
+            if (ds->rec_split[r] == sp) cnt += stencil_valid(&ds->sten, fs->rec[r].count);
+        ds->samples[sp] = malloc(sizeof(long) * (size_t)(cnt ? cnt : 1));
+        if (!ds->samples[sp]) {
+            dataset_free(ds);
+            return status_set(st, ST_RUNTIME, "out of memory");
+        }
+        long k = 0;
+        for (int r = 0; r < fs->n_rec; r++)
+            if (ds->rec_split[r] == sp)
+                for (long f = fs->rec[r].first + m; f <= fs->rec[r].first + fs->rec[r].count - 1 - m; f++)
+                    ds->samples[sp][k++] = f;
+        ds->count[sp] = cnt;
+    }
+    return 0;
+}
+
+/* acc (n) += w * frame. */
+static void axpy_frame(float *acc, float w, const void *frame, StoreElem e, long n) {
+    if (e == STORE_U8) {
+        const uint8_t *q = frame;
+        for (long p = 0; p < n; p++) acc[p] += w * (float)q[p];
+    } else if (e == STORE_U16) {
+        const uint16_t *q = frame;
+        for (long p = 0; p < n; p++) acc[p] += w * (float)q[p];
+    } else {
+        const float *q = frame;
+        for (long p = 0; p < n; p++) acc[p] += w * q[p];
+    }
+}
+
+void dataset_frame(const Dataset *ds, long frame, float *x) {
+    const FrameStore *fs = ds->fs;
+    const void *q = store_frame(fs, frame);
+    for (long p = 0; p < ds->n; p++) x[p] = (float)load_value(q, fs->elem, p) * ds->gain[p] + ds->offset[p];
+}
+
+void dataset_gather_frames(const Dataset *ds, const long *frames, int B, float *x, float *dx, float *ddx) {
+    const FrameStore *fs = ds->fs;
+    long n = ds->n;
+    int m = ds->sten.m, len = 2 * m + 1;
+    float inv1 = (float)(1.0 / ds->dt), inv2 = (float)(1.0 / (ds->dt * ds->dt));
+    for (int b = 0; b < B; b++) {
+        long f = frames[b];
+        if (x) dataset_frame(ds, f, x + (long)b * n);
+        float *d1 = dx ? dx + (long)b * n : NULL, *d2 = ddx ? ddx + (long)b * n : NULL;   /* (n) rows */
+        if (d1) memset(d1, 0, sizeof(float) * (size_t)n);
+        if (d2) memset(d2, 0, sizeof(float) * (size_t)n);
+        for (int k = 0; k < len; k++) {
+            const void *q = store_frame(fs, f - m + k);
+            if (d1 && ds->sten.w1[k] != 0) axpy_frame(d1, (float)ds->sten.w1[k], q, fs->elem, n);
+            if (d2 && ds->sten.w2[k] != 0) axpy_frame(d2, (float)ds->sten.w2[k], q, fs->elem, n);
+        }
+        for (long p = 0; p < n; p++) {
+            if (d1) d1[p] *= ds->gain[p] * inv1;
+            if (d2) d2[p] *= ds->gain[p] * inv2;
+        }
+    }
+}
+
+void dataset_gather(const Dataset *ds, SplitId split, const int *idx, int B, float *x, float *dx, float *ddx) {
+    enum { CHUNK = 256 };
+    long frames[CHUNK];
+    for (int b0 = 0; b0 < B; b0 += CHUNK) {
+        int nb = B - b0 < CHUNK ? B - b0 : CHUNK;
+        for (int b = 0; b < nb; b++) frames[b] = ds->samples[split][idx[b0 + b]];
+        long off = (long)b0 * ds->n;
+        dataset_gather_frames(ds, frames, nb, x ? x + off : NULL, dx ? dx + off : NULL, ddx ? ddx + off : NULL);
+    }
+}
+
+int dataset_recording_of(const Dataset *ds, long frame) {
+    int lo = 0, hi = ds->fs->n_rec - 1;
+    while (lo < hi) {
+        int mid = (lo + hi + 1) / 2;
+        if (ds->fs->rec[mid].first <= frame) lo = mid;
+        else hi = mid - 1;
+    }
+    return lo;
+}
