@@ -16,6 +16,9 @@ int cli_error(int code, const char *fmt, ...) __attribute__((format(printf, 2, 3
 /* 1 when argv holds --help or -h. */
 int cli_wants_help(int argc, char **argv);
 
+/* framelaw frames DIR: inspect a frames folder (io/cmd_frames.c). */
+int cmd_frames(int argc, char **argv);
+
 
 
 

@@ -11,6 +11,7 @@ static int cmd_help(int argc, char **argv);
 /* One row per command; add a command here and declare it in io/cli.h. */
 static const Command commands[] = {
     {"help", "show this overview", cmd_help},
+    {"frames", "inspect a frames folder: recordings, sizes, frame store, contact sheet", cmd_frames},
 };
 enum { N_COMMANDS = sizeof commands / sizeof commands[0] };
 
