@@ -16,10 +16,16 @@ int cli_error(int code, const char *fmt, ...) __attribute__((format(printf, 2, 3
 /* 1 when argv holds --help or -h. */
 int cli_wants_help(int argc, char **argv);
 
+/* framelaw fit FILE: a sparse ODE fitted to a time series of state coordinates (io/cmd_fit.c). */
+int cmd_fit(int argc, char **argv);
+
 /* framelaw frames DIR: inspect a frames folder (io/cmd_frames.c). */
 int cmd_frames(int argc, char **argv);
 
 
 
+
+int cmd_train(int argc, char **argv);   /* io/cmd_train.c */
+int cmd_resume(int argc, char **argv);  /* io/cmd_train.c */
 
 #endif

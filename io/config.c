@@ -145,11 +145,11 @@ static const KeyDef keys[] = {
     K_STRS("library.exclude", lib_exclude, n_lib_exclude, "[]", "terms removed by name, e.g. \"1\""),
     /* loss */
     K_NUM("loss.reconstruction", w_rec, "1", 0, INFINITY, 0, "weight of |x - x_hat|^2"),
-    K_NUM("loss.dx", w_dx, "0.0001", 0, INFINITY, 0,
+    K_NUM("loss.dx", w_dx, "0.1", 0, INFINITY, 0,
           "weight of |x' - x_hat'|^2 (first order) or |x'' - x_hat''|^2 (second order)"),
-    K_NUM("loss.dz", w_dz, "0", 0, INFINITY, 0,
+    K_NUM("loss.dz", w_dz, "1", 0, INFINITY, 0,
           "weight of |z' - z'_pred|^2 (first order) or |z'' - z''_pred|^2 (second order)"),
-    K_NUM("loss.l1", w_l1, "1e-05", 0, INFINITY, 0,
+    K_NUM("loss.l1", w_l1, "0.001", 0, INFINITY, 0,
           "weight of the L1 norm of the coefficients (0 during refinement)"),
     /* optimizer */
     K_NUM("optimizer.lr", lr, "0.001", 0, INFINITY, LO_OPEN, "Adam learning rate"),
@@ -632,6 +632,7 @@ static int read_text(const char *path, char **out, Status *st) {
 int config_load(Config *c, const char *path, Status *st) {
     char *text;
     if (read_text(path, &text, st)) return st->code;
+    config_defaults(c); /* the file is read over the defaults */
     /* the file's folder, made absolute */
     char dir[CFG_PATH_MAX];
     const char *slash = strrchr(path, '/');

@@ -10,7 +10,10 @@ static int cmd_help(int argc, char **argv);
 
 /* One row per command; add a command here and declare it in io/cli.h. */
 static const Command commands[] = {
+    {"train", "train the autoencoder and the sparse latent model from a config file", cmd_train},
+    {"resume", "continue a stopped run from its newest valid checkpoint", cmd_resume},
     {"help", "show this overview", cmd_help},
+    {"fit", "fit a sparse ODE to a time series of state coordinates (CSV or .npy)", cmd_fit},
     {"frames", "inspect a frames folder: recordings, sizes, frame store, contact sheet", cmd_frames},
 };
 enum { N_COMMANDS = sizeof commands / sizeof commands[0] };

@@ -117,7 +117,7 @@ static void prune_checkpoints(const char *dir, int keep) {
 
 typedef struct {
     const Config *cfg;
-    const Dataset *ds;
+    const TrainData *ds;
     Model *m;
     ParamSet *ps;
     CkptMeta meta;
@@ -147,6 +147,12 @@ static int load_latest(Run *r, int quiet, Status *st) {
     char **names;
     int n = list_checkpoints(r->ckpt_dir, &names);
     long n_mask = (long)r->m->lib.n_terms * r->m->n_latent;
+    if (n == 0) { /* stopped before the first checkpoint: the run starts over, from the same seed */
+        if (!quiet) fprintf(stderr, "framelaw: no checkpoint yet in %s; starting the run from the beginning\n", r->ckpt_dir);
+        free_names(names, n);
+        status_ok(st);
+        return 0;
+    }
     int rc = status_set(st, ST_INPUT, "%s: no checkpoint to resume from", r->ckpt_dir);
     for (int i = 0; i < n; i++) {
         char path[4200];
@@ -228,7 +234,7 @@ static void fmt_duration(double s, char *buf, size_t n) {
 /* ---- validation ------------------------------------------------------------------------------ */
 
 static int validate(Run *r, Tape *t, float *X, int Bmax, double *out, Status *st) {
-    const Dataset *ds = r->ds;
+    const TrainData *ds = r->ds;
     LossWeights w = {(float)r->cfg->w_rec, (float)r->cfg->w_dx, (float)r->cfg->w_dz, 0.0f};
     double sum = 0;
     int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
@@ -249,7 +255,7 @@ static int validate(Run *r, Tape *t, float *X, int Bmax, double *out, Status *st
 
 /* ---- set-up ---------------------------------------------------------------------------------- */
 
-static int setup(Run *r, const Config *cfg, const Dataset *ds, const char *run_dir, Model *m, ParamSet *ps,
+static int setup(Run *r, const Config *cfg, const TrainData *ds, const char *run_dir, Model *m, ParamSet *ps,
                  Status *st) {
     memset(r, 0, sizeof *r);
     r->cfg = cfg;
@@ -279,7 +285,7 @@ static int setup(Run *r, const Config *cfg, const Dataset *ds, const char *run_d
 
 int train_load_latest(const char *run_dir, const Config *cfg, int n_in, long n_train, Model *m, ParamSet *ps,
                       Status *st) {
-    Dataset ds = {0};
+    TrainData ds = {0};
     ds.n_in = n_in;
     ds.n_train = n_train;
     Run r;
@@ -291,7 +297,7 @@ int train_load_latest(const char *run_dir, const Config *cfg, int n_in, long n_t
 
 /* ---- the loop -------------------------------------------------------------------------------- */
 
-int train_run(const TrainOpts *o, const Dataset *ds, Model *m, ParamSet *ps, TrainResult *res, Status *st) {
+int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, TrainResult *res, Status *st) {
     const Config *c = o->cfg;
     memset(res, 0, sizeof *res);
     res->best_val = NAN;

@@ -26,7 +26,7 @@ typedef struct {
     double dt;              /* seconds between samples */
     int (*gather)(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st);
     void *ctx;
-} Dataset;
+} TrainData;
 
 typedef struct {
     const Config *cfg;
@@ -52,7 +52,7 @@ int model_spec_from_config(const Config *c, int n_in, ModelSpec *sp, Status *st)
  * return the model's parameters and mask are in *m and *ps (initialised by this call; the caller
  * frees them with model_free / params_free). ST_RUNTIME on divergence (the last good checkpoint
  * stays) or a file error. */
-int train_run(const TrainOpts *o, const Dataset *ds, Model *m, ParamSet *ps, TrainResult *res, Status *st);
+int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, TrainResult *res, Status *st);
 
 /* Load the newest valid checkpoint of a run into a model set up from its config (no training). */
 int train_load_latest(const char *run_dir, const Config *cfg, int n_in, long n_train, Model *m, ParamSet *ps,

@@ -83,7 +83,7 @@ static void test_defaults(void **state) {
     assert_int_equal(c.lib_freq[0], 1);
     assert_int_equal(c.n_lib_include, 0);
     assert_int_equal(c.n_lib_exclude, 0);
-    assert_true(c.w_rec == 1 && c.w_dx == 1e-4 && c.w_dz == 0 && c.w_l1 == 1e-5);
+    assert_true(c.w_rec == 1 && c.w_dx == 0.1 && c.w_dz == 1 && c.w_l1 == 1e-3);
     assert_true(c.lr == 1e-3 && c.beta1 == 0.9 && c.beta2 == 0.999 && c.eps == 1e-8);
     assert_string_equal(c.schedule, "constant");
     assert_int_equal(c.sched_every, 1000);

@@ -30,6 +30,13 @@ static inline char *test_tmpdir(char *buf, size_t n) {
     return mkdtemp(buf);
 }
 
+/* Remove a test's temporary directory and everything in it. */
+static inline void test_rmtree(const char *dir) {
+    char cmd[4200];
+    snprintf(cmd, sizeof cmd, "rm -rf '%s'", dir);
+    if (system(cmd) != 0) fprintf(stderr, "could not remove %s\n", dir);
+}
+
 /* The framelaw binary under test (set by `make test`). */
 static inline const char *test_framelaw(void) {
     const char *p = getenv("FRAMELAW");

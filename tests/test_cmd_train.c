@@ -1,0 +1,224 @@
+/* tests/test_cmd_train.c: `framelaw train` and `framelaw resume` end to end on numeric recordings:
+ * the run folder, Ctrl-C, a loop of kill -9 at random moments followed by resume (the result must be
+ * identical to an uninterrupted run), and bad command lines. Common practice for crash-safety tests:
+ * kill the process at arbitrary points and check that recovery reaches the same state. */
+#include <signal.h>
+#include <sys/stat.h>
+#include <sys/wait.h>
+#include <time.h>
+#include <unistd.h>
+
+#include "nn/rng.h"
+#include "tests/testutil.h"
+
+enum { NCH = 16, NREC = 4, NT = 120 };
+/* long enough (about a second at ~1000 epochs/s) that the kills land inside the run */
+enum { EPOCHS = 1200 };
+
+/* Recordings of a linear oscillator (w = 2 rad/s) seen through 16 fixed channels, as CSV. */
+static void write_recordings(const char *dir) {
+    Rng r;
+    rng_seed(&r, 5);
+    double P[NCH][2];
+    for (int c = 0; c < NCH; c++) P[c][0] = rng_normal(&r), P[c][1] = rng_normal(&r);
+    for (int k = 0; k < NREC; k++) {
+        char path[512];
+        snprintf(path, sizeof path, "%s/rec%d.csv", dir, k);
+        FILE *f = fopen(path, "w");
+        assert_non_null(f);
+        for (int i = 0; i < NT; i++) {
+            double t = i / 30.0, a = 0.5 + 0.1 * k;
+            double z0 = a * sin(2 * t + k), z1 = a * cos(2 * t + k);
+            for (int c = 0; c < NCH; c++) fprintf(f, "%s%.9g", c ? "," : "", P[c][0] * z0 + P[c][1] * z1);
+            fputc('\n', f);
+        }
+        fclose(f);
+    }
+}
+
+static void write_config(const char *path, const char *data, const char *out, int epochs) {
+    FILE *f = fopen(path, "w");
+    assert_non_null(f);
+    fprintf(f,
+            "{\"data\": {\"frames\": \"%s\", \"fps\": 30},\n"
+            " \"model\": {\"latent\": 2, \"order\": 1, \"encoder\": [16], \"activation\": \"tanh\"},\n"
+            " \"library\": {\"degree\": 2},\n"
+            " \"loss\": {\"dx\": 0.1, \"dz\": 1, \"l1\": 1e-3},\n"
+            " \"train\": {\"batch\": 32, \"epochs\": %d, \"threads\": 1, \"validate_every\": 5},\n"
+            " \"threshold\": {\"value\": 0.05, \"every\": 10, \"refine_epochs\": 10},\n"
+            " \"checkpoint\": {\"every\": 25, \"keep\": 2},\n"
+            " \"output\": \"%s\"}\n",
+            data, epochs, out);
+    fclose(f);
+}
+
+/* Run framelaw with arguments; returns the exit status (or 128 + signal). */
+static pid_t spawn(char *const args[], int quiet) {
+    pid_t pid = fork();
+    assert_true(pid >= 0);
+    if (pid == 0) {
+        if (quiet) {
+            FILE *n = freopen("/dev/null", "w", stderr);
+            (void)n;
+            n = freopen("/dev/null", "w", stdout);
+            (void)n;
+        }
+        execv(args[0], args);
+        _exit(127);
+    }
+    return pid;
+}
+
+static int wait_status(pid_t pid) {
+    int ws;
+    assert_int_equal(waitpid(pid, &ws, 0), pid);
+    return WIFEXITED(ws) ? WEXITSTATUS(ws) : 128 + WTERMSIG(ws);
+}
+
+static int run_cmd(const char *a1, const char *a2, const char *a3, const char *a4) {
+    char *args[] = {(char *)test_framelaw(), (char *)a1, (char *)a2, (char *)a3, (char *)a4, NULL};
+    return wait_status(spawn(args, 1));
+}
+
+static char *slurp(const char *path) {
+    FILE *f = fopen(path, "rb");
+    if (!f) return NULL;
+    fseek(f, 0, SEEK_END);
+    long n = ftell(f);
+    fseek(f, 0, SEEK_SET);
+    char *b = malloc((size_t)n + 1);
+    size_t got = fread(b, 1, (size_t)n, f);
+    b[got] = 0;
+    fclose(f);
+    return b;
+}
+
+typedef struct {
+    char dir[256], data[512];
+} Fixture;
+
+static int setup(void **state) {
+    Fixture *fx = calloc(1, sizeof *fx);
+    assert_non_null(test_tmpdir(fx->dir, sizeof fx->dir));
+    snprintf(fx->data, sizeof fx->data, "%s/data", fx->dir);
+    assert_int_equal(mkdir(fx->data, 0777), 0);
+    write_recordings(fx->data);
+    *state = fx;
+    return 0;
+}
+
+static int teardown(void **state) {
+    Fixture *fx = *state;
+    char cmd[600];
+    snprintf(cmd, sizeof cmd, "rm -rf '%s'", fx->dir);
+    if (system(cmd) != 0) fprintf(stderr, "could not remove %s\n", fx->dir);
+    free(fx);
+    return 0;
+}
+
+/* kill -9 at random moments, resume each time, and finally finish: the equations and the last
+ * checkpoint's parameters equal those of a run that was never interrupted. */
+static void test_kill_loop_then_resume_matches_straight_run(void **state) {
+    Fixture *fx = *state;
+    char cfg[600], run_a[600], run_b[600];
+    snprintf(run_a, sizeof run_a, "%s/straight", fx->dir);
+    snprintf(run_b, sizeof run_b, "%s/killed", fx->dir);
+    snprintf(cfg, sizeof cfg, "%s/a.json", fx->dir);
+    write_config(cfg, fx->data, run_a, EPOCHS);
+    assert_int_equal(run_cmd("train", cfg, "--quiet", NULL), 0);
+    snprintf(cfg, sizeof cfg, "%s/b.json", fx->dir);
+    write_config(cfg, fx->data, run_b, EPOCHS);
+    Rng r;
+    rng_seed(&r, (uint64_t)time(NULL));
+    int started = 0, kills = 0, kills_landed = 0;
+    for (int i = 0; i < 8; i++) {
+        char ck[700];
+        snprintf(ck, sizeof ck, "%s/checkpoints", run_b);
+        struct stat sb;
+        int have = stat(ck, &sb) == 0;
+        char *args_t[] = {(char *)test_framelaw(), "train", cfg, "--quiet", NULL};
+        char *args_r[] = {(char *)test_framelaw(), "resume", run_b, "--quiet", NULL};
+        pid_t pid = spawn(have ? args_r : args_t, 1);
+        started++;
+        struct timespec ts = {0, (long)(20e6 + 250e6 * rng_uniform(&r))}; /* 20 to 270 ms */
+        nanosleep(&ts, NULL);
+        if (kill(pid, SIGKILL) == 0) kills++;
+        int rc = wait_status(pid);
+        /* killed (137) or finished (0) */
+        assert_true(rc == 128 + SIGKILL || rc == 0);
+        if (rc == 0) break;
+        if (rc == 128 + SIGKILL) kills_landed++;
+    }
+    assert_true(started >= 1 && kills >= 1);
+    assert_true(kills_landed >= 2); /* at least two kills hit a running training */
+    char ck[700];
+    snprintf(ck, sizeof ck, "%s/checkpoints", run_b);
+    struct stat sb;
+    int rc = stat(ck, &sb) == 0 ? run_cmd("resume", run_b, "--quiet", NULL) : run_cmd("train", cfg, "--quiet", NULL);
+    assert_int_equal(rc, 0);
+    char pa[700], pb[700];
+    snprintf(pa, sizeof pa, "%s/equations.json", run_a);
+    snprintf(pb, sizeof pb, "%s/equations.json", run_b);
+    char *ea = slurp(pa), *eb = slurp(pb);
+    assert_non_null(ea);
+    assert_non_null(eb);
+    assert_string_equal(ea, eb);
+    free(ea);
+    free(eb);
+    /* the log has each epoch once, 1..EPOCHS, whatever was replayed */
+    snprintf(pb, sizeof pb, "%s/log.csv", run_b);
+    char *log = slurp(pb);
+    assert_non_null(log);
+    int expect = 1;
+    for (char *line = strchr(log, '\n'); line && line[1]; line = strchr(line + 1, '\n'))
+        assert_int_equal(atoi(line + 1), expect++);
+    assert_int_equal(expect, EPOCHS + 1);
+    free(log);
+}
+
+/* SIGINT finishes the step, writes a checkpoint and says how to resume. */
+static void test_interrupt_writes_checkpoint(void **state) {
+    Fixture *fx = *state;
+    char cfg[600], run[600];
+    snprintf(run, sizeof run, "%s/interrupted", fx->dir);
+    snprintf(cfg, sizeof cfg, "%s/c.json", fx->dir);
+    write_config(cfg, fx->data, run, 100000);
+    char *args[] = {(char *)test_framelaw(), "train", cfg, "--quiet", NULL};
+    pid_t pid = spawn(args, 1);
+    struct timespec ts = {0, 400000000};
+    nanosleep(&ts, NULL);
+    kill(pid, SIGINT);
+    assert_int_equal(wait_status(pid), 1);
+    char ck[700];
+    snprintf(ck, sizeof ck, "%s/checkpoints", run);
+    char cmd[800];
+    snprintf(cmd, sizeof cmd, "ls '%s' | grep -q '^ckpt-'", ck);
+    assert_int_equal(system(cmd), 0);
+}
+
+/* Bad command lines and run folders: a one-line message, exit 2. */
+static void test_bad_usage(void **state) {
+    Fixture *fx = *state;
+    char cfg[600], run[600];
+    assert_int_equal(run_cmd("train", NULL, NULL, NULL), 2);
+    assert_int_equal(run_cmd("train", "/nonexistent/config.json", NULL, NULL), 2);
+    assert_int_equal(run_cmd("resume", "/nonexistent/run", NULL, NULL), 2);
+    snprintf(run, sizeof run, "%s/twice", fx->dir);
+    snprintf(cfg, sizeof cfg, "%s/d.json", fx->dir);
+    write_config(cfg, fx->data, run, 12);
+    assert_int_equal(run_cmd("train", cfg, "--quiet", NULL), 0);
+    assert_int_equal(run_cmd("train", cfg, "--quiet", NULL), 2); /* the run folder already holds a run */
+    assert_int_equal(run_cmd("resume", run, "--set", "optimizer.lr=0.5"), 2); /* not a resume-safe key */
+    assert_int_equal(run_cmd("train", cfg, "--set", "model.order=7"), 2);
+    assert_int_equal(run_cmd("train", "--help", NULL, NULL), 0);
+    assert_int_equal(run_cmd("resume", "--help", NULL, NULL), 0);
+}
+
+int main(void) {
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test_setup_teardown(test_kill_loop_then_resume_matches_straight_run, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_interrupt_writes_checkpoint, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_bad_usage, setup, teardown),
+    };
+    return cmocka_run_group_tests_name("train and resume commands", tests, NULL, NULL);
+}
