@@ -331,6 +331,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     int tty = isatty(fileno(stderr));
     double t_start = now_seconds(), seconds0 = r.meta.seconds;
     long epoch0 = (long)r.meta.epoch, steps = 0;
+    double t_shown = 0;
     rc = 0;
 
     while (r.meta.epoch < c->epochs) {
@@ -411,8 +412,13 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
         if (done == c->epochs || stopping || (c->ckpt_every > 0 && done % c->ckpt_every == 0)) {
             if ((rc = save_periodic(&r, res->checkpoint, st))) goto out;
         }
-        if (!o->quiet) {
-            double el = now_seconds() - t_start, rate = (double)(done - epoch0) / (el > 0 ? el : 1e-9);
+        /* on a terminal one updating line every epoch; otherwise a plain line at most every 10 s, at
+         * validations and at the end, so that a log file stays readable */
+        double t_now = now_seconds();
+        int show = tty || validated || done == c->epochs || stopping || t_now - t_shown >= 10.0;
+        if (!o->quiet && show) {
+            t_shown = t_now;
+            double el = t_now - t_start, rate = (double)(done - epoch0) / (el > 0 ? el : 1e-9);
             char eta[32];
             fmt_duration((double)(c->epochs - done) / rate, eta, sizeof eta);
             char vbuf[32] = "";
