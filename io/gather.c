@@ -137,24 +137,41 @@ int dataset_init(Dataset *ds, const FrameStore *fs, const FrameSettings *s, Stat
     return 0;
 }
 
-/* acc (n) += w * frame. */
-static void axpy_frame(float *acc, float w, const void *frame, StoreElem e, long n) {
-    if (e == STORE_U8) {
-        const uint8_t *q = frame;
-        for (long p = 0; p < n; p++) acc[p] += w * (float)q[p];
-    } else if (e == STORE_U16) {
-        const uint16_t *q = frame;
-        for (long p = 0; p < n; p++) acc[p] += w * (float)q[p];
-    } else {
-        const float *q = frame;
-        for (long p = 0; p < n; p++) acc[p] += w * q[p];
-    }
-}
-
 void dataset_frame(const Dataset *ds, long frame, float *x) {
     const FrameStore *fs = ds->fs;
     const void *q = store_frame(fs, frame);
-    for (long p = 0; p < ds->n; p++) x[p] = (float)load_value(q, fs->elem, p) * ds->gain[p] + ds->offset[p];
+    const float *g = ds->gain, *o = ds->offset;
+    long n = ds->n;
+    if (fs->elem == STORE_U8) {
+        const uint8_t *v = q;
+        for (long p = 0; p < n; p++) x[p] = (float)v[p] * g[p] + o[p];
+    } else if (fs->elem == STORE_U16) {
+        const uint16_t *v = q;
+        for (long p = 0; p < n; p++) x[p] = (float)v[p] * g[p] + o[p];
+    } else {
+        const float *v = q;
+        for (long p = 0; p < n; p++) x[p] = v[p] * g[p] + o[p];
+    }
+}
+
+/* d (n) = sum_k w[k] q_k over the window's frames q[k] (len of them), frame by frame so that the
+ * inner loop runs over pixels and vectorises. */
+#define STENCIL_PASS(T, d, w)                                                                       \
+    do {                                                                                            \
+        const T *v0 = q[0];                                                                         \
+        for (long p = 0; p < n; p++) d[p] = w[0] * (float)v0[p];                                    \
+        for (int k = 1; k < len; k++) {                                                             \
+            const T *v = q[k];                                                                      \
+            float a = w[k];                                                                         \
+            if (a != 0)                                                                             \
+                for (long p = 0; p < n; p++) d[p] += a * (float)v[p];                               \
+        }                                                                                           \
+    } while (0)
+
+static void stencil_pass(float *restrict d, const float *w, const void *const *q, int len, StoreElem e, long n) {
+    if (e == STORE_U8) STENCIL_PASS(uint8_t, d, w);
+    else if (e == STORE_U16) STENCIL_PASS(uint16_t, d, w);
+    else STENCIL_PASS(float, d, w);
 }
 
 void dataset_gather_frames(const Dataset *ds, const long *frames, int B, float *x, float *dx, float *ddx) {
@@ -162,20 +179,23 @@ void dataset_gather_frames(const Dataset *ds, const long *frames, int B, float *
     long n = ds->n;
     int m = ds->sten.m, len = 2 * m + 1;
     float inv1 = (float)(1.0 / ds->dt), inv2 = (float)(1.0 / (ds->dt * ds->dt));
+    float w1[STENCIL_MAX_LEN], w2[STENCIL_MAX_LEN];   /* (len) stencil weights in float */
+    for (int k = 0; k < len; k++) w1[k] = (float)ds->sten.w1[k], w2[k] = (float)ds->sten.w2[k];
+    const float *gain = ds->gain;
     for (int b = 0; b < B; b++) {
         long f = frames[b];
         if (x) dataset_frame(ds, f, x + (long)b * n);
-        float *d1 = dx ? dx + (long)b * n : NULL, *d2 = ddx ? ddx + (long)b * n : NULL;   /* (n) rows */
-        if (d1) memset(d1, 0, sizeof(float) * (size_t)n);
-        if (d2) memset(d2, 0, sizeof(float) * (size_t)n);
-        for (int k = 0; k < len; k++) {
-            const void *q = store_frame(fs, f - m + k);
-            if (d1 && ds->sten.w1[k] != 0) axpy_frame(d1, (float)ds->sten.w1[k], q, fs->elem, n);
-            if (d2 && ds->sten.w2[k] != 0) axpy_frame(d2, (float)ds->sten.w2[k], q, fs->elem, n);
+        const void *q[STENCIL_MAX_LEN];   /* the window's frames f - m .. f + m */
+        for (int k = 0; k < len; k++) q[k] = store_frame(fs, f - m + k);
+        if (dx) {
+            float *restrict d = dx + (long)b * n;   /* (n) */
+            stencil_pass(d, w1, q, len, fs->elem, n);
+            for (long p = 0; p < n; p++) d[p] *= gain[p] * inv1;
         }
-        for (long p = 0; p < n; p++) {
-            if (d1) d1[p] *= ds->gain[p] * inv1;
-            if (d2) d2[p] *= ds->gain[p] * inv2;
+        if (ddx) {
+            float *restrict d = ddx + (long)b * n;   /* (n) */
+            stencil_pass(d, w2, q, len, fs->elem, n);
+            for (long p = 0; p < n; p++) d[p] *= gain[p] * inv2;
         }
     }
 }
