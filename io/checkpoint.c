@@ -7,6 +7,7 @@
 #include <string.h>
 
 #include "io/atomic_file.h"
+#include "io/store.h"
 
 static const char MAGIC[8] = {'F', 'L', 'A', 'W', 'C', 'K', 'P', 'T'};
 
@@ -17,18 +18,7 @@ static int host_is_little_endian(void) {
     return *(const uint8_t *)&one == 1;
 }
 
-uint32_t crc32_ieee(const void *data, size_t n) {
-    uint32_t table[256];
-    for (uint32_t i = 0; i < 256; i++) {
-        uint32_t c = i;
-        for (int k = 0; k < 8; k++) c = c & 1 ? 0xEDB88320u ^ (c >> 1) : c >> 1;
-        table[i] = c;
-    }
-    uint32_t crc = 0xFFFFFFFFu;
-    const uint8_t *p = data;
-    for (size_t i = 0; i < n; i++) crc = table[(crc ^ p[i]) & 0xFF] ^ (crc >> 8);
-    return crc ^ 0xFFFFFFFFu;
-}
+uint32_t crc32_ieee(const void *data, size_t n) { return store_crc32(0, data, n); }
 
 /* ---- a growable byte buffer ------------------------------------------------------------------ */
 
