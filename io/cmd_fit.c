@@ -2,7 +2,7 @@
  *
  * Reads a CSV or .npy series (io/series.h), takes the time from a column or a sample rate,
  * estimates the time derivatives with a stencil (sparse/stencil.h), evaluates the candidate library
- * (sparse/library.h) and fits it by sequentially thresholded least squares (sparse/stlsq.h), then
+ * (sparse/library.h) and fits it by sequentially thresholded least squares (sparse/thresh_lsq.h), then
  * prints the equations (sparse/equation.h) as text, LaTeX or JSON. docs/fit.md is the user guide. */
 #include <errno.h>
 #include <math.h>
@@ -16,7 +16,7 @@
 #include "sparse/equation.h"
 #include "sparse/library.h"
 #include "sparse/stencil.h"
-#include "sparse/stlsq.h"
+#include "sparse/thresh_lsq.h"
 
 /* Largest relative deviation of one time step from the mean step that is still "equally spaced". */
 #define FIT_DT_TOL 0.01
@@ -30,7 +30,7 @@ typedef struct {
     double rate;                /* samples per second; 0: use the time column */
     const char *columns;        /* comma-separated numbers or names; NULL: every other column */
     LibrarySpec lib;            /* n_latent is set from the columns */
-    StlsqOptions ls;
+    ThreshLsqOptions ls;
     StencilKind stencil;
     int window, sg_degree;
     int digits;
@@ -43,7 +43,7 @@ static FitSettings fit_defaults(void) {
     s.time_col = "1";
     s.lib = library_spec_default(1, 1);
     s.lib.degree = 3;
-    s.ls = stlsq_defaults();
+    s.ls = thresh_lsq_defaults();
     s.stencil = STENCIL_SAVGOL;
     s.window = 7;
     s.sg_degree = 3;
@@ -406,8 +406,8 @@ int cmd_fit(int argc, char **argv) {
         }
     const double *target = s.lib.order == 2 ? d2 : d1;     /* (nv, k) */
     library_eval(&lib, theta, state, nv);
-    StlsqReport rep;
-    if (stlsq_fit(xi, mask, theta, target, nv, T, k, NULL, &s.ls, &rep, &st)) {
+    ThreshLsqReport rep;
+    if (thresh_lsq_fit(xi, mask, theta, target, nv, T, k, NULL, &s.ls, &rep, &st)) {
         rc = cli_error(st.code, "%s: %s", p, st.msg);
         goto done;
     }

@@ -1,4 +1,4 @@
-/* sparse/stlsq.h: sequentially thresholded least squares, as published in "Discovering governing
+/* sparse/thresh_lsq.h: sequentially thresholded least squares, as published in "Discovering governing
  * equations from data by sparse identification of nonlinear dynamical systems" (PNAS 2016), in
  * double precision through LAPACK (dgelsd, SVD-based, from OpenBLAS).
  *
@@ -19,8 +19,8 @@
  * it is solved as least squares on Theta stacked over sqrt(ridge) I.
  *
  * Bad input (status ST_INPUT): fewer samples than terms, a non-finite value, bad options. */
-#ifndef SPARSE_STLSQ_H
-#define SPARSE_STLSQ_H
+#ifndef SPARSE_THRESH_LSQ_H
+#define SPARSE_THRESH_LSQ_H
 
 #include <stdint.h>
 
@@ -31,22 +31,22 @@ typedef struct {
     double ridge;       /* >= 0; 0 is ordinary least squares */
     int max_iter;       /* threshold passes, >= 0 (the published algorithm uses 10) */
     int normalize;      /* 1: unit-norm columns for the solve */
-} StlsqOptions;
+} ThreshLsqOptions;
 
 /* threshold 0.1, ridge 0, max_iter 10, normalize 1. */
-StlsqOptions stlsq_defaults(void);
+ThreshLsqOptions thresh_lsq_defaults(void);
 
 typedef struct {
     int passes;         /* largest number of threshold passes over the outputs */
     int converged;      /* 1 when every output stopped because its active set no longer changed */
     int rank_deficient; /* solves whose active columns were numerically dependent */
     long active;        /* active coefficients in the result */
-} StlsqReport;
+} ThreshLsqReport;
 
 /* xi (p, m) and mask (p, m) out. theta (N, p), dx (N, m) row-major. allowed (p, m) or NULL (all
  * terms allowed). rep may be NULL. Returns 0, ST_INPUT (bad data or options) or ST_RUNTIME (LAPACK
  * failed), with a one-line message in st. */
-int stlsq_fit(double *xi, uint8_t *mask, const double *theta, const double *dx, long N, int p, int m,
-              const uint8_t *allowed, const StlsqOptions *opt, StlsqReport *rep, Status *st);
+int thresh_lsq_fit(double *xi, uint8_t *mask, const double *theta, const double *dx, long N, int p, int m,
+              const uint8_t *allowed, const ThreshLsqOptions *opt, ThreshLsqReport *rep, Status *st);
 
 #endif

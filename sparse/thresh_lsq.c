@@ -1,5 +1,5 @@
-/* sparse/stlsq.c: sequentially thresholded least squares (see stlsq.h). */
-#include "sparse/stlsq.h"
+/* sparse/thresh_lsq.c: sequentially thresholded least squares (see thresh_lsq.h). */
+#include "sparse/thresh_lsq.h"
 
 #include <limits.h>
 #include <math.h>
@@ -15,8 +15,8 @@ extern void dgelsd_(const int *m, const int *n, const int *nrhs, double *a, cons
  * singular value is at least 1, so this drops directions that are dependent to about 1e-12. */
 #define RCOND 1e-12
 
-StlsqOptions stlsq_defaults(void) {
-    StlsqOptions o = {0.1, 0.0, 10, 1};
+ThreshLsqOptions thresh_lsq_defaults(void) {
+    ThreshLsqOptions o = {0.1, 0.0, 10, 1};
     return o;
 }
 
@@ -56,9 +56,9 @@ static int solve_subset(Solver *s, const int *cols, int q, const double *y, doub
     return info;
 }
 
-int stlsq_fit(double *xi, uint8_t *mask, const double *theta, const double *dx, long N, int p, int m,
-              const uint8_t *allowed, const StlsqOptions *opt, StlsqReport *rep, Status *st) {
-    StlsqReport r = {0, 1, 0, 0};
+int thresh_lsq_fit(double *xi, uint8_t *mask, const double *theta, const double *dx, long N, int p, int m,
+              const uint8_t *allowed, const ThreshLsqOptions *opt, ThreshLsqReport *rep, Status *st) {
+    ThreshLsqReport r = {0, 1, 0, 0};
     if (p < 1 || m < 1 || N < 1)
         return status_set(st, ST_INPUT, "least squares: empty problem (%ld samples, %d terms, %d outputs)",
                           N, p, m);

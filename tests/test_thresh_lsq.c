@@ -1,4 +1,4 @@
-/* tests/test_stlsq.c: sequentially thresholded least squares ("Discovering governing equations
+/* tests/test_thresh_lsq.c: sequentially thresholded least squares ("Discovering governing equations
  * from data by sparse identification of nonlinear dynamical systems", PNAS 2016) on systems whose
  * equations are known: Lorenz and the damped pendulum, with data made by our integrator; the ridge
  * and normalisation against a direct solve; bad input reported. */
@@ -6,7 +6,7 @@
 #include "sparse/integrate.h"
 #include "sparse/library.h"
 #include "sparse/stencil.h"
-#include "sparse/stlsq.h"
+#include "sparse/thresh_lsq.h"
 #include "tests/testutil.h"
 
 /* ---- Lorenz ("Deterministic Nonperiodic Flow", J. Atmos. Sci. 1963): sigma 10, rho 28, beta 8/3 */
@@ -43,11 +43,11 @@ static double fit_and_check(const Library *lib, const double *s, const double *d
     double *theta = malloc(sizeof(double) * N * p), *xi = malloc(sizeof(double) * p * m);
     uint8_t *mask = malloc((size_t)p * m);
     library_eval(lib, theta, s, N);
-    StlsqOptions o = stlsq_defaults();
+    ThreshLsqOptions o = thresh_lsq_defaults();
     o.threshold = threshold;
-    StlsqReport rep;
+    ThreshLsqReport rep;
     Status st;
-    if (stlsq_fit(xi, mask, theta, dx, N, p, m, NULL, &o, &rep, &st)) fail_msg("stlsq: %s", st.msg);
+    if (thresh_lsq_fit(xi, mask, theta, dx, N, p, m, NULL, &o, &rep, &st)) fail_msg("thresholded least squares: %s", st.msg);
     double worst = 0;
     for (int t = 0; t < p; t++)
         for (int j = 0; j < m; j++) {
@@ -74,7 +74,7 @@ static double fit_and_check(const Library *lib, const double *s, const double *d
 
 /* The seven terms of Lorenz's system survive, each coefficient within 0.5% (the check the issue
  * asks for), noise-free, dt = 0.002, degree-2 library in (z1, z2, z3) = (x, y, z). Derivatives
- * twice: (a) the exact right-hand side at the samples (STLSQ alone), (b) a Savitzky-Golay stencil
+ * twice: (a) the exact right-hand side at the samples (the least squares alone), (b) a Savitzky-Golay stencil
  * (window 9, degree 4) of the samples, as the fit command does (sparse/stencil.h). */
 static void test_lorenz(void **state) {
     (void)state;
@@ -189,11 +189,11 @@ static void test_ridge_closed_form(void **state) {
                     double f = a[r][k] / a[k][k];
                     for (int c = k; c <= P; c++) a[r][c] -= f * a[k][c];
                 }
-        StlsqOptions o = {0.0, ridge, 0, normalize};
+        ThreshLsqOptions o = {0.0, ridge, 0, normalize};
         double xi[P];
         uint8_t mask[P];
         Status st;
-        assert_int_equal(stlsq_fit(xi, mask, theta, y, N, P, 1, NULL, &o, NULL, &st), 0);
+        assert_int_equal(thresh_lsq_fit(xi, mask, theta, y, N, P, 1, NULL, &o, NULL, &st), 0);
         for (int k = 0; k < P; k++) assert_close(xi[k], a[k][P] / a[k][k] / d[k], 1e-10, 1e-9);
     }
 }
@@ -210,9 +210,9 @@ static void test_allowed(void **state) {
     }
     uint8_t allowed[P] = {0, 1, 1}, mask[P];
     double xi[P];
-    StlsqOptions o = stlsq_defaults();
+    ThreshLsqOptions o = thresh_lsq_defaults();
     Status st;
-    assert_int_equal(stlsq_fit(xi, mask, theta, y, N, P, 1, allowed, &o, NULL, &st), 0);
+    assert_int_equal(thresh_lsq_fit(xi, mask, theta, y, N, P, 1, allowed, &o, NULL, &st), 0);
     assert_int_equal(mask[0], 0);
     assert_true(xi[0] == 0);
     assert_true(mask[1] && mask[2]);   /* x^2 must make up for the missing constant */
@@ -222,16 +222,16 @@ static void test_bad_input(void **state) {
     (void)state;
     double theta[3 * 5] = {0}, y[3] = {1, 2, 3}, xi[5];
     uint8_t mask[5];
-    StlsqOptions o = stlsq_defaults();
+    ThreshLsqOptions o = thresh_lsq_defaults();
     Status st;
     /* more terms than samples: a clear error, not a crash */
-    assert_int_equal(stlsq_fit(xi, mask, theta, y, 3, 5, 1, NULL, &o, NULL, &st), ST_INPUT);
+    assert_int_equal(thresh_lsq_fit(xi, mask, theta, y, 3, 5, 1, NULL, &o, NULL, &st), ST_INPUT);
     assert_non_null(strstr(st.msg, "the library has 5 terms but there are only 3 samples"));
     double th2[4] = {1, 2, NAN, 4}, y2[4] = {1, 2, 3, 4};
-    assert_int_equal(stlsq_fit(xi, mask, th2, y2, 4, 1, 1, NULL, &o, NULL, &st), ST_INPUT);
+    assert_int_equal(thresh_lsq_fit(xi, mask, th2, y2, 4, 1, 1, NULL, &o, NULL, &st), ST_INPUT);
     assert_non_null(strstr(st.msg, "non-finite library value at sample 3"));
     o.threshold = -1;
-    assert_int_equal(stlsq_fit(xi, mask, y2, y2, 4, 1, 1, NULL, &o, NULL, &st), ST_INPUT);
+    assert_int_equal(thresh_lsq_fit(xi, mask, y2, y2, 4, 1, 1, NULL, &o, NULL, &st), ST_INPUT);
 }
 
 /* Thresholding kernels (coef.h): masked entries stay masked, small ones are masked for good. */
