@@ -265,11 +265,56 @@ static void test_corrupt_checkpoints_are_refused(void **state) {
     test_rmtree(dir);
 }
 
+/* A non-finite loss stops the run with a message naming the usual remedies, and the checkpoints
+ * written before it stay loadable. The data turn to NaN after 25 batches (inside epoch 3). */
+typedef struct {
+    Osc o;
+    int calls;
+} Poisoned;
+
+static int poisoned_gather(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st) {
+    Poisoned *p = ctx;
+    int rc = osc_gather(&p->o, split, idx, B, X, st);
+    if (split == 0 && ++p->calls > 25) X[0] = NAN;
+    return rc;
+}
+
+static void test_divergence_stops_and_keeps_checkpoints(void **state) {
+    (void)state;
+    char dir[256];
+    assert_non_null(test_tmpdir(dir, sizeof dir));
+    Config c;
+    small_config(&c, dir);
+    c.ckpt_every = 1;
+    Poisoned p = {.calls = 0};
+    osc_init(&p.o);
+    TrainData ds = osc_dataset(&p.o);
+    ds.gather = poisoned_gather;
+    ds.ctx = &p;
+    TrainOpts opts = {&c, dir, 0, 1, NULL, 0};
+    Model m;
+    ParamSet ps;
+    TrainResult res;
+    Status st;
+    assert_int_equal(train_run(&opts, &ds, &m, &ps, &res, &st), ST_RUNTIME);
+    assert_non_null(strstr(st.msg, "diverged at epoch 3"));
+    assert_non_null(strstr(st.msg, "optimizer.lr"));
+    model_free(&m);
+    params_free(&ps);
+    assert_int_equal(train_load_latest(dir, &c, NCH, (long)(NREC - 1) * NT, &m, &ps, &st), 0);
+    Mat xi = params_val(&ps, m.xi);
+    for (long i = 0; i < mat_size(xi); i++) assert_true(isfinite(xi.d[i]));
+    model_free(&m);
+    params_free(&ps);
+    test_rmtree(dir);
+}
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_loss_falls_and_thresholding_keeps_linear_terms),
         cmocka_unit_test(test_resume_is_bit_exact),
         cmocka_unit_test(test_corrupt_checkpoints_are_refused),
+        cmocka_unit_test(test_divergence_stops_and_keeps_checkpoints),
     };
     return cmocka_run_group_tests_name("training loop", tests, NULL, NULL);
 }
