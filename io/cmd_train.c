@@ -10,9 +10,7 @@
 #include "io/atomic_file.h"
 #include "io/cli.h"
 #include "io/config.h"
-#include "io/frames.h"
-#include "io/gather.h"
-#include "io/store.h"
+#include "io/rundata.h"
 #include "io/train.h"
 #include "sparse/coef.h"
 #include "sparse/equation.h"
@@ -21,60 +19,6 @@ static volatile sig_atomic_t stop_flag = 0;
 static void on_signal(int sig) {
     (void)sig;
     stop_flag = 1;
-}
-
-/* ---- the frame store as training data ---------------------------------------------------------- */
-
-typedef struct {
-    FrameScan scan;
-    FrameStore store;
-    Dataset ds;
-    int k;
-    int *idx;       /* (batch) */
-    int have_scan, have_store, have_ds;
-} Data;
-
-static int data_gather(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st) {
-    (void)st;
-    Data *d = ctx;
-    for (int i = 0; i < B; i++) d->idx[i] = (int)idx[i];
-    long n = d->ds.n;
-    dataset_gather(&d->ds, split ? SPLIT_VAL : SPLIT_TRAIN, d->idx, B, X, X + (long)B * n,
-                   d->k == 3 ? X + 2L * B * n : NULL);
-    return 0;
-}
-
-static void data_close(Data *d) {
-    if (d->have_ds) dataset_free(&d->ds);
-    if (d->have_store) store_close(&d->store);
-    if (d->have_scan) frames_scan_free(&d->scan);
-    free(d->idx);
-    memset(d, 0, sizeof *d);
-}
-
-static int data_open(Data *d, const Config *c, TrainData *td, Status *st) {
-    memset(d, 0, sizeof *d);
-    FrameSettings s;
-    if (frame_settings_from_config(c, &s, st) || frame_settings_check(&s, st)) return st->code;
-    if (frames_scan(c->frames, &d->scan, st)) return st->code;
-    d->have_scan = 1;
-    StoreOpenInfo info;
-    if (store_open_for(&d->scan, &s, 0, &d->store, &info, st)) return st->code;
-    d->have_store = 1;
-    if (dataset_init(&d->ds, &d->store, &s, st)) return st->code;
-    d->have_ds = 1;
-    d->k = c->order + 1;
-    d->idx = malloc((size_t)(c->batch > 0 ? c->batch : 1) * sizeof(int));
-    if (!d->idx) return status_set(st, ST_RUNTIME, "out of memory");
-    memset(td, 0, sizeof *td);
-    td->n_in = (int)d->ds.n;
-    td->k = d->k;
-    td->n_train = d->ds.count[SPLIT_TRAIN];
-    td->n_val = d->ds.count[SPLIT_VAL];
-    td->dt = d->ds.dt;
-    td->gather = data_gather;
-    td->ctx = d;
-    return 0;
 }
 
 /* ---- results at the end of training -------------------------------------------------------------- */
@@ -132,13 +76,13 @@ static int mkdir_p(const char *path, Status *st) {
 
 static int run_training(Config *c, const char *run_dir, int resume, int quiet) {
     Status st;
-    Data data;
-    TrainData td;
-    int rc = data_open(&data, c, &td, &st);
+    RunData data;
+    int rc = rundata_open(&data, c, &st);
     if (rc) {
-        data_close(&data);
+        rundata_close(&data);
         return cli_error(rc, "%s", st.msg);
     }
+    TrainData td = data.td;
     if (!quiet) {
         fprintf(stderr, "framelaw: %s %s: %ld training and %ld validation samples of %d values, dt %.6g s\n",
                 resume ? "resuming" : "training", run_dir, td.n_train, td.n_val, td.n_in, td.dt);
@@ -169,7 +113,7 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet) {
     }
     model_free(&m);
     params_free(&ps);
-    data_close(&data);
+    rundata_close(&data);
     return rc;
 }
 
@@ -188,8 +132,11 @@ static int parse_sets(Config *c, int argc, char **argv, int *quiet, const char *
                     size_t n = strlen(config_resume_safe_keys[k]);
                     if (!strncmp(a, config_resume_safe_keys[k], n) && a[n] == '=') ok = 1;
                 }
-                if (!ok) return cli_error(2, "--set %s: only these keys may change on resume: train.epochs, "
-                                             "train.threads, train.validate_every, checkpoint.every, checkpoint.keep", a);
+                if (!ok) {
+                    char keys[512];
+                    config_safe_keys_text(keys, sizeof keys);
+                    return cli_error(2, "--set %s: only these keys may change on resume: %s", a, keys);
+                }
             }
             if (c && config_set(c, a, &st)) return cli_error(st.code, "%s", st.msg);
         } else if (argv[i][0] == '-') {
@@ -257,7 +204,8 @@ int cmd_resume(int argc, char **argv) {
                "Continue a run from its newest valid checkpoint, exactly as if it had not stopped. A checkpoint\n"
                "that is truncated or damaged is skipped with a message and the one before it is used.\n"
                "Only these keys may change: train.epochs, train.threads, train.validate_every,\n"
-               "checkpoint.every, checkpoint.keep.\n");
+               "checkpoint.every, checkpoint.keep, output, forecast.bound, forecast.method,\n"
+               "forecast.tolerance.\n");
         return 0;
     }
     int quiet = 0;

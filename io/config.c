@@ -179,6 +179,12 @@ static const KeyDef keys[] = {
     K_INT("checkpoint.every", ckpt_every, "100", 1, NOMAX, NULL, "epochs between checkpoints"),
     K_INT("checkpoint.keep", ckpt_keep, "3", 1, NOMAX, NULL,
           "periodic checkpoints kept (the best one is kept besides)"),
+    /* forecast */
+    K_NUM("forecast.bound", fc_bound, "0.1", 0, INFINITY, LO_OPEN,
+          "relative error at which a forecast counts as lost (its time is reported)"),
+    K_STR("forecast.method", fc_method, "\"dopri5\"", "dopri5|rk4", "integrator of the learned model"),
+    K_NUM("forecast.tolerance", fc_tol, "1e-08", 0, INFINITY, LO_OPEN,
+          "relative tolerance of dopri5 (absolute: 1e-3 of it); rk4 takes 8 steps per frame"),
     /* output */
     K_PATH("output", output, "`runs/<config file stem>`",
            "run directory, relative to the current directory"),
@@ -187,8 +193,18 @@ static const KeyDef keys[] = {
 
 const char *const config_resume_safe_keys[] = {
     "train.epochs", "train.threads", "train.validate_every", "checkpoint.every", "checkpoint.keep",
-    "output", NULL,
+    "output", "forecast.bound", "forecast.method", "forecast.tolerance", NULL,
 };
+
+void config_safe_keys_text(char *buf, size_t n) {
+    size_t k = 0;
+    if (n) buf[0] = 0;
+    for (int i = 0; config_resume_safe_keys[i] && k < n; i++) {
+        int w = snprintf(buf + k, n - k, "%s%s", i ? ", " : "", config_resume_safe_keys[i]);
+        if (w < 0) break;
+        k += (size_t)w;
+    }
+}
 
 const char *config_key_path(int i) { return i >= 0 && i < N_KEYS ? keys[i].path : NULL; }
 

@@ -10,6 +10,7 @@
 #ifndef IO_CONFIG_H
 #define IO_CONFIG_H
 
+#include <stddef.h>
 #include <stdint.h>
 
 #include "nn/core.h"
@@ -75,6 +76,10 @@ typedef struct {
     /* checkpoint */
     int ckpt_every;                 /* checkpoint.every: epochs                                   [100] */
     int ckpt_keep;                  /* checkpoint.keep: how many periodic checkpoints to keep       [3] */
+    /* forecast (safe to change on resume: they do not affect training) */
+    double fc_bound;                /* forecast.bound: relative error that ends a good forecast   [0.1] */
+    char fc_method[16];             /* forecast.method: "dopri5" | "rk4"                       [dopri5] */
+    double fc_tol;                  /* forecast.tolerance: dopri5 relative tolerance             [1e-8] */
     /* output */
     char output[CFG_PATH_MAX];      /* output: run directory                       [runs/<config name>] */
 } Config;
@@ -106,11 +111,14 @@ int config_validate(const Config *c, Status *st);
 char *config_to_json(const Config *c);
 
 /* Digest (FNV-1a 64) of the resolved config without the keys that are safe to change on resume
- * (train.epochs, train.threads, train.validate_every, checkpoint.every, checkpoint.keep, output). */
+ * (train.epochs, train.threads, train.validate_every, checkpoint.every, checkpoint.keep, output,
+ * forecast.*). */
 uint64_t config_digest(const Config *c);
 
 /* The names of the keys that may change on resume, for messages and docs. */
-extern const char *const config_resume_safe_keys[];   /* NULL-terminated */
+extern const char *const config_resume_safe_keys[];
+/* Those names as one comma-separated line, for messages. */
+void config_safe_keys_text(char *buf, size_t n);   /* NULL-terminated */
 
 /* The key table, for docs and tests: the path of key i (0, 1, ...), NULL past the last key. */
 const char *config_key_path(int i);

@@ -165,10 +165,11 @@ static int load_latest(Run *r, int quiet, Status *st) {
             continue;
         }
         if (meta.config_digest != config_digest(r->cfg)) {
+            char keys[512];
+            config_safe_keys_text(keys, sizeof keys);
             rc = status_set(st, ST_INPUT,
-                            "%s: the config changed since this checkpoint; only these keys may change on resume: "
-                            "train.epochs, train.threads, train.validate_every, checkpoint.every, checkpoint.keep",
-                            path);
+                            "%s: the config changed since this checkpoint; only these keys may change on resume: %s",
+                            path, keys);
             break;
         }
         r->meta = meta;

@@ -34,6 +34,7 @@ static const char *FULL =
     "            \"validate_every\": 5},\n"
     "  \"threshold\": {\"value\": 0.05, \"every\": 250, \"refine_epochs\": 5000},\n"
     "  \"checkpoint\": {\"every\": 25, \"keep\": 7},\n"
+    "  \"forecast\": {\"bound\": 0.2, \"method\": \"rk4\", \"tolerance\": 1e-6},\n"
     "  \"output\": \"runs/full\"\n"
     "}\n";
 
@@ -262,7 +263,8 @@ static void test_digest(void **state) {
     assert_true(config_digest(&c) == h0);   /* deterministic */
 
     static const char *const safe[] = {"train.epochs=9", "train.threads=3", "train.validate_every=7",
-                                       "checkpoint.every=11", "checkpoint.keep=9", "output=elsewhere"};
+                                       "checkpoint.every=11", "checkpoint.keep=9", "output=elsewhere",
+                                       "forecast.bound=0.3", "forecast.method=rk4", "forecast.tolerance=1e-6"};
     Config s = c;
     for (size_t i = 0; i < sizeof safe / sizeof safe[0]; i++) {
         set_ok(&s, safe[i]);
@@ -288,7 +290,7 @@ static void test_digest(void **state) {
         for (int i = 0; config_key_path(i); i++) found |= !strcmp(config_key_path(i), config_resume_safe_keys[n]);
         if (!found) fail_msg("resume-safe key %s is not in the table", config_resume_safe_keys[n]);
     }
-    assert_int_equal(n, 6);
+    assert_int_equal(n, 9);
 }
 
 /* The bad configs: each with the substring its message must hold. The origin prefixes every one. */
