@@ -10,6 +10,7 @@
 #include "io/atomic_file.h"
 #include "io/cli.h"
 #include "io/config.h"
+#include "io/results.h"
 #include "io/rundata.h"
 #include "io/train.h"
 #include "sparse/coef.h"
@@ -23,37 +24,21 @@ static void on_signal(int sig) {
 
 /* ---- results at the end of training -------------------------------------------------------------- */
 
-static int write_equations(const char *run_dir, const Model *m, const ParamSet *ps, Status *st) {
-    Coef coef;
-    coef_init(&coef, m->lib.n_terms, m->n_latent);
-    coef_from_float(&coef, params_val(ps, m->xi).d, m->mask);
-    char path[4200];
-    int rc = 0;
-    const EqStyle styles[2] = {EQ_TEXT, EQ_LATEX};
-    const char *names[2] = {"equations.txt", "equations.tex"};
-    for (int i = 0; i < 2 && !rc; i++) {
-        size_t need = equation_format(NULL, 0, styles[i], &m->lib, coef.xi, coef.mask, 4) + 2;
-        char *buf = malloc(need);
-        if (!buf) { rc = status_set(st, ST_RUNTIME, "out of memory"); break; }
-        equation_format(buf, need, styles[i], &m->lib, coef.xi, coef.mask, 4);
-        size_t len = strlen(buf);
-        if (len && buf[len - 1] != '\n') buf[len++] = '\n';
-        snprintf(path, sizeof path, "%s/%s", run_dir, names[i]);
-        rc = atomic_write_bytes(path, buf, len, st);
-        free(buf);
-    }
+/* Export and forecast from the final checkpoint, then print the equations. */
+static int finish_run(const char *run_dir, int quiet, Status *st) {
+    LoadedRun *r = malloc(sizeof *r);
+    if (!r) return status_set(st, ST_RUNTIME, "out of memory");
+    int rc = loaded_run_open(r, run_dir, st);
+    if (!rc) rc = results_export(r, quiet, st);
     if (!rc) {
-        char *json = equation_json_string(&m->lib, coef.xi, coef.mask, 6);
-        snprintf(path, sizeof path, "%s/equations.json", run_dir);
-        rc = json ? atomic_write_bytes(path, json, strlen(json), st) : status_set(st, ST_RUNTIME, "out of memory");
-        free(json);
-    }
-    if (!rc) {
-        printf("learned equations (%ld active terms):\n", model_active(m));
-        equation_fprint(stdout, EQ_TEXT, &m->lib, coef.xi, coef.mask, 4);
+        printf("learned equations (%ld active terms):\n", model_active(&r->m));
+        equation_fprint(stdout, EQ_TEXT, &r->m.lib, r->coef.xi, r->coef.mask, 4);
         fflush(stdout);
+        rc = results_forecast(r, quiet, st);
     }
-    coef_free(&coef);
+    if (!rc && !quiet) fprintf(stderr, "framelaw: results in %s\n", run_dir);
+    if (r->have_model || r->have_data) loaded_run_close(r);
+    free(r);
     return rc;
 }
 
@@ -109,11 +94,11 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet) {
     } else {
         if (!quiet && isfinite(res.best_val))
             fprintf(stderr, "framelaw: best validation loss %.4g\n", res.best_val);
-        if (write_equations(run_dir, &m, &ps, &st)) rc = cli_error(st.code, "%s", st.msg);
     }
     model_free(&m);
     params_free(&ps);
     rundata_close(&data);
+    if (!rc && !res.interrupted && finish_run(run_dir, quiet, &st)) rc = cli_error(st.code, "%s", st.msg);
     return rc;
 }
 

@@ -12,6 +12,8 @@ static int cmd_help(int argc, char **argv);
 static const Command commands[] = {
     {"train", "train the autoencoder and the sparse latent model from a config file", cmd_train},
     {"resume", "continue a stopped run from its newest valid checkpoint", cmd_resume},
+    {"export", "write equations, latent trajectories and reconstructions of a trained run", cmd_export},
+    {"forecast", "forecast the held-out recordings with the learned model and measure the error", cmd_forecast},
     {"help", "show this overview", cmd_help},
     {"fit", "fit a sparse ODE to a time series of state coordinates (CSV or .npy)", cmd_fit},
     {"frames", "inspect a frames folder: recordings, sizes, frame store, contact sheet", cmd_frames},

@@ -143,11 +143,11 @@ static int save_periodic(Run *r, char *written, Status *st) {
 }
 
 /* Newest checkpoint that reads back whole and matches the config; corrupt ones are reported. */
-static int load_latest(Run *r, int quiet, Status *st) {
+static int load_latest(Run *r, int quiet, int allow_fresh, Status *st) {
     char **names;
     int n = list_checkpoints(r->ckpt_dir, &names);
     long n_mask = (long)r->m->lib.n_terms * r->m->n_latent;
-    if (n == 0) { /* stopped before the first checkpoint: the run starts over, from the same seed */
+    if (n == 0 && allow_fresh) { /* stopped before the first checkpoint: the run starts over, same seed */
         if (!quiet) fprintf(stderr, "framelaw: no checkpoint yet in %s; starting the run from the beginning\n", r->ckpt_dir);
         free_names(names, n);
         status_ok(st);
@@ -259,6 +259,7 @@ static int validate(Run *r, Tape *t, float *X, int Bmax, double *out, Status *st
 static int setup(Run *r, const Config *cfg, const TrainData *ds, const char *run_dir, Model *m, ParamSet *ps,
                  Status *st) {
     memset(r, 0, sizeof *r);
+    memset(m, 0, sizeof *m); /* so that model_free is safe whatever fails below */
     r->cfg = cfg;
     r->ds = ds;
     r->m = m;
@@ -291,7 +292,7 @@ int train_load_latest(const char *run_dir, const Config *cfg, int n_in, long n_t
     ds.n_train = n_train;
     Run r;
     int rc = setup(&r, cfg, &ds, run_dir, m, ps, st);
-    if (!rc) rc = load_latest(&r, 1, st);
+    if (!rc) rc = load_latest(&r, 1, 0, st);
     nn_free(r.order);
     return rc;
 }
@@ -311,7 +312,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     snprintf(log_path, sizeof log_path, "%s/log.csv", o->run_dir);
     if (ensure_dir(o->run_dir, st) || ensure_dir(r.ckpt_dir, st)) { nn_free(r.order); return st->code; }
     if (o->resume) {
-        if (load_latest(&r, o->quiet, st) || log_trim(log_path, (long)r.meta.epoch, st)) {
+        if (load_latest(&r, o->quiet, 1, st) || log_trim(log_path, (long)r.meta.epoch, st)) {
             nn_free(r.order);
             return st->code;
         }
