@@ -12,6 +12,7 @@
 #include <cjson/cJSON.h>
 
 #include "io/checkpoint.h"
+#include "io/images.h"
 #include "io/config.h"
 #include "io/rundata.h"
 #include "io/series.h"
@@ -240,11 +241,56 @@ static void test_bad_run_folders(void **state) {
     assert_int_equal(run("export", fx->run), 2); /* no checkpoint at all */
 }
 
+/* Image data: a bright spot moving on a circle in 12 x 10 frames; after a short training, export
+ * writes one reconstruction strip per recording: 3 panels wide, 4 frames high. */
+static void test_reconstruction_strips_for_images(void **state) {
+    Fx *fx = *state;
+    char dir[700], path[800];
+    Status st;
+    for (int r = 0; r < 2; r++) {
+        snprintf(dir, sizeof dir, "%s/frames/r%d", fx->root, r);
+        char cmd[900];
+        snprintf(cmd, sizeof cmd, "mkdir -p '%s'", dir);
+        assert_int_equal(system(cmd), 0);
+        for (int i = 0; i < 40; i++) {
+            uint8_t px[12 * 10];
+            double cx = 6 + 3 * cos(0.2 * i + r), cy = 5 + 3 * sin(0.2 * i + r);
+            for (int y = 0; y < 10; y++)
+                for (int x = 0; x < 12; x++)
+                    px[y * 12 + x] = (uint8_t)(30 + 200 * exp(-((x - cx) * (x - cx) + (y - cy) * (y - cy)) / 4));
+            snprintf(path, sizeof path, "%s/f%d.png", dir, i);
+            assert_int_equal(image_write_png_gray(path, px, 12, 10, &st), 0);
+        }
+    }
+    snprintf(path, sizeof path, "%s/img.json", fx->root);
+    FILE *f = fopen(path, "w");
+    fprintf(f, "{\"data\": {\"frames\": \"%s/frames\"}, \"model\": {\"latent\": 2, \"order\": 1, \"encoder\": [8]},"
+               " \"train\": {\"epochs\": 4, \"batch\": 16, \"threads\": 1}, \"threshold\": {\"refine_epochs\": 1},"
+               " \"output\": \"%s/imgrun\"}", fx->root, fx->root);
+    fclose(f);
+    char cmd[1800];
+    snprintf(cmd, sizeof cmd, "'%s' train '%s' --quiet >/dev/null 2>&1", test_framelaw(), path);
+    assert_int_equal(system(cmd), 0);
+    snprintf(path, sizeof path, "%s/imgrun/reconstructions/r0.png", fx->root);
+    float *img;
+    int w, h;
+    assert_int_equal(image_load_gray(path, GRAY_BT601, &img, &w, &h, &st), 0);
+    assert_int_equal(w, 3 * 12);
+    assert_int_equal(h, 4 * 10);
+    /* the left panel is the original frame 0: its brightest pixel is near the spot's centre */
+    int best = 0;
+    for (int p = 0; p < 12 * 10; p++)
+        if (img[(p / 12) * w + p % 12] > img[(best / 12) * w + best % 12]) best = p;
+    assert_true(abs(best % 12 - 9) <= 1 && abs(best / 12 - 5) <= 1); /* cx = 6 + 3, cy = 5 */
+    free(img);
+}
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test_setup_teardown(test_forecast_of_exact_model, setup, teardown),
         cmocka_unit_test_setup_teardown(test_export_trajectories, setup, teardown),
         cmocka_unit_test_setup_teardown(test_bad_run_folders, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_reconstruction_strips_for_images, setup, teardown),
     };
     return cmocka_run_group_tests_name("export and forecast", tests, NULL, NULL);
 }
