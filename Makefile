@@ -23,7 +23,7 @@ LIB_OBJ  := $(LIB_SRC:%.c=$(BUILD)/%.o)
 TEST_BIN := $(TEST_SRC:tests/%.c=$(BUILD)/tests/%)
 BENCH_BIN:= $(BENCH_SRC:tests/%.c=$(BUILD)/tests/%)
 
-.PHONY: all deps test test-bin sanitize bench demo clean check-deps
+.PHONY: all deps test test-bin sanitize bench demo clean check-deps check-slurm
 all: framelaw
 
 framelaw: $(BUILD)/framelaw
@@ -77,6 +77,13 @@ sanitize: deps
 	  echo "== $$t"; FRAMELAW=$(CURDIR)/build-san/framelaw ASAN_OPTIONS=detect_leaks=1 UBSAN_OPTIONS=print_stacktrace=1 $$t || fail=1; \
 	done; \
 	if [ $$fail = 0 ]; then echo "make sanitize: all suites passed"; else echo "make sanitize: FAILED"; fi; exit $$fail
+
+# `framelaw sweep --slurm` against a real single-node Slurm started on this machine (tests/slurm/):
+# installs slurmctld, slurmd, slurm-client and munge when missing, so it needs root.
+check-slurm: $(BUILD)/framelaw
+	@if [ "$$(id -u)" != 0 ]; then \
+	  echo "check-slurm: needs root: it installs Slurm and munge from Debian and starts their daemons"; exit 1; fi
+	FRAMELAW=$(CURDIR)/$(BUILD)/framelaw bash tests/slurm/run_slurm_test.sh
 
 bench: deps $(BENCH_BIN)
 	@for b in $(BENCH_BIN); do echo "== $$b"; $$b || exit 1; done

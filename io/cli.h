@@ -27,6 +27,7 @@ int cmd_frames(int argc, char **argv);
 
 int cmd_train(int argc, char **argv);   /* io/cmd_train.c */
 int cmd_resume(int argc, char **argv);  /* io/cmd_train.c */
+int cmd_sweep(int argc, char **argv);   /* io/cmd_sweep.c */
 
 int cmd_export(int argc, char **argv);   /* io/cmd_results.c */
 int cmd_forecast(int argc, char **argv); /* io/cmd_results.c */
