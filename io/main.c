@@ -17,6 +17,7 @@ static const Command commands[] = {
     {"help", "show this overview", cmd_help},
     {"fit", "fit a sparse ODE to a time series of state coordinates (CSV or .npy)", cmd_fit},
     {"frames", "inspect a frames folder: recordings, sizes, frame store, contact sheet", cmd_frames},
+    {"demo", "render the recordings of a demo scenario (lantern, convection) as PNG frames", cmd_demo},
     {"sweep", "train every member of a parameter sweep, locally or as a Slurm job array", cmd_sweep},
 };
 enum { N_COMMANDS = sizeof commands / sizeof commands[0] };
