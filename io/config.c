@@ -151,6 +151,9 @@ static const KeyDef keys[] = {
           "weight of |z' - z'_pred|^2 (first order) or |z'' - z''_pred|^2 (second order)"),
     K_NUM("loss.l1", w_l1, "0.001", 0, INFINITY, 0,
           "weight of the L1 norm of the coefficients (0 during refinement)"),
+    K_BOOL("loss.normalize", loss_normalize, "false",
+           "divide |x - x_hat|^2 by the variance of x and the dx term by the mean square of x' (or x'') "
+           "over the training set, so that their weights compare relative errors"),
     /* optimizer */
     K_NUM("optimizer.lr", lr, "0.001", 0, INFINITY, LO_OPEN, "Adam learning rate"),
     K_NUM("optimizer.beta1", beta1, "0.9", 0, 1, HI_OPEN, "Adam decay of the first moment"),

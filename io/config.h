@@ -56,7 +56,8 @@ typedef struct {
     char lib_include[32][CFG_NAME_MAX];
     char lib_exclude[32][CFG_NAME_MAX];
     /* loss */
-    double w_rec, w_dx, w_dz, w_l1; /* loss.reconstruction [1], loss.dx [1e-4], loss.dz [0], loss.l1 [1e-5] */
+    double w_rec, w_dx, w_dz, w_l1; /* loss.reconstruction [1], loss.dx [0.1], loss.dz [1], loss.l1 [1e-3] */
+    int loss_normalize;             /* loss.normalize: divide rec and dx terms by the data's scale [false] */
     /* optimizer */
     double lr, beta1, beta2, eps;   /* optimizer.lr [1e-3], .beta1 [0.9], .beta2 [0.999], .eps [1e-8] */
     char schedule[16];              /* optimizer.schedule: "constant" | "step" | "cosine"    [constant] */

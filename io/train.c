@@ -91,7 +91,7 @@ static int list_checkpoints(const char *dir, char ***names_out) {
         names[n++] = strdup(e->d_name);
     }
     closedir(d);
-    qsort(names, (size_t)n, sizeof *names, cmp_desc);
+    if (n) qsort(names, (size_t)n, sizeof *names, cmp_desc);
     *names_out = names;
     return n;
 }
@@ -122,6 +122,7 @@ typedef struct {
     ParamSet *ps;
     CkptMeta meta;
     int64_t *order;     /* (n_train) */
+    double rec_norm, dx_norm;   /* loss.normalize: 1 / var(x), 1 / mean(x'^2 or x''^2); else 1 */
     char ckpt_dir[4150];
 } Run;
 
@@ -236,7 +237,8 @@ static void fmt_duration(double s, char *buf, size_t n) {
 
 static int validate(Run *r, Tape *t, float *X, int Bmax, double *out, Status *st) {
     const TrainData *ds = r->ds;
-    LossWeights w = {(float)r->cfg->w_rec, (float)r->cfg->w_dx, (float)r->cfg->w_dz, 0.0f};
+    LossWeights w = {(float)(r->cfg->w_rec * r->rec_norm), (float)(r->cfg->w_dx * r->dx_norm), (float)r->cfg->w_dz,
+                     0.0f};
     double sum = 0;
     int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
     if (!idx) return status_set(st, ST_RUNTIME, "out of memory");
@@ -252,6 +254,51 @@ static int validate(Run *r, Tape *t, float *X, int Bmax, double *out, Status *st
     free(idx);
     *out = ds->n_val ? sum / (double)ds->n_val : NAN;
     return 0;
+}
+
+/* ---- the data's scale, for loss.normalize ----------------------------------------------------- */
+
+/* One pass over the training set in order: var(x) (per value over the samples, averaged over the
+ * values) and the mean square of the highest derivative block (x' or x''). Deterministic, so a
+ * resumed run gets the same figures. */
+static int data_scales(Run *r, const TrainData *ds, int Bmax, float *X, Status *st) {
+    r->rec_norm = r->dx_norm = 1.0;
+    if (!r->cfg->loss_normalize) return 0;
+    long n = ds->n_in, total = ds->n_train;
+    int k = ds->k;
+    double *sum = calloc((size_t)n, sizeof *sum), *sq = calloc((size_t)n, sizeof *sq), dms = 0;
+    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
+    if (!sum || !sq || !idx) {
+        free(sum), free(sq), free(idx);
+        return status_set(st, ST_RUNTIME, "out of memory");
+    }
+    int rc = 0;
+    for (long s0 = 0; s0 < total && !rc; s0 += Bmax) {
+        int B = (int)(total - s0 < Bmax ? total - s0 : Bmax);
+        for (int i = 0; i < B; i++) idx[i] = s0 + i;
+        if ((rc = ds->gather(ds->ctx, 0, idx, B, X, st))) break;
+        for (int b = 0; b < B; b++) {
+            const float *x = X + (long)b * n, *dd = X + ((long)(k - 1) * B + b) * n;
+            for (long p = 0; p < n; p++) {
+                sum[p] += x[p];
+                sq[p] += (double)x[p] * x[p];
+                dms += (double)dd[p] * dd[p];
+            }
+        }
+    }
+    if (!rc) {
+        double var = 0;
+        for (long p = 0; p < n; p++) {
+            double m = sum[p] / (double)total;
+            var += sq[p] / (double)total - m * m;
+        }
+        var /= (double)n;
+        dms /= (double)total * (double)n;
+        r->rec_norm = var > 1e-20 ? 1.0 / var : 1.0;
+        r->dx_norm = dms > 1e-20 ? 1.0 / dms : 1.0;
+    }
+    free(sum), free(sq), free(idx);
+    return rc;
 }
 
 /* ---- set-up ---------------------------------------------------------------------------------- */
@@ -326,6 +373,12 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     int B = c->batch < ds->n_train ? c->batch : (int)ds->n_train;
     long n_batches = (ds->n_train + B - 1) / B;
     float *X = nn_alloc((size_t)ds->k * B * ds->n_in * sizeof(float)); /* (k B, n_in) */
+    if ((rc = data_scales(&r, ds, B, X, st))) {
+        fclose(log);
+        nn_free(X);
+        nn_free(r.order);
+        return rc;
+    }
     Tape t;
     tape_init(&t, 256, (size_t)64 << 20);
     AdamCfg ad = {(float)c->lr, (float)c->beta1, (float)c->beta2, (float)c->eps};
@@ -339,7 +392,8 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     while (r.meta.epoch < c->epochs) {
         long epoch = (long)r.meta.epoch;
         int refine = epoch >= refine_from;
-        LossWeights w = {(float)c->w_rec, (float)c->w_dx, (float)c->w_dz, refine ? 0.0f : (float)c->w_l1};
+        LossWeights w = {(float)(c->w_rec * r.rec_norm), (float)(c->w_dx * r.dx_norm), (float)c->w_dz,
+                         refine ? 0.0f : (float)c->w_l1};
         ad.lr = (float)lr_at(c, epoch);
         double t_epoch = now_seconds();
         if (r.meta.batch == 0) {

@@ -27,7 +27,7 @@ static const char *FULL =
     "            \"activation\": \"tanh\", \"init\": \"glorot\"},\n"
     "  \"library\": {\"degree\": 2, \"constant\": false, \"trig\": true, \"trig_velocity\": false,\n"
     "              \"multipliers\": [1, 2, 3], \"include\": [\"z1 z2\"], \"exclude\": [\"z1^2\", \"cos(z2)\"]},\n"
-    "  \"loss\": {\"reconstruction\": 0.5, \"dx\": 0.001, \"dz\": 1e-6, \"l1\": 0.1},\n"
+    "  \"loss\": {\"reconstruction\": 0.5, \"dx\": 0.001, \"dz\": 1e-6, \"l1\": 0.1, \"normalize\": true},\n"
     "  \"optimizer\": {\"lr\": 3e-4, \"beta1\": 0.8, \"beta2\": 0.99, \"eps\": 1e-7, \"schedule\": \"cosine\",\n"
     "                \"decay_every\": 50, \"decay_factor\": 0.25, \"lr_min\": 1e-5},\n"
     "  \"train\": {\"batch\": 64, \"epochs\": 20000, \"seed\": 9007199254740991, \"threads\": 4,\n"
