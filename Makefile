@@ -11,7 +11,7 @@ TESTLIBS:= -lcmocka
 
 # Debian packages the build and the test suite need; `make deps` installs the missing ones.
 DEB_BUILD := libopenblas-dev libstb-dev libcjson-dev libcmocka-dev
-DEB_TEST  := python3 python3-numpy
+DEB_TEST  := python3 python3-numpy chromium
 DEB_PKGS  := $(DEB_BUILD) $(DEB_TEST)
 
 LIB_SRC  := $(wildcard nn/*.c) $(wildcard sparse/*.c) $(filter-out io/main.c,$(wildcard io/*.c)) $(wildcard demo/*.c)

@@ -22,6 +22,9 @@ int cmd_fit(int argc, char **argv);
 /* framelaw frames DIR: inspect a frames folder (io/cmd_frames.c). */
 int cmd_frames(int argc, char **argv);
 
+/* framelaw report RUN_DIR: the run's self-contained HTML report (io/cmd_report.c). */
+int cmd_report(int argc, char **argv);
+
 /* framelaw demo SCENARIO OUT_DIR: render a demo scenario's recordings (io/cmd_demo.c). */
 int cmd_demo(int argc, char **argv);
 

@@ -19,6 +19,7 @@ static const Command commands[] = {
     {"frames", "inspect a frames folder: recordings, sizes, frame store, contact sheet", cmd_frames},
     {"demo", "render the recordings of a demo scenario (lantern, convection) as PNG frames", cmd_demo},
     {"sweep", "train every member of a parameter sweep, locally or as a Slurm job array", cmd_sweep},
+    {"report", "write a run's HTML report: settings, losses, equations, forecasts, reconstructions", cmd_report},
 };
 enum { N_COMMANDS = sizeof commands / sizeof commands[0] };
 
