@@ -172,6 +172,12 @@ static const KeyDef keys[] = {
           "seed of the random generator (initialisation, shuffling)"),
     K_INT("train.threads", threads, "0", 0, 1024, NULL, "worker threads; 0 = all cores"),
     K_INT("train.validate_every", validate_every, "10", 1, NOMAX, NULL, "epochs between validation passes"),
+    K_INT("train.warmup_epochs", warmup_epochs, "0", 0, NOMAX, NULL,
+          "first epochs train the autoencoder alone: the decoder takes the encoder's z' (z''), no dz and "
+          "no L1 term"),
+    K_BOOL("train.warmup_fit", warmup_fit, "true",
+           "at the end of the warm-up, set Xi by sequentially thresholded least squares on the encoded "
+           "training set (threshold.value)"),
     /* threshold */
     K_NUM("threshold.value", threshold, "0.1", 0, INFINITY, 0,
           "coefficients with |Xi| below this are set to zero and masked out for good"),
@@ -721,6 +727,10 @@ int config_validate(const Config *c, Status *st) {
     if (c->refine_epochs >= c->epochs)
         return status_set(st, ST_INPUT, "threshold.refine_epochs (%ld) must be less than train.epochs (%ld)",
                           c->refine_epochs, c->epochs);
+    if (c->warmup_epochs > 0 && c->warmup_epochs + c->refine_epochs >= c->epochs)
+        return status_set(st, ST_INPUT,
+                          "train.warmup_epochs (%ld) + threshold.refine_epochs (%ld) must be less than train.epochs (%ld)",
+                          c->warmup_epochs, c->refine_epochs, c->epochs);
     if (!strcmp(c->derivative, "savgol")) {
         if (c->sg_window % 2 == 0)
             return status_set(st, ST_INPUT, "data.derivative.window: must be odd for savgol (is %d)", c->sg_window);

@@ -15,6 +15,7 @@
 #include "io/checkpoint.h"
 #include "nn/adam.h"
 #include "nn/mat.h"
+#include "sparse/thresh_lsq.h"
 
 static double now_seconds(void) {
     struct timespec ts;
@@ -301,6 +302,53 @@ static int data_scales(Run *r, const TrainData *ds, int Bmax, float *X, Status *
     return rc;
 }
 
+/* ---- the end of the warm-up: Xi from thresholded least squares ------------------------------- */
+
+/* Encode every training sample, then fit z' (first order) or z'' (second order) on the library of
+ * z (or of z, z') by sequentially thresholded least squares. Xi takes the fit; the mask stays as it
+ * is (the thresholding passes prune). A failed fit (e.g. a rank-deficient library on collapsed
+ * latents) leaves Xi as it was and says so. */
+static int warmup_fit(Run *r, const TrainData *ds, Tape *t, float *X, int Bmax, int quiet, Status *st) {
+    Model *m = r->m;
+    int d = m->n_latent, k = m->order + 1, nv = m->lib.n_vars, T = m->lib.n_terms;
+    long N = ds->n_train;
+    double *theta = malloc((size_t)N * T * sizeof *theta), *target = malloc((size_t)N * d * sizeof *target);
+    double *xi = malloc((size_t)T * d * sizeof *xi);
+    uint8_t *mask = malloc((size_t)T * d);
+    float *z = malloc((size_t)k * Bmax * d * sizeof *z);
+    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
+    int rc = 0;
+    if (!theta || !target || !xi || !mask || !z || !idx) {
+        rc = status_set(st, ST_RUNTIME, "out of memory");
+        goto done;
+    }
+    for (long s0 = 0; s0 < N; s0 += Bmax) {
+        int B = (int)(N - s0 < Bmax ? N - s0 : Bmax);
+        for (int i = 0; i < B; i++) idx[i] = s0 + i;
+        if ((rc = ds->gather(ds->ctx, 0, idx, B, X, st))) goto done;
+        tape_reset(t);
+        model_encode(t, m, r->ps, X, B, k, z);
+        for (int b = 0; b < B; b++) {
+            double sv[LIB_MAX_VARS];
+            for (int j = 0; j < nv; j++) sv[j] = z[((long)(j / d) * B + b) * d + j % d];
+            library_eval(&m->lib, theta + (s0 + b) * T, sv, 1);
+            for (int j = 0; j < d; j++) target[(s0 + b) * d + j] = z[((long)(k - 1) * B + b) * d + j];
+        }
+    }
+    ThreshLsqOptions opt = thresh_lsq_defaults();
+    opt.threshold = r->cfg->threshold;
+    Status s2;
+    if (thresh_lsq_fit(xi, mask, theta, target, N, T, d, NULL, &opt, NULL, &s2)) {
+        if (!quiet) fprintf(stderr, "\nframelaw: the warm-up fit failed (%s); Xi starts at 0\n", s2.msg);
+        goto done;
+    }
+    float *w = params_val(r->ps, m->xi).d;
+    for (long i = 0; i < (long)T * d; i++) w[i] = m->mask[i] ? (float)xi[i] : 0.0f;
+done:
+    free(theta), free(target), free(xi), free(mask), free(z), free(idx);
+    return rc;
+}
+
 /* ---- set-up ---------------------------------------------------------------------------------- */
 
 static int setup(Run *r, const Config *cfg, const TrainData *ds, const char *run_dir, Model *m, ParamSet *ps,
@@ -391,9 +439,10 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
 
     while (r.meta.epoch < c->epochs) {
         long epoch = (long)r.meta.epoch;
-        int refine = epoch >= refine_from;
-        LossWeights w = {(float)(c->w_rec * r.rec_norm), (float)(c->w_dx * r.dx_norm), (float)c->w_dz,
-                         refine ? 0.0f : (float)c->w_l1};
+        int refine = epoch >= refine_from, warm = epoch < c->warmup_epochs;
+        m->warmup = warm;
+        LossWeights w = {(float)(c->w_rec * r.rec_norm), (float)(c->w_dx * r.dx_norm), warm ? 0.0f : (float)c->w_dz,
+                         refine || warm ? 0.0f : (float)c->w_l1};
         ad.lr = (float)lr_at(c, epoch);
         double t_epoch = now_seconds();
         if (r.meta.batch == 0) {
@@ -441,7 +490,11 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
         r.meta.epoch = epoch + 1;
         r.meta.batch = 0;
         long done = epoch + 1;
-        if (!refine && c->threshold_every > 0 && done % c->threshold_every == 0 && done <= refine_from) {
+        if (warm && done == c->warmup_epochs) {
+            m->warmup = 0;
+            if (c->warmup_fit && (rc = warmup_fit(&r, ds, &t, X, B, o->quiet, st))) goto out;
+        }
+        if (!refine && !warm && c->threshold_every > 0 && done % c->threshold_every == 0 && done <= refine_from) {
             model_threshold(m, ps, (float)c->threshold);
             r.meta.n_thresholds++;
         }
@@ -453,7 +506,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
         r.meta.seconds = seconds0 + now_seconds() - t_start;
         double ep_s = now_seconds() - t_epoch;
         long active = model_active(m);
-        fprintf(log, "%ld,%s,%.6g,%.8g,%.8g,%.8g,%.8g,%.8g,%ld,", done, refine ? "refine" : "train", ad.lr, mean[0],
+        fprintf(log, "%ld,%s,%.6g,%.8g,%.8g,%.8g,%.8g,%.8g,%ld,", done, refine ? "refine" : warm ? "warmup" : "train", ad.lr, mean[0],
                 mean[1], mean[2], mean[3], mean[4], active);
         if (validated) fprintf(log, "%.8g", val);
         fprintf(log, ",%.3f,%.4f\n", r.meta.seconds, ep_s);
@@ -480,7 +533,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
             char vbuf[32] = "";
             if (validated) snprintf(vbuf, sizeof vbuf, " val %.3e", val);
             fprintf(stderr, "%sepoch %ld/%ld %s loss %.3e rec %.3e dx %.3e dz %.3e l1 %.3g active %ld%s  %.2f ep/s  ETA %s%s",
-                    tty ? "\r\033[K" : "", done, c->epochs, refine ? "refine" : "train", mean[0], mean[1], mean[2],
+                    tty ? "\r\033[K" : "", done, c->epochs, refine ? "refine" : warm ? "warmup" : "train", mean[0], mean[1], mean[2],
                     mean[3], mean[4], active, vbuf, rate, eta, tty ? "" : "\n");
         }
         if (stopping) { res->interrupted = 1; break; }

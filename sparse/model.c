@@ -69,7 +69,9 @@ Node *model_loss(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const L
     Node *xi = nn_mul(t, nn_param(t, ps, m->xi), nn_input(t, m->maskf, m->lib.n_terms, d));
     Node *pred = nn_matmul(t, theta, xi, 0, 0);                 /* (B, d): z' or z'' predicted */
     Node *zt = m->order == 1 ? z1 : nn_rows(t, z, 2 * B, B);    /* the encoder's z' or z'' */
-    Node *dec_in = m->order == 1 ? nn_vstack(t, z0, pred) : nn_vstack(t, nn_rows(t, z, 0, 2 * B), pred);
+    /* warm-up: the decoder gets the encoder's own z' (z''), so the autoencoder learns alone */
+    Node *zd = m->warmup ? zt : pred;
+    Node *dec_in = m->order == 1 ? nn_vstack(t, z0, zd) : nn_vstack(t, nn_rows(t, z, 0, 2 * B), zd);
     Node *xh = mlp_forward(t, &m->dec, ps, dec_in, k);          /* (kB, n_in) */
     int last = (k - 1) * B;                                     /* rows of x' or x'' */
     Node *rec = nn_mean_sq(t, nn_sub(t, nn_rows(t, x, 0, B), nn_rows(t, xh, 0, B)));

@@ -12,7 +12,9 @@
  *   (x_hat, x_hat', x_hat'') = dec(z, z', z''_pred)
  *   L = w_rec |x - x_hat|^2 + w_dx |x'' - x_hat''|^2 + w_dz |z'' - z''_pred|^2 + w_l1 |Xi * M|_1
  * Every squared term is a mean over the batch and the components (so the weights compare terms of
- * unit size); the L1 term is a plain sum over the coefficients. */
+ * unit size); the L1 term is a plain sum over the coefficients.
+ * Warm-up (m->warmup): the decoder takes the encoder's z' (z'') in place of the model's, so that with
+ * the dz and L1 weights at 0 the autoencoder and its derivatives train alone. */
 #ifndef SPARSE_MODEL_H
 #define SPARSE_MODEL_H
 
@@ -38,6 +40,8 @@ typedef struct {
     Library lib;
     int xi;                     /* ParamSet index of Xi (n_terms, n_latent) */
     uint8_t *mask;              /* (n_terms, n_latent), 1 = active */
+    int warmup;                 /* 1: the decoder takes the encoder's z' (z'') instead of the model's
+                                 * (set by the epoch loop during the warm-up) */
     float *maskf;               /* (n_terms, n_latent) the same as floats, for the tape */
 } Model;
 

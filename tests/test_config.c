@@ -31,7 +31,7 @@ static const char *FULL =
     "  \"optimizer\": {\"lr\": 3e-4, \"beta1\": 0.8, \"beta2\": 0.99, \"eps\": 1e-7, \"schedule\": \"cosine\",\n"
     "                \"decay_every\": 50, \"decay_factor\": 0.25, \"lr_min\": 1e-5},\n"
     "  \"train\": {\"batch\": 64, \"epochs\": 20000, \"seed\": 9007199254740991, \"threads\": 4,\n"
-    "            \"validate_every\": 5},\n"
+    "            \"validate_every\": 5, \"warmup_epochs\": 50, \"warmup_fit\": false},\n"
     "  \"threshold\": {\"value\": 0.05, \"every\": 250, \"refine_epochs\": 5000},\n"
     "  \"checkpoint\": {\"every\": 25, \"keep\": 7},\n"
     "  \"forecast\": {\"bound\": 0.2, \"method\": \"rk4\", \"tolerance\": 1e-6},\n"
@@ -342,6 +342,8 @@ static const struct {
     {"{}", "data.frames: required (the folder of frames or recordings)"},
     {"{\"data\": {\"frames\": \"f\"}, \"train\": {\"epochs\": 1000}}",
      "threshold.refine_epochs (1000) must be less than train.epochs (1000)"},
+    {"{\"data\": {\"frames\": \"f\"}, \"train\": {\"epochs\": 1500, \"warmup_epochs\": 500}}",
+     "train.warmup_epochs (500) + threshold.refine_epochs (1000) must be less than train.epochs (1500)"},
     {"{\"data\": {\"frames\": \"f\", \"derivative\": {\"method\": \"savgol\", \"window\": 8}}}",
      "data.derivative.window: must be odd for savgol (is 8)"},
     {"{\"data\": {\"frames\": \"f\", \"derivative\": {\"method\": \"savgol\", \"window\": 5, \"degree\": 5}}}",

@@ -265,6 +265,52 @@ static void test_corrupt_checkpoints_are_refused(void **state) {
     test_rmtree(dir);
 }
 
+/* The warm-up trains the autoencoder alone (Xi gets no gradient: no dz, no L1 term, and the decoder
+ * takes the encoder's z'), then Xi is set by thresholded least squares on the encoded training set;
+ * a resume across that boundary is still bit-exact. */
+static void test_warmup_then_fit(void **state) {
+    (void)state;
+    char d1[256], d2[256];
+    assert_non_null(test_tmpdir(d1, sizeof d1));
+    assert_non_null(test_tmpdir(d2, sizeof d2));
+    Config c;
+    Model m1, m2;
+    ParamSet p1, p2;
+    TrainResult res;
+    small_config(&c, d1);
+    c.warmup_epochs = 2;
+    c.threshold_every = 100; /* no thresholding pass in this short run */
+    /* stop at the end of the warm-up (10 batches an epoch) */
+    assert_int_equal(run(&c, d1, 0, 20, &m1, &p1, &res), 0);
+    assert_int_equal(res.epochs_done, 2);
+    Mat xi = params_val(&p1, m1.xi);
+    double l1 = 0;
+    for (long i = 0; i < mat_size(xi); i++) l1 += fabsf(xi.d[i]);
+    assert_true(l1 > 0); /* 0 during the warm-up, so the fit set it */
+    model_free(&m1);
+    params_free(&p1);
+    assert_int_equal(run(&c, d1, 1, 0, &m1, &p1, &res), 0);
+    small_config(&c, d2);
+    c.warmup_epochs = 2;
+    c.threshold_every = 100;
+    assert_int_equal(run(&c, d2, 0, 0, &m2, &p2, &res), 0);
+    assert_true(same_params(&p1, &p2));
+    char path[512], line[512];
+    snprintf(path, sizeof path, "%s/log.csv", d2);
+    FILE *f = fopen(path, "r");
+    assert_non_null(f);
+    int warm = 0;
+    while (fgets(line, sizeof line, f)) warm += strstr(line, ",warmup,") != NULL;
+    fclose(f);
+    assert_int_equal(warm, 2);
+    model_free(&m1);
+    params_free(&p1);
+    model_free(&m2);
+    params_free(&p2);
+    test_rmtree(d1);
+    test_rmtree(d2);
+}
+
 /* A non-finite loss stops the run with a message naming the usual remedies, and the checkpoints
  * written before it stay loadable. The data turn to NaN after 25 batches (inside epoch 3). */
 typedef struct {
@@ -315,6 +361,7 @@ int main(void) {
         cmocka_unit_test(test_resume_is_bit_exact),
         cmocka_unit_test(test_corrupt_checkpoints_are_refused),
         cmocka_unit_test(test_divergence_stops_and_keeps_checkpoints),
+        cmocka_unit_test(test_warmup_then_fit),
     };
     return cmocka_run_group_tests_name("training loop", tests, NULL, NULL);
 }
