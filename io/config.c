@@ -130,7 +130,10 @@ static const KeyDef keys[] = {
            "widths of the decoder's hidden layers; null = the encoder's reversed"),
     K_STR("model.activation", activation, "\"sigmoid\"", "sigmoid|tanh|softplus|silu",
           "activation of the hidden layers (the output layers are linear)"),
-    K_STR("model.init", init, "\"glorot\"", "glorot", "weight initialisation (biases start at 0)"),
+    K_STR("model.init", init, "\"glorot\"", "glorot|pca",
+          "glorot: uniform weights, zero biases; pca: in addition, the encoder's first layer projects on the "
+          "leading principal directions of the training frames (whitened) and the decoder starts at the mean "
+          "frame"),
     /* library */
     K_INT("library.degree", lib_degree, "3", 0, LIB_MAX_DEGREE, NULL,
           "highest total degree of the polynomial terms"),

@@ -15,6 +15,7 @@
 #include "io/checkpoint.h"
 #include "nn/adam.h"
 #include "nn/mat.h"
+#include "nn/pca.h"
 #include "sparse/thresh_lsq.h"
 
 static double now_seconds(void) {
@@ -349,6 +350,62 @@ done:
     return rc;
 }
 
+/* ---- model.init = pca -------------------------------------------------------------------------- */
+
+/* The encoder's first layer (n_in, h) projects on the h leading principal directions of the
+ * training frames, whitened: W[:, j] = v_j / sqrt(lambda_j), b_j = -mean . W[:, j], so its
+ * pre-activations start centred with unit variance. The decoder's output bias is set so that it
+ * starts at the mean frame: b = mean - s(0) * (column sums of its last W). Deterministic. */
+static int pca_init(Run *r, const TrainData *ds, float *X, int Bmax, Status *st) {
+    Model *m = r->m;
+    int n = ds->n_in, h = m->enc.widths[1];
+    if (h > n) h = n;
+    Pca p;
+    pca_begin(&p, n);
+    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
+    if (!idx) {
+        pca_free(&p);
+        return status_set(st, ST_RUNTIME, "out of memory");
+    }
+    for (long s0 = 0; s0 < ds->n_train; s0 += Bmax) {
+        int B = (int)(ds->n_train - s0 < Bmax ? ds->n_train - s0 : Bmax);
+        for (int i = 0; i < B; i++) idx[i] = s0 + i;
+        if (ds->gather(ds->ctx, 0, idx, B, X, st)) {
+            free(idx);
+            pca_free(&p);
+            return st->code;
+        }
+        pca_add(&p, X, B); /* the primal rows only */
+    }
+    free(idx);
+    double *mean = malloc((size_t)n * sizeof *mean), *vecs = malloc((size_t)h * n * sizeof *vecs);
+    double *vals = malloc((size_t)h * sizeof *vals);
+    int rc = !mean || !vecs || !vals ? status_set(st, ST_RUNTIME, "out of memory") : pca_finish(&p, h, mean, vecs, vals, st);
+    if (!rc) {
+        Mat W = params_val(r->ps, m->enc.W[0]), b = params_val(r->ps, m->enc.b[0]); /* (n, h1), (1, h1) */
+        for (int j = 0; j < W.cols; j++) {
+            double bj = 0;
+            for (int i = 0; i < n; i++) {
+                double w = j < h ? vecs[(long)j * n + i] / sqrt(vals[j] > 1e-12 ? vals[j] : 1e-12) : W.d[(long)i * W.cols + j];
+                W.d[(long)i * W.cols + j] = (float)w;
+                bj -= mean[i] * w;
+            }
+            b.d[j] = (float)bj;
+        }
+        int L = m->dec.n_layers - 1;
+        Mat Wd = params_val(r->ps, m->dec.W[L]), bd = params_val(r->ps, m->dec.b[L]); /* (h_last, n), (1, n) */
+        float s0[4];
+        act_table[L > 0 ? m->dec.act : ACT_NONE].fn(0.0f, s0);
+        for (int j = 0; j < n; j++) {
+            double cs = 0;
+            for (int i = 0; i < Wd.rows; i++) cs += Wd.d[(long)i * n + j];
+            bd.d[j] = (float)(mean[j] - (L > 0 ? s0[0] : 0.0f) * cs);
+        }
+    }
+    free(mean), free(vecs), free(vals);
+    return rc;
+}
+
 /* ---- set-up ---------------------------------------------------------------------------------- */
 
 static int setup(Run *r, const Config *cfg, const TrainData *ds, const char *run_dir, Model *m, ParamSet *ps,
@@ -421,6 +478,12 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     int B = c->batch < ds->n_train ? c->batch : (int)ds->n_train;
     long n_batches = (ds->n_train + B - 1) / B;
     float *X = nn_alloc((size_t)ds->k * B * ds->n_in * sizeof(float)); /* (k B, n_in) */
+    if (ps->step == 0 && !strcmp(c->init, "pca") && (rc = pca_init(&r, ds, X, B, st))) { /* a fresh model */
+        fclose(log);
+        nn_free(X);
+        nn_free(r.order);
+        return rc;
+    }
     if ((rc = data_scales(&r, ds, B, X, st))) {
         fclose(log);
         nn_free(X);

@@ -265,7 +265,7 @@ static void test_corrupt_checkpoints_are_refused(void **state) {
     test_rmtree(dir);
 }
 
-/* The warm-up trains the autoencoder alone (Xi gets no gradient: no dz, no L1 term, and the decoder
+/* model.init = pca and the warm-up. The warm-up trains the autoencoder alone (Xi gets no gradient: no dz, no L1 term, and the decoder
  * takes the encoder's z'), then Xi is set by thresholded least squares on the encoded training set;
  * a resume across that boundary is still bit-exact. */
 static void test_warmup_then_fit(void **state) {
@@ -280,6 +280,7 @@ static void test_warmup_then_fit(void **state) {
     small_config(&c, d1);
     c.warmup_epochs = 2;
     c.threshold_every = 100; /* no thresholding pass in this short run */
+    snprintf(c.init, sizeof c.init, "pca");   /* and the principal-direction initialisation */
     /* stop at the end of the warm-up (10 batches an epoch) */
     assert_int_equal(run(&c, d1, 0, 20, &m1, &p1, &res), 0);
     assert_int_equal(res.epochs_done, 2);
@@ -293,6 +294,7 @@ static void test_warmup_then_fit(void **state) {
     small_config(&c, d2);
     c.warmup_epochs = 2;
     c.threshold_every = 100;
+    snprintf(c.init, sizeof c.init, "pca");
     assert_int_equal(run(&c, d2, 0, 0, &m2, &p2, &res), 0);
     assert_true(same_params(&p1, &p2));
     char path[512], line[512];
