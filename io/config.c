@@ -156,7 +156,8 @@ static const KeyDef keys[] = {
           "weight of the L1 norm of the coefficients (0 during refinement)"),
     K_BOOL("loss.normalize", loss_normalize, "false",
            "divide |x - x_hat|^2 by the variance of x and the dx term by the mean square of x' (or x'') "
-           "over the training set, so that their weights compare relative errors"),
+           "over the training set, and |z' - z'_pred|^2 by the batch's mean of z'^2 (z''^2), so that the "
+           "weights compare relative errors"),
     /* optimizer */
     K_NUM("optimizer.lr", lr, "0.001", 0, INFINITY, LO_OPEN, "Adam learning rate"),
     K_NUM("optimizer.beta1", beta1, "0.9", 0, 1, HI_OPEN, "Adam decay of the first moment"),

@@ -239,6 +239,7 @@ static void fmt_duration(double s, char *buf, size_t n) {
 
 static int validate(Run *r, Tape *t, float *X, int Bmax, double *out, Status *st) {
     const TrainData *ds = r->ds;
+    r->m->dz_relative = r->cfg->loss_normalize;
     LossWeights w = {(float)(r->cfg->w_rec * r->rec_norm), (float)(r->cfg->w_dx * r->dx_norm), (float)r->cfg->w_dz,
                      0.0f};
     double sum = 0;
@@ -504,6 +505,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
         long epoch = (long)r.meta.epoch;
         int refine = epoch >= refine_from, warm = epoch < c->warmup_epochs;
         m->warmup = warm;
+        m->dz_relative = c->loss_normalize;
         LossWeights w = {(float)(c->w_rec * r.rec_norm), (float)(c->w_dx * r.dx_norm), warm ? 0.0f : (float)c->w_dz,
                          refine || warm ? 0.0f : (float)c->w_l1};
         ad.lr = (float)lr_at(c, epoch);

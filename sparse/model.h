@@ -13,6 +13,8 @@
  *   L = w_rec |x - x_hat|^2 + w_dx |x'' - x_hat''|^2 + w_dz |z'' - z''_pred|^2 + w_l1 |Xi * M|_1
  * Every squared term is a mean over the batch and the components (so the weights compare terms of
  * unit size); the L1 term is a plain sum over the coefficients.
+ * With m->dz_relative the latent term is divided by the batch's mean of z'^2 (z''^2), gradient
+ * included: scale-free, like the normalised reconstruction terms of io/train.c (loss.normalize).
  * Warm-up (m->warmup): the decoder takes the encoder's z' (z'') in place of the model's, so that with
  * the dz and L1 weights at 0 the autoencoder and its derivatives train alone. */
 #ifndef SPARSE_MODEL_H
@@ -42,6 +44,8 @@ typedef struct {
     uint8_t *mask;              /* (n_terms, n_latent), 1 = active */
     int warmup;                 /* 1: the decoder takes the encoder's z' (z'') instead of the model's
                                  * (set by the epoch loop during the warm-up) */
+    int dz_relative;            /* 1: the latent term is |z' - z'_pred|^2 / |z'|^2 (z'' for second order),
+                                 * a relative error that a shrinking or growing latent scale cannot game */
     float *maskf;               /* (n_terms, n_latent) the same as floats, for the tape */
 } Model;
 

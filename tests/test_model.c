@@ -53,6 +53,9 @@ static void check_model(int order) {
     /* tolerance as for the chains in tests/test_dense_t.c: several layers, float32, h = 1e-2 */
     GcOpts o = {.h = 1e-2f, .tol = 1e-2f, .floor = 1e-3f, .max_checked = 40, .at_kink = near_zero};
     gradcheck(&t, &ps, build, &c, &o);
+    c.m.dz_relative = 1; /* the relative latent term, gradient through the normaliser included */
+    gradcheck(&t, &ps, build, &c, &o);
+    c.m.dz_relative = 0;
 
     /* the parts add up to the total with the weights */
     tape_reset(&t);
