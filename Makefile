@@ -88,11 +88,15 @@ check-slurm: $(BUILD)/framelaw
 bench: deps $(BENCH_BIN)
 	@for b in $(BENCH_BIN); do echo "== $$b"; $$b || exit 1; done
 
-# The newcomer's path. The demo scenarios are not built yet (docs/status.md): for now it builds the
-# program and says so.
+# The newcomer's path: render the lantern scenario, train its quick config (progress shown), print
+# the learned equation and the forecast error of the held-out recordings, write the report.
+DEMO_OUT ?= demo-out
 demo: deps framelaw
-	@echo "framelaw is built (./framelaw --help). The demo scenarios are not part of this version yet;"
-	@echo "see docs/status.md for what works now."
+	./framelaw demo lantern $(DEMO_OUT)/lantern --recordings 8 --frames 200 --noise 0.005 --overwrite
+	rm -rf runs/lantern-quick
+	./framelaw train configs/lantern-quick.json --set data.frames=$(CURDIR)/$(DEMO_OUT)/lantern
+	./framelaw report runs/lantern-quick
+	@echo "demo: the report is runs/lantern-quick/report.html (docs/lantern.md says how to read it)"
 
 clean:
 	rm -rf build build-san framelaw
