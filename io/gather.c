@@ -7,6 +7,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "nn/par.h"
+
 void dataset_free(Dataset *ds) {
     free(ds->gain);
     free(ds->offset);
@@ -200,15 +202,31 @@ void dataset_gather_frames(const Dataset *ds, const long *frames, int B, float *
     }
 }
 
-void dataset_gather(const Dataset *ds, SplitId split, const int *idx, int B, float *x, float *dx, float *ddx) {
+typedef struct {
+    const Dataset *ds;
+    SplitId split;
+    const int *idx;
+    float *x, *dx, *ddx;
+} GatherJob;
+
+/* samples [lo, hi) of a batch; each sample's rows depend on its frames alone */
+static void gather_range(void *ctx, long lo, long hi) {
     enum { CHUNK = 256 };
-    long frames[CHUNK];
-    for (int b0 = 0; b0 < B; b0 += CHUNK) {
-        int nb = B - b0 < CHUNK ? B - b0 : CHUNK;
-        for (int b = 0; b < nb; b++) frames[b] = ds->samples[split][idx[b0 + b]];
-        long off = (long)b0 * ds->n;
-        dataset_gather_frames(ds, frames, nb, x ? x + off : NULL, dx ? dx + off : NULL, ddx ? ddx + off : NULL);
+    const GatherJob *j = ctx;
+    long frames[CHUNK], n = j->ds->n;
+    for (long b0 = lo; b0 < hi; b0 += CHUNK) {
+        int nb = (int)(hi - b0 < CHUNK ? hi - b0 : CHUNK);
+        for (int b = 0; b < nb; b++) frames[b] = j->ds->samples[j->split][j->idx[b0 + b]];
+        long off = b0 * n;
+        dataset_gather_frames(j->ds, frames, nb, j->x ? j->x + off : NULL, j->dx ? j->dx + off : NULL,
+                              j->ddx ? j->ddx + off : NULL);
     }
+}
+
+/* The samples are split over the step's threads (nn/par.h); the result does not depend on it. */
+void dataset_gather(const Dataset *ds, SplitId split, const int *idx, int B, float *x, float *dx, float *ddx) {
+    GatherJob j = {ds, split, idx, x, dx, ddx};
+    par_for(B, 32, gather_range, &j);
 }
 
 int dataset_recording_of(const Dataset *ds, long frame) {

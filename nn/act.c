@@ -6,9 +6,8 @@
 
 static void act_none(float x, float d[4]) { d[0] = x; d[1] = 1; d[2] = 0; d[3] = 0; }
 
-/* s = 1/(1+e^-x); s' = s(1-s); s'' = s'(1-2s); s''' = s'(1-6s+6s^2). */
-static void act_sigmoid(float x, float d[4]) {
-    float s = x >= 0 ? 1.0f / (1.0f + expf(-x)) : expf(x) / (1.0f + expf(x));
+/* s = 1/(1+e^-x) (act_sigmoid_value); s' = s(1-s); s'' = s'(1-2s); s''' = s'(1-6s+6s^2). */
+static void sigmoid_from_out(float s, float d[4]) {
     float s1 = s * (1 - s);
     d[0] = s;
     d[1] = s1;
@@ -16,14 +15,18 @@ static void act_sigmoid(float x, float d[4]) {
     d[3] = s1 * (1 - 6 * s + 6 * s * s);
 }
 
+static void act_sigmoid(float x, float d[4]) { sigmoid_from_out(act_sigmoid_value(x), d); }
+
 /* t = tanh x; t' = 1-t^2; t'' = -2t(1-t^2); t''' = -2(1-t^2)(1-3t^2). */
-static void act_tanh(float x, float d[4]) {
-    float t = tanhf(x), t1 = 1 - t * t;
+static void tanh_from_out(float t, float d[4]) {
+    float t1 = 1 - t * t;
     d[0] = t;
     d[1] = t1;
     d[2] = -2 * t * t1;
     d[3] = -2 * t1 * (1 - 3 * t * t);
 }
+
+static void act_tanh(float x, float d[4]) { tanh_from_out(tanhf(x), d); }
 
 /* softplus = log(1+e^x); derivatives are those of the sigmoid shifted by one order. */
 static void act_softplus(float x, float d[4]) {
@@ -46,11 +49,11 @@ static void act_silu(float x, float d[4]) {
 }
 
 const ActInfo act_table[ACT_COUNT] = {
-    [ACT_NONE] = {"linear", act_none},
-    [ACT_SIGMOID] = {"sigmoid", act_sigmoid},
-    [ACT_TANH] = {"tanh", act_tanh},
-    [ACT_SOFTPLUS] = {"softplus", act_softplus},
-    [ACT_SILU] = {"silu", act_silu},
+    [ACT_NONE] = {"linear", act_none, act_none},
+    [ACT_SIGMOID] = {"sigmoid", act_sigmoid, sigmoid_from_out},
+    [ACT_TANH] = {"tanh", act_tanh, tanh_from_out},
+    [ACT_SOFTPLUS] = {"softplus", act_softplus, NULL},
+    [ACT_SILU] = {"silu", act_silu, NULL},
 };
 _Static_assert(sizeof act_table / sizeof act_table[0] == ACT_COUNT, "one row per activation");
 

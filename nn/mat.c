@@ -4,6 +4,7 @@
 #include <cblas.h>
 
 #include "nn/core.h"
+#include "nn/par.h"
 
 /* OpenBLAS extensions (declared in its cblas.h on Debian; repeated here for other headers). */
 extern void openblas_set_num_threads(int num_threads);
@@ -45,6 +46,9 @@ void mat_gemm_ref(int ta, int tb, float alpha, Mat a, Mat b, float beta, Mat c) 
         }
 }
 
-void nn_set_threads(int n) { openblas_set_num_threads(n < 1 ? 1 : n); }
+void nn_set_threads(int n) {
+    openblas_set_num_threads(n < 1 ? 1 : n);
+    par_set_threads(n);
+}
 int nn_get_threads(void) { return openblas_get_num_threads(); }
 const char *nn_blas_corename(void) { return openblas_get_corename(); }

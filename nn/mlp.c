@@ -36,12 +36,16 @@ void mlp_init_glorot(const Mlp *m, ParamSet *ps, Rng *rng) {
 }
 
 Node *mlp_forward(Tape *t, const Mlp *m, ParamSet *ps, Node *x, int k) {
+    Node *h = mlp_forward_hidden(t, m, ps, x, k, m->n_layers - 1);
+    int l = m->n_layers - 1;
+    return nn_dense_t(t, h, nn_param(t, ps, m->W[l]), nn_param(t, ps, m->b[l]), k, ACT_NONE);
+}
+
+Node *mlp_forward_hidden(Tape *t, const Mlp *m, ParamSet *ps, Node *x, int k, int n) {
     NN_CHECK(x->val.cols == m->widths[0], "mlp: input has %d columns, the network takes %d", x->val.cols,
              m->widths[0]);
+    NN_CHECK(n >= 0 && n < m->n_layers, "mlp: %d hidden layers asked of %d layers", n, m->n_layers);
     Node *h = x;
-    for (int l = 0; l < m->n_layers; l++) {
-        ActId act = l == m->n_layers - 1 ? ACT_NONE : m->act;
-        h = nn_dense_t(t, h, nn_param(t, ps, m->W[l]), nn_param(t, ps, m->b[l]), k, act);
-    }
+    for (int l = 0; l < n; l++) h = nn_dense_t(t, h, nn_param(t, ps, m->W[l]), nn_param(t, ps, m->b[l]), k, m->act);
     return h;
 }

@@ -25,6 +25,10 @@ void mlp_declare(Mlp *m, ParamSet *ps, const char *prefix, const int *widths, in
 void mlp_init_glorot(const Mlp *m, ParamSet *ps, Rng *rng);
 /* x (k*B, widths[0]) -> (k*B, widths[n_layers]). */
 Node *mlp_forward(Tape *t, const Mlp *m, ParamSet *ps, Node *x, int k);
+/* The first n layers only, every one with the hidden activation: x -> (k*B, widths[n]); x itself
+ * for n = 0. With n = n_layers - 1 it gives the input of the last (linear) layer, for an op that
+ * fuses that layer with what follows (nn_dense_sq_err). */
+Node *mlp_forward_hidden(Tape *t, const Mlp *m, ParamSet *ps, Node *x, int k, int n);
 
 /* Fill a tensor with U(-r, r). */
 void init_uniform(Mat w, float r, Rng *rng);

@@ -8,12 +8,13 @@
 #include <string.h>
 
 #include "nn/core.h"
+#include "nn/par.h"
 
 const char *const op_names[OP_COUNT] = {
     [OP_LEAF] = "leaf",       [OP_MATMUL] = "matmul", [OP_BIAS_ADD] = "bias_add", [OP_ADD] = "add",
     [OP_SUB] = "sub",         [OP_MUL] = "mul",       [OP_SCALE] = "scale",       [OP_MEAN_SQ] = "mean_sq",
     [OP_SUM_ABS] = "sum_abs", [OP_ACT] = "act",       [OP_DENSE_T] = "dense_t",   [OP_ROWS] = "rows",
-    [OP_VSTACK] = "vstack",   [OP_HSTACK] = "hstack", [OP_CUSTOM] = "custom",
+    [OP_VSTACK] = "vstack",   [OP_HSTACK] = "hstack", [OP_CUSTOM] = "custom",   [OP_DENSE_SQ_ERR] = "dense_sq_err",
 };
 _Static_assert(sizeof op_names / sizeof op_names[0] == OP_COUNT, "one name per op");
 
@@ -322,6 +323,120 @@ static void hstack_backward(Node *c) {
 
 /* ---- the fused dense layer with tangents ------------------------------------------------------- */
 
+/* Rows of a block partition for reductions: column sums and loss sums are first taken over fixed
+ * blocks of SUM_ROWS rows, then the block results are combined in block order, so the result does
+ * not depend on how par_for split the rows (nor on the thread count). */
+enum { SUM_ROWS = 64 };
+/* par_for grains: rows of a (rows, n) pass so that one part holds about 16k elements. */
+static long row_grain(int n) { return n >= 16384 ? 1 : 16384 / (n > 0 ? n : 1); }
+
+/* db (n) += column sums of M (rows, n), via per-block partial sums in part (blocks, n). */
+typedef struct {
+    const float *M;
+    float *part;
+    int rows, n;
+} ColSum;
+
+static void colsum_blocks(void *vc, long lo, long hi) {
+    ColSum *c = vc;
+    for (long blk = lo; blk < hi; blk++) {
+        float *restrict p = c->part + blk * c->n;
+        long r1 = (blk + 1) * SUM_ROWS < c->rows ? (blk + 1) * SUM_ROWS : c->rows;
+        memset(p, 0, (size_t)c->n * sizeof(float));
+        for (long r = blk * SUM_ROWS; r < r1; r++) {
+            const float *restrict m = c->M + r * c->n;
+            for (int j = 0; j < c->n; j++) p[j] += m[j];
+        }
+    }
+}
+
+static void colsum_add(Tape *t, float *db, const float *M, int rows, int n) {
+    long blocks = (rows + SUM_ROWS - 1) / SUM_ROWS;
+    ColSum c = {M, arena_floats(&t->arena, blocks * n), rows, n};
+    par_for(blocks, (row_grain(n) + SUM_ROWS - 1) / SUM_ROWS, colsum_blocks, &c);
+    for (long blk = 0; blk < blocks; blk++)
+        for (int j = 0; j < n; j++) db[j] += c.part[blk * n + j];
+}
+
+typedef struct {
+    float *A, *o;           /* (k*B, n_out) the product (primal rows with bias; in backward, dA), the output */
+    const float *g, *b;     /* backward: the output's gradient; forward: the bias */
+    long nb;                /* B * n_out */
+    int n_out, k;
+    ActId act;
+} DenseRows;
+
+/* forward over primal rows [lo, hi): a = A + b; out = s(a), s'(a) u, s''(a) u^2 + s'(a) v */
+static void dense_fwd_rows(void *vc, long lo, long hi) {
+    DenseRows *c = vc;
+    ActFn fn = act_table[c->act].fn;
+    float *restrict A = c->A, *restrict o = c->o;
+    long nb = c->nb;
+    int k = c->k, n = c->n_out;
+    float d[4];
+    for (long r = lo; r < hi; r++)
+        for (int j = 0; j < n; j++) {
+            long i = r * n + j;
+            float a = A[i] + c->b[j];
+            A[i] = a;
+            fn(a, d);
+            o[i] = d[0];
+            if (k >= 2) o[nb + i] = d[1] * A[nb + i];
+            if (k >= 3) o[2 * nb + i] = d[2] * A[nb + i] * A[nb + i] + d[1] * A[2 * nb + i];
+        }
+}
+
+/* the same for the sigmoid, written out so that the loops vectorise (same operations, same bits);
+ * one function per k, with restrict arguments (the streams never overlap) */
+static void sigmoid_fwd1(int n, float *restrict a, const float *restrict b, float *restrict o0) {
+    for (int j = 0; j < n; j++) {
+        float x = a[j] + b[j];
+        a[j] = x;
+        o0[j] = act_sigmoid_value(x);
+    }
+}
+
+static void sigmoid_fwd2(int n, float *restrict a, const float *restrict b, const float *restrict u,
+                         float *restrict o0, float *restrict o1) {
+    for (int j = 0; j < n; j++) {
+        float x = a[j] + b[j];
+        a[j] = x;
+        float s = act_sigmoid_value(x), s1 = s * (1 - s);
+        o0[j] = s;
+        o1[j] = s1 * u[j];
+    }
+}
+
+static void sigmoid_fwd3(int n, float *restrict a, const float *restrict b, const float *restrict u,
+                         const float *restrict v, float *restrict o0, float *restrict o1, float *restrict o2) {
+    for (int j = 0; j < n; j++) {
+        float x = a[j] + b[j];
+        a[j] = x;
+        float s = act_sigmoid_value(x), s1 = s * (1 - s), s2 = s1 * (1 - 2 * s);
+        o0[j] = s;
+        o1[j] = s1 * u[j];
+        o2[j] = s2 * u[j] * u[j] + s1 * v[j];
+    }
+}
+
+static void sigmoid_fwd_rows(void *vc, long lo, long hi) {
+    DenseRows *c = vc;
+    long nb = c->nb;
+    int n = c->n_out;
+    for (long r = lo; r < hi; r++) {
+        float *a = c->A + r * n, *o = c->o + r * n;
+        if (c->k == 1) sigmoid_fwd1(n, a, c->b, o);
+        else if (c->k == 2) sigmoid_fwd2(n, a, c->b, a + nb, o, o + nb);
+        else sigmoid_fwd3(n, a, c->b, a + nb, a + 2 * nb, o, o + nb, o + 2 * nb);
+    }
+}
+
+static void bias_rows(void *vc, long lo, long hi) {
+    DenseRows *c = vc;
+    for (long r = lo; r < hi; r++)
+        for (int j = 0; j < c->n_out; j++) c->A[r * c->n_out + j] += c->b[j];
+}
+
 Node *nn_dense_t(Tape *t, Node *h, Node *W, Node *b, int k, ActId act) {
     int rows = h->val.rows, n_out = W->val.cols;
     NN_CHECK(k >= 1 && k <= 3 && rows % k == 0, "dense_t: %d rows do not split into k = %d blocks", rows, k);
@@ -335,23 +450,86 @@ Node *nn_dense_t(Tape *t, Node *h, Node *W, Node *b, int k, ActId act) {
     c->k = k;
     c->act = act;
     int B = rows / k;
-    long nb = (long)B * n_out;
     /* A = h W, one product over all k*B stacked rows; the linear layer writes straight to out */
     float *A = act == ACT_NONE ? c->val.d : arena_floats(&t->arena, (long)rows * n_out); /* (k*B, n_out) */
     c->saved = A;
     mat_gemm(0, 0, 1.0f, h->val, W->val, 0.0f, mat_view(A, rows, n_out));
-    for (int i = 0; i < B; i++) /* bias on the primal rows only */
-        for (int j = 0; j < n_out; j++) A[(long)i * n_out + j] += b->val.d[j];
-    if (act == ACT_NONE) return c;
-    ActFn fn = act_table[act].fn;
-    float *o = c->val.d, d[4];
-    for (long i = 0; i < nb; i++) {
-        fn(A[i], d);
-        o[i] = d[0];
-        if (k >= 2) o[nb + i] = d[1] * A[nb + i];
-        if (k >= 3) o[2 * nb + i] = d[2] * A[nb + i] * A[nb + i] + d[1] * A[2 * nb + i];
-    }
+    DenseRows dr = {A, c->val.d, NULL, b->val.d, (long)B * n_out, n_out, k, act};
+    /* bias on the primal rows only; then the activation and the tangents, one pass over the rows */
+    par_for(B, row_grain(n_out), act == ACT_NONE ? bias_rows : act == ACT_SIGMOID ? sigmoid_fwd_rows : dense_fwd_rows,
+            &dr);
     return c;
+}
+
+/* backward over primal rows [lo, hi) (see the formulas above dense_t_backward), in place: element
+ * i of each block of A is read before the same element of dA (the same memory) is written */
+static void dense_bwd_rows(void *vc, long lo, long hi) {
+    DenseRows *c = vc;
+    const ActInfo *ai = &act_table[c->act];
+    const float *o = c->o, *g = c->g;
+    float *A = c->A;
+    long nb = c->nb;
+    int k = c->k, n = c->n_out;
+    float d[4];
+    for (long i = lo * n; i < hi * n; i++) {
+        if (ai->from_out) ai->from_out(o[i], d);
+        else ai->fn(A[i], d);
+        float da = g[i] * d[1];
+        if (k >= 2) {
+            float u = A[nb + i], g1 = g[nb + i];
+            da += g1 * d[2] * u;
+            float du = g1 * d[1];
+            if (k >= 3) {
+                float v = A[2 * nb + i], g2 = g[2 * nb + i];
+                da += g2 * (d[3] * u * u + d[2] * v);
+                du += 2 * g2 * d[2] * u;
+                A[2 * nb + i] = g2 * d[1];
+            }
+            A[nb + i] = du;
+        }
+        A[i] = da;
+    }
+}
+
+/* the same for the sigmoid, its derivatives from the output, written out so that the loops
+ * vectorise (same operations in the same order, same bits); a, u, v are read and then overwritten
+ * by da, du, dv */
+static void sigmoid_bwd1(long n, const float *restrict o, const float *restrict g, float *restrict a) {
+    for (long i = 0; i < n; i++) {
+        float s = o[i];
+        a[i] = g[i] * (s * (1 - s));
+    }
+}
+
+static void sigmoid_bwd2(long n, const float *restrict o, const float *restrict g, const float *restrict g1,
+                         float *restrict a, float *restrict u) {
+    for (long i = 0; i < n; i++) {
+        float s = o[i], s1 = s * (1 - s), s2 = s1 * (1 - 2 * s), ui = u[i];
+        a[i] = g[i] * s1 + g1[i] * s2 * ui;
+        u[i] = g1[i] * s1;
+    }
+}
+
+static void sigmoid_bwd3(long n, const float *restrict o, const float *restrict g, const float *restrict g1,
+                         const float *restrict g2, float *restrict a, float *restrict u, float *restrict v) {
+    for (long i = 0; i < n; i++) {
+        float s = o[i], s1 = s * (1 - s), s2 = s1 * (1 - 2 * s), s3 = s1 * (1 - 6 * s + 6 * s * s);
+        float ui = u[i], vi = v[i];
+        float da = g[i] * s1 + g1[i] * s2 * ui;
+        a[i] = da + g2[i] * (s3 * ui * ui + s2 * vi);
+        u[i] = g1[i] * s1 + 2 * g2[i] * s2 * ui;
+        v[i] = g2[i] * s1;
+    }
+}
+
+static void sigmoid_bwd_rows(void *vc, long lo, long hi) {
+    DenseRows *c = vc;
+    long nb = c->nb, i0 = lo * c->n_out, n = (hi - lo) * c->n_out;
+    const float *o = c->o + i0, *g = c->g + i0;
+    float *A = c->A + i0;
+    if (c->k == 1) sigmoid_bwd1(n, o, g, A);
+    else if (c->k == 2) sigmoid_bwd2(n, o, g, g + nb, A, A + nb);
+    else sigmoid_bwd3(n, o, g, g + nb, g + 2 * nb, A, A + nb, A + 2 * nb);
 }
 
 /* forward was:  a = (hW)[0:B] + b,  u = (hW)[B:2B],  v = (hW)[2B:3B]
@@ -360,43 +538,185 @@ Node *nn_dense_t(Tape *t, Node *h, Node *W, Node *b, int k, ActId act) {
  *   dA[0:B]   = da = g0 s'(a) + g1 s''(a) u + g2 (s'''(a) u^2 + s''(a) v)
  *   dA[B:2B]  = du = g1 s'(a) + 2 g2 s''(a) u
  *   dA[2B:3B] = dv = g2 s'(a)
- *   dW += h^T dA,  db += column sums of da,  dh += dA W^T. */
+ *   dW += h^T dA,  db += column sums of da,  dh += dA W^T.
+ * The derivatives of s come from the output o0 = s(a) when the activation allows (no exp). dA is
+ * written over the saved A (dead after this), so backward runs once per recording. */
 static void dense_t_backward(Tape *t, Node *c) {
     Node *h = c->in[0], *W = c->in[1], *b = c->in[2];
     int rows = c->val.rows, n_out = c->val.cols, k = c->k, B = rows / k;
-    long nb = (long)B * n_out;
     float *dA; /* (k*B, n_out) */
     if (c->act == ACT_NONE) {
         dA = c->grad;
     } else {
-        dA = arena_floats(&t->arena, (long)rows * n_out);
-        const float *A = c->saved, *g = c->grad;
-        ActFn fn = act_table[c->act].fn;
-        float d[4];
-        for (long i = 0; i < nb; i++) {
-            fn(A[i], d);
-            float da = g[i] * d[1];
-            if (k >= 2) {
-                float u = A[nb + i], g1 = g[nb + i];
-                da += g1 * d[2] * u;
-                float du = g1 * d[1];
-                if (k >= 3) {
-                    float v = A[2 * nb + i], g2 = g[2 * nb + i];
-                    da += g2 * (d[3] * u * u + d[2] * v);
-                    du += 2 * g2 * d[2] * u;
-                    dA[2 * nb + i] = g2 * d[1];
-                }
-                dA[nb + i] = du;
-            }
-            dA[i] = da;
-        }
+        dA = c->saved;
+        DenseRows dr = {c->saved, c->val.d, c->grad, NULL, (long)B * n_out, n_out, k, c->act};
+        par_for(B, row_grain(n_out), c->act == ACT_SIGMOID ? sigmoid_bwd_rows : dense_bwd_rows, &dr);
     }
     Mat dAm = mat_view(dA, rows, n_out);
-    if (b->grad)
-        for (int i = 0; i < B; i++)
-            for (int j = 0; j < n_out; j++) b->grad[j] += dA[(long)i * n_out + j];
+    if (b->grad) colsum_add(t, b->grad, dA, B, n_out);
     if (W->grad) mat_gemm(1, 0, 1.0f, h->val, dAm, 1.0f, grad_mat(W));
     if (h->grad) mat_gemm(0, 1, 1.0f, dAm, W->val, 1.0f, grad_mat(h));
+}
+
+/* ---- a linear output layer fused with squared errors ------------------------------------------ */
+
+typedef struct {
+    int n_blocks, blocks[3];
+    float w[3];
+    double mean[3];         /* unweighted mean of each chosen block */
+    int B, n_in, n_out;
+    int contiguous;         /* the chosen blocks are consecutive: one product each way */
+    const float *y;         /* (k*B, n_out) targets */
+    const float *b;         /* (n_out) bias */
+    float *h;               /* (k*B, n_in) the input */
+    float *A;               /* (n_blocks B, n_out) the product; in backward its gradient, in place */
+    double *rowsum;         /* (n_blocks B) forward: sum of squared errors of each row */
+    float *colpart;         /* backward: (row blocks of block 0, n_out) partial column sums */
+    float coef[3];          /* backward: 2 w_i g / (B n_out) */
+} SqErr;
+
+/* y row of row r of A */
+static const float *sq_err_target(const SqErr *s, long r) {
+    return s->y + ((long)s->blocks[r / s->B] * s->B + r % s->B) * s->n_out;
+}
+
+/* forward over rows [lo, hi) of A: bias on block 0, then each row's sum of squared errors, in
+ * float partial sums of 8 lanes (vectorisable; each row's result is fixed by its data alone) */
+static void sq_err_fwd_rows(void *vc, long lo, long hi) {
+    SqErr *s = vc;
+    int n = s->n_out;
+    for (long r = lo; r < hi; r++) {
+        float *restrict a = s->A + r * n;
+        const float *restrict y = sq_err_target(s, r);
+        if (s->blocks[r / s->B] == 0)
+            for (int j = 0; j < n; j++) a[j] += s->b[j];
+        float acc[8] = {0, 0, 0, 0, 0, 0, 0, 0};
+        int j = 0;
+        for (; j + 8 <= n; j += 8)
+            for (int q = 0; q < 8; q++) {
+                float d = a[j + q] - y[j + q];
+                acc[q] += d * d;
+            }
+        double sum = 0;
+        for (; j < n; j++) sum += (double)(a[j] - y[j]) * (a[j] - y[j]);
+        for (int q = 0; q < 8; q++) sum += acc[q];
+        s->rowsum[r] = sum;
+    }
+}
+
+/* backward over row blocks [lo, hi) (SUM_ROWS rows each): A <- coef (A - y) in place, and the
+ * column sums of block 0's rows into colpart */
+static void sq_err_bwd_blocks(void *vc, long lo, long hi) {
+    SqErr *s = vc;
+    int n = s->n_out;
+    long rows = (long)s->n_blocks * s->B;
+    for (long blk = lo; blk < hi; blk++) {
+        long r0 = blk * SUM_ROWS, r1 = r0 + SUM_ROWS < rows ? r0 + SUM_ROWS : rows;
+        float *restrict p = s->colpart && r0 < s->B ? s->colpart + blk * n : NULL;
+        if (p) memset(p, 0, (size_t)n * sizeof(float));
+        for (long r = r0; r < r1; r++) {
+            float *restrict a = s->A + r * n;
+            const float *restrict y = sq_err_target(s, r);
+            float coef = s->coef[r / s->B];
+            for (int j = 0; j < n; j++) a[j] = coef * (a[j] - y[j]);
+            if (p && r < s->B)
+                for (int j = 0; j < n; j++) p[j] += a[j];
+        }
+    }
+}
+
+Node *nn_dense_sq_err(Tape *t, Node *h, Node *W, Node *b, Node *y, int k, int n_blocks, const int *blocks,
+                      const float *w) {
+    int rows = h->val.rows, n_in = h->val.cols, n_out = W->val.cols;
+    NN_CHECK(k >= 1 && k <= 3 && rows % k == 0, "dense_sq_err: %d rows do not split into k = %d blocks", rows, k);
+    NN_CHECK(n_in == W->val.rows, "dense_sq_err: h (%d,%d) x W (%d,%d)", rows, n_in, W->val.rows, n_out);
+    NN_CHECK(b->val.rows == 1 && b->val.cols == n_out, "dense_sq_err: bias (%d,%d) for %d outputs", b->val.rows,
+             b->val.cols, n_out);
+    NN_CHECK(y->val.rows == rows && y->val.cols == n_out && !y->grad,
+             "dense_sq_err: targets (%d,%d)%s for an output of (%d,%d)", y->val.rows, y->val.cols,
+             y->grad ? " with a gradient" : "", rows, n_out);
+    NN_CHECK(n_blocks >= 1 && n_blocks <= k, "dense_sq_err: %d blocks of %d", n_blocks, k);
+    for (int i = 0; i < n_blocks; i++)
+        NN_CHECK(blocks[i] >= 0 && blocks[i] < k && (i == 0 || blocks[i] > blocks[i - 1]),
+                 "dense_sq_err: blocks must increase inside [0, %d)", k);
+    Node *in[3] = {h, W, b};
+    Node *c = node_new(t, OP_DENSE_SQ_ERR, in, 3, 1, 1, 1);
+    c->k = k;
+    SqErr *s = arena_alloc(&t->arena, sizeof *s);
+    memset(s, 0, sizeof *s);
+    c->ctx = s;
+    int B = rows / k;
+    long nr = (long)n_blocks * B;
+    s->n_blocks = n_blocks;
+    s->B = B, s->n_in = n_in, s->n_out = n_out;
+    s->y = y->val.d;
+    s->b = b->val.d;
+    s->contiguous = 1;
+    for (int i = 0; i < n_blocks; i++) {
+        s->blocks[i] = blocks[i];
+        s->w[i] = w[i];
+        if (blocks[i] != blocks[0] + i) s->contiguous = 0;
+    }
+    s->h = h->val.d;
+    s->A = arena_floats(&t->arena, nr * n_out);
+    if (s->contiguous) /* A = h_chosen W, one product */
+        mat_gemm(0, 0, 1.0f, mat_view(h->val.d + (long)blocks[0] * B * n_in, (int)nr, n_in), W->val, 0.0f,
+                 mat_view(s->A, (int)nr, n_out));
+    else /* one product per block (no copy of h's rows) */
+        for (int i = 0; i < n_blocks; i++)
+            mat_gemm(0, 0, 1.0f, mat_view(h->val.d + (long)blocks[i] * B * n_in, B, n_in), W->val, 0.0f,
+                     mat_view(s->A + (long)i * B * n_out, B, n_out));
+    s->rowsum = arena_alloc(&t->arena, (size_t)nr * sizeof(double));
+    par_for(nr, row_grain(n_out), sq_err_fwd_rows, s);
+    double total = 0;
+    for (int i = 0; i < n_blocks; i++) {
+        double sum = 0;
+        for (long r = (long)i * B; r < (long)(i + 1) * B; r++) sum += s->rowsum[r];
+        s->mean[i] = B > 0 && n_out > 0 ? sum / ((double)B * n_out) : 0.0;
+        total += (double)s->w[i] * s->mean[i];
+    }
+    c->val.d[0] = (float)total;
+    return c;
+}
+
+double nn_dense_sq_err_mean(const Node *c, int i) {
+    NN_CHECK(c->op == OP_DENSE_SQ_ERR, "dense_sq_err_mean: node is %s", op_names[c->op]);
+    const SqErr *s = c->ctx;
+    NN_CHECK(i >= 0 && i < s->n_blocks, "dense_sq_err_mean: block %d of %d", i, s->n_blocks);
+    return s->mean[i];
+}
+
+/* forward was:  A_i = h_i W (+ b for block 0),  c = sum_i w_i mean((A_i - y_i)^2)
+ * so:           dA_i = 2 w_i dc (A_i - y_i) / (B n_out)   (written over A, which is not needed after)
+ *               db += column sums of dA_0 (when block 0 is chosen),  dW += sum_i h_i^T dA_i,  dh_i += dA_i W^T */
+static void dense_sq_err_backward(Tape *t, Node *c) {
+    Node *h = c->in[0], *W = c->in[1], *b = c->in[2];
+    SqErr *s = c->ctx;
+    int B = s->B, n_in = s->n_in, n_out = s->n_out;
+    long nr = (long)s->n_blocks * B;
+    for (int i = 0; i < s->n_blocks; i++)
+        s->coef[i] = (float)(2.0 * s->w[i] * c->grad[0] / ((double)B * n_out));
+    long blocks = (nr + SUM_ROWS - 1) / SUM_ROWS;
+    int has_bias = b->grad && s->blocks[0] == 0;
+    s->colpart = has_bias ? arena_floats(&t->arena, blocks * n_out) : NULL;
+    par_for(blocks, (row_grain(n_out) + SUM_ROWS - 1) / SUM_ROWS, sq_err_bwd_blocks, s);
+    if (has_bias)
+        for (long blk = 0; blk * SUM_ROWS < B; blk++)
+            for (int j = 0; j < n_out; j++) b->grad[j] += s->colpart[blk * n_out + j];
+    Mat dA = mat_view(s->A, (int)nr, n_out);
+    if (s->contiguous) {
+        float *hc = s->h + (long)s->blocks[0] * B * n_in;
+        if (W->grad) mat_gemm(1, 0, 1.0f, mat_view(hc, (int)nr, n_in), dA, 1.0f, grad_mat(W));
+        if (h->grad)
+            mat_gemm(0, 1, 1.0f, dA, W->val, 1.0f, mat_view(h->grad + (long)s->blocks[0] * B * n_in, (int)nr, n_in));
+        return;
+    }
+    for (int i = 0; i < s->n_blocks; i++) {
+        Mat dAi = mat_view(s->A + (long)i * B * n_out, B, n_out);
+        if (W->grad)
+            mat_gemm(1, 0, 1.0f, mat_view(s->h + (long)s->blocks[i] * B * n_in, B, n_in), dAi, 1.0f, grad_mat(W));
+        if (h->grad) mat_gemm(0, 1, 1.0f, dAi, W->val, 1.0f, mat_view(h->grad + (long)s->blocks[i] * B * n_in, B, n_in));
+    }
 }
 
 /* ---- the backward sweep ------------------------------------------------------------------------ */
@@ -419,6 +739,7 @@ void tape_backward(Tape *t, Node *loss) {
         case OP_SUM_ABS: sum_abs_backward(n); break;
         case OP_ACT: act_backward(n); break;
         case OP_DENSE_T: dense_t_backward(t, n); break;
+        case OP_DENSE_SQ_ERR: dense_sq_err_backward(t, n); break;
         case OP_VSTACK: vstack_backward(n); break;
         case OP_HSTACK: hstack_backward(n); break;
         case OP_CUSTOM: n->custom->backward(t, n); break;

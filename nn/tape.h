@@ -35,6 +35,7 @@ typedef enum {
     OP_VSTACK,      /* c = [a; b]                                          */
     OP_HSTACK,      /* c = [a, b]                                          */
     OP_CUSTOM,      /* an op defined outside nn/ (sparse/ library)          */
+    OP_DENSE_SQ_ERR,/* c (1,1) = sum_i w_i mean((h_i W (+b) - y_i)^2), see nn_dense_sq_err */
     OP_COUNT
 } OpId;
 
@@ -112,5 +113,18 @@ Node *nn_hstack(Tape *t, Node *a, Node *b);
  *   out[2B:3B] = s''(a) * u * u + s'(a) * v
  * act = ACT_NONE gives the linear layer (out = A, bias on the primal rows only). */
 Node *nn_dense_t(Tape *t, Node *h, Node *W, Node *b, int k, ActId act);
+
+/* A linear output layer fused with weighted squared errors against targets, over chosen blocks of
+ * the k stacked ones (the decoder's last layer and the reconstruction loss in one op; its output
+ * is never a node, and blocks that are not chosen are not computed):
+ *   h (k*B, n_in), W (n_in, n_out), b (1, n_out), y (k*B, n_out) targets (no gradient)
+ *   for the chosen blocks j = blocks[0 .. n_blocks) (increasing): A_j = h_j W, plus b for block 0
+ *   c (1,1) = sum_i w[i] mean((A_{blocks[i]} - y_{blocks[i]})^2)   (mean over the B n_out elements)
+ * Reductions are taken over fixed row blocks, so c does not depend on the thread count. The
+ * backward turns the saved product into its gradient in place: run it once per recording. */
+Node *nn_dense_sq_err(Tape *t, Node *h, Node *W, Node *b, Node *y, int k, int n_blocks, const int *blocks,
+                      const float *w);
+/* The unweighted mean of the i-th chosen block (i < n_blocks) of a dense_sq_err node. */
+double nn_dense_sq_err_mean(const Node *c, int i);
 
 #endif

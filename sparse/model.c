@@ -93,21 +93,23 @@ Node *model_loss(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const L
     /* warm-up: the decoder gets the encoder's own z' (z''), so the autoencoder learns alone */
     Node *zd = m->warmup ? zt : pred;
     Node *dec_in = m->order == 1 ? nn_vstack(t, z0, zd) : nn_vstack(t, nn_rows(t, z, 0, 2 * B), zd);
-    Node *xh = mlp_forward(t, &m->dec, ps, dec_in, k);          /* (kB, n_in) */
-    int last = (k - 1) * B;                                     /* rows of x' or x'' */
-    Node *rec = nn_mean_sq(t, nn_sub(t, nn_rows(t, x, 0, B), nn_rows(t, xh, 0, B)));
-    Node *ddx = nn_mean_sq(t, nn_sub(t, nn_rows(t, x, last, B), nn_rows(t, xh, last, B)));
+    /* The decoder's last (linear) layer and the two reconstruction terms are one op: it computes
+     * only the blocks the loss reads, x_hat and x_hat' (first order) or x_hat and x_hat'' (second
+     * order; x_hat' is not needed), and never stores x_hat as a node. */
+    int L = m->dec.n_layers - 1;
+    Node *hd = mlp_forward_hidden(t, &m->dec, ps, dec_in, k, L);   /* (kB, last hidden width) */
+    int blocks[2] = {0, k - 1};
+    float wx[2] = {w->rec, w->dx};
+    Node *rx = nn_dense_sq_err(t, hd, nn_param(t, ps, m->dec.W[L]), nn_param(t, ps, m->dec.b[L]), x, k, 2, blocks,
+                               wx); /* w_rec |x - x_hat|^2 + w_dx |x' - x_hat'|^2 (x'' in second order) */
     Node *ddz = nn_mean_sq(t, nn_sub(t, zt, pred));
     if (m->dz_relative) ddz = ratio(t, ddz, nn_mean_sq(t, zt)); /* |z' - z'_pred|^2 / |z'|^2 */
     Node *l1 = nn_sum_abs(t, xi);
-    Node *loss = weighted(t, NULL, rec, w->rec);
-    loss = weighted(t, loss, ddx, w->dx);
-    loss = weighted(t, loss, ddz, w->dz);
+    Node *loss = weighted(t, rx, ddz, w->dz);
     loss = weighted(t, loss, l1, w->l1);
-    if (!loss) loss = nn_scale(t, rec, 0.0f);
     if (parts) {
-        parts->rec = rec->val.d[0];
-        parts->dx = ddx->val.d[0];
+        parts->rec = nn_dense_sq_err_mean(rx, 0);
+        parts->dx = nn_dense_sq_err_mean(rx, 1);
         parts->dz = ddz->val.d[0];
         parts->l1 = l1->val.d[0];
         parts->total = loss->val.d[0];

@@ -2,15 +2,18 @@
  *
  * The step: a second-order (k = 3: x, x', x'') 2601-128-64-32-1 encoder and the mirrored
  * 1-32-64-128-2601 decoder, sigmoid hidden layers, linear last layers, batch 1024 (3072 stacked
- * rows); loss mean|x - x_hat|^2 + 0.25 mean|x'' - x_hat''|^2 + 0.1 mean|z'' - c|^2; forward with
- * tangents, backward, one Adam step. Reported: median, min and max over repeated steps after a
- * warm-up, at 1 and 2 threads, and the same for the matrix products alone (cblas_sgemm on exactly
- * the step's shapes and transposes), as the ceiling the step can reach.
+ * rows); loss mean|x - x_hat|^2 + 0.25 mean|x'' - x_hat''|^2 + 0.1 mean|z'' - c|^2, the decoder's
+ * last layer fused with the two reconstruction terms as in sparse/model.c (nn_dense_sq_err: only
+ * the x_hat and x_hat'' blocks are computed); forward with tangents, backward, one Adam step.
+ * Reported: median, min and max over repeated steps after a warm-up, at 1 and 2 threads, and the
+ * same for the matrix products alone (cblas_sgemm on exactly the step's shapes and transposes), as
+ * the ceiling the step can reach.
  *
  * Analytic count (multiply-adds count 2): a layer (n_in -> n_out) over R rows costs
  * 2 R n_in n_out forward (A = h W), and 2x that backward (dW = h^T dA and dh = dA W^T), dh skipped
- * for the first encoder layer (its input x wants no gradient). The elementwise work (activations,
- * tangents, loss, Adam) is O(R n) and not counted. */
+ * for the first encoder layer (its input x wants no gradient); the decoder's last layer runs over
+ * R = 2B rows (two products of B rows each way). The elementwise work (activations, tangents,
+ * loss, Adam) is O(R n) and not counted. */
 #include <time.h>
 
 #include "nn/adam.h"
@@ -53,11 +56,13 @@ static Node *build(Model *m) {
     Tape *t = &m->t;
     Node *x = nn_input(t, m->X, R, NX);
     Node *z = mlp_forward(t, &m->enc, &m->ps, x, K);
-    Node *xh = mlp_forward(t, &m->dec, &m->ps, z, K);
-    Node *l0 = nn_mean_sq(t, nn_sub(t, nn_rows(t, x, 0, B), nn_rows(t, xh, 0, B)));
-    Node *l2 = nn_mean_sq(t, nn_sub(t, nn_rows(t, x, 2 * B, B), nn_rows(t, xh, 2 * B, B)));
+    Node *hd = mlp_forward_hidden(t, &m->dec, &m->ps, z, K, NL - 1);
+    static const int blocks[2] = {0, 2};
+    static const float w[2] = {1.0f, 0.25f};
+    Node *lx = nn_dense_sq_err(t, hd, nn_param(t, &m->ps, m->dec.W[NL - 1]), nn_param(t, &m->ps, m->dec.b[NL - 1]), x, K,
+                               2, blocks, w);
     Node *lz = nn_mean_sq(t, nn_sub(t, nn_rows(t, z, 2 * B, B), nn_input(t, m->c, B, 1)));
-    return nn_add(t, nn_add(t, l0, nn_scale(t, l2, 0.25f)), nn_scale(t, lz, 0.1f));
+    return nn_add(t, lx, nn_scale(t, lz, 0.1f));
 }
 
 /* One step; phase times (forward, backward, Adam) into ph[0..2]. */
@@ -99,16 +104,25 @@ static void gemms_free(Gemms *g) {
     for (int l = 0; l < 2 * NL; l++) free(g->h[l]), free(g->dh[l]), free(g->W[l]), free(g->dW[l]), free(g->dA[l]);
 }
 
+/* the decoder's last layer (l = 2 NL - 1) runs over blocks 0 and 2 only: one product of B rows per
+ * block each way, as nn_dense_sq_err does */
 static void gemms_run(Gemms *g) {
     for (int l = 0; l < 2 * NL; l++) { /* forward, in layer order */
         int ni = l < NL ? WE[l] : WD[l - NL], no = l < NL ? WE[l + 1] : WD[l - NL + 1];
-        mat_gemm(0, 0, 1.0f, mat_view(g->h[l], R, ni), mat_view(g->W[l], ni, no), 0.0f, mat_view(g->dA[l], R, no));
+        for (int blk = 0; blk < (l == 2 * NL - 1 ? 2 : 1); blk++) {
+            int rows = l == 2 * NL - 1 ? B : R;
+            float *h = g->h[l] + (long)blk * B * ni, *A = g->dA[l] + (long)blk * B * no;
+            mat_gemm(0, 0, 1.0f, mat_view(h, rows, ni), mat_view(g->W[l], ni, no), 0.0f, mat_view(A, rows, no));
+        }
     }
     for (int l = 2 * NL - 1; l >= 0; l--) { /* backward, in reverse */
         int ni = l < NL ? WE[l] : WD[l - NL], no = l < NL ? WE[l + 1] : WD[l - NL + 1];
-        mat_gemm(1, 0, 1.0f, mat_view(g->h[l], R, ni), mat_view(g->dA[l], R, no), 1.0f, mat_view(g->dW[l], ni, no));
-        if (l > 0)
-            mat_gemm(0, 1, 1.0f, mat_view(g->dA[l], R, no), mat_view(g->W[l], ni, no), 1.0f, mat_view(g->dh[l], R, ni));
+        for (int blk = 0; blk < (l == 2 * NL - 1 ? 2 : 1); blk++) {
+            int rows = l == 2 * NL - 1 ? B : R;
+            float *h = g->h[l] + (long)blk * B * ni, *A = g->dA[l] + (long)blk * B * no, *dh = g->dh[l] + (long)blk * B * ni;
+            mat_gemm(1, 0, 1.0f, mat_view(h, rows, ni), mat_view(A, rows, no), 1.0f, mat_view(g->dW[l], ni, no));
+            if (l > 0) mat_gemm(0, 1, 1.0f, mat_view(A, rows, no), mat_view(g->W[l], ni, no), 1.0f, mat_view(dh, rows, ni));
+        }
     }
 }
 
@@ -116,7 +130,7 @@ int main(void) {
     double fwd = 0, bwd = 0;
     for (int l = 0; l < 2 * NL; l++) {
         int ni = l < NL ? WE[l] : WD[l - NL], no = l < NL ? WE[l + 1] : WD[l - NL + 1];
-        double f = 2.0 * R * ni * no;
+        double f = 2.0 * (l == 2 * NL - 1 ? 2 * B : R) * ni * no;
         fwd += f;
         bwd += l == 0 ? f : 2 * f;
     }
@@ -142,7 +156,8 @@ int main(void) {
     gemms_alloc(&g, &r);
 
     printf("one training step: second-order encoder 2601-128-64-32-1, decoder 1-32-64-128-2601, sigmoid hidden,\n"
-           "linear outputs, batch %d (%d stacked rows x, x', x''); forward with tangents, backward, Adam\n", B, R);
+           "linear outputs (the last fused with the loss: x_hat and x_hat'' only), batch %d (%d stacked rows x, x', x''); "
+           "forward with tangents, backward, Adam\n", B, R);
     printf("BLAS: OpenBLAS, core %s\n", nn_blas_corename());
     printf("analytic count: %.3f GFLOP per step (forward %.3f, backward %.3f; 2 R n_in n_out per product)\n",
            flops * 1e-9, fwd * 1e-9, bwd * 1e-9);

@@ -1,6 +1,7 @@
 /* tests/test_nn_ops.c: the matrix product, the arena, the random generator and every tape op. */
 #include "nn/core.h"
 #include "nn/mat.h"
+#include "nn/par.h"
 #include "nn/rng.h"
 #include "nn/tape.h"
 #include "tests/gradcheck.h"
@@ -194,6 +195,133 @@ static void test_activation_derivatives(void **state) {
     assert_close(d[0], 0.6931471805599453, 1e-7, 0);
     assert_int_equal(act_from_name("silu"), ACT_SILU);
     assert_int_equal(act_from_name("nonsense"), ACT_COUNT);
+    /* the derivatives from the output are the same bits as those from the input */
+    for (int a = 0; a < ACT_COUNT; a++) {
+        if (!act_table[a].from_out) continue;
+        for (float x = -9.0f; x <= 9.0f; x += 0.13f) {
+            float dx[4], dy[4];
+            act_table[a].fn(x, dx);
+            act_table[a].from_out(dx[0], dy);
+            for (int o = 0; o < 4; o++) assert_true(dx[o] == dy[o]);
+        }
+    }
+}
+
+/* ---- the linear output layer fused with squared errors ---------------------------------------- */
+
+typedef struct {
+    int k, n_blocks, blocks[3];
+    float w[3];
+    float *y;   /* (k B, n_out) */
+    int generic;    /* build the same loss from generic ops instead */
+} SqErrCase;
+
+static Node *build_sq_err(Tape *t, ParamSet *ps, void *ctx) {
+    SqErrCase *c = ctx;
+    Node *h = nn_param(t, ps, 0), *W = nn_param(t, ps, 1), *b = nn_param(t, ps, 2);
+    int B = h->val.rows / c->k, n_out = W->val.cols;
+    Node *y = nn_input(t, c->y, c->k * B, n_out);
+    if (!c->generic) return nn_dense_sq_err(t, h, W, b, y, c->k, c->n_blocks, c->blocks, c->w);
+    Node *out = nn_dense_t(t, h, W, b, c->k, ACT_NONE), *loss = NULL;
+    for (int i = 0; i < c->n_blocks; i++) {
+        int r0 = c->blocks[i] * B;
+        Node *term = nn_scale(t, nn_mean_sq(t, nn_sub(t, nn_rows(t, out, r0, B), nn_rows(t, y, r0, B))), c->w[i]);
+        loss = loss ? nn_add(t, loss, term) : term;
+    }
+    return loss;
+}
+
+static void sq_err_params(ParamSet *ps, int k, int B, int n_in, int n_out, uint64_t seed, float **y) {
+    params_init(ps);
+    params_add(ps, "h", k * B, n_in);
+    params_add(ps, "W", n_in, n_out);
+    params_add(ps, "b", 1, n_out);
+    params_alloc(ps);
+    Rng r;
+    rng_seed(&r, seed);
+    fill(params_val(ps, 0), &r, -1, 1);
+    fill(params_val(ps, 1), &r, -0.8f, 0.8f);
+    fill(params_val(ps, 2), &r, -0.5f, 0.5f);
+    *y = malloc(sizeof(float) * (size_t)k * B * n_out);
+    for (long i = 0; i < (long)k * B * n_out; i++) (*y)[i] = (float)(rng_uniform(&r) - 0.5);
+}
+
+/* Every choice of blocks (consecutive or not), by central differences and against the same loss
+ * from generic ops (dense_t, rows, sub, mean_sq, scale, add: same math, so values and gradients
+ * agree to float rounding). */
+static void test_grad_dense_sq_err(void **state) {
+    (void)state;
+    static const int choice[][4] = {/* k, n_blocks, blocks */
+                                    {1, 1, 0, 0}, {2, 2, 0, 1}, {2, 1, 1, 0}, {3, 2, 0, 2},
+                                    {3, 3, 0, 1}, {3, 2, 1, 2}, {3, 1, 2, 0}};
+    for (size_t ci = 0; ci < sizeof choice / sizeof choice[0]; ci++) {
+        int k = choice[ci][0], B = 3, n_in = 4, n_out = 5;
+        SqErrCase c = {k, choice[ci][1], {choice[ci][2], choice[ci][3], 2}, {1.0f, 0.4f, 0.7f}, NULL, 0};
+        ParamSet ps;
+        sq_err_params(&ps, k, B, n_in, n_out, 300 + ci, &c.y);
+        Tape t;
+        tape_init(&t, 32, 1 << 16);
+        gradcheck(&t, &ps, build_sq_err, &c, &OPTS);
+        /* against the generic ops */
+        float *g = malloc(ps.n * sizeof(float));
+        double v[2];
+        for (int gen = 0; gen < 2; gen++) {
+            c.generic = gen;
+            tape_reset(&t);
+            params_zero_grad(&ps);
+            Node *loss = build_sq_err(&t, &ps, &c);
+            v[gen] = loss->val.d[0];
+            tape_backward(&t, loss);
+            if (!gen) memcpy(g, ps.grad, ps.n * sizeof(float));
+        }
+        assert_close(v[0], v[1], 1e-6, 1e-6);
+        for (size_t i = 0; i < ps.n; i++) assert_close(g[i], ps.grad[i], 1e-6, 1e-5);
+        free(g);
+        free(c.y);
+        tape_free(&t);
+        params_free(&ps);
+    }
+}
+
+/* A step's passes give the same bits at 1 and 2 threads (elementwise passes are split over
+ * threads; reductions are taken over fixed row blocks): a sigmoid dense_t layer with tangents
+ * feeding dense_sq_err, forward and backward, on shapes large enough to be split. */
+static void test_ops_same_bits_any_thread_count(void **state) {
+    (void)state;
+    int k = 3, B = 300, n_in = 40, n_mid = 64, n_out = 700, blocks[2] = {0, 2};
+    float w[2] = {1.0f, 0.3f};
+    ParamSet ps;
+    params_init(&ps);
+    params_add(&ps, "h", k * B, n_in);
+    params_add(&ps, "W1", n_in, n_mid);
+    params_add(&ps, "b1", 1, n_mid);
+    params_add(&ps, "W2", n_mid, n_out);
+    params_add(&ps, "b2", 1, n_out);
+    params_alloc(&ps);
+    Rng r;
+    rng_seed(&r, 99);
+    for (int i = 0; i < 5; i++) fill(params_val(&ps, i), &r, -1, 1);
+    float *y = malloc(sizeof(float) * (size_t)k * B * n_out), *grad[2], loss[2];
+    for (long i = 0; i < (long)k * B * n_out; i++) y[i] = (float)(rng_uniform(&r) - 0.5);
+    for (int th = 1; th <= 2; th++) {
+        par_set_threads(th);
+        Tape t;
+        tape_init(&t, 32, 1 << 20);
+        params_zero_grad(&ps);
+        Node *a = nn_dense_t(&t, nn_param(&t, &ps, 0), nn_param(&t, &ps, 1), nn_param(&t, &ps, 2), k, ACT_SIGMOID);
+        Node *l = nn_dense_sq_err(&t, a, nn_param(&t, &ps, 3), nn_param(&t, &ps, 4), nn_input(&t, y, k * B, n_out), k,
+                                  2, blocks, w);
+        tape_backward(&t, l);
+        loss[th - 1] = l->val.d[0];
+        grad[th - 1] = malloc(ps.n * sizeof(float));
+        memcpy(grad[th - 1], ps.grad, ps.n * sizeof(float));
+        tape_free(&t);
+    }
+    par_set_threads(1);
+    assert_true(loss[0] == loss[1]);
+    assert_memory_equal(grad[0], grad[1], ps.n * sizeof(float));
+    free(grad[0]), free(grad[1]), free(y);
+    params_free(&ps);
 }
 
 /* Forward values of the reductions, by hand. */
@@ -227,6 +355,8 @@ int main(void) {
         cmocka_unit_test(test_grad_activations),
         cmocka_unit_test(test_activation_derivatives),
         cmocka_unit_test(test_reduction_values),
+        cmocka_unit_test(test_grad_dense_sq_err),
+        cmocka_unit_test(test_ops_same_bits_any_thread_count),
     };
     return cmocka_run_group_tests_name("nn ops", tests, NULL, NULL);
 }
