@@ -336,7 +336,16 @@ static int forecast_recording(LoadedRun *r, int rec, const Region *reg, FcResult
     opt.h = opt.method == ODE_RK4 ? dt / 8 : 0;
     opt.rtol = r->cfg.fc_tol;
     opt.atol = 1e-3 * r->cfg.fc_tol;
-    opt.bound = 1e6; /* far outside any trained region: a blow-up, reported */
+    /* A learned model can blow up or turn stiff far outside the states it was trained on: stop at
+     * ten times the largest |state| seen in training, or after 1000 steps per frame on average,
+     * and report it (the remaining frames count as lost). */
+    double extent = 0;
+    for (int i = 0; i < nv; i++) {
+        if (fabs(reg->zmin[i]) > extent) extent = fabs(reg->zmin[i]);
+        if (fabs(reg->zmax[i]) > extent) extent = fabs(reg->zmax[i]);
+    }
+    opt.bound = 10 * (extent > 0 && isfinite(extent) ? extent : 1.0);
+    opt.max_steps = 1000 * n_out;
     OdeReport rep;
     Status s2;
     double y_end[LIB_MAX_VARS];

@@ -220,6 +220,50 @@ static void test_export_trajectories(void **state) {
     free(txt);
 }
 
+/* A model that blows up (dz/dt = 3 z: growth e^{3t}) is stopped at ten times the training range and
+ * reported, not integrated forever; the frames after it count as lost. */
+static void test_forecast_of_blowing_up_model(void **state) {
+    Fx *fx = *state;
+    Config *c = malloc(sizeof *c);
+    Status st;
+    char path[700];
+    snprintf(path, sizeof path, "%s/config.json", fx->run);
+    assert_int_equal(config_load(c, path, &st), 0);
+    Model m;
+    ParamSet ps;
+    RunData d;
+    assert_int_equal(rundata_open(&d, c, &st), 0);
+    assert_int_equal(train_load_latest(fx->run, c, (int)d.ds.n, d.td.n_train, &m, &ps, &st), 0);
+    Mat xi = params_val(&ps, m.xi);
+    memset(xi.d, 0, 4 * sizeof(float));
+    xi.d[0 * 2 + 0] = 3.0f; /* dz1/dt = 3 z1 */
+    xi.d[1 * 2 + 1] = 3.0f; /* dz2/dt = 3 z2 */
+    long n_train = d.td.n_train;
+    int64_t *order = malloc((size_t)n_train * sizeof *order);
+    for (long i = 0; i < n_train; i++) order[i] = i;
+    CkptMeta meta = {0};
+    meta.config_digest = config_digest(c);
+    meta.epoch = 11;
+    snprintf(path, sizeof path, "%s/checkpoints/ckpt-00000011-000000.ckpt", fx->run);
+    assert_int_equal(ckpt_write(path, &meta, &ps, m.mask, 4, order, n_train, &st), 0);
+    free(order);
+    model_free(&m);
+    params_free(&ps);
+    rundata_close(&d);
+    free(c);
+    assert_int_equal(run("forecast", fx->run), 0);
+    snprintf(path, sizeof path, "%s/forecast.json", fx->run);
+    char *txt = slurp(path);
+    cJSON *root = cJSON_Parse(txt);
+    const cJSON *r1 = rec_entry(root, "rec1");
+    assert_true(cJSON_IsString(cJSON_GetObjectItem(r1, "stopped")));
+    assert_non_null(strstr(cJSON_GetObjectItem(r1, "stopped")->valuestring, "bound"));
+    double t_exceed = cJSON_GetObjectItem(r1, "exceeds_bound_at")->valuedouble;
+    assert_true(t_exceed > 0 && t_exceed < 1.0); /* 10% off within a fraction of a second */
+    cJSON_Delete(root);
+    free(txt);
+}
+
 /* Missing or unusable run folders: one line, exit 2. */
 static void test_bad_run_folders(void **state) {
     Fx *fx = *state;
@@ -290,6 +334,7 @@ int main(void) {
         cmocka_unit_test_setup_teardown(test_forecast_of_exact_model, setup, teardown),
         cmocka_unit_test_setup_teardown(test_export_trajectories, setup, teardown),
         cmocka_unit_test_setup_teardown(test_bad_run_folders, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_forecast_of_blowing_up_model, setup, teardown),
         cmocka_unit_test_setup_teardown(test_reconstruction_strips_for_images, setup, teardown),
     };
     return cmocka_run_group_tests_name("export and forecast", tests, NULL, NULL);
