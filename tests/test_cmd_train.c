@@ -80,19 +80,6 @@ static int run_cmd(const char *a1, const char *a2, const char *a3, const char *a
     return wait_status(spawn(args, 1));
 }
 
-static char *slurp(const char *path) {
-    FILE *f = fopen(path, "rb");
-    if (!f) return NULL;
-    fseek(f, 0, SEEK_END);
-    long n = ftell(f);
-    fseek(f, 0, SEEK_SET);
-    char *b = malloc((size_t)n + 1);
-    size_t got = fread(b, 1, (size_t)n, f);
-    b[got] = 0;
-    fclose(f);
-    return b;
-}
-
 typedef struct {
     char dir[256], data[512];
 } Fixture;
@@ -159,7 +146,7 @@ static void test_kill_loop_then_resume_matches_straight_run(void **state) {
     char pa[700], pb[700];
     snprintf(pa, sizeof pa, "%s/equations.json", run_a);
     snprintf(pb, sizeof pb, "%s/equations.json", run_b);
-    char *ea = slurp(pa), *eb = slurp(pb);
+    char *ea = test_slurp(pa), *eb = test_slurp(pb);
     assert_non_null(ea);
     assert_non_null(eb);
     assert_string_equal(ea, eb);
@@ -167,7 +154,7 @@ static void test_kill_loop_then_resume_matches_straight_run(void **state) {
     free(eb);
     /* the log has each epoch once, 1..EPOCHS, whatever was replayed */
     snprintf(pb, sizeof pb, "%s/log.csv", run_b);
-    char *log = slurp(pb);
+    char *log = test_slurp(pb);
     assert_non_null(log);
     int expect = 1;
     for (char *line = strchr(log, '\n'); line && line[1]; line = strchr(line + 1, '\n'))

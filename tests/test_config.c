@@ -466,19 +466,6 @@ static void test_load(void **state) {
     free(real);
 }
 
-static char *slurp(const char *path) {
-    FILE *f = fopen(path, "rb");
-    if (!f) return NULL;
-    fseek(f, 0, SEEK_END);
-    long n = ftell(f);
-    fseek(f, 0, SEEK_SET);
-    char *b = malloc((size_t)n + 1);
-    assert_int_equal(fread(b, 1, (size_t)n, f), (size_t)n);
-    b[n] = 0;
-    fclose(f);
-    return b;
-}
-
 /* docs/config.md holds every key, and the key table exactly as the code writes it. Set
  * FRAMELAW_WRITE_KEYS=FILE to write the table to FILE (to paste into the page). */
 static void test_docs(void **state) {
@@ -486,7 +473,7 @@ static void test_docs(void **state) {
     char *md = config_keys_markdown();
     const char *out = getenv("FRAMELAW_WRITE_KEYS");
     if (out && *out) write_file(out, md);
-    char *doc = slurp("docs/config.md");
+    char *doc = test_slurp("docs/config.md");
     if (!doc) fail_msg("docs/config.md not found (run the tests from the project root)");
     for (int i = 0; config_key_path(i); i++) {
         char k[160];

@@ -36,19 +36,6 @@ static void write_rec(const char *dir, int k) {
     fclose(f);
 }
 
-static char *slurp(const char *path) {
-    FILE *f = fopen(path, "rb");
-    if (!f) return NULL;
-    fseek(f, 0, SEEK_END);
-    long n = ftell(f);
-    fseek(f, 0, SEEK_SET);
-    char *b = malloc((size_t)n + 1);
-    size_t got = fread(b, 1, (size_t)n, f);
-    b[got] = 0;
-    fclose(f);
-    return b;
-}
-
 static int run(const char *cmd, const char *dir) {
     char line[1200];
     snprintf(line, sizeof line, "'%s' %s '%s' >/dev/null 2>&1", test_framelaw(), cmd, dir);
@@ -149,7 +136,7 @@ static void test_forecast_of_exact_model(void **state) {
     assert_int_equal(run("forecast", fx->run), 0);
     char path[700];
     snprintf(path, sizeof path, "%s/forecast.json", fx->run);
-    char *txt = slurp(path);
+    char *txt = test_slurp(path);
     assert_non_null(txt);
     cJSON *root = cJSON_Parse(txt);
     assert_non_null(root);
@@ -207,7 +194,7 @@ static void test_export_trajectories(void **state) {
     series_free(&s);
     char path[700];
     snprintf(path, sizeof path, "%s/region.json", fx->run);
-    char *txt = slurp(path);
+    char *txt = test_slurp(path);
     assert_non_null(txt);
     cJSON *root = cJSON_Parse(txt);
     double zmax = cJSON_GetArrayItem(cJSON_GetObjectItem(root, "z_max"), 0)->valuedouble;
@@ -215,7 +202,7 @@ static void test_export_trajectories(void **state) {
     cJSON_Delete(root);
     free(txt);
     snprintf(path, sizeof path, "%s/equations.txt", fx->run);
-    txt = slurp(path);
+    txt = test_slurp(path);
     assert_non_null(strstr(txt, "dz1/dt = 2 z2"));
     free(txt);
 }
@@ -253,7 +240,7 @@ static void test_forecast_of_blowing_up_model(void **state) {
     free(c);
     assert_int_equal(run("forecast", fx->run), 0);
     snprintf(path, sizeof path, "%s/forecast.json", fx->run);
-    char *txt = slurp(path);
+    char *txt = test_slurp(path);
     cJSON *root = cJSON_Parse(txt);
     const cJSON *r1 = rec_entry(root, "rec1");
     assert_true(cJSON_IsString(cJSON_GetObjectItem(r1, "stopped")));

@@ -28,19 +28,6 @@ static void write_text(const char *path, const char *text) {
     fclose(f);
 }
 
-static char *slurp(const char *path) {
-    FILE *f = fopen(path, "rb");
-    if (!f) return NULL;
-    fseek(f, 0, SEEK_END);
-    long n = ftell(f);
-    fseek(f, 0, SEEK_SET);
-    char *b = malloc((size_t)n + 1);
-    size_t got = fread(b, 1, (size_t)n, f);
-    b[got] = 0;
-    fclose(f);
-    return b;
-}
-
 static int file_exists(const char *path) { return access(path, F_OK) == 0; }
 
 static int count_lines(const char *text) {
@@ -360,7 +347,7 @@ static void test_bad_sweep_command_starts_nothing(void **state) {
     snprintf(out, sizeof out, "%s/stderr.txt", fx->dir);
     const char *const a1[] = {"sweep", "bad.json", "--jobs", "2", NULL};
     assert_int_equal(run_in(fx->dir, out, a1), 2);
-    char *msg = slurp(out);
+    char *msg = test_slurp(out);
     assert_non_null(strstr(msg, "member m0001-"));
     assert_non_null(strstr(msg, "loss.dx"));
     free(msg);
@@ -561,7 +548,7 @@ static void test_summary_ranking_pareto_groups(void **state) {
     /* the files: CSV with a header and one row per member in rank order; HTML without scripts */
     char p[4200];
     snprintf(p, sizeof p, "%s/summary.csv", sw.output);
-    char *csv = slurp(p);
+    char *csv = test_slurp(p);
     assert_non_null(csv);
     assert_int_equal(count_lines(csv), 7);
     assert_memory_equal(csv, "rank,id,status,loss.dz,train.seed,epochs,", 40);
@@ -576,7 +563,7 @@ static void test_summary_ranking_pareto_groups(void **state) {
     assert_non_null(strstr(csv, row));
     free(csv);
     snprintf(p, sizeof p, "%s/summary.html", sw.output);
-    char *html = slurp(p);
+    char *html = test_slurp(p);
     assert_non_null(html);
     assert_null(strstr(html, "<script"));
     assert_non_null(strstr(html, "<tr class=\"front\">"));
@@ -648,7 +635,7 @@ static void test_local_sweep_two_at_once(void **state) {
     snprintf(out, sizeof out, "%s/sweep.txt", fx->dir);
     const char *const args[] = {"sweep", "local.json", "--jobs", "2", NULL};
     int rc = run_in(fx->dir, out, args);
-    char *text = slurp(out);
+    char *text = test_slurp(out);
     if (rc != 0) fail_msg("sweep exited %d:\n%s", rc, text);
     assert_non_null(strstr(text, "2 at a time, 1 thread each"));
     assert_non_null(strstr(text, "[2 done, 0 running, 0 left]"));
@@ -677,13 +664,13 @@ static void test_local_sweep_two_at_once(void **state) {
     assert_int_equal(count_names(data, ".tmp-"), 0);
     char p[600];
     snprintf(p, sizeof p, "%s/runs/summary.csv", fx->dir);
-    char *csv = slurp(p);
+    char *csv = test_slurp(p);
     assert_non_null(csv);
     assert_int_equal(count_lines(csv), 3);
     free(csv);
 
     rc = run_in(fx->dir, out, args);
-    text = slurp(out);
+    text = test_slurp(out);
     if (rc != 0) fail_msg("second sweep exited %d:\n%s", rc, text);
     assert_non_null(strstr(text, "all 2 members finished already"));
     free(text);
@@ -734,7 +721,7 @@ static void test_members_start_together_without_store(void **state) {
         }
         int ra = wait_status(a), rb = wait_status(b);
         if (ra || rb) {
-            char *t1 = slurp(o1), *t2 = slurp(o2);
+            char *t1 = test_slurp(o1), *t2 = test_slurp(o2);
             fail_msg("round %d: exit %d and %d:\n%s\n%s", round, ra, rb, t1, t2);
         }
         FrameStore fs;
@@ -760,7 +747,7 @@ static void test_members_start_together_without_store(void **state) {
     sweep_free(&sw);
     char p[600];
     snprintf(p, sizeof p, "%s/arr/summary.csv", fx->dir);
-    char *csv = slurp(p);
+    char *csv = test_slurp(p);
     assert_non_null(csv);
     assert_int_equal(count_lines(csv), 3);
     free(csv);
@@ -769,12 +756,12 @@ static void test_members_start_together_without_store(void **state) {
     assert_int_equal(run_in(fx->dir, NULL, ok), 0);
     const char *const bad[] = {"sweep", "arr.json", "--member", "2", NULL};
     assert_int_equal(run_in(fx->dir, o1, bad), 2);
-    char *t = slurp(o1);
+    char *t = test_slurp(o1);
     assert_non_null(strstr(t, "not a member index (the sweep has 2 members: 0 to 1)"));
     free(t);
     const char *const none[] = {"sweep", "arr.json", "--member", NULL};
     assert_int_equal(run_in(fx->dir, o1, none), 2);
-    t = slurp(o1);
+    t = test_slurp(o1);
     assert_non_null(strstr(t, "SLURM_ARRAY_TASK_ID is not set"));
     free(t);
     assert_int_equal(wait_status(spawn_in(fx->dir, NULL, "SLURM_ARRAY_TASK_ID", "x1", none)), 2);
@@ -811,7 +798,7 @@ static void test_ctrl_c_then_continue(void **state) {
     assert_true(log_epoch(sw.members[0].dir) >= 12 && log_epoch(sw.members[1].dir) >= 12);
     assert_int_equal(kill(pid, SIGINT), 0);
     int rc = wait_status(pid);
-    char *text = slurp(out);
+    char *text = test_slurp(out);
     if (rc != 1) fail_msg("stopped sweep exited %d:\n%s", rc, text);
     assert_non_null(strstr(text, "continue with: framelaw sweep long.json --jobs 2"));
     assert_non_null(strstr(text, "2 stopped with their checkpoints, 1 not started"));
@@ -833,7 +820,7 @@ static void test_ctrl_c_then_continue(void **state) {
 
     write_base(base, "data", stop_at + 15);
     rc = run_in(fx->dir, out, args);
-    text = slurp(out);
+    text = test_slurp(out);
     if (rc != 0) fail_msg("continued sweep exited %d:\n%s", rc, text);
     assert_non_null(strstr(text, "3 members (0 finished, 2 to resume, 1 to train)"));
     free(text);
@@ -846,7 +833,7 @@ static void test_ctrl_c_then_continue(void **state) {
         if (i < 2) {
             char p[600];
             snprintf(p, sizeof p, "%s/console.log", sw.members[i].dir);
-            char *c = slurp(p);
+            char *c = test_slurp(p);
             assert_non_null(strstr(c, "resuming from"));
             free(c);
         }

@@ -30,6 +30,20 @@ static inline char *test_tmpdir(char *buf, size_t n) {
     return mkdtemp(buf);
 }
 
+/* A whole file as a NUL-terminated string (malloc'ed; NULL when it cannot be opened). */
+static inline char *test_slurp(const char *path) {
+    FILE *f = fopen(path, "rb");
+    if (!f) return NULL;
+    fseek(f, 0, SEEK_END);
+    long n = ftell(f);
+    fseek(f, 0, SEEK_SET);
+    char *b = malloc((size_t)(n > 0 ? n : 0) + 1);
+    size_t got = b && n > 0 ? fread(b, 1, (size_t)n, f) : 0;
+    if (b) b[got] = 0;
+    fclose(f);
+    return b;
+}
+
 /* Remove a test's temporary directory and everything in it. */
 static inline void test_rmtree(const char *dir) {
     char cmd[4200];
