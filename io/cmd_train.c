@@ -200,17 +200,16 @@ int cmd_resume(int argc, char **argv) {
     if (!dir) return cli_error(2, "resume: missing RUN_DIR (framelaw resume --help)");
     char cfg_path[CFG_PATH_MAX + 32];
     snprintf(cfg_path, sizeof cfg_path, "%s/config.json", dir);
-    struct stat sb;
-    if (stat(dir, &sb) != 0) return cli_error(2, "%s: no such run folder", dir);
-    if (stat(cfg_path, &sb) != 0) return cli_error(2, "%s: missing (not a run folder?)", cfg_path);
     Config *c = malloc(sizeof *c);
     if (!c) return cli_error(1, "out of memory");
     Status st;
-    if (config_load(c, cfg_path, &st) || (rc = parse_sets(c, argc, argv, &quiet, &dir, 1)) || config_validate(c, &st)) {
+    if (run_config_load(dir, c, &st) || (rc = parse_sets(c, argc, argv, &quiet, &dir, 1)) || config_validate(c, &st)) {
         free(c);
         return rc ? rc : cli_error(st.code, "%s", st.msg);
     }
-    if (argc > 1) { /* store the changed safe keys so a later resume sees them */
+    int sets = 0;
+    for (int i = 1; i < argc; i++) sets |= !strncmp(argv[i], "--set", 5);
+    if (sets) { /* store the changed safe keys so a later resume sees them */
         char *json = config_to_json(c);
         if (atomic_write_bytes(cfg_path, json, strlen(json), &st)) {
             free(json);
