@@ -321,7 +321,7 @@ typedef struct {
     int epoch, phase, loss, rec, dx, dz, l1, active, val, seconds;
 } Log;
 
-static const char *const phase_words[] = {"train", "refine", NULL};
+static const char *const phase_words[] = {"train", "refine", "warmup", NULL}; /* 0, 1, 2 */
 
 static int log_read(Report *r, Log *L) {
     char path[PATH_LEN];
@@ -464,17 +464,19 @@ static void section_training(Report *r, const Log *L) {
     long st = L->t.cols;
     const double *d = L->t.d;
     /* thresholding passes that removed coefficients: epochs where `active` drops */
-    double *passes = malloc(sizeof(double) * (size_t)n), refine_at = NAN;
+    double *passes = malloc(sizeof(double) * (size_t)n), refine_at = NAN, warm_end = NAN;
     double *ve = malloc(sizeof(double) * (size_t)n * 2), *vv = ve + n;
     long np = 0, nv = 0;
     for (long i = 0; i < n; i++) {
         if (i > 0 && cell(L, i, L->active) < cell(L, i - 1, L->active)) passes[np++] = cell(L, i, L->epoch);
         if (isnan(refine_at) && cell(L, i, L->phase) == 1) refine_at = cell(L, i, L->epoch) - 1;
+        if (cell(L, i, L->phase) == 2) warm_end = cell(L, i, L->epoch);
         if (isfinite(cell(L, i, L->val))) ve[nv] = cell(L, i, L->epoch), vv[nv++] = cell(L, i, L->val);
     }
-    PlotVLines marks[2] = {
+    PlotVLines marks[3] = {
         {"thresholding pass (terms removed)", passes, np, "#888", DASH_DASHED},
         {"refinement phase starts", &refine_at, isnan(refine_at) ? 0 : 1, "#a61e4d", DASH_DOTTED},
+        {"warm-up ends", &warm_end, isnan(warm_end) ? 0 : 1, "#1864ab", DASH_DOTTED},
     };
     const char *dname = r->order == 2 ? "x'' term" : "x' term";
     const char *zname = r->order == 2 ? "z'' term" : "z' term";
@@ -487,14 +489,14 @@ static void section_training(Report *r, const Log *L) {
     if (L->dz >= 0) s[ns++] = (PlotSeries){zname, ep, d + L->dz, n, st, plot_color(4), DASH_SOLID};
     if (nv) s[ns++] = (PlotSeries){"validation loss (no L1)", ve, vv, nv, 1, plot_color(3), DASH_DASHED};
     Plot p = {.title = "Loss over epochs (log scale)", .xlabel = "epoch", .ylabel = "loss (no unit)",
-              .ylog = 1, .series = s, .n_series = ns, .vlines = marks, .n_vlines = 2};
+              .ylog = 1, .series = s, .n_series = ns, .vlines = marks, .n_vlines = 3};
     plot(r, &p);
     fputs("<p>The loss terms are means over the batch and the components, before weighting (docs/training.md); "
           "the total is weighted and includes the L1 term. A thresholding pass that removed no coefficient "
           "leaves no mark.</p>\n", r->f);
     PlotSeries a = {"active coefficients", ep, d + L->active, n, st, plot_color(0), DASH_SOLID};
     Plot q = {.title = "Active coefficients over epochs", .xlabel = "epoch", .ylabel = "active coefficients (count)",
-              .y_zero = 1, .height = 260, .series = &a, .n_series = 1, .vlines = marks, .n_vlines = 2};
+              .y_zero = 1, .height = 260, .series = &a, .n_series = 1, .vlines = marks, .n_vlines = 3};
     plot(r, &q);
     free(passes);
     free(ve);

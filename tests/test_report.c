@@ -132,7 +132,7 @@ static void write_minimal_run(const char *dir) {
     for (int e = 1; e <= 60; e++) {
         double loss = 2.0 * exp(-e / 12.0) + 1e-3;
         int active = e < 20 ? 14 : e < 40 ? 7 : 4;
-        fprintf(f, "%d,%s,0.001,%.6g,%.6g,%.6g,%.6g,%.6g,%d,", e, e > 50 ? "refine" : "train", loss, 0.6 * loss,
+        fprintf(f, "%d,%s,0.001,%.6g,%.6g,%.6g,%.6g,%.6g,%d,", e, e > 50 ? "refine" : e <= 5 ? "warmup" : "train", loss, 0.6 * loss,
                 0.3 * loss, 0.05 * loss, 3.0 - e / 30.0, active);
         if (e % 10 == 0) fprintf(f, "%.6g", 1.2 * loss);
         fprintf(f, ",%.3f,0.05\n", 0.05 * e);
