@@ -1,0 +1,36 @@
+/* sparse/verify.h: properties of a model that do not depend on its coordinates, for checking a
+ * learned law against the physics (docs/lantern.md, docs/convection.md).
+ *
+ * - The period of an oscillation: the mean time between successive upward crossings of a reference
+ *   level by one state component (the level halfway between the component's extremes over the
+ *   first swing, so any shift or scale of the coordinate gives the same period).
+ * - The decay rate of an oscillation: with peak-to-peak amplitudes p_k (a maximum of y_i less the
+ *   minimum that follows it, so no equilibrium level is needed) at times t_k, minus the slope of
+ *   log p_k against t_k (least squares); for a lightly damped oscillator x'' = -w^2 x - c x' the
+ *   amplitude decays as exp(-c t / 2) (common practice: the damped harmonic oscillator).
+ * - The largest Lyapunov exponent by the two-trajectory method with renormalisation ("Lyapunov
+ *   Characteristic Exponents for smooth dynamical systems ...", Meccanica 1980 describes the
+ *   tangent-space method; the renormalised-separation form used here is common practice): a
+ *   companion trajectory at distance d0 is integrated alongside, and every `renorm` time units the
+ *   log of the separation growth is summed and the companion pulled back to distance d0.
+ * All integrate with fixed-step RK4 of step h (sparse/integrate.h). */
+#ifndef SPARSE_VERIFY_H
+#define SPARSE_VERIFY_H
+
+#include "nn/core.h"
+#include "sparse/integrate.h"
+
+/* Mean period of y[i] over [0, t_max] from y0; ST_RUNTIME when fewer than two upward crossings
+ * occur or the state blows up (message says which). */
+int verify_period(OdeFn f, void *ctx, int n, const double *y0, int i, double t_max, double h, double *period,
+                  Status *st);
+
+/* Decay rate of the amplitude of y[i] (1/s: amplitude ~ exp(-rate t)) over [0, t_max]. */
+int verify_decay_rate(OdeFn f, void *ctx, int n, const double *y0, int i, double t_max, double h, double *rate,
+                      Status *st);
+
+/* Largest Lyapunov exponent: skip t_transient, then average over t_total. */
+int verify_lyapunov(OdeFn f, void *ctx, int n, const double *y0, double t_transient, double t_total, double h,
+                    double renorm, double *lambda, Status *st);
+
+#endif
