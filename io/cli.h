@@ -38,4 +38,6 @@ int cmd_sweep(int argc, char **argv);   /* io/cmd_sweep.c */
 int cmd_export(int argc, char **argv);   /* io/cmd_results.c */
 int cmd_forecast(int argc, char **argv); /* io/cmd_results.c */
 
+int cmd_verify(int argc, char **argv);   /* io/cmd_verify.c */
+
 #endif

@@ -14,6 +14,7 @@ static const Command commands[] = {
     {"resume", "continue a stopped run from its newest valid checkpoint", cmd_resume},
     {"export", "write equations, latent trajectories and reconstructions of a trained run", cmd_export},
     {"forecast", "forecast the held-out recordings with the learned model and measure the error", cmd_forecast},
+    {"verify", "check a run on a demo scenario against its physics (periods, Lyapunov exponent)", cmd_verify},
     {"help", "show this overview", cmd_help},
     {"fit", "fit a sparse ODE to a time series of state coordinates (CSV or .npy)", cmd_fit},
     {"frames", "inspect a frames folder: recordings, sizes, frame store, contact sheet", cmd_frames},

@@ -256,6 +256,7 @@ static void test_bad_run_folders(void **state) {
     Fx *fx = *state;
     assert_int_equal(run("export", "/nonexistent/run"), 2);
     assert_int_equal(run("forecast", fx->data), 2); /* a folder without config.json */
+    assert_int_equal(run("verify", fx->run), 2);     /* not trained on a demo scenario: no demo.json */
     char path[700], cmd[1600];
     snprintf(path, sizeof path, "%s/checkpoints/ckpt-00000010-000000.ckpt", fx->run);
     /* a checkpoint from a newer format version */
