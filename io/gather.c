@@ -156,24 +156,52 @@ void dataset_frame(const Dataset *ds, long frame, float *x) {
     }
 }
 
-/* d (n) = sum_k w[k] q_k over the window's frames q[k] (len of them), frame by frame so that the
- * inner loop runs over pixels and vectorises. */
-#define STENCIL_PASS(T, d, w)                                                                       \
-    do {                                                                                            \
-        const T *v0 = q[0];                                                                         \
-        for (long p = 0; p < n; p++) d[p] = w[0] * (float)v0[p];                                    \
-        for (int k = 1; k < len; k++) {                                                             \
-            const T *v = q[k];                                                                      \
-            float a = w[k];                                                                         \
-            if (a != 0)                                                                             \
-                for (long p = 0; p < n; p++) d[p] += a * (float)v[p];                               \
-        }                                                                                           \
-    } while (0)
+/* t (np) = the values of one frame's pixels as float */
+static void to_float(float *restrict t, const void *q, long p0, int np, StoreElem e) {
+    if (e == STORE_U8) {
+        const uint8_t *v = (const uint8_t *)q + p0;
+        for (int p = 0; p < np; p++) t[p] = (float)v[p];
+    } else if (e == STORE_U16) {
+        const uint16_t *v = (const uint16_t *)q + p0;
+        for (int p = 0; p < np; p++) t[p] = (float)v[p];
+    } else {
+        memcpy(t, (const float *)q + p0, (size_t)np * sizeof(float));
+    }
+}
 
-static void stencil_pass(float *restrict d, const float *w, const void *const *q, int len, StoreElem e, long n) {
-    if (e == STORE_U8) STENCIL_PASS(uint8_t, d, w);
-    else if (e == STORE_U16) STENCIL_PASS(uint16_t, d, w);
-    else STENCIL_PASS(float, d, w);
+/* d (np) = w[0] t (k = 0), else d += w[k] t when w[k] != 0: sum_k w[k] q_k, tap by tap */
+static void tap(float *restrict d, const float *restrict t, const float *w, int k, int np) {
+    float a = w[k];
+    if (k == 0)
+        for (int p = 0; p < np; p++) d[p] = a * t[p];
+    else if (a != 0)
+        for (int p = 0; p < np; p++) d[p] += a * t[p];
+}
+
+/* One sample in one pass over its window's frames, in blocks of pixels that stay in cache: each
+ * frame is converted to float once and feeds x (the centre frame), x' and x'' (every tap). */
+static void gather_one(const Dataset *ds, const void *const *q, const float *w1, const float *w2, float inv1,
+                       float inv2, float *x, float *dx, float *ddx) {
+    enum { PB = 512 };
+    float t[PB];
+    long n = ds->n;
+    int m = ds->sten.m, len = 2 * m + 1;
+    StoreElem e = ds->fs->elem;
+    const float *g = ds->gain, *o = ds->offset;
+    for (long p0 = 0; p0 < n; p0 += PB) {
+        int np = (int)(n - p0 < PB ? n - p0 : PB);
+        for (int k = 0; k < len; k++) {
+            to_float(t, q[k], p0, np, e);
+            if (x && k == m)
+                for (int p = 0; p < np; p++) x[p0 + p] = t[p] * g[p0 + p] + o[p0 + p];
+            if (dx) tap(dx + p0, t, w1, k, np);
+            if (ddx) tap(ddx + p0, t, w2, k, np);
+        }
+        if (dx)
+            for (int p = 0; p < np; p++) dx[p0 + p] *= g[p0 + p] * inv1;
+        if (ddx)
+            for (int p = 0; p < np; p++) ddx[p0 + p] *= g[p0 + p] * inv2;
+    }
 }
 
 void dataset_gather_frames(const Dataset *ds, const long *frames, int B, float *x, float *dx, float *ddx) {
@@ -183,22 +211,12 @@ void dataset_gather_frames(const Dataset *ds, const long *frames, int B, float *
     float inv1 = (float)(1.0 / ds->dt), inv2 = (float)(1.0 / (ds->dt * ds->dt));
     float w1[STENCIL_MAX_LEN], w2[STENCIL_MAX_LEN];   /* (len) stencil weights in float */
     for (int k = 0; k < len; k++) w1[k] = (float)ds->sten.w1[k], w2[k] = (float)ds->sten.w2[k];
-    const float *gain = ds->gain;
     for (int b = 0; b < B; b++) {
         long f = frames[b];
-        if (x) dataset_frame(ds, f, x + (long)b * n);
         const void *q[STENCIL_MAX_LEN];   /* the window's frames f - m .. f + m */
         for (int k = 0; k < len; k++) q[k] = store_frame(fs, f - m + k);
-        if (dx) {
-            float *restrict d = dx + (long)b * n;   /* (n) */
-            stencil_pass(d, w1, q, len, fs->elem, n);
-            for (long p = 0; p < n; p++) d[p] *= gain[p] * inv1;
-        }
-        if (ddx) {
-            float *restrict d = ddx + (long)b * n;   /* (n) */
-            stencil_pass(d, w2, q, len, fs->elem, n);
-            for (long p = 0; p < n; p++) d[p] *= gain[p] * inv2;
-        }
+        long off = (long)b * n;
+        gather_one(ds, q, w1, w2, inv1, inv2, x ? x + off : NULL, dx ? dx + off : NULL, ddx ? ddx + off : NULL);
     }
 }
 

@@ -30,5 +30,5 @@ void adam_step(ParamSet *ps, const AdamCfg *c) {
     double bc2 = 1.0 - pow(c->beta2, (double)ps->step);
     AdamPass p = {ps->val, ps->grad, ps->m, ps->v, c->beta1, c->beta2, c->eps, (float)(c->lr / bc1),
                   (float)(1.0 / sqrt(bc2))};
-    par_for((long)ps->n, 16384, adam_range, &p);
+    par_for((long)ps->n, 65536, adam_range, &p);
 }

@@ -327,8 +327,11 @@ static void hstack_backward(Node *c) {
  * blocks of SUM_ROWS rows, then the block results are combined in block order, so the result does
  * not depend on how par_for split the rows (nor on the thread count). */
 enum { SUM_ROWS = 64 };
-/* par_for grains: rows of a (rows, n) pass so that one part holds about 16k elements. */
-static long row_grain(int n) { return n >= 16384 ? 1 : 16384 / (n > 0 ? n : 1); }
+/* par_for grains: rows of a (rows, n) pass so that a part holds at least `elems` elements. A call
+ * costs about 10 us of hand-over to the pool's thread: passes that do a few operations per element
+ * split above 64k elements (PAR_LIGHT), the activations with their tangents above 32k (PAR_HEAVY). */
+enum { PAR_HEAVY = 32768, PAR_LIGHT = 65536 };
+static long row_grain(int n, long elems) { return n >= elems ? 1 : elems / (n > 0 ? n : 1); }
 
 /* db (n) += column sums of M (rows, n), via per-block partial sums in part (blocks, n). */
 typedef struct {
@@ -353,7 +356,7 @@ static void colsum_blocks(void *vc, long lo, long hi) {
 static void colsum_add(Tape *t, float *db, const float *M, int rows, int n) {
     long blocks = (rows + SUM_ROWS - 1) / SUM_ROWS;
     ColSum c = {M, arena_floats(&t->arena, blocks * n), rows, n};
-    par_for(blocks, (row_grain(n) + SUM_ROWS - 1) / SUM_ROWS, colsum_blocks, &c);
+    par_for(blocks, (row_grain(n, PAR_LIGHT) + SUM_ROWS - 1) / SUM_ROWS, colsum_blocks, &c);
     for (long blk = 0; blk < blocks; blk++)
         for (int j = 0; j < n; j++) db[j] += c.part[blk * n + j];
 }
@@ -456,8 +459,8 @@ Node *nn_dense_t(Tape *t, Node *h, Node *W, Node *b, int k, ActId act) {
     mat_gemm(0, 0, 1.0f, h->val, W->val, 0.0f, mat_view(A, rows, n_out));
     DenseRows dr = {A, c->val.d, NULL, b->val.d, (long)B * n_out, n_out, k, act};
     /* bias on the primal rows only; then the activation and the tangents, one pass over the rows */
-    par_for(B, row_grain(n_out), act == ACT_NONE ? bias_rows : act == ACT_SIGMOID ? sigmoid_fwd_rows : dense_fwd_rows,
-            &dr);
+    par_for(B, row_grain(n_out, act == ACT_NONE ? PAR_LIGHT : PAR_HEAVY),
+            act == ACT_NONE ? bias_rows : act == ACT_SIGMOID ? sigmoid_fwd_rows : dense_fwd_rows, &dr);
     return c;
 }
 
@@ -550,7 +553,7 @@ static void dense_t_backward(Tape *t, Node *c) {
     } else {
         dA = c->saved;
         DenseRows dr = {c->saved, c->val.d, c->grad, NULL, (long)B * n_out, n_out, k, c->act};
-        par_for(B, row_grain(n_out), c->act == ACT_SIGMOID ? sigmoid_bwd_rows : dense_bwd_rows, &dr);
+        par_for(B, row_grain(n_out, PAR_HEAVY), c->act == ACT_SIGMOID ? sigmoid_bwd_rows : dense_bwd_rows, &dr);
     }
     Mat dAm = mat_view(dA, rows, n_out);
     if (b->grad) colsum_add(t, b->grad, dA, B, n_out);
@@ -667,7 +670,7 @@ Node *nn_dense_sq_err(Tape *t, Node *h, Node *W, Node *b, Node *y, int k, int n_
             mat_gemm(0, 0, 1.0f, mat_view(h->val.d + (long)blocks[i] * B * n_in, B, n_in), W->val, 0.0f,
                      mat_view(s->A + (long)i * B * n_out, B, n_out));
     s->rowsum = arena_alloc(&t->arena, (size_t)nr * sizeof(double));
-    par_for(nr, row_grain(n_out), sq_err_fwd_rows, s);
+    par_for(nr, row_grain(n_out, PAR_LIGHT), sq_err_fwd_rows, s);
     double total = 0;
     for (int i = 0; i < n_blocks; i++) {
         double sum = 0;
@@ -699,7 +702,7 @@ static void dense_sq_err_backward(Tape *t, Node *c) {
     long blocks = (nr + SUM_ROWS - 1) / SUM_ROWS;
     int has_bias = b->grad && s->blocks[0] == 0;
     s->colpart = has_bias ? arena_floats(&t->arena, blocks * n_out) : NULL;
-    par_for(blocks, (row_grain(n_out) + SUM_ROWS - 1) / SUM_ROWS, sq_err_bwd_blocks, s);
+    par_for(blocks, (row_grain(n_out, PAR_LIGHT) + SUM_ROWS - 1) / SUM_ROWS, sq_err_bwd_blocks, s);
     if (has_bias)
         for (long blk = 0; blk * SUM_ROWS < B; blk++)
             for (int j = 0; j < n_out; j++) b->grad[j] += s->colpart[blk * n_out + j];

@@ -22,7 +22,9 @@
  *   PyTorch: tests/reference/bench_torch.py run by /usr/bin/python3 (same model, loss, stencil and
  *     epoch loop, float32, tangents propagated by hand), once per setting: its thread count 1 or 2
  *     (torch.set_num_threads, OPENBLAS_NUM_THREADS and OMP_NUM_THREADS) and OMP_WAIT_POLICY left as
- *     it is or set to passive. Peak memory: ru_maxrss of the child from wait4.
+ *     it is or set to passive. Peak memory: ru_maxrss of the child from wait4. A setting whose timed
+ *     epochs pass 40 s stops after 3 of them (--max-seconds), so that a slow setting (libgomp's
+ *     threads spinning against OpenBLAS's) cannot stretch `make bench` past its budget.
  * The framelaw row at t threads is compared with PyTorch at t threads under the default policy,
  * and with PyTorch's best over the policies and the thread counts up to t.
  *
@@ -578,7 +580,7 @@ static void run_all(const Workload *wls, int n_wl, int epochs_opt, int no_torch,
                 char *argv[] = {PYTHON, (char *)script, "--data", raw, "--frames", buf[0], "--n", buf[1],
                                 "--recordings", buf[2], "--order", buf[3], "--latent", buf[4], "--widths", hid,
                                 "--degree", deg, "--trig", trig, "--fps", fps, "--w", buf[5], "--epochs", ep_s,
-                                "--threads", th_s, NULL};
+                                "--threads", th_s, "--max-seconds", "40", NULL};
                 char obt[32], omt[32], pass[32] = "OMP_WAIT_POLICY=passive";
                 snprintf(obt, sizeof obt, "OPENBLAS_NUM_THREADS=%d", t);
                 snprintf(omt, sizeof omt, "OMP_NUM_THREADS=%d", t);
@@ -635,10 +637,10 @@ static void print_table(const Workload *wls, int n_wl, const Runs *runs, int uns
                 const Result *r = &runs[wi].th[t - 1][pol];
                 if (!r->ok) continue;
                 Stat s = stat_of(r->epoch, r->n_epoch);
-                printf("  %s, %d thread(s) (torch reports %d), OMP_WAIT_POLICY %s: %.3f (%.3f-%.3f), %.0f MB; loss %.4g / "
-                       "%.4g (%.4g)\n",
-                       wls[wi].name, t, r->threads, POLICY[pol], s.med, s.min, s.max, r->maxrss_kb / 1024.0, r->loss0,
-                       r->loss1, runs[wi].fl[t - 1].loss0);
+                printf("  %s, %d thread(s) (torch reports %d), OMP_WAIT_POLICY %s: %.3f (%.3f-%.3f) over %d epochs, %.0f MB; "
+                       "loss %.4g / %.4g (%.4g)\n",
+                       wls[wi].name, t, r->threads, POLICY[pol], s.med, s.min, s.max, r->n_epoch, r->maxrss_kb / 1024.0,
+                       r->loss0, r->loss1, runs[wi].fl[t - 1].loss0);
             }
     /* the targets of the issue, at 2 threads */
     printf("\ntargets at 2 threads:\n");

@@ -288,7 +288,7 @@ static void test_grad_dense_sq_err(void **state) {
  * feeding dense_sq_err, forward and backward, on shapes large enough to be split. */
 static void test_ops_same_bits_any_thread_count(void **state) {
     (void)state;
-    int k = 3, B = 300, n_in = 40, n_mid = 64, n_out = 700, blocks[2] = {0, 2};
+    int k = 3, B = 600, n_in = 40, n_mid = 128, n_out = 700, blocks[2] = {0, 2};
     float w[2] = {1.0f, 0.3f};
     ParamSet ps;
     params_init(&ps);
