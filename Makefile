@@ -44,6 +44,10 @@ $(BUILD)/%.o: %.c $(wildcard */*.h)
 	@mkdir -p $(dir $@)
 	$(CC) $(CFLAGS) -c -o $@ $<
 
+# Adam's loop vectorises only when sqrtf need not set errno (v >= 0 never sets it; the square root
+# is the same correctly rounded operation either way: same results bit for bit).
+$(BUILD)/nn/adam.o: CFLAGS += -fno-math-errno
+
 $(BUILD)/tests/%: tests/%.c $(BUILD)/libframelaw.a tests/testutil.h
 	@mkdir -p $(dir $@)
 	$(CC) $(CFLAGS) -o $@ $< $(BUILD)/libframelaw.a $(TESTLIBS) $(LDLIBS)
