@@ -85,6 +85,10 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet) {
     ParamSet ps;
     TrainResult res;
     rc = train_run(&o, &td, &m, &ps, &res, &st);
+    /* training is over: Ctrl-C now stops at once (export and forecast write atomically) */
+    sa.sa_handler = SIG_DFL;
+    sigaction(SIGINT, &sa, NULL);
+    sigaction(SIGTERM, &sa, NULL);
     if (rc) {
         cli_error(rc, "%s", st.msg);
     } else if (res.interrupted) {
