@@ -1,57 +1,72 @@
 /* nn/par.c: a small pool of threads for par_for (see par.h).
  *
- * Workers sleep on a condition variable between calls (no spinning: OpenBLAS's threads share the
- * same cores and spin after each product). A call publishes the job under the mutex, bumps the
- * generation and wakes every worker; worker i runs part i when the job has that many parts. */
+ * A call publishes the job (function, range, chunk count) under the mutex with a new generation,
+ * then every thread, the caller included, claims chunks in order with a compare-and-swap on a
+ * counter tagged with the generation, until none is left; the caller then waits for the chunks
+ * still running. The caller never waits for a worker to wake up: a worker that starts late finds
+ * the chunks taken and goes back to waiting, so a call costs no more than running it alone.
+ *
+ * Between calls a worker sleeps on a condition variable; it does not spin. OpenBLAS's own threads
+ * already spin on the other cores between products (sched_yield for about 0.1 s), and a second
+ * spinner there slowed the products and the caller's passes more than it saved in wake-ups. A worker
+ * woken late costs nothing: it finds the chunks taken. */
 #include "nn/par.h"
 
 #include <pthread.h>
+#include <sched.h>
+#include <stdatomic.h>
 
 #include "nn/core.h"
 
 static struct {
-    pthread_mutex_t mu, call;       /* mu guards the fields below; call serialises par_for */
-    pthread_cond_t go, done;
-    int threads;                    /* parts a call may use */
+    pthread_mutex_t mu, call;       /* mu guards the job and the counts; call serialises par_for */
+    pthread_cond_t go;
+    int threads;                    /* threads a call may use, the caller included */
     int started;                    /* workers running (ids 1..started) */
-    unsigned long gen;              /* job generation */
-    int pending;                    /* workers that have not finished the current job */
-    ParFn fn;
+    int sleeping;                   /* workers waiting on go */
+    atomic_ulong gen;               /* job generation, bumped under mu when a job is published */
+    ParFn fn;                       /* the job (under mu) */
     void *ctx;
-    long n, grain;
-    int parts;
-} pool = {PTHREAD_MUTEX_INITIALIZER, PTHREAD_MUTEX_INITIALIZER, PTHREAD_COND_INITIALIZER,
-          PTHREAD_COND_INITIALIZER, 1, 0, 0, 0, NULL, NULL, 0, 0, 0};
-
-/* Part p of n in `parts` pieces of whole grains. */
-static void part_range(long n, long grain, int parts, int p, long *lo, long *hi) {
-    long chunks = (n + grain - 1) / grain;
-    *lo = chunks * p / parts * grain;
-    *hi = p == parts - 1 ? n : chunks * (p + 1) / parts * grain;
-    if (*hi > n) *hi = n;
-}
+    long n, grain, chunks;
+    atomic_ulong claim;             /* (generation << 32) | next chunk */
+    atomic_long done;               /* chunks finished in the current job */
+} pool = {PTHREAD_MUTEX_INITIALIZER, PTHREAD_MUTEX_INITIALIZER, PTHREAD_COND_INITIALIZER, 1, 0, 0, 0, NULL, NULL,
+          0, 0, 0, 0, 0};
 
 static unsigned long start_gen[PAR_MAX_THREADS]; /* the generation current when worker i started */
+
+/* Claim and run chunks of job `gen` until none is left. */
+static void run_chunks(unsigned long gen, ParFn fn, void *ctx, long n, long grain, long chunks) {
+    unsigned long tag = (gen & 0xffffffffUL) << 32;
+    for (;;) {
+        unsigned long c = atomic_load(&pool.claim);
+        if ((c & ~0xffffffffUL) != tag || (long)(c & 0xffffffffUL) >= chunks) return;
+        if (!atomic_compare_exchange_weak(&pool.claim, &c, c + 1)) continue;
+        long i = (long)(c & 0xffffffffUL), lo = i * grain, hi = lo + grain < n ? lo + grain : n;
+        fn(ctx, lo, hi);
+        atomic_fetch_add(&pool.done, 1);
+    }
+}
 
 static void *worker(void *arg) {
     int id = (int)(long)arg;
     pthread_mutex_lock(&pool.mu);
     unsigned long seen = start_gen[id];
+    pthread_mutex_unlock(&pool.mu);
     for (;;) {
-        while (pool.gen == seen) pthread_cond_wait(&pool.go, &pool.mu);
+        pthread_mutex_lock(&pool.mu);
+        if (pool.gen == seen) {
+            pool.sleeping++;
+            while (pool.gen == seen) pthread_cond_wait(&pool.go, &pool.mu);
+            pool.sleeping--;
+        }
         seen = pool.gen;
         ParFn fn = pool.fn;
         void *ctx = pool.ctx;
-        long n = pool.n, grain = pool.grain;
-        int parts = pool.parts;
+        long n = pool.n, grain = pool.grain, chunks = pool.chunks;
+        int active = id < pool.threads;
         pthread_mutex_unlock(&pool.mu);
-        if (id < parts) {
-            long lo, hi;
-            part_range(n, grain, parts, id, &lo, &hi);
-            if (lo < hi) fn(ctx, lo, hi);
-        }
-        pthread_mutex_lock(&pool.mu);
-        if (--pool.pending == 0) pthread_cond_signal(&pool.done);
+        if (active) run_chunks(seen, fn, ctx, n, grain, chunks);
     }
     return NULL;
 }
@@ -60,14 +75,16 @@ void par_set_threads(int n) {
     if (n < 1) n = 1;
     if (n > PAR_MAX_THREADS) n = PAR_MAX_THREADS;
     pthread_mutex_lock(&pool.call);
+    pthread_mutex_lock(&pool.mu);
     pool.threads = n;
+    pthread_mutex_unlock(&pool.mu);
     pthread_mutex_unlock(&pool.call);
 }
 
 int par_threads(void) {
-    pthread_mutex_lock(&pool.call);
+    pthread_mutex_lock(&pool.mu);
     int n = pool.threads;
-    pthread_mutex_unlock(&pool.call);
+    pthread_mutex_unlock(&pool.mu);
     return n;
 }
 
@@ -75,18 +92,19 @@ void par_for(long n, long grain, ParFn fn, void *ctx) {
     if (n <= 0) return;
     if (grain < 1) grain = 1;
     long chunks = (n + grain - 1) / grain;
-    if (chunks < 2 || pthread_mutex_trylock(&pool.call) != 0) {
+    if (chunks < 2 || chunks > 0xffffffffL || pthread_mutex_trylock(&pool.call) != 0) {
         fn(ctx, 0, n);
         return;
     }
-    if (pool.threads < 2) {
+    pthread_mutex_lock(&pool.mu);
+    int threads = pool.threads;
+    if (threads < 2) {
+        pthread_mutex_unlock(&pool.mu);
         pthread_mutex_unlock(&pool.call);
         fn(ctx, 0, n);
         return;
     }
-    int parts = pool.threads < chunks ? pool.threads : (int)chunks;
-    pthread_mutex_lock(&pool.mu);
-    while (pool.started < parts - 1) { /* start the workers this call needs */
+    while (pool.started < threads - 1) { /* start the workers this call may use */
         pthread_t th;
         pthread_attr_t at;
         pthread_attr_init(&at);
@@ -97,21 +115,19 @@ void par_for(long n, long grain, ParFn fn, void *ctx) {
         if (rc) break;
         pool.started++;
     }
-    if (parts > pool.started + 1) parts = pool.started + 1;
+    unsigned long gen = pool.gen + 1;
     pool.fn = fn;
     pool.ctx = ctx;
     pool.n = n;
     pool.grain = grain;
-    pool.parts = parts;
-    pool.pending = pool.started;
-    pool.gen++;
-    if (pool.started) pthread_cond_broadcast(&pool.go);
+    pool.chunks = chunks;
+    atomic_store(&pool.done, 0);
+    atomic_store(&pool.claim, (gen & 0xffffffffUL) << 32);
+    atomic_store(&pool.gen, gen);
+    if (pool.sleeping) pthread_cond_broadcast(&pool.go);
     pthread_mutex_unlock(&pool.mu);
-    long lo, hi;
-    part_range(n, grain, parts, 0, &lo, &hi);
-    fn(ctx, lo, hi);
-    pthread_mutex_lock(&pool.mu);
-    while (pool.pending > 0) pthread_cond_wait(&pool.done, &pool.mu);
-    pthread_mutex_unlock(&pool.mu);
+    run_chunks(gen, fn, ctx, n, grain, chunks);
+    for (int k = 0; atomic_load(&pool.done) < chunks; k++) /* chunks still running elsewhere */
+        if (k > 64) sched_yield();
     pthread_mutex_unlock(&pool.call);
 }

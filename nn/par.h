@@ -1,14 +1,15 @@
 /* nn/par.h: parallel loops for the elementwise passes of a training step.
  *
- * par_for(n, grain, fn, ctx) runs fn(ctx, lo, hi) over a static partition of [0, n) into at most
- * par_threads() parts of whole grains (part p is [lo, hi) with lo, hi multiples of grain, except
- * the last hi = n); the calling thread runs part 0, pool threads the others, and par_for returns
- * when every part is done. A pass with fewer than two grains runs on the calling thread alone.
+ * par_for(n, grain, fn, ctx) splits [0, n) into chunks of `grain` (the last one shorter) and runs
+ * fn(ctx, lo, hi) once per chunk; the calling thread and up to par_threads() - 1 pool threads take
+ * the chunks in order as they come free, and par_for returns when every chunk is done. A pass with
+ * fewer than two chunks runs on the calling thread alone, as one call.
  *
- * Determinism: an elementwise pass gives the same bits for any partition. A reduction must not sum
- * across parts in arrival order: give each fixed block of the index range (not each part) its own
- * partial result and combine the blocks in index order afterwards; then the result is the same for
- * every thread count (nn/tape.c's reductions do so).
+ * Determinism: which thread runs a chunk varies from call to call, so fn must not depend on it.
+ * An elementwise pass gives the same bits anyway. A reduction must not sum across chunks in
+ * arrival order: give each fixed block of the index range its own partial result and combine the
+ * blocks in index order afterwards; then the result is the same for every thread count (nn/tape.c's
+ * reductions do so).
  *
  * The pool is process-wide, like OpenBLAS's own threads, and holds no data between calls. Its size
  * follows nn_set_threads (nn/mat.h), which sets both. A par_for called while another is running

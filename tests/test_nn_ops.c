@@ -207,6 +207,26 @@ static void test_activation_derivatives(void **state) {
     }
 }
 
+/* The exponential without a library call and the sigmoid built on it, against exp in double (common
+ * practice: a float function within 1 ulp of the correctly rounded value; the sigmoid within a few
+ * float roundings, 3e-7 relative, of 1 / (1 + e^-x)). */
+static void test_exp_and_sigmoid_accuracy(void **state) {
+    (void)state;
+    for (int i = 0; i <= 1000000; i++) {
+        float t = -87.0f * (float)i / 1e6f;
+        float got = act_exp_nonpos(t), want = (float)exp((double)t);
+        assert_true(fabsf(got - want) <= nextafterf(want, INFINITY) - want);
+    }
+    assert_true(act_exp_nonpos(0.0f) == 1.0f);
+    assert_true(act_exp_nonpos(-INFINITY) > 0 && act_exp_nonpos(-INFINITY) < 2e-38f);
+    assert_true(isnan(act_exp_nonpos(NAN)) && isnan(act_sigmoid_value(NAN)));
+    for (float x = -87.0f; x <= 80.0f; x += 1.0e-3f) {
+        double want = 1.0 / (1.0 + exp(-(double)x));
+        assert_close(act_sigmoid_value(x), want, 0, 3e-7);
+    }
+    assert_true(act_sigmoid_value(0.0f) == 0.5f && act_sigmoid_value(INFINITY) == 1.0f);
+}
+
 /* ---- the linear output layer fused with squared errors ---------------------------------------- */
 
 typedef struct {
@@ -355,6 +375,7 @@ int main(void) {
         cmocka_unit_test(test_grad_activations),
         cmocka_unit_test(test_activation_derivatives),
         cmocka_unit_test(test_reduction_values),
+        cmocka_unit_test(test_exp_and_sigmoid_accuracy),
         cmocka_unit_test(test_grad_dense_sq_err),
         cmocka_unit_test(test_ops_same_bits_any_thread_count),
     };

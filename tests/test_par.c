@@ -1,6 +1,6 @@
-/* tests/test_par.c: nn/par's parallel loop: every index runs exactly once, parts are whole grains,
- * small passes stay on the calling thread, and the pool follows the thread count (common practice:
- * a static partition covers its range exactly). */
+/* tests/test_par.c: nn/par's parallel loop: every index runs exactly once, each call is one whole
+ * chunk of `grain`, small passes stay on the calling thread as one call, and the pool follows the
+ * thread count (common practice: a chunked loop covers its range exactly). */
 #include <pthread.h>
 
 #include "nn/par.h"
@@ -8,7 +8,7 @@
 
 typedef struct {
     int *hits;      /* (n) how often each index ran */
-    long grain;
+    long grain, n;
     int calls;
     int bad_bounds;
     pthread_t caller;
@@ -20,7 +20,7 @@ static void count_range(void *ctx, long lo, long hi) {
     Count *c = ctx;
     pthread_mutex_lock(&c->mu);
     c->calls++;
-    if (lo % c->grain) c->bad_bounds++;
+    if (lo % c->grain || (hi - lo != c->grain && hi != c->n) || hi <= lo) c->bad_bounds++;
     if (!pthread_equal(pthread_self(), c->caller)) c->other_thread = 1;
     pthread_mutex_unlock(&c->mu);
     for (long i = lo; i < hi; i++) c->hits[i]++;   /* disjoint ranges: no lock needed */
@@ -36,15 +36,18 @@ static void test_every_index_once(void **state) {
         for (size_t a = 0; a < sizeof ns / sizeof ns[0]; a++)
             for (size_t g = 0; g < sizeof grains / sizeof grains[0]; g++) {
                 long n = ns[a];
-                Count c = {calloc((size_t)n + 1, sizeof(int)), grains[g], 0, 0, pthread_self(), 0,
+                Count c = {calloc((size_t)n + 1, sizeof(int)), grains[g], n, 0, 0, pthread_self(), 0,
                            PTHREAD_MUTEX_INITIALIZER};
                 par_for(n, grains[g], count_range, &c);
                 for (long i = 0; i < n; i++) assert_int_equal(c.hits[i], 1);
-                assert_int_equal(c.bad_bounds, 0);
                 long chunks = (n + grains[g] - 1) / grains[g];
-                assert_true(c.calls <= (chunks < th ? chunks : th));
-                if (chunks < 2 || th == 1) assert_false(c.other_thread); /* stays on the caller */
-                if (chunks >= 2 && th >= 2 && n > 0) assert_int_equal(c.calls, chunks < th ? chunks : th);
+                if (chunks < 2 || th == 1) { /* one call, on the caller */
+                    assert_int_equal(c.calls, n > 0 ? 1 : 0);
+                    assert_false(c.other_thread);
+                } else { /* one call per chunk, each a whole grain (the last up to n) */
+                    assert_int_equal(c.calls, chunks);
+                    assert_int_equal(c.bad_bounds, 0);
+                }
                 free(c.hits);
             }
     }
