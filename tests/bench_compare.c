@@ -37,7 +37,8 @@
  *
  * Options: --epochs N (timed epochs, default 5 for V, 7 for S), --only V|S, --no-torch,
  * --unset-coretype (a second table with OPENBLAS_CORETYPE and OPENBLAS_L2_SIZE unset for both
- * tools), --script PATH (default tests/reference/bench_torch.py), --keep (leave the data). */
+ * tools), --unset-only (that table alone), --script PATH (default tests/reference/bench_torch.py),
+ * --keep (leave the data). */
 #include <errno.h>
 #include <fcntl.h>
 #include <math.h>
@@ -363,6 +364,7 @@ static int child_main(const Workload *w, int threads, const char *store_path, co
     if (train_run(&o, &td, &m, &ps, &res, &st)) { fprintf(stderr, "bench: %s\n", st.msg); return 1; }
     long peak = vm_hwm_kb();
     printf("terms %d\n", m.lib.n_terms);
+    printf("core %s\n", nn_blas_corename());
     printf("peak_rss_kb %ld\n", peak);
     /* the epoch times from the log: the last column of each row */
     char path[4200], line[1024];
@@ -413,6 +415,7 @@ typedef struct {
     long maxrss_kb;             /* from wait4 */
     double loss0, loss1;
     char version[64];
+    char core[64];              /* framelaw: the OpenBLAS kernels the child used */
     int threads;
 } Result;
 
@@ -446,6 +449,7 @@ static void parse_result(char *out, Result *r) {
         else if (!strncmp(l, "peak_rss_kb ", 12)) r->peak_kb = atol(l + 12);
         else if (!strncmp(l, "loss ", 5)) sscanf(l + 5, "%lf %lf", &r->loss0, &r->loss1);
         else if (!strncmp(l, "torch ", 6)) snprintf(r->version, sizeof r->version, "%s", l + 6);
+        else if (!strncmp(l, "core ", 5)) snprintf(r->core, sizeof r->core, "%s", l + 5);
         else if (!strncmp(l, "threads ", 8)) r->threads = atoi(l + 8);
     }
 }
@@ -599,8 +603,10 @@ static void run_all(const Workload *wls, int n_wl, int epochs_opt, int no_torch,
 }
 
 static void print_table(const Workload *wls, int n_wl, const Runs *runs, int unset_core) {
-    printf("\n%s\n\n", unset_core ? "OPENBLAS_CORETYPE and OPENBLAS_L2_SIZE unset for both tools:"
-                                   : "OPENBLAS_CORETYPE and OPENBLAS_L2_SIZE as in the environment:");
+    printf("\n%s (OpenBLAS kernels: %s):\n\n",
+           unset_core ? "OPENBLAS_CORETYPE and OPENBLAS_L2_SIZE unset for both tools"
+                      : "OPENBLAS_CORETYPE and OPENBLAS_L2_SIZE as in the environment",
+           runs[0].fl[0].core[0] ? runs[0].fl[0].core : "?");
     printf("| workload | threads | framelaw s/epoch: median (min-max) | GFLOP/s | sgemm only: s/epoch | GFLOP/s "
            "| framelaw / sgemm | PyTorch default: s/epoch median (min-max) | PyTorch best: s/epoch (setting) "
            "| speed-up vs default / best | peak MB framelaw / PyTorch |\n");
@@ -691,9 +697,10 @@ int main(int argc, char **argv) {
         else if (!strcmp(argv[i], "--script") && i + 1 < argc) script = argv[++i];
         else if (!strcmp(argv[i], "--no-torch")) no_torch = 1;
         else if (!strcmp(argv[i], "--unset-coretype")) unset_core = 1;
+        else if (!strcmp(argv[i], "--unset-only")) unset_core = 2;
         else if (!strcmp(argv[i], "--keep")) keep = 1;
         else {
-            fprintf(stderr, "usage: bench_compare [--epochs N] [--only V|S] [--no-torch] [--unset-coretype] "
+            fprintf(stderr, "usage: bench_compare [--epochs N] [--only V|S] [--no-torch] [--unset-coretype | --unset-only] "
                             "[--script PATH] [--keep]\n");
             return 2;
         }
@@ -732,20 +739,22 @@ int main(int argc, char **argv) {
     }
     double t0 = now();
     static Runs runs[2], runs_u[2];
-    run_all(wls, n_wl, epochs, no_torch, 0, script, dir, runs);
+    if (unset_core < 2) run_all(wls, n_wl, epochs, no_torch, 0, script, dir, runs);
     if (unset_core) run_all(wls, n_wl, epochs, no_torch, 1, script, dir, runs_u);
     const char *ver = NULL;
     for (int i = 0; i < n_wl && !ver; i++)
-        for (int t = 0; t < 2 && !ver; t++)
+        for (int t = 0; t < 2 && !ver; t++) {
             if (runs[i].th[t][0].ok) ver = runs[i].th[t][0].version;
+            else if (runs_u[i].th[t][0].ok) ver = runs_u[i].th[t][0].version;
+        }
     printf("PyTorch %s via %s %s%s\n", ver ? ver : "not run", PYTHON, script,
            ver ? "" : no_torch ? " (--no-torch)" : " (python3-torch missing or the script failed)");
-    print_table(wls, n_wl, runs, 0);
+    if (unset_core < 2) print_table(wls, n_wl, runs, 0);
     if (unset_core) print_table(wls, n_wl, runs_u, 1);
     printf("\nwall time of the measurements: %.0f s\n", now() - t0);
     int fail = 0;
     for (int i = 0; i < n_wl; i++)
-        for (int t = 0; t < 2; t++) fail |= !runs[i].fl[t].ok;
+        for (int t = 0; t < 2; t++) fail |= !(unset_core < 2 ? runs : runs_u)[i].fl[t].ok;
     if (!keep) {
         char cmd[700];
         snprintf(cmd, sizeof cmd, "rm -rf '%s'", dir);
