@@ -9,25 +9,6 @@
 #include "sparse/integrate.h"
 #include "tests/testutil.h"
 
-/* Run `framelaw ARGS` with stdout and stderr captured together; returns the exit status. */
-static int run(const char *args, char *out, size_t n) {
-    char cmd[4096];
-    snprintf(cmd, sizeof cmd, "'%s' %s 2>&1", test_framelaw(), args);
-    FILE *p = popen(cmd, "r");
-    assert_non_null(p);
-    size_t len = fread(out, 1, n - 1, p);
-    out[len] = 0;
-    int status = pclose(p);
-    return WIFEXITED(status) ? WEXITSTATUS(status) : -1;
-}
-
-static void write_file(const char *path, const char *text) {
-    FILE *f = fopen(path, "w");
-    assert_non_null(f);
-    fputs(text, f);
-    fclose(f);
-}
-
 static char tmp[256];
 
 static int setup(void **state) {
@@ -47,7 +28,7 @@ static int teardown(void **state) {
 static void test_help(void **state) {
     (void)state;
     static char out[16384];
-    assert_int_equal(run("fit --help", out, sizeof out), 0);
+    assert_int_equal(test_run_capture("fit --help", out, sizeof out), 0);
     static const char *const opts[] = {"--time-column", "--rate",       "--columns",        "--order",
                                        "--library-degree", "--no-constant", "--trig",       "--multipliers",
                                        "--no-trig-velocity", "--include", "--exclude",      "--threshold",
@@ -62,7 +43,7 @@ static void test_help(void **state) {
         const char *br = strchr(at, '[');
         if (!br || br > eol) fail_msg("--help: %s shows no default", opts[i]);
     }
-    assert_int_equal(run("help", out, sizeof out), 0);
+    assert_int_equal(test_run_capture("help", out, sizeof out), 0);
     assert_non_null(strstr(out, "  fit "));
 }
 
@@ -104,7 +85,7 @@ static void test_lorenz_csv(void **state) {
     free(y);
     static char out[65536];
     snprintf(args, sizeof args, "fit '%s'", path);
-    assert_int_equal(run(args, out, sizeof out), 0);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
     assert_non_null(strstr(out, "\ndz1/dt = -10 z1 + 10 z2\n"));
     assert_non_null(strstr(out, "\ndz2/dt = 28 z1 - z2 - z1 z3\n"));
     assert_non_null(strstr(out, "\ndz3/dt = -2.667 z3 + z1 z2\n"));
@@ -113,7 +94,7 @@ static void test_lorenz_csv(void **state) {
 
     /* JSON output reloads into the same model */
     snprintf(args, sizeof args, "fit '%s' --format json --library-degree 2", path);
-    assert_int_equal(run(args, out, sizeof out), 0);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
     Library lib;
     Coef c;
     Status st;
@@ -163,11 +144,11 @@ static void test_pendulum_npy(void **state) {
     static char out[16384];
     snprintf(args, sizeof args, "fit '%s' --rate 100 --order 2 --trig --library-degree 2 --threshold 0.05 --window 9 --degree 4",
              path);
-    assert_int_equal(run(args, out, sizeof out), 0);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
     if (!strstr(out, "\nd2z1/dt2 = -0.2 dz1/dt - 4.903 sin(z1)\n")) fail_msg("output:\n%s", out);
     snprintf(args, sizeof args, "fit '%s' --rate=100 --order=2 --multipliers=1 --library-degree=1 --window=9 --degree=4 --format latex",
              path);
-    assert_int_equal(run(args, out, sizeof out), 0);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
     assert_non_null(strstr(out, "\\ddot{z}_{1} &= -0.2 \\dot{z}_{1} - 4.903 \\sin(z_{1})"));
 }
 
@@ -207,9 +188,9 @@ static void test_bad_input(void **state) {
         const Bad *b = &cases[i];
         char path[512], args[1024], want[1024];
         snprintf(path, sizeof path, "%s/%s", tmp, b->name);
-        if (b->content) write_file(path, b->content);
+        if (b->content) test_write_file(path, b->content);
         snprintf(args, sizeof args, "fit '%s' %s", path, b->args);
-        int rc = run(args, out, sizeof out);
+        int rc = test_run_capture(args, out, sizeof out);
         if (rc != 2) fail_msg("%s %s: exit %d, expected 2; output: %s", b->name, b->args, rc, out);
         if (strncmp(out, "framelaw: ", 10) || strchr(out, '\n') != out + strlen(out) - 1)
             fail_msg("%s: not one line starting 'framelaw: ': %s", b->name, out);
@@ -219,7 +200,7 @@ static void test_bad_input(void **state) {
             if (!strstr(out, want)) fail_msg("%s: message '%s' does not name the file as '%s'", b->name, out, want);
         }
     }
-    assert_int_equal(run("fit", out, sizeof out), 2);
+    assert_int_equal(test_run_capture("fit", out, sizeof out), 2);
     assert_non_null(strstr(out, "no FILE given"));
 }
 

@@ -396,13 +396,6 @@ static void test_choices_match_modules(void **state) {
     }
 }
 
-static void write_file(const char *path, const char *text) {
-    FILE *f = fopen(path, "wb");
-    assert_non_null(f);
-    fputs(text, f);
-    fclose(f);
-}
-
 static void test_load(void **state) {
     (void)state;
     char dir[512], path[700], sub[600];
@@ -414,7 +407,7 @@ static void test_load(void **state) {
 
     /* relative data.frames: against the file's folder (made absolute); output: runs/<stem> */
     snprintf(path, sizeof path, "%s/pendulum.json", sub);
-    write_file(path, "{\"data\": {\"frames\": \"../frames\"}}\n");
+    test_write_file(path, "{\"data\": {\"frames\": \"../frames\"}}\n");
     Config c;
     config_defaults(&c);
     Status st;
@@ -426,14 +419,14 @@ static void test_load(void **state) {
     assert_int_equal(config_validate(&c, &st), 0);
 
     /* an absolute data.frames and an explicit output stay as written */
-    write_file(path, "{\"data\": {\"frames\": \"/x/y\"}, \"output\": \"out/here\"}");
+    test_write_file(path, "{\"data\": {\"frames\": \"/x/y\"}, \"output\": \"out/here\"}");
     config_defaults(&c);
     assert_int_equal(config_load(&c, path, &st), 0);
     assert_string_equal(c.frames, "/x/y");
     assert_string_equal(c.output, "out/here");
 
     /* errors name the file */
-    write_file(path, "{\n\"model\": {\"encoder\": [64, -1]}\n}");
+    test_write_file(path, "{\n\"model\": {\"encoder\": [64, -1]}\n}");
     config_defaults(&c);
     assert_int_equal(config_load(&c, path, &st), ST_INPUT);
     snprintf(want, sizeof want, "%s: model.encoder[1]: must be a positive integer", path);
@@ -445,13 +438,13 @@ static void test_load(void **state) {
 
     /* the resolved config, written and loaded again, is the same config */
     snprintf(path, sizeof path, "%s/pendulum.json", sub);
-    write_file(path, FULL);
+    test_write_file(path, FULL);
     Config a, b;
     config_defaults(&a);
     assert_int_equal(config_load(&a, path, &st), 0);
     char *j = config_to_json(&a);
     snprintf(path, sizeof path, "%s/resolved.json", sub);
-    write_file(path, j);
+    test_write_file(path, j);
     config_defaults(&b);
     assert_int_equal(config_load(&b, path, &st), 0);
     assert_memory_equal(&a, &b, sizeof a);
@@ -472,7 +465,7 @@ static void test_docs(void **state) {
     (void)state;
     char *md = config_keys_markdown();
     const char *out = getenv("FRAMELAW_WRITE_KEYS");
-    if (out && *out) write_file(out, md);
+    if (out && *out) test_write_file(out, md);
     char *doc = test_slurp("docs/config.md");
     if (!doc) fail_msg("docs/config.md not found (run the tests from the project root)");
     for (int i = 0; config_key_path(i); i++) {

@@ -423,17 +423,6 @@ static void test_convection_panels(void **state) {
 
 /* ---- framelaw demo ----------------------------------------------------------------------------- */
 
-static int run(const char *args, char *out, size_t n) {
-    char cmd[4096];
-    snprintf(cmd, sizeof cmd, "'%s' %s 2>&1", test_framelaw(), args);
-    FILE *p = popen(cmd, "r");
-    assert_non_null(p);
-    size_t len = fread(out, 1, n - 1, p);
-    out[len] = 0;
-    int status = pclose(p);
-    return WIFEXITED(status) ? WEXITSTATUS(status) : -1;
-}
-
 static int exists(const char *path) {
     struct stat sb;
     return stat(path, &sb) == 0;
@@ -443,7 +432,7 @@ static int exists(const char *path) {
 static void test_cmd_help(void **state) {
     (void)state;
     static char out[16384];
-    assert_int_equal(run("demo --help", out, sizeof out), 0);
+    assert_int_equal(test_run_capture("demo --help", out, sizeof out), 0);
     assert_non_null(strstr(out, "  lantern "));
     assert_non_null(strstr(out, "  convection "));
     static const char *const opts[] = {"--size", "--recordings", "--frames", "--noise", "--seed", "--overwrite"};
@@ -455,7 +444,7 @@ static void test_cmd_help(void **state) {
         const char *br = strchr(at, '['), *next = strstr(at + 2, "  --");
         if (!br || (next && br > next)) fail_msg("--help: %s shows no default", opts[i]);
     }
-    assert_int_equal(run("help", out, sizeof out), 0);
+    assert_int_equal(test_run_capture("help", out, sizeof out), 0);
     assert_non_null(strstr(out, "  demo "));
 }
 
@@ -466,7 +455,7 @@ static void test_cmd_files(void **state) {
     static char out[16384];
     assert_non_null(test_tmpdir(dir, sizeof dir));
     snprintf(args, sizeof args, "demo lantern '%s/l' --size 21 --recordings 2 --frames 4 --seed 5", dir);
-    assert_int_equal(run(args, out, sizeof out), 0);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
     for (int k = 0; k < 2; k++) {
         for (int f = 0; f < 4; f++) {
             snprintf(path, sizeof path, "%s/l/rec%02d/frame%06d.png", dir, k, f);
@@ -501,7 +490,7 @@ static void test_cmd_files(void **state) {
     assert_false(exists(path));
 
     snprintf(args, sizeof args, "demo convection '%s/c' --size 8 --recordings 1 --frames 3 --noise 0", dir);
-    assert_int_equal(run(args, out, sizeof out), 0);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
     snprintf(path, sizeof path, "%s/c/rec00/frame000002.png", dir);
     int w, h;
     Status st;
@@ -527,7 +516,7 @@ static void test_cmd_bad_input(void **state) {
     static char out[16384];
     assert_non_null(test_tmpdir(dir, sizeof dir));
     snprintf(args, sizeof args, "demo pendulum '%s/x'", dir);
-    assert_int_equal(run(args, out, sizeof out), 2);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 2);
     assert_non_null(strstr(out, "unknown scenario 'pendulum'"));
     assert_non_null(strstr(out, "lantern"));
     assert_non_null(strstr(out, "convection"));
@@ -535,17 +524,17 @@ static void test_cmd_bad_input(void **state) {
     assert_false(exists(path));
 
     snprintf(args, sizeof args, "demo lantern '%s/o' --size 16 --recordings 3 --frames 2", dir);
-    assert_int_equal(run(args, out, sizeof out), 0);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
     snprintf(path, sizeof path, "%s/o/notes.txt", dir);
     FILE *f = fopen(path, "w");
     assert_non_null(f);
     fputs("mine\n", f);
     fclose(f);
-    assert_int_equal(run(args, out, sizeof out), 2);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 2);
     assert_non_null(strstr(out, "not empty"));
     assert_non_null(strstr(out, "--overwrite"));
     snprintf(args, sizeof args, "demo lantern '%s/o' --size 16 --recordings 2 --frames 2 --overwrite", dir);
-    assert_int_equal(run(args, out, sizeof out), 0);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
     snprintf(path, sizeof path, "%s/o/rec02", dir);
     assert_false(exists(path));   /* the earlier third recording is gone */
     snprintf(path, sizeof path, "%s/o/rec01/frame000001.png", dir);
@@ -557,12 +546,12 @@ static void test_cmd_bad_input(void **state) {
                                       "--colour 1", "--size"};
     for (size_t i = 0; i < sizeof bad / sizeof *bad; i++) {
         snprintf(args, sizeof args, "demo lantern '%s/b' %s", dir, bad[i]);
-        if (run(args, out, sizeof out) != 2) fail_msg("'%s' did not exit 2: %s", bad[i], out);
+        if (test_run_capture(args, out, sizeof out) != 2) fail_msg("'%s' did not exit 2: %s", bad[i], out);
         assert_non_null(strstr(out, "framelaw: demo: "));
     }
-    assert_int_equal(run("demo lantern", out, sizeof out), 2);
+    assert_int_equal(test_run_capture("demo lantern", out, sizeof out), 2);
     snprintf(args, sizeof args, "demo lantern '%s/o/notes.txt'", dir);
-    assert_int_equal(run(args, out, sizeof out), 2);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 2);
     assert_non_null(strstr(out, "not a folder"));
     test_rmtree(dir);
 }

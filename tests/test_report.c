@@ -15,25 +15,6 @@
 #include "sparse/library.h"
 #include "tests/testutil.h"
 
-/* Run `framelaw ARGS` with stdout and stderr captured together; returns the exit status. */
-static int run(const char *args, char *out, size_t n) {
-    char cmd[8192];
-    snprintf(cmd, sizeof cmd, "'%s' %s 2>&1", test_framelaw(), args);
-    FILE *p = popen(cmd, "r");
-    assert_non_null(p);
-    size_t len = fread(out, 1, n - 1, p);
-    out[len] = 0;
-    int status = pclose(p);
-    return WIFEXITED(status) ? WEXITSTATUS(status) : -1;
-}
-
-static void write_file(const char *path, const char *text) {
-    FILE *f = fopen(path, "w");
-    if (!f) fail_msg("cannot write %s", path);
-    fputs(text, f);
-    fclose(f);
-}
-
 static char *read_all(const char *path, long *len) {
     FILE *f = fopen(path, "rb");
     if (!f) return NULL;
@@ -94,11 +75,11 @@ static void write_equations(const char *dir) {
     char *json = equation_json_string(&lib, xi, NULL, 4);
     char p[1024];
     path_of(p, dir, "equations.txt");
-    write_file(p, eq_text);
+    test_write_file(p, eq_text);
     path_of(p, dir, "equations.tex");
-    write_file(p, eq_tex);
+    test_write_file(p, eq_tex);
     path_of(p, dir, "equations.json");
-    write_file(p, json);
+    test_write_file(p, json);
     free(json);
     free(xi);
     library_free(&lib);
@@ -119,7 +100,7 @@ static void write_minimal_run(const char *dir) {
     char *json = config_to_json(c);
     char p[1024];
     path_of(p, dir, "config.json");
-    write_file(p, json);
+    test_write_file(p, json);
     free(json);
     free(c);
 
@@ -169,9 +150,9 @@ static void write_full_run(const char *dir) {
     }
     fclose(f);
     path_of(p, dir, "region.json");
-    write_file(p, "{\"z_min\": [-1, -0.5], \"z_max\": [1, 0.5], \"dz_min\": [-2, -0.5], \"dz_max\": [2, 0.5]}\n");
+    test_write_file(p, "{\"z_min\": [-1, -0.5], \"z_max\": [1, 0.5], \"dz_min\": [-2, -0.5], \"dz_max\": [2, 0.5]}\n");
     path_of(p, dir, "forecast.json");
-    write_file(p, "{\"format\": \"framelaw-forecast\", \"version\": 1, \"bound\": 0.1, \"recordings\": [\n"
+    test_write_file(p, "{\"format\": \"framelaw-forecast\", \"version\": 1, \"bound\": 0.1, \"recordings\": [\n"
                   " {\"name\": \"rec4\", \"frames\": 120, \"duration\": 3.97, \"method\": \"dopri5\",\n"
                   "  \"mean_error\": 0.031, \"final_error\": 0.152, \"max_error\": 0.16,\n"
                   "  \"exceeds_bound_at\": 3.1, \"latent_mean_error\": 0.01, \"latent_exceeds_bound_at\": null,\n"
@@ -250,7 +231,7 @@ static void test_full_run(void **state) {
     path_of(dir, tmp, "full");
     write_full_run(dir);
     snprintf(cmd, sizeof cmd, "report '%s'", dir);
-    if (run(cmd, out, sizeof out) != 0) fail_msg("report failed: %s", out);
+    if (test_run_capture(cmd, out, sizeof out) != 0) fail_msg("report failed: %s", out);
     assert_non_null(strstr(out, "report.html"));
     path_of(page, dir, "report.html");
     long len;
@@ -323,7 +304,7 @@ static void test_missing_sections(void **state) {
     path_of(dir, tmp, "young");
     write_minimal_run(dir);
     snprintf(cmd, sizeof cmd, "report '%s'", dir);
-    if (run(cmd, out, sizeof out) != 0) fail_msg("report failed: %s", out);
+    if (test_run_capture(cmd, out, sizeof out) != 0) fail_msg("report failed: %s", out);
     path_of(page, dir, "report.html");
     char *html = read_all(page, NULL);
     assert_non_null(html);
@@ -341,14 +322,14 @@ static void test_missing_sections(void **state) {
     char other[1024];
     path_of(other, tmp, "elsewhere.html");
     if (snprintf(cmd, sizeof cmd, "report '%s' --output '%s'", dir, other) >= (int)sizeof cmd) fail_msg("too long");
-    if (run(cmd, out, sizeof out) != 0) fail_msg("report --output failed: %s", out);
+    if (test_run_capture(cmd, out, sizeof out) != 0) fail_msg("report --output failed: %s", out);
     assert_int_equal(access(other, R_OK), 0);
 }
 
 /* Exit status 2 and a one-line message naming what is missing or wrong; no page left behind. */
 static void expect_bad(const char *args, const char *msg) {
     static char out[16384];
-    int rc = run(args, out, sizeof out);
+    int rc = test_run_capture(args, out, sizeof out);
     if (rc != 2) fail_msg("framelaw %s: exit %d, expected 2: %s", args, rc, out);
     if (!strstr(out, msg)) fail_msg("framelaw %s: message \"%s\" lacks \"%s\"", args, out, msg);
     assert_int_equal(count(out, "\n"), 1);
@@ -373,11 +354,11 @@ static void test_bad_input(void **state) {
     char broken[4096];
     snprintf(broken, sizeof broken, "%.*s", (int)(strchr(strchr(log, '\n') + 1, '\n') - log + 1), log);
     strcat(broken, "2,train,0.001,oops,1,1,1,1,14,,0.1,0.05\n");
-    write_file(p, broken);
+    test_write_file(p, broken);
     expect_bad(cmd, "log.csv:3: field 4 (loss) \"oops\" is not a number");
-    write_file(p, "when,what\n1,2\n");
+    test_write_file(p, "when,what\n1,2\n");
     expect_bad(cmd, "log.csv: no column \"epoch\"");
-    write_file(p, log);
+    test_write_file(p, log);
     free(log);
 
     /* files from a newer format version */
@@ -388,14 +369,14 @@ static void test_bad_input(void **state) {
     assert_non_null(v);
     char *digit = v + strcspn(v, "0123456789");
     *digit = '2';
-    write_file(p, eq);
+    test_write_file(p, eq);
     expect_bad(cmd, "equations.json: format version 2 is newer than this program reads");
     unlink(p);
     free(eq);
     path_of(p, dir, "forecast.json");
-    write_file(p, "{\"format\": \"framelaw-forecast\", \"version\": 3, \"bound\": 0.1, \"recordings\": []}");
+    test_write_file(p, "{\"format\": \"framelaw-forecast\", \"version\": 3, \"bound\": 0.1, \"recordings\": []}");
     expect_bad(cmd, "forecast.json: format version 3 is newer");
-    write_file(p, "{\"format\": \"framelaw-forecast\", \"version\": 1, \"bound\": 0.1, \"recordi");
+    test_write_file(p, "{\"format\": \"framelaw-forecast\", \"version\": 1, \"bound\": 0.1, \"recordi");
     expect_bad(cmd, "forecast.json: not a JSON object");
     path_of(p, dir, "report.html");
     assert_int_not_equal(access(p, F_OK), 0);
@@ -442,7 +423,7 @@ static void test_browser(void **state) {
     path_of(dir, tmp, "browse");
     write_full_run(dir);
     snprintf(cmd, sizeof cmd, "report '%s'", dir);
-    if (run(cmd, out, sizeof out) != 0) fail_msg("report failed: %s", out);
+    if (test_run_capture(cmd, out, sizeof out) != 0) fail_msg("report failed: %s", out);
     char abs[1024];
     if (!realpath(dir, abs)) fail_msg("realpath %s", dir);
     snprintf(page, sizeof page, "%s/report.html", abs);

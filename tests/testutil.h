@@ -12,6 +12,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/wait.h>
 
 /* Fail with both values and the tolerance when |a - b| > atol + rtol |b|. */
 #define assert_close(a, b, atol, rtol)                                                          \
@@ -44,6 +45,14 @@ static inline char *test_slurp(const char *path) {
     return b;
 }
 
+/* Write text to a file (created or replaced); fails the test when it cannot. */
+static inline void test_write_file(const char *path, const char *text) {
+    FILE *f = fopen(path, "w");
+    if (!f) fail_msg("cannot write %s", path);
+    fputs(text, f);
+    fclose(f);
+}
+
 /* Remove a test's temporary directory and everything in it. */
 static inline void test_rmtree(const char *dir) {
     char cmd[4200];
@@ -55,6 +64,19 @@ static inline void test_rmtree(const char *dir) {
 static inline const char *test_framelaw(void) {
     const char *p = getenv("FRAMELAW");
     return p && *p ? p : "./framelaw";
+}
+
+/* Run `framelaw ARGS` (the binary under test) with stdout and stderr captured together into out (n);
+ * returns the exit status, or -1 when it did not exit normally. */
+static inline int test_run_capture(const char *args, char *out, size_t n) {
+    char cmd[8192];
+    snprintf(cmd, sizeof cmd, "'%s' %s 2>&1", test_framelaw(), args);
+    FILE *p = popen(cmd, "r");
+    assert_non_null(p);
+    size_t len = fread(out, 1, n - 1, p);
+    out[len] = 0;
+    int status = pclose(p);
+    return WIFEXITED(status) ? WEXITSTATUS(status) : -1;
 }
 
 #endif
