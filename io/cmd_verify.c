@@ -88,7 +88,9 @@ static int verify_lantern(LoadedRun *r, const cJSON *demo, Checks *c, Status *st
     lantern_render(&cam, 120 * M_PI / 180, NULL, px);
     encode_pixels(r, px, x, z);
     double y1[2] = {z[0], 0};
-    if (verify_period(learned_ode_rhs, &lo, 2, y1, 0, 10 * t_big, h, &period, &s2) == 0)
+    /* the first swing's period: damping shortens later swings (the true law with c = 0.1 gives 1.907 s
+     * this way, 2.1% under the undamped formula, but 1.65 s as a mean over ten swings) */
+    if (verify_swing_period(learned_ode_rhs, &lo, 2, y1, 0, 2 * t_big, h, &period, &s2) == 0)
         check(c, "120-degree period", period, t_big, 0.05, "s");
     else
         fail_check(c, "120-degree period", t_big, 0.05, "s", s2.msg);

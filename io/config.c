@@ -130,10 +130,20 @@ static const KeyDef keys[] = {
            "widths of the decoder's hidden layers; null = the encoder's reversed"),
     K_STR("model.activation", activation, "\"sigmoid\"", "sigmoid|tanh|softplus|silu",
           "activation of the hidden layers (the output layers are linear)"),
-    K_STR("model.init", init, "\"glorot\"", "glorot|pca",
+    K_STR("model.init", init, "\"glorot\"", "glorot|pca|isomap",
           "glorot: uniform weights, zero biases; pca: in addition, the encoder's first layer projects on the "
           "leading principal directions of the training frames (whitened) and the decoder starts at the mean "
-          "frame"),
+          "frame; isomap: pca, then the encoder is fitted to an Isomap embedding of the training frames (and "
+          "the decoder to its inverse), so that the latent starts along the frames' manifold"),
+    K_STR("model.derivatives", derivatives, "\"frames\"", "frames|latent",
+          "frames: z' (and z'') by carrying the frames' stencil derivatives x' (x'') through the encoder; "
+          "latent: by the same stencil (data.derivative) applied to the codes of the frames around each "
+          "sample, robust when the picture changes a lot from one frame to the next (loss.dx is then not "
+          "used)"),
+    K_INT("model.init_epochs", init_epochs, "200", 1, NOMAX, NULL,
+          "isomap: epochs over the embedded frames that fit the encoder and decoder to the embedding"),
+    K_INT("model.init_frames", init_frames, "2000", 16, 20000, NULL,
+          "isomap: training frames embedded (evenly spaced; the cost grows as the square)"),
     /* library */
     K_INT("library.degree", lib_degree, "3", 0, LIB_MAX_DEGREE, NULL,
           "highest total degree of the polynomial terms"),

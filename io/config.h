@@ -45,6 +45,9 @@ typedef struct {
     int decoder[CFG_MAX_LIST];
     char activation[16];            /* model.activation: sigmoid | tanh | softplus | silu     [sigmoid] */
     char init[16];                  /* model.init: "glorot"                                    [glorot] */
+    char derivatives[16];           /* model.derivatives: "frames" | "latent"                 [frames] */
+    long init_epochs;               /* model.init_epochs: isomap fitting epochs                   [200] */
+    long init_frames;               /* model.init_frames: frames embedded by isomap              [2000] */
     /* library */
     int lib_degree;                 /* library.degree                                               [3] */
     int lib_constant;               /* library.constant                                          [true] */

@@ -277,6 +277,29 @@ void dataset_gather(const Dataset *ds, SplitId split, const int *idx, int B, flo
     par_for(B, 32, gather_range, &j);
 }
 
+typedef struct {
+    const Dataset *ds;
+    SplitId split;
+    const int *idx;
+    int B;
+    float *x;
+} WindowJob;
+
+static void window_range(void *ctx, long lo, long hi) {
+    const WindowJob *j = ctx;
+    long n = j->ds->n;
+    int m = j->ds->sten.m;
+    for (long b = lo; b < hi; b++) {
+        long f = j->ds->samples[j->split][j->idx[b]];
+        for (int k = 0; k <= 2 * m; k++) dataset_frame(j->ds, f - m + k, j->x + ((long)k * j->B + b) * n);
+    }
+}
+
+void dataset_gather_window(const Dataset *ds, SplitId split, const int *idx, int B, float *x) {
+    WindowJob j = {ds, split, idx, B, x};
+    par_for(B, 32, window_range, &j);
+}
+
 int dataset_recording_of(const Dataset *ds, long frame) {
     int lo = 0, hi = ds->fs->n_rec - 1;
     while (lo < hi) {

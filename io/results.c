@@ -49,6 +49,7 @@ int loaded_run_open(LoadedRun *r, const char *run_dir, Status *st) {
         loaded_run_close(r);
         return st->code;
     }
+    if (!strcmp(r->cfg.derivatives, "latent")) model_set_window(&r->m, &r->data.ds.sten, r->data.ds.dt);
     coef_from_float(&r->coef, params_val(&r->ps, r->m.xi).d, r->m.mask);
     tape_init(&r->tape, 256, (size_t)16 << 20);
     r->have_tape = 1;
@@ -70,11 +71,19 @@ static void file_stem(const char *name, char *out, size_t n) {
     out[k] = 0;
 }
 
-/* Encode frames (B) with their derivatives: z (k B, d) for k blocks (1: z only). */
+/* Blocks of frame-sized rows that encode_frames needs in X for k output blocks. */
+static int x_blocks(const LoadedRun *r, int k) { return r->m.win && k > 1 ? r->m.win : k; }
+
+/* Encode frames (B) with their derivatives: z (k B, d) for k blocks (1: z only). X holds
+ * x_blocks(r, k) * B rows. */
 static void encode_frames(LoadedRun *r, const long *frames, int B, int k, float *X, float *z) {
     long n = r->data.ds.n;
     if (k == 1) /* any frame, edges included: no stencil */
         for (int b = 0; b < B; b++) dataset_frame(&r->data.ds, frames[b], X + (long)b * n);
+    else if (r->m.win) /* derivatives in latent space: the stencil's frames */
+        for (int j = 0; j < r->m.win; j++)
+            for (int b = 0; b < B; b++)
+                dataset_frame(&r->data.ds, frames[b] - r->m.win / 2 + j, X + ((long)j * B + b) * n);
     else
         dataset_gather_frames(&r->data.ds, frames, B, X, X + (long)B * n, k >= 3 ? X + 2L * B * n : NULL);
     tape_reset(&r->tape);
@@ -109,7 +118,8 @@ int results_region(LoadedRun *r, Region *reg, Status *st) {
     for (int i = 0; i < order * d; i++) reg->zmin[i] = INFINITY, reg->zmax[i] = -INFINITY;
     const Dataset *ds = &r->data.ds;
     long n = ds->n;
-    float *X = nn_alloc((size_t)k * CHUNK * n * sizeof(float)), *z = nn_alloc((size_t)k * CHUNK * d * sizeof(float));
+    float *X = nn_alloc((size_t)x_blocks(r, k) * CHUNK * n * sizeof(float));
+    float *z = nn_alloc((size_t)k * CHUNK * d * sizeof(float));
     long total = ds->count[SPLIT_TRAIN];
     for (long s = 0; s < total; s += CHUNK) {
         int B = (int)(total - s < CHUNK ? total - s : CHUNK);
@@ -187,7 +197,8 @@ static int write_trajectory(LoadedRun *r, int rec, Status *st) {
     if (n_rows <= 0) return 0;
     int cols = trajectory_cols(r);
     double *out = nn_alloc((size_t)n_rows * cols * sizeof(double)); /* (n_rows, cols) */
-    float *X = nn_alloc((size_t)k * CHUNK * ds->n * sizeof(float)), *z = nn_alloc((size_t)k * CHUNK * d * sizeof(float));
+    float *X = nn_alloc((size_t)x_blocks(r, k) * CHUNK * ds->n * sizeof(float));
+    float *z = nn_alloc((size_t)k * CHUNK * d * sizeof(float));
     long frames[CHUNK];
     double s[LIB_MAX_VARS], pred[LIB_MAX_VARS], *theta = nn_alloc((size_t)r->m.lib.n_terms * sizeof(double));
     for (long i0 = 0; i0 < n_rows; i0 += CHUNK) {
@@ -322,7 +333,8 @@ static int forecast_recording(LoadedRun *r, int rec, const Region *reg, FcResult
     if (n_out < 2) return status_set(st, ST_INPUT, "recording %s: too short to forecast", sr->name);
     /* initial state: encode the first frame with a full stencil (and its derivative) */
     int k0 = order + 1;
-    float *X = nn_alloc((size_t)k0 * CHUNK * n * sizeof(float)), *zb = nn_alloc((size_t)k0 * CHUNK * d * sizeof(float));
+    float *X = nn_alloc((size_t)x_blocks(r, k0) * CHUNK * n * sizeof(float));
+    float *zb = nn_alloc((size_t)k0 * CHUNK * d * sizeof(float));
     encode_frames(r, &f0, 1, k0, X, zb);
     double y0[LIB_MAX_VARS];
     for (int i = 0; i < nv; i++) y0[i] = zb[i]; /* rows z, z' of the one sample */

@@ -10,6 +10,10 @@ static int gather(void *ctx, int split, const int64_t *idx, int B, float *X, Sta
     if (B > d->batch) return status_set(st, ST_RUNTIME, "gather: batch of %d exceeds %d", B, d->batch);
     for (int i = 0; i < B; i++) d->idx[i] = (int)idx[i];
     long n = d->ds.n;
+    if (d->td.sten) {
+        dataset_gather_window(&d->ds, split ? SPLIT_VAL : SPLIT_TRAIN, d->idx, B, X);
+        return 0;
+    }
     dataset_gather(&d->ds, split ? SPLIT_VAL : SPLIT_TRAIN, d->idx, B, X, X + (long)B * n,
                    d->k == 3 ? X + 2L * B * n : NULL);
     return 0;
@@ -34,7 +38,8 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     d->have_store = 1;
     if (dataset_init(&d->ds, &d->store, &s, st)) return st->code;
     d->have_ds = 1;
-    d->k = c->order + 1;
+    int latent = !strcmp(c->derivatives, "latent");
+    d->k = latent ? 2 * d->ds.sten.m + 1 : c->order + 1;
     d->batch = c->batch > 0 ? c->batch : 1;
     d->idx = malloc((size_t)d->batch * sizeof(int));
     if (!d->idx) return status_set(st, ST_RUNTIME, "out of memory");
@@ -44,6 +49,7 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     td->n_train = d->ds.count[SPLIT_TRAIN];
     td->n_val = d->ds.count[SPLIT_VAL];
     td->dt = d->ds.dt;
+    td->sten = latent ? &d->ds.sten : NULL;
     td->gather = gather;
     td->ctx = d;
     return 0;

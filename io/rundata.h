@@ -15,7 +15,7 @@ typedef struct {
     FrameStore store;
     Dataset ds;
     TrainData td;       /* gather over ds for the epoch loop */
-    int k;              /* stacked blocks: model order + 1 */
+    int k;              /* stacked blocks: model order + 1, or the stencil's length (model.derivatives latent) */
     int *idx;           /* (batch) work for the gather */
     int batch;
     int have_scan, have_store, have_ds;

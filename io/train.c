@@ -15,6 +15,7 @@
 #include "io/checkpoint.h"
 #include "nn/adam.h"
 #include "nn/mat.h"
+#include "nn/isomap.h"
 #include "nn/pca.h"
 #include "sparse/thresh_lsq.h"
 
@@ -407,6 +408,81 @@ static int pca_init(Run *r, const TrainData *ds, float *X, int Bmax, Status *st)
     return rc;
 }
 
+/* ---- model.init = isomap ----------------------------------------------------------------------- */
+
+/* After the PCA start: embed up to model.init_frames training frames (evenly spaced) by Isomap in
+ * as many dimensions as the latent has, then fit the encoder to that embedding (x -> y) and the
+ * decoder to its inverse (y -> x) by Adam for model.init_epochs epochs over those frames. The
+ * embedding follows the manifold the frames lie on, so the latent starts as a coordinate along it
+ * instead of a fold of it. Adam's moments and step count are reset afterwards: training proper
+ * starts fresh from these weights. Deterministic. */
+static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, int quiet, AdamCfg ad, Status *st) {
+    Model *m = r->m;
+    ParamSet *ps = r->ps;
+    long n = ds->n_in, N = ds->n_train < r->cfg->init_frames ? ds->n_train : r->cfg->init_frames;
+    int d = m->n_latent;
+    float *F = malloc((size_t)N * n * sizeof *F), *Yf = malloc((size_t)N * d * sizeof *Yf);
+    double *Y = malloc((size_t)N * d * sizeof *Y);
+    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
+    int rc = 0, k_used = 0;
+    double t0 = now_seconds();
+    if (!F || !Yf || !Y || !idx) {
+        rc = status_set(st, ST_RUNTIME, "out of memory");
+        goto done;
+    }
+    for (long s0 = 0; s0 < N; s0 += Bmax) {
+        int B = (int)(N - s0 < Bmax ? N - s0 : Bmax);
+        for (int i = 0; i < B; i++) idx[i] = (int64_t)((s0 + i) * ds->n_train / N);
+        if ((rc = ds->gather(ds->ctx, 0, idx, B, X, st))) goto done;
+        memcpy(F + s0 * n, X, (size_t)B * n * sizeof *F); /* the primal rows: the first block */
+    }
+    if (!quiet) fprintf(stderr, "framelaw: isomap of %ld frames in %d dimension%s...", N, d, d > 1 ? "s" : "");
+    if ((rc = isomap_embed(F, N, n, d, 0, Y, &k_used, st))) {
+        if (!quiet) fprintf(stderr, "\n");
+        status_set(st, st->code, "model.init isomap: %s (model.init pca avoids it)", st->msg);
+        goto done;
+    }
+    for (long i = 0; i < N * d; i++) Yf[i] = (float)Y[i];
+    double var = 0; /* per-value variance of the embedded frames: the decoder term's scale */
+    for (long j = 0; j < n; j++) {
+        double s = 0, q = 0;
+        for (long i = 0; i < N; i++) s += F[i * n + j], q += (double)F[i * n + j] * F[i * n + j];
+        var += q / N - (s / N) * (s / N);
+    }
+    var /= (double)n;
+    float wdec = (float)(var > 1e-20 ? 1.0 / var : 1.0);
+    if (!quiet) fprintf(stderr, " %d neighbours, %.1f s; fitting the autoencoder to it...", k_used, now_seconds() - t0);
+    Tape t;
+    tape_init(&t, 64, (size_t)16 << 20);
+    long nb = (N + Bmax - 1) / Bmax;
+    double last = 0;
+    for (long e = 0; e < r->cfg->init_epochs; e++) {
+        double acc = 0;
+        for (long b = 0; b < nb; b++) {
+            long s0 = b * Bmax;
+            int B = (int)(N - s0 < Bmax ? N - s0 : Bmax);
+            tape_reset(&t);
+            params_zero_grad(ps);
+            Node *x = nn_input(&t, F + s0 * n, B, (int)n), *y = nn_input(&t, Yf + s0 * d, B, d);
+            Node *le = nn_mean_sq(&t, nn_sub(&t, mlp_forward(&t, &m->enc, ps, x, 1), y));
+            Node *ld = nn_mean_sq(&t, nn_sub(&t, mlp_forward(&t, &m->dec, ps, y, 1), x));
+            Node *loss = nn_add(&t, le, nn_scale(&t, ld, wdec));
+            tape_backward(&t, loss);
+            adam_step(ps, &ad);
+            acc += loss->val.d[0] * B;
+        }
+        last = acc / (double)N;
+    }
+    tape_free(&t);
+    memset(ps->m, 0, (size_t)ps->n * sizeof *ps->m);
+    memset(ps->v, 0, (size_t)ps->n * sizeof *ps->v);
+    ps->step = 0;
+    if (!quiet) fprintf(stderr, " loss %.3g, %.1f s\n", last, now_seconds() - t0);
+done:
+    free(F), free(Yf), free(Y), free(idx);
+    return rc;
+}
+
 /* ---- set-up ---------------------------------------------------------------------------------- */
 
 static int setup(Run *r, const Config *cfg, const TrainData *ds, const char *run_dir, Model *m, ParamSet *ps,
@@ -427,6 +503,7 @@ static int setup(Run *r, const Config *cfg, const TrainData *ds, const char *run
         return status_set(st, ST_INPUT, "library has %d terms but the training set only %ld samples", m->lib.n_terms,
                           ds->n_train);
     }
+    if (ds->sten) model_set_window(m, ds->sten, ds->dt);
     rng_seed(&r->meta.rng, cfg->seed);
     model_init_params(m, ps, &r->meta.rng);
     r->order = nn_alloc((size_t)(ds->n_train > 0 ? ds->n_train : 1) * sizeof(int64_t));
@@ -460,7 +537,10 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     int rc = setup(&r, c, ds, o->run_dir, m, ps, st);
     if (rc) { nn_free(r.order); return rc; }
     if (ds->n_train < 1) { nn_free(r.order); return status_set(st, ST_INPUT, "the training set is empty"); }
-    if (ds->k != m->order + 1) { nn_free(r.order); return status_set(st, ST_INPUT, "dataset gives %d blocks, model needs %d", ds->k, m->order + 1); }
+    if (ds->k != (m->win ? m->win : m->order + 1)) {
+        nn_free(r.order);
+        return status_set(st, ST_INPUT, "dataset gives %d blocks, model needs %d", ds->k, m->win ? m->win : m->order + 1);
+    }
     char log_path[4200];
     snprintf(log_path, sizeof log_path, "%s/log.csv", o->run_dir);
     if (ensure_dir(o->run_dir, st) || ensure_dir(r.ckpt_dir, st)) { nn_free(r.order); return st->code; }
@@ -479,7 +559,11 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     int B = c->batch < ds->n_train ? c->batch : (int)ds->n_train;
     long n_batches = (ds->n_train + B - 1) / B;
     float *X = nn_alloc((size_t)ds->k * B * ds->n_in * sizeof(float)); /* (k B, n_in) */
-    if (ps->step == 0 && !strcmp(c->init, "pca") && (rc = pca_init(&r, ds, X, B, st))) { /* a fresh model */
+    int fresh = ps->step == 0, use_pca = !strcmp(c->init, "pca") || !strcmp(c->init, "isomap");
+    if (fresh && ((use_pca && (rc = pca_init(&r, ds, X, B, st))) ||
+                  (!strcmp(c->init, "isomap") &&
+                   (rc = isomap_init(&r, ds, X, B, o->quiet, (AdamCfg){(float)c->lr, (float)c->beta1, (float)c->beta2,
+                                                                        (float)c->eps}, st))))) { /* a fresh model */
         fclose(log);
         nn_free(X);
         nn_free(r.order);

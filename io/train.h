@@ -18,7 +18,8 @@
 #include "sparse/model.h"
 
 /* Where batches come from. X (k B, n_in): rows [0, B) x, [B, 2B) x', [2B, 3B) x'' of the samples
- * idx (B) of a split (0 training, 1 validation). k = model order + 1. */
+ * idx (B) of a split (0 training, 1 validation). k = model order + 1; or, with sten set, the
+ * 2m+1 frames of the stencil around each sample (k = 2m+1). */
 typedef struct {
     int n_in;
     int k;
@@ -26,6 +27,8 @@ typedef struct {
     double dt;              /* seconds between samples */
     int (*gather)(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st);
     void *ctx;
+    const Stencil *sten;    /* non-NULL: derivatives in latent space; the gather gives the stencil's
+                             * 2m+1 frames around each sample as k = 2m+1 blocks */
 } TrainData;
 
 typedef struct {

@@ -73,14 +73,81 @@ static Node *ratio(Tape *t, Node *a, Node *b) {
     return c;
 }
 
+void model_set_window(Model *m, const Stencil *s, double dt) {
+    memset(m->lw1, 0, sizeof m->lw1);
+    memset(m->lw2, 0, sizeof m->lw2);
+    m->win = s ? 2 * s->m + 1 : 0;
+    for (int j = 0; j < m->win; j++) m->lw1[j] = (float)(s->w1[j] / dt), m->lw2[j] = (float)(s->w2[j] / (dt * dt));
+}
+
+/* window: c (B, d) = sum_j w_j a[j B + b] over the win blocks of a (win B, d); backward
+ * da[j B + b] += w_j dc[b]. ctx: the weights (win floats, owned by the model). */
+static void window_backward(Tape *t, Node *c) {
+    (void)t;
+    Node *a = c->in[0];
+    if (!a->grad) return;
+    const float *w = c->ctx;
+    long n = (long)c->val.rows * c->val.cols, win = a->val.rows / c->val.rows;
+    for (long j = 0; j < win; j++)
+        for (long i = 0; i < n; i++) a->grad[j * n + i] += w[j] * c->grad[i];
+}
+
+static const CustomOp WINDOW_OP = {"window", window_backward};
+
+static Node *window(Tape *t, Node *a, const float *w, int win) {
+    int B = a->val.rows / win, d = a->val.cols;
+    Node *c = nn_custom(t, &WINDOW_OP, (void *)w, &a, 1, B, d);
+    long n = (long)B * d;
+    for (long i = 0; i < n; i++) {
+        float acc = 0;
+        for (long j = 0; j < win; j++) acc += w[j] * a->val.d[j * n + i];
+        c->val.d[i] = acc;
+    }
+    return c;
+}
+
 static Node *weighted(Tape *t, Node *acc, Node *term, float w) {
     if (w == 0.0f) return acc;
     Node *x = w == 1.0f ? term : nn_scale(t, term, w);
     return acc ? nn_add(t, acc, x) : x;
 }
 
+/* The loss with derivatives in latent space (model_set_window). */
+static Node *model_loss_window(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const LossWeights *w,
+                               LossParts *parts) {
+    int win = m->win, c = win / 2;
+    Node *x = nn_input(t, X, win * B, m->n_in);                 /* (win B, n_in) */
+    Node *za = mlp_forward(t, &m->enc, ps, x, 1);               /* (win B, d) codes of every frame */
+    Node *z0 = nn_rows(t, za, c * B, B);                        /* the centre frame's */
+    Node *z1 = m->order == 2 ? window(t, za, m->lw1, win) : NULL;
+    Node *zt = window(t, za, m->order == 2 ? m->lw2 : m->lw1, win); /* z'' or z' */
+    Node *s = m->order == 1 ? z0 : nn_hstack(t, z0, z1);
+    Node *theta = library_op(t, &m->lib, s);
+    Node *xi = nn_mul(t, nn_param(t, ps, m->xi), nn_input(t, m->maskf, m->lib.n_terms, m->n_latent));
+    Node *pred = nn_matmul(t, theta, xi, 0, 0);
+    int L = m->dec.n_layers - 1, blocks[1] = {0};
+    float wx[1] = {w->rec};
+    Node *hd = mlp_forward_hidden(t, &m->dec, ps, z0, 1, L);
+    Node *xc = nn_input(t, X + (long)c * B * m->n_in, B, m->n_in);
+    Node *rx = nn_dense_sq_err(t, hd, nn_param(t, ps, m->dec.W[L]), nn_param(t, ps, m->dec.b[L]), xc, 1, 1, blocks, wx);
+    Node *ddz = nn_mean_sq(t, nn_sub(t, zt, pred));
+    if (m->dz_relative) ddz = ratio(t, ddz, nn_mean_sq(t, zt));
+    Node *l1 = nn_sum_abs(t, xi);
+    Node *loss = weighted(t, rx, ddz, m->warmup ? 0.0f : w->dz);
+    loss = weighted(t, loss, l1, w->l1);
+    if (parts) {
+        parts->rec = nn_dense_sq_err_mean(rx, 0);
+        parts->dx = 0;
+        parts->dz = ddz->val.d[0];
+        parts->l1 = l1->val.d[0];
+        parts->total = loss->val.d[0];
+    }
+    return loss;
+}
+
 Node *model_loss(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const LossWeights *w,
                  LossParts *parts) {
+    if (m->win) return model_loss_window(t, m, ps, X, B, w, parts);
     int k = m->order + 1, d = m->n_latent;
     Node *x = nn_input(t, X, k * B, m->n_in);                   /* (kB, n_in) */
     Node *z = mlp_forward(t, &m->enc, ps, x, k);                /* (kB, d) */
@@ -118,6 +185,20 @@ Node *model_loss(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const L
 }
 
 void model_encode(Tape *t, const Model *m, ParamSet *ps, float *X, int B, int k, float *out) {
+    if (m->win && k > 1) { /* X: the win frames of each sample; out: z, z' (, z'') */
+        Node *za = mlp_forward(t, &m->enc, ps, nn_input(t, X, m->win * B, m->n_in), 1);
+        long n = (long)B * m->n_latent;
+        memcpy(out, za->val.d + (long)(m->win / 2) * n, (size_t)n * sizeof(float));
+        for (int blk = 1; blk < k; blk++) {
+            const float *wt = blk == 1 ? m->lw1 : m->lw2;
+            for (long i = 0; i < n; i++) {
+                float acc = 0;
+                for (long j = 0; j < m->win; j++) acc += wt[j] * za->val.d[j * n + i];
+                out[blk * n + i] = acc;
+            }
+        }
+        return;
+    }
     Node *z = mlp_forward(t, &m->enc, ps, nn_input(t, X, k * B, m->n_in), k);
     memcpy(out, z->val.d, (size_t)k * B * m->n_latent * sizeof(float));
 }

@@ -27,6 +27,7 @@
 #include "nn/rng.h"
 #include "nn/tape.h"
 #include "sparse/library.h"
+#include "sparse/stencil.h"
 
 typedef struct {
     float rec, dx, dz, l1;      /* loss weights */
@@ -47,6 +48,10 @@ typedef struct {
     int dz_relative;            /* 1: the latent term is |z' - z'_pred|^2 / |z'|^2 (z'' for second order),
                                  * a relative error that a shrinking or growing latent scale cannot game */
     float *maskf;               /* (n_terms, n_latent) the same as floats, for the tape */
+    int win;                    /* 0: the input holds x, x' (, x'') and the encoder carries the derivatives
+                                 * by tangents; > 0: the input holds the win frames of a derivative stencil
+                                 * around each sample, and z', z'' are the stencil applied to their codes */
+    float lw1[STENCIL_MAX_LEN], lw2[STENCIL_MAX_LEN]; /* win > 0: the stencil's weights / dt, / dt^2 */
 } Model;
 
 typedef struct {
@@ -59,6 +64,12 @@ typedef struct {
     ActId act;
     LibrarySpec lib;
 } ModelSpec;
+
+/* Derivatives in latent space (win > 0) from stencil s at sample spacing dt; s = NULL: by tangents
+ * of the frames' derivatives (the default). With a window, model_loss and model_encode (k > 1) take
+ * X as win blocks of B rows, block j the frames at offset j - m of each sample; the decoder term
+ * is the reconstruction of the centre frame alone (w->dx is not used). */
+void model_set_window(Model *m, const Stencil *s, double dt);
 
 /* Declare the model's parameters in ps (call params_alloc after). ST_INPUT for a bad library. */
 int model_init(Model *m, ParamSet *ps, const ModelSpec *spec, Status *st);

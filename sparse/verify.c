@@ -81,6 +81,27 @@ int verify_period(OdeFn f, void *ctx, int n, const double *y0, int i, double t_m
     return 0;
 }
 
+int verify_swing_period(OdeFn f, void *ctx, int n, const double *y0, int i, double t_max, double h, double *period,
+                        Status *st) {
+    double *v;
+    long cnt;
+    if (trace(f, ctx, n, y0, i, t_max, h, &v, &cnt, st)) return st->code;
+    /* the direction of the first move, then the first sample where the motion turns back */
+    long k0 = 1;
+    while (k0 < cnt && v[k0] == v[0]) k0++;
+    double dir = k0 < cnt && v[k0] > v[0] ? 1.0 : -1.0;
+    for (long k = k0; k + 1 < cnt; k++) {
+        if ((v[k + 1] - v[k]) * dir < 0) { /* v[k] is the extreme sample: refine by a parabola */
+            double den = v[k - 1] - 2 * v[k] + v[k + 1], off = den != 0 ? 0.5 * (v[k - 1] - v[k + 1]) / den : 0;
+            *period = 2 * ((double)k + off) * h;
+            free(v);
+            return 0;
+        }
+    }
+    free(v);
+    return status_set(st, ST_RUNTIME, "verify: no turning point within %g s of the release", t_max);
+}
+
 int verify_decay_rate(OdeFn f, void *ctx, int n, const double *y0, int i, double t_max, double h, double *rate,
                       Status *st) {
     double *v;

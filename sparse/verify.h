@@ -4,6 +4,11 @@
  * - The period of an oscillation: the mean time between successive upward crossings of a reference
  *   level by one state component (the level halfway between the component's extremes over the
  *   first swing, so any shift or scale of the coordinate gives the same period).
+ * - The period of a swing released at rest: twice the time from the release (a turning point) to
+ *   the next turning point of the component (where its derivative changes sign; a monotone change
+ *   of coordinate keeps turning points where they are). With damping this is the period at the
+ *   swing's own amplitude, before the amplitude has decayed much; the mean period over many swings
+ *   would drift towards the small-swing period.
  * - The decay rate of an oscillation: with peak-to-peak amplitudes p_k (a maximum of y_i less the
  *   minimum that follows it, so no equilibrium level is needed) at times t_k, minus the slope of
  *   log p_k against t_k (least squares); for a lightly damped oscillator x'' = -w^2 x - c x' the
@@ -24,6 +29,12 @@
  * occur or the state blows up (message says which). */
 int verify_period(OdeFn f, void *ctx, int n, const double *y0, int i, double t_max, double h, double *period,
                   Status *st);
+
+/* Period of the first swing of y[i] from y0 (a state at rest): twice the time to the first turning
+ * point after t = 0, located by a parabola through the three samples around it; searched up to
+ * t_max. ST_RUNTIME when there is none or the state blows up. */
+int verify_swing_period(OdeFn f, void *ctx, int n, const double *y0, int i, double t_max, double h, double *period,
+                        Status *st);
 
 /* Decay rate of the amplitude of y[i] (1/s: amplitude ~ exp(-rate t)) over [0, t_max]. */
 int verify_decay_rate(OdeFn f, void *ctx, int n, const double *y0, int i, double t_max, double h, double *rate,

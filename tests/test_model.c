@@ -3,6 +3,7 @@
  * terms against a direct evaluation (common practice: a whole-model gradient check). */
 #include "nn/adam.h"
 #include "sparse/model.h"
+#include "sparse/stencil.h"
 #include "tests/gradcheck.h"
 
 typedef struct {
@@ -88,6 +89,128 @@ static void check_model(int order) {
     params_free(&ps);
 }
 
+/* Derivatives in latent space (model_set_window): the same gradient check with X the stencil's
+ * frames, a 5-point Savitzky-Golay stencil of degree 3. */
+static void check_window(int order) {
+    Case c;
+    ModelSpec sp = {0};
+    sp.n_in = 6;
+    sp.n_latent = 1;
+    sp.order = order;
+    sp.n_enc = 1;
+    sp.enc_widths[0] = 4;
+    sp.dec_mirror = 1;
+    sp.act = ACT_TANH;
+    sp.lib = library_spec_default(1, order);
+    sp.lib.degree = 3;
+    sp.lib.trig = 1;
+    ParamSet ps;
+    params_init(&ps);
+    Status st;
+    assert_int_equal(model_init(&c.m, &ps, &sp, &st), 0);
+    params_alloc(&ps);
+    Stencil sten;
+    assert_int_equal(stencil_savgol(&sten, 5, 3, &st), 0);
+    /* dt 1: the weights / dt^2 would multiply the float32 rounding of the finite differences */
+    model_set_window(&c.m, &sten, 1.0);
+    assert_int_equal(c.m.win, 5);
+    Rng r;
+    rng_seed(&r, 91 + order);
+    model_init_params(&c.m, &ps, &r);
+    Mat xi = params_val(&ps, c.m.xi);
+    for (long i = 0; i < mat_size(xi); i++) xi.d[i] = (float)(0.1 + 0.4 * rng_uniform(&r)) * (i % 2 ? 1 : -1);
+    c.B = 3;
+    c.X = malloc((size_t)5 * c.B * sp.n_in * sizeof(float));
+    /* smooth in the window (a sample's frames differ a little), so z' and z'' stay moderate */
+    for (int b = 0; b < c.B; b++)
+        for (int i = 0; i < sp.n_in; i++) {
+            double a0 = rng_uniform(&r) - 0.5, a1 = 0.3 * (rng_uniform(&r) - 0.5);
+            for (int j = 0; j < 5; j++) c.X[((long)j * c.B + b) * sp.n_in + i] = (float)(a0 + a1 * (j - 2) * (j - 1));
+        }
+    c.w = (LossWeights){1.0f, 0.5f, 0.3f, 0.01f};
+    Tape t;
+    tape_init(&t, 128, 1 << 16);
+    GcOpts o = {.h = 1e-2f, .tol = 1e-2f, .floor = 1e-3f, .max_checked = 40, .at_kink = near_zero};
+    gradcheck(&t, &ps, build, &c, &o);
+    c.m.dz_relative = 1;
+    gradcheck(&t, &ps, build, &c, &o);
+    free(c.X);
+    tape_free(&t);
+    model_free(&c.m);
+    params_free(&ps);
+}
+
+/* With a linear encoder (no hidden layer) the stencil commutes with the encoder: the latent-space
+ * derivatives equal the frames' derivatives carried by tangents. On frames that are cubic in time
+ * the Savitzky-Golay stencil of degree 3 is exact (A. Savitzky, M. J. E. Golay, Anal. Chem. 36,
+ * 1964: least-squares polynomial fits reproduce polynomials up to their degree), so the two modes'
+ * latent terms agree with the exact x' and x'' given to the tangent mode. */
+static void test_window_matches_tangents_for_linear_encoder(void **state) {
+    (void)state;
+    enum { N_IN = 5, B = 4, WIN = 7 };
+    const double dt = 0.05;
+    ModelSpec sp = {0};
+    sp.n_in = N_IN;
+    sp.n_latent = 2;
+    sp.order = 2;
+    sp.n_enc = 0;
+    sp.dec_mirror = 1;
+    sp.act = ACT_TANH;
+    sp.lib = library_spec_default(2, 2);
+    sp.lib.degree = 2;
+    Model a, w;
+    ParamSet pa, pw;
+    Status st;
+    params_init(&pa), params_init(&pw);
+    assert_int_equal(model_init(&a, &pa, &sp, &st), 0);
+    assert_int_equal(model_init(&w, &pw, &sp, &st), 0);
+    params_alloc(&pa), params_alloc(&pw);
+    Rng r;
+    rng_seed(&r, 5);
+    model_init_params(&a, &pa, &r);
+    Mat xi = params_val(&pa, a.xi);
+    for (long i = 0; i < mat_size(xi); i++) xi.d[i] = (float)(rng_uniform(&r) - 0.5);
+    memcpy(pw.val, pa.val, pa.n * sizeof(float));
+    Stencil sten;
+    assert_int_equal(stencil_savgol(&sten, WIN, 3, &st), 0);
+    model_set_window(&w, &sten, dt);
+    static float Xa[3 * B * N_IN], Xw[WIN * B * N_IN];
+    for (int b = 0; b < B; b++)
+        for (int i = 0; i < N_IN; i++) {
+            double c0 = rng_uniform(&r) - 0.5, c1 = rng_uniform(&r) - 0.5, c2 = rng_uniform(&r) - 0.5,
+                   c3 = rng_uniform(&r) - 0.5; /* x(t) = c0 + c1 t + c2 t^2 + c3 t^3 around the sample */
+            Xa[(0 * B + b) * N_IN + i] = (float)c0;
+            Xa[(1 * B + b) * N_IN + i] = (float)c1;
+            Xa[(2 * B + b) * N_IN + i] = (float)(2 * c2);
+            for (int j = 0; j < WIN; j++) {
+                double tt = (j - WIN / 2) * dt;
+                Xw[((long)j * B + b) * N_IN + i] = (float)(c0 + tt * (c1 + tt * (c2 + tt * c3)));
+            }
+        }
+    LossWeights lw = {1.0f, 0.0f, 1.0f, 0.0f};
+    Tape t;
+    tape_init(&t, 128, 1 << 16);
+    LossParts p1, p2;
+    model_loss(&t, &a, &pa, Xa, B, &lw, &p1);
+    tape_reset(&t);
+    model_loss(&t, &w, &pw, Xw, B, &lw, &p2);
+    assert_close(p2.rec, p1.rec, 1e-5, 1e-7);
+    /* float frames: the second-derivative stencil divides rounding of ~1e-7 by dt^2 */
+    assert_close(p2.dz, p1.dz, 2e-3, 1e-6);
+    float za[3 * B * 2], zw[3 * B * 2];
+    tape_reset(&t);
+    model_encode(&t, &a, &pa, Xa, B, 3, za);
+    tape_reset(&t);
+    model_encode(&t, &w, &pw, Xw, B, 3, zw);
+    for (int i = 0; i < 3 * B * 2; i++) assert_close(zw[i], za[i], 2e-3, 2e-4);
+    tape_free(&t);
+    model_free(&a), model_free(&w);
+    params_free(&pa), params_free(&pw);
+}
+
+static void test_window_gradients_first_order(void **state) { (void)state; check_window(1); }
+static void test_window_gradients_second_order(void **state) { (void)state; check_window(2); }
+
 static void test_first_order_model_gradients(void **state) { (void)state; check_model(1); }
 static void test_second_order_model_gradients(void **state) { (void)state; check_model(2); }
 
@@ -95,6 +218,9 @@ int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_first_order_model_gradients),
         cmocka_unit_test(test_second_order_model_gradients),
+        cmocka_unit_test(test_window_gradients_first_order),
+        cmocka_unit_test(test_window_gradients_second_order),
+        cmocka_unit_test(test_window_matches_tangents_for_linear_encoder),
     };
     return cmocka_run_group_tests_name("joint model", tests, NULL, NULL);
 }

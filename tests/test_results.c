@@ -47,8 +47,9 @@ typedef struct {
     char root[256], run[512], data[512];
 } Fx;
 
-/* The run folder: config.json, and one checkpoint holding the hand-set model. */
-static int setup(void **state) {
+/* The run folder: config.json, and one checkpoint holding the hand-set model; with `latent`, the
+ * config asks for derivatives in latent space (model.derivatives). */
+static int setup_mode(void **state, int latent) {
     Fx *fx = calloc(1, sizeof *fx);
     assert_non_null(test_tmpdir(fx->root, sizeof fx->root));
     snprintf(fx->data, sizeof fx->data, "%s/data", fx->root);
@@ -71,6 +72,7 @@ static int setup(void **state) {
     snprintf(c->val_names[1], CFG_NAME_MAX, "rec2");
     c->epochs = 10;
     c->refine_epochs = 1;
+    if (latent) snprintf(c->derivatives, sizeof c->derivatives, "latent");
     char path[700];
     snprintf(path, sizeof path, "%s/config.json", fx->run);
     char *json = config_to_json(c);
@@ -113,6 +115,9 @@ static int setup(void **state) {
     *state = fx;
     return 0;
 }
+
+static int setup(void **state) { return setup_mode(state, 0); }
+static int setup_latent(void **state) { return setup_mode(state, 1); }
 
 static int teardown(void **state) {
     Fx *fx = *state;
@@ -204,6 +209,41 @@ static void test_export_trajectories(void **state) {
     snprintf(path, sizeof path, "%s/equations.txt", fx->run);
     txt = test_slurp(path);
     assert_non_null(strstr(txt, "dz1/dt = 2 z2"));
+    free(txt);
+}
+
+/* Derivatives in latent space: with the identity encoder the stencil applied to the codes is the
+ * stencil applied to the frames, so the exported z' is the central difference of x, and the exact
+ * model still forecasts the held-out recordings (the initial state's encoding goes through the
+ * stencil's window of frames). Central difference error as above: < 8e-4. */
+static void test_latent_derivatives(void **state) {
+    Fx *fx = *state;
+    assert_int_equal(run("export", fx->run), 0);
+    char csv[700];
+    snprintf(csv, sizeof csv, "%s/trajectories/rec0.csv", fx->run);
+    Series s;
+    Status st;
+    assert_int_equal(series_read_csv(csv, &s, &st), 0);
+    assert_int_equal(s.cols, 7);
+    assert_int_equal(s.rows, NT - 2);
+    for (long i = 0; i < s.rows; i++) {
+        const double *row = s.d + i * 7;
+        double t = row[0];
+        assert_close(row[1], AMP[0] * sin(W_OSC * t), 1e-6, 0);
+        assert_close(row[3], AMP[0] * W_OSC * cos(W_OSC * t), 8e-4, 0);
+        assert_close(row[4], -AMP[0] * W_OSC * sin(W_OSC * t), 8e-4, 0);
+    }
+    series_free(&s);
+    assert_int_equal(run("forecast", fx->run), 0);
+    char path[700];
+    snprintf(path, sizeof path, "%s/forecast.json", fx->run);
+    char *txt = test_slurp(path);
+    assert_non_null(txt);
+    cJSON *root = cJSON_Parse(txt);
+    const cJSON *e = rec_entry(root, "rec1");
+    assert_non_null(e);
+    assert_true(cJSON_GetObjectItem(e, "mean_error")->valuedouble < 1e-5);
+    cJSON_Delete(root);
     free(txt);
 }
 
@@ -321,6 +361,7 @@ int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test_setup_teardown(test_forecast_of_exact_model, setup, teardown),
         cmocka_unit_test_setup_teardown(test_export_trajectories, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_latent_derivatives, setup_latent, teardown),
         cmocka_unit_test_setup_teardown(test_bad_run_folders, setup, teardown),
         cmocka_unit_test_setup_teardown(test_forecast_of_blowing_up_model, setup, teardown),
         cmocka_unit_test_setup_teardown(test_reconstruction_strips_for_images, setup, teardown),

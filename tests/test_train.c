@@ -54,7 +54,7 @@ static int osc_gather(void *ctx, int split, const int64_t *idx, int B, float *X,
 }
 
 static TrainData osc_dataset(Osc *o) {
-    TrainData ds = {NCH, 2, (long)(NREC - 1) * NT, NT, o->dt, osc_gather, o};
+    TrainData ds = {NCH, 2, (long)(NREC - 1) * NT, NT, o->dt, osc_gather, o, NULL};
     return ds;
 }
 

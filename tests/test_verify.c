@@ -47,6 +47,31 @@ static void test_pendulum_periods(void **state) {
     assert_close(period, 4 * sqrt(L / G) * ellip_k(pow(sin(th / 2), 2)), 0, 1e-6);
 }
 
+/* The first swing's period from 120 degrees at rest. Undamped: the elliptic-integral period (as
+ * above). With the lantern's damping c = 0.1 1/s: 1.9065721500720 s, from SciPy 1.10 (Debian
+ * python3-scipy) solve_ivp, RK45 at rtol 1e-11, atol 1e-12, twice the time of the first event
+ * theta' = 0 (computed for this test, 2026-12-02); the mean period over ten swings is far shorter,
+ * as the amplitude decays. In a shifted and scaled coordinate the turning points are the same. */
+static void test_swing_period(void **state) {
+    (void)state;
+    Status st;
+    double period, th = 120 * M_PI / 180, y0[2] = {th, 0};
+    Pend p = {G / L, 0};
+    assert_int_equal(verify_swing_period(pendulum, &p, 2, y0, 0, 5, 1e-3, &period, &st), 0);
+    assert_close(period, 4 * sqrt(L / G) * ellip_k(pow(sin(th / 2), 2)), 0, 1e-6);
+    Pend pd = {G / L, 0.1};
+    assert_int_equal(verify_swing_period(pendulum, &pd, 2, y0, 0, 5, 1e-3, &period, &st), 0);
+    assert_close(period, 1.9065721500720434, 0, 1e-6);
+    double mean;
+    assert_int_equal(verify_period(pendulum, &pd, 2, y0, 0, 20, 1e-3, &mean, &st), 0);
+    assert_true(mean < 0.9 * period);
+    double neg[2] = {-th, 0};
+    assert_int_equal(verify_swing_period(pendulum, &pd, 2, neg, 0, 5, 1e-3, &period, &st), 0);
+    assert_close(period, 1.9065721500720434, 0, 1e-6);
+    /* no turning point in time: an error, not a number */
+    assert_int_equal(verify_swing_period(pendulum, &p, 2, y0, 0, 0.5, 1e-3, &period, &st), ST_RUNTIME);
+}
+
 /* x'' = -w^2 x - c x': the amplitude decays as exp(-c t / 2) (common practice: the damped harmonic
  * oscillator); the small-swing pendulum with c = 0.1 1/s decays at 0.05 1/s. */
 static void test_pendulum_decay(void **state) {
@@ -86,6 +111,7 @@ static void test_failures_are_reported(void **state) {
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_pendulum_periods),
+        cmocka_unit_test(test_swing_period),
         cmocka_unit_test(test_pendulum_decay),
         cmocka_unit_test(test_lyapunov),
         cmocka_unit_test(test_failures_are_reported),

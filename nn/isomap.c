@@ -1,0 +1,213 @@
+/* nn/isomap.c: Isomap embedding (see isomap.h). */
+#include "nn/isomap.h"
+
+#include <cblas.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* LAPACK (Fortran interface, in OpenBLAS): eigenpairs of a symmetric matrix, by index range. */
+extern void dsyevr_(const char *jobz, const char *range, const char *uplo, const int *n, double *a, const int *lda,
+                    const double *vl, const double *vu, const int *il, const int *iu, const double *abstol, int *m,
+                    double *w, double *z, const int *ldz, int *isuppz, double *work, const int *lwork, int *iwork,
+                    const int *liwork, int *info);
+
+/* ---- k nearest neighbours ---------------------------------------------------------------------- */
+
+static const double *g_row; /* qsort has no context argument */
+
+static int by_distance(const void *a, const void *b) {
+    long i = *(const long *)a, j = *(const long *)b;
+    if (g_row[i] < g_row[j]) return -1;
+    if (g_row[i] > g_row[j]) return 1;
+    return (i > j) - (i < j); /* ties by index: deterministic */
+}
+
+static long find(long *parent, long i) {
+    while (parent[i] != i) i = parent[i] = parent[parent[i]];
+    return i;
+}
+
+/* components of the symmetrised k-nearest-neighbour graph */
+static long components(const long *nbr, long n, int kmax, int k, long *parent) {
+    for (long i = 0; i < n; i++) parent[i] = i;
+    long c = n;
+    for (long i = 0; i < n; i++)
+        for (int a = 0; a < k; a++) {
+            long ri = find(parent, i), rj = find(parent, nbr[i * kmax + a]);
+            if (ri != rj) parent[ri] = rj, c--;
+        }
+    return c;
+}
+
+/* ---- shortest paths (Dijkstra with a binary heap, lazy deletion) ------------------------------- */
+
+typedef struct {
+    double d;
+    long v;
+} HeapItem;
+
+static void heap_push(HeapItem *h, long *size, double d, long v) {
+    long i = (*size)++;
+    while (i > 0) {
+        long p = (i - 1) / 2;
+        if (h[p].d <= d) break;
+        h[i] = h[p];
+        i = p;
+    }
+    h[i].d = d, h[i].v = v;
+}
+
+static HeapItem heap_pop(HeapItem *h, long *size) {
+    HeapItem top = h[0], last = h[--(*size)];
+    long i = 0, n = *size;
+    for (;;) {
+        long c = 2 * i + 1;
+        if (c >= n) break;
+        if (c + 1 < n && h[c + 1].d < h[c].d) c++;
+        if (last.d <= h[c].d) break;
+        h[i] = h[c];
+        i = c;
+    }
+    if (n > 0) h[i] = last;
+    return top;
+}
+
+/* ---- the embedding ----------------------------------------------------------------------------- */
+
+int isomap_embed(const float *X, long n, long dim, int d, int k, double *Y, int *k_used, Status *st) {
+    if (d > 64) return status_set(st, ST_INPUT, "isomap: at most 64 dimensions (asked %d)", d);
+    if (d < 1 || n < d + 2) return status_set(st, ST_INPUT, "isomap: %ld samples for %d dimensions", n, d);
+    int kmax = ISOMAP_KMAX < n - 1 ? ISOMAP_KMAX : (int)(n - 1);
+    if (k > kmax) return status_set(st, ST_INPUT, "isomap: %d neighbours asked of %ld samples", k, n);
+    int rc = 0;
+    double *Xd = nn_alloc((size_t)n * dim * sizeof(double));
+    double *D = nn_alloc((size_t)n * n * sizeof(double)); /* squared distances, then the centred matrix */
+    double *S = nn_alloc((size_t)n * n * sizeof(double)); /* geodesic distances */
+    double *sq = nn_alloc((size_t)n * sizeof(double));
+    long *nbr = nn_alloc((size_t)n * kmax * sizeof(long)), *idx = nn_alloc((size_t)n * sizeof(long));
+    long *parent = nn_alloc((size_t)n * sizeof(long));
+    for (long i = 0; i < n * dim; i++) Xd[i] = X[i];
+    /* Gram matrix (upper triangle, row-major), then squared distances |xi|^2 + |xj|^2 - 2 xi.xj */
+    cblas_dsyrk(CblasRowMajor, CblasUpper, CblasNoTrans, (int)n, (int)dim, 1.0, Xd, (int)dim, 0.0, D, (int)n);
+    for (long i = 0; i < n; i++) sq[i] = D[i * n + i];
+    for (long i = 0; i < n; i++)
+        for (long j = i; j < n; j++) {
+            double v = sq[i] + sq[j] - 2 * D[i * n + j];
+            D[i * n + j] = D[j * n + i] = i == j || v < 0 ? 0 : v;
+        }
+    nn_free(Xd);
+    /* the kmax nearest of each sample (itself excluded) */
+    for (long i = 0; i < n; i++) {
+        for (long j = 0; j < n; j++) idx[j] = j;
+        idx[i] = idx[n - 1]; /* drop i itself */
+        g_row = D + i * n;
+        qsort(idx, (size_t)(n - 1), sizeof *idx, by_distance);
+        memcpy(nbr + i * kmax, idx, (size_t)kmax * sizeof(long));
+    }
+    if (k == 0) {
+        for (k = 4; k <= kmax && components(nbr, n, kmax, k, parent) > 1; k++) {}
+        if (k > kmax) {
+            rc = status_set(st, ST_INPUT,
+                            "isomap: the %d-nearest-neighbour graph of the %ld samples is still in %ld pieces", kmax,
+                            n, components(nbr, n, kmax, kmax, parent));
+            goto out;
+        }
+    } else if (components(nbr, n, kmax, k, parent) > 1) {
+        rc = status_set(st, ST_INPUT, "isomap: the %d-nearest-neighbour graph of the %ld samples is in %ld pieces", k, n,
+                        components(nbr, n, kmax, k, parent));
+        goto out;
+    }
+    *k_used = k;
+    {
+        /* symmetrised adjacency: i -> its k nearest, and j -> i whenever i lists j */
+        long *deg = nn_calloc((size_t)n + 1, sizeof(long));
+        for (long i = 0; i < n; i++)
+            for (int a = 0; a < k; a++) deg[i + 1]++, deg[nbr[i * kmax + a] + 1]++;
+        for (long i = 0; i < n; i++) deg[i + 1] += deg[i];
+        long m = deg[n], *fill = nn_alloc((size_t)n * sizeof(long)), *adj = nn_alloc((size_t)m * sizeof(long));
+        double *len = nn_alloc((size_t)m * sizeof(double));
+        memcpy(fill, deg, (size_t)n * sizeof(long));
+        for (long i = 0; i < n; i++)
+            for (int a = 0; a < k; a++) {
+                long j = nbr[i * kmax + a];
+                double l = sqrt(D[i * n + j]);
+                adj[fill[i]] = j, len[fill[i]++] = l;
+                adj[fill[j]] = i, len[fill[j]++] = l;
+            }
+        HeapItem *heap = nn_alloc((size_t)(m + 1) * sizeof(HeapItem));
+        for (long s = 0; s < n; s++) {
+            double *dist = S + s * n;
+            for (long j = 0; j < n; j++) dist[j] = INFINITY;
+            long size = 0;
+            dist[s] = 0;
+            heap_push(heap, &size, 0, s);
+            while (size > 0) {
+                HeapItem it = heap_pop(heap, &size);
+                if (it.d > dist[it.v]) continue;
+                for (long e = deg[it.v]; e < deg[it.v + 1]; e++) {
+                    double nd = it.d + len[e];
+                    if (nd < dist[adj[e]]) dist[adj[e]] = nd, heap_push(heap, &size, nd, adj[e]);
+                }
+            }
+        }
+        nn_free(heap), nn_free(len), nn_free(adj), nn_free(fill), nn_free(deg);
+    }
+    /* classical scaling: B = -1/2 J S^2 J (S symmetrised against rounding), into D */
+    {
+        double tot = 0;
+        for (long i = 0; i < n; i++) sq[i] = 0;
+        for (long i = 0; i < n; i++)
+            for (long j = 0; j < n; j++) {
+                double s = 0.5 * (S[i * n + j] + S[j * n + i]);
+                D[i * n + j] = s * s;
+                sq[i] += s * s;
+            }
+        for (long i = 0; i < n; i++) tot += sq[i], sq[i] /= (double)n;
+        tot /= (double)n * (double)n;
+        for (long i = 0; i < n; i++)
+            for (long j = 0; j < n; j++) D[i * n + j] = -0.5 * (D[i * n + j] - sq[i] - sq[j] + tot);
+    }
+    {
+        int N = (int)n, il = N - d + 1, iu = N, mfound = 0, info = 0, lwork = -1, liwork = -1, iwq = 0;
+        double vl = 0, vu = 0, abstol = 0, wq = 0, w[64];
+        double *z = S; /* the geodesic distances are no longer needed */
+        int *isuppz = nn_alloc((size_t)2 * d * sizeof(int));
+        double *wall = nn_alloc((size_t)n * sizeof(double));
+        dsyevr_("V", "I", "U", &N, D, &N, &vl, &vu, &il, &iu, &abstol, &mfound, wall, z, &N, isuppz, &wq, &lwork, &iwq,
+                &liwork, &info);
+        lwork = (int)wq;
+        liwork = iwq;
+        double *work = nn_alloc((size_t)lwork * sizeof(double));
+        int *iwork = nn_alloc((size_t)liwork * sizeof(int));
+        dsyevr_("V", "I", "U", &N, D, &N, &vl, &vu, &il, &iu, &abstol, &mfound, wall, z, &N, isuppz, work, &lwork,
+                iwork, &liwork, &info);
+        memcpy(w, wall, (size_t)d * sizeof(double));
+        nn_free(work), nn_free(iwork), nn_free(isuppz), nn_free(wall);
+        if (info != 0 || mfound != d) {
+            rc = status_set(st, ST_RUNTIME, "isomap: LAPACK dsyevr failed (info %d, %d of %d eigenpairs)", info, mfound, d);
+            goto out;
+        }
+        for (int c = 0; c < d; c++) {
+            int src = d - 1 - c; /* ascending from dsyevr: largest first */
+            if (!(w[src] > 0)) {
+                rc = status_set(st, ST_INPUT, "isomap: the geodesic distances have only %d positive directions", c);
+                goto out;
+            }
+            const double *v = z + (long)src * n;
+            double mean = 0, var = 0, big = 0;
+            for (long i = 0; i < n; i++) mean += v[i];
+            mean /= (double)n;
+            for (long i = 0; i < n; i++) {
+                double e = v[i] - mean;
+                var += e * e;
+                if (fabs(e) > fabs(big)) big = e;
+            }
+            double scale = (big < 0 ? -1 : 1) / sqrt(var / (double)n);
+            for (long i = 0; i < n; i++) Y[i * d + c] = (v[i] - mean) * scale;
+        }
+    }
+out:
+    nn_free(D), nn_free(S), nn_free(sq), nn_free(nbr), nn_free(idx), nn_free(parent);
+    return rc;
+}
