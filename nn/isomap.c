@@ -14,13 +14,18 @@ extern void dsyevr_(const char *jobz, const char *range, const char *uplo, const
 
 /* ---- k nearest neighbours ---------------------------------------------------------------------- */
 
-static const double *g_row; /* qsort has no context argument */
-
-static int by_distance(const void *a, const void *b) {
-    long i = *(const long *)a, j = *(const long *)b;
-    if (g_row[i] < g_row[j]) return -1;
-    if (g_row[i] > g_row[j]) return 1;
-    return (i > j) - (i < j); /* ties by index: deterministic */
+/* The kmax nearest of sample i (itself excluded), nearest first, ties by index: a bounded insertion
+ * (kmax is small), no sort of the whole row. */
+static void nearest(const double *row, long n, long i, int kmax, long *out, double *dist) {
+    int cnt = 0;
+    for (long j = 0; j < n; j++) {
+        if (j == i) continue;
+        double d = row[j];
+        if (cnt == kmax && d >= dist[kmax - 1]) continue;
+        int p = cnt < kmax ? cnt++ : kmax - 1;
+        while (p > 0 && dist[p - 1] > d) dist[p] = dist[p - 1], out[p] = out[p - 1], p--;
+        dist[p] = d, out[p] = j;
+    }
 }
 
 static long find(long *parent, long i) {
@@ -85,7 +90,7 @@ int isomap_embed(const float *X, long n, long dim, int d, int k, double *Y, int 
     double *D = nn_alloc((size_t)n * n * sizeof(double)); /* squared distances, then the centred matrix */
     double *S = nn_alloc((size_t)n * n * sizeof(double)); /* geodesic distances */
     double *sq = nn_alloc((size_t)n * sizeof(double));
-    long *nbr = nn_alloc((size_t)n * kmax * sizeof(long)), *idx = nn_alloc((size_t)n * sizeof(long));
+    long *nbr = nn_alloc((size_t)n * kmax * sizeof(long));
     long *parent = nn_alloc((size_t)n * sizeof(long));
     for (long i = 0; i < n * dim; i++) Xd[i] = X[i];
     /* Gram matrix (upper triangle, row-major), then squared distances |xi|^2 + |xj|^2 - 2 xi.xj */
@@ -98,13 +103,7 @@ int isomap_embed(const float *X, long n, long dim, int d, int k, double *Y, int 
         }
     nn_free(Xd);
     /* the kmax nearest of each sample (itself excluded) */
-    for (long i = 0; i < n; i++) {
-        for (long j = 0; j < n; j++) idx[j] = j;
-        idx[i] = idx[n - 1]; /* drop i itself */
-        g_row = D + i * n;
-        qsort(idx, (size_t)(n - 1), sizeof *idx, by_distance);
-        memcpy(nbr + i * kmax, idx, (size_t)kmax * sizeof(long));
-    }
+    for (long i = 0; i < n; i++) nearest(D + i * n, n, i, kmax, nbr + i * kmax, sq); /* sq: scratch */
     if (k == 0) {
         for (k = 4; k <= kmax && components(nbr, n, kmax, k, parent) > 1; k++) {}
         if (k > kmax) {
@@ -208,6 +207,6 @@ int isomap_embed(const float *X, long n, long dim, int d, int k, double *Y, int 
         }
     }
 out:
-    nn_free(D), nn_free(S), nn_free(sq), nn_free(nbr), nn_free(idx), nn_free(parent);
+    nn_free(D), nn_free(S), nn_free(sq), nn_free(nbr), nn_free(parent);
     return rc;
 }

@@ -313,6 +313,81 @@ static void test_warmup_then_fit(void **state) {
     test_rmtree(d2);
 }
 
+/* model.init = isomap. A bump of light moving along a ring of 48 channels over 300 degrees (the
+ * signal x_c = exp(-(1 - cos(a_c - phi)) / s^2), a_c the channel's angle): the samples lie on a
+ * curve that nearly closes, whose every straight projection folds (the leading principal
+ * directions are cos(phi)- and sin(phi)-like). Isomap's coordinate follows phi (Tenenbaum et al.,
+ * Science 2000, as in tests/test_isomap.c), so after the initialisation the encoder's z must be
+ * monotone in phi: |rank correlation| > 0.99; with model.init pca it is not (< 0.9). */
+enum { RING = 48, RING_N = 300 };
+
+static double ring_phi(long s) { return (300.0 * ((double)s / (RING_N - 1) - 0.5)) * M_PI / 180; }
+
+static int ring_gather(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st) {
+    (void)ctx, (void)split, (void)st;
+    for (int b = 0; b < B; b++) {
+        /* sample order scrambled (7 s mod N, N prime to 7): nothing in the index order helps */
+        double phi = ring_phi(((long)idx[b] * 7) % RING_N);
+        for (int c = 0; c < RING; c++) {
+            double a = 2 * M_PI * c / RING;
+            X[(long)b * RING + c] = (float)exp(-(1 - cos(a - phi)) / 0.05);
+            X[(long)(B + b) * RING + c] = 0; /* x' unused by this check */
+        }
+    }
+    return 0;
+}
+
+static double ring_rank_correlation(const char *init) {
+    char dir[256];
+    assert_non_null(test_tmpdir(dir, sizeof dir));
+    Config c;
+    small_config(&c, dir);
+    c.latent = 1;
+    c.epochs = 1;
+    c.refine_epochs = 0;
+    c.w_dz = 0; /* the initialisation alone is under test */
+    c.w_dx = 0;
+    snprintf(c.init, sizeof c.init, "%s", init);
+    c.init_epochs = 300;
+    TrainData ds = {RING, 2, RING_N, 0, 0.01, ring_gather, NULL, NULL};
+    TrainOpts opts = {&c, dir, 0, 1, NULL, 0};
+    Model m;
+    ParamSet ps;
+    TrainResult res;
+    Status st;
+    assert_int_equal(train_run(&opts, &ds, &m, &ps, &res, &st), 0);
+    static float X[2 * RING_N * RING], z[RING_N];
+    int64_t idx[RING_N];
+    for (long i = 0; i < RING_N; i++) idx[i] = i;
+    ring_gather(NULL, 0, idx, RING_N, X, &st);
+    Tape t;
+    tape_init(&t, 64, 1 << 20);
+    model_encode(&t, &m, &ps, X, RING_N, 1, z);
+    /* Spearman's rank correlation between z and phi (no ties in either, common practice) */
+    static double rz[RING_N], rp[RING_N];
+    for (long i = 0; i < RING_N; i++) {
+        long lz = 0, lp = 0;
+        double pi = ring_phi((i * 7) % RING_N);
+        for (long j = 0; j < RING_N; j++) lz += z[j] < z[i], lp += ring_phi((j * 7) % RING_N) < pi;
+        rz[i] = (double)lz, rp[i] = (double)lp;
+    }
+    double d2 = 0;
+    for (long i = 0; i < RING_N; i++) d2 += (rz[i] - rp[i]) * (rz[i] - rp[i]);
+    tape_free(&t);
+    model_free(&m);
+    params_free(&ps);
+    test_rmtree(dir);
+    return 1 - 6 * d2 / ((double)RING_N * ((double)RING_N * RING_N - 1));
+}
+
+static void test_isomap_init_follows_the_curve(void **state) {
+    (void)state;
+    double iso = ring_rank_correlation("isomap"), pca = ring_rank_correlation("pca");
+    print_message("rank correlation with phi: isomap start %.4f, pca start %.4f\n", iso, pca);
+    if (!(fabs(iso) > 0.99)) fail_msg("isomap start: rank correlation with phi %.4f", iso);
+    if (!(fabs(pca) < 0.9)) fail_msg("pca start: rank correlation with phi %.4f (expected a fold)", pca);
+}
+
 /* A non-finite loss stops the run with a message naming the usual remedies, and the checkpoints
  * written before it stay loadable. The data turn to NaN after 25 batches (inside epoch 3). */
 typedef struct {
@@ -364,6 +439,7 @@ int main(void) {
         cmocka_unit_test(test_corrupt_checkpoints_are_refused),
         cmocka_unit_test(test_divergence_stops_and_keeps_checkpoints),
         cmocka_unit_test(test_warmup_then_fit),
+        cmocka_unit_test(test_isomap_init_follows_the_curve),
     };
     return cmocka_run_group_tests_name("training loop", tests, NULL, NULL);
 }
