@@ -820,11 +820,28 @@ static cJSON *key_value(const Config *c, const KeyDef *k) {
 }
 
 /* Every key (but the resume-safe ones when skip_safe) as a nested tree, in table order. */
+/* Keys added after the first release. In the digest they count only when set to something other
+ * than their default, so that runs made before a key existed still match their checkpoints. */
+static const char *const late_keys[] = {"model.derivatives", "model.init_epochs", "model.init_frames"};
+
+static int late_at_default(const Config *c, const KeyDef *k) {
+    int late = 0;
+    for (size_t i = 0; i < sizeof late_keys / sizeof late_keys[0]; i++) late |= !strcmp(k->path, late_keys[i]);
+    if (!late) return 0;
+    cJSON *v = key_value(c, k), *d = cJSON_Parse(k->def); /* compared as printed (exact integers are raw) */
+    char *pv = v ? cJSON_PrintUnformatted(v) : NULL, *pd = d ? cJSON_PrintUnformatted(d) : NULL;
+    int same = pv && pd && !strcmp(pv, pd);
+    free(pv), free(pd);
+    cJSON_Delete(v), cJSON_Delete(d);
+    return same;
+}
+
+/* skip_safe: the digest's tree (no resume-safe keys, no late keys at their defaults). */
 static cJSON *config_tree(const Config *c, int skip_safe) {
     cJSON *root = cJSON_CreateObject();
     for (int i = 0; i < N_KEYS; i++) {
         const KeyDef *k = &keys[i];
-        if (skip_safe && is_resume_safe(k->path)) continue;
+        if (skip_safe && (is_resume_safe(k->path) || late_at_default(c, k))) continue;
         char path[128];
         snprintf(path, sizeof path, "%s", k->path);
         cJSON *cur = root;
