@@ -299,7 +299,8 @@ static int data_scales(Run *r, const TrainData *ds, int Bmax, float *X, Status *
         var /= (double)n;
         dms /= (double)total * (double)n;
         r->rec_norm = var > 1e-20 ? 1.0 / var : 1.0;
-        r->dx_norm = dms > 1e-20 ? 1.0 / dms : 1.0;
+        /* with derivatives in latent space the blocks are frames and loss.dx is not used */
+        r->dx_norm = ds->sten || !(dms > 1e-20) ? 1.0 : 1.0 / dms;
     }
     free(sum), free(sq), free(idx);
     return rc;
@@ -416,7 +417,8 @@ static int pca_init(Run *r, const TrainData *ds, float *X, int Bmax, Status *st)
  * embedding follows the manifold the frames lie on, so the latent starts as a coordinate along it
  * instead of a fold of it. Adam's moments and step count are reset afterwards: training proper
  * starts fresh from these weights. Deterministic. */
-static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, int quiet, AdamCfg ad, Status *st) {
+static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, const TrainOpts *o, AdamCfg ad, Status *st) {
+    int quiet = o->quiet, tty = !quiet && isatty(fileno(stderr));
     Model *m = r->m;
     ParamSet *ps = r->ps;
     long n = ds->n_in, N = ds->n_train < r->cfg->init_frames ? ds->n_train : r->cfg->init_frames;
@@ -434,7 +436,9 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, int quie
         int B = (int)(N - s0 < Bmax ? N - s0 : Bmax);
         for (int i = 0; i < B; i++) idx[i] = (int64_t)((s0 + i) * ds->n_train / N);
         if ((rc = ds->gather(ds->ctx, 0, idx, B, X, st))) goto done;
-        memcpy(F + s0 * n, X, (size_t)B * n * sizeof *F); /* the primal rows: the first block */
+        /* the first block: the samples' frames, or with derivatives in latent space the first frame of
+         * each sample's window (a training frame all the same) */
+        memcpy(F + s0 * n, X, (size_t)B * n * sizeof *F);
     }
     if (!quiet) fprintf(stderr, "framelaw: isomap of %ld frames in %d dimension%s...", N, d, d > 1 ? "s" : "");
     if ((rc = isomap_embed(F, N, n, d, 0, Y, &k_used, st))) {
@@ -455,8 +459,19 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, int quie
     Tape t;
     tape_init(&t, 64, (size_t)16 << 20);
     long nb = (N + Bmax - 1) / Bmax;
-    double last = 0;
+    double last = 0, t_fit = now_seconds();
     for (long e = 0; e < r->cfg->init_epochs; e++) {
+        if (o->stop && *o->stop) { /* nothing saved yet: a resume starts the run over, with the same result */
+            if (!quiet) fprintf(stderr, "\n");
+            rc = status_set(st, ST_RUNTIME, "stopped during the isomap start (model.init), before the first "
+                            "checkpoint: `framelaw resume %s` starts the run over", o->run_dir);
+            break;
+        }
+        if (tty && e > 0) {
+            double per = (now_seconds() - t_fit) / (double)e;
+            fprintf(stderr, "\r\033[Kframelaw: fitting the autoencoder to the embedding: epoch %ld/%ld, loss %.3g, ETA %.0f s",
+                    e, r->cfg->init_epochs, last, per * (double)(r->cfg->init_epochs - e));
+        }
         double acc = 0;
         for (long b = 0; b < nb; b++) {
             long s0 = b * Bmax;
@@ -474,6 +489,8 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, int quie
         last = acc / (double)N;
     }
     tape_free(&t);
+    if (rc) goto done;
+    if (tty) fprintf(stderr, "\r\033[Kframelaw: fitted the autoencoder to the embedding:");
     memset(ps->m, 0, (size_t)ps->n * sizeof *ps->m);
     memset(ps->v, 0, (size_t)ps->n * sizeof *ps->v);
     ps->step = 0;
@@ -562,7 +579,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     int fresh = ps->step == 0, use_pca = !strcmp(c->init, "pca") || !strcmp(c->init, "isomap");
     if (fresh && ((use_pca && (rc = pca_init(&r, ds, X, B, st))) ||
                   (!strcmp(c->init, "isomap") &&
-                   (rc = isomap_init(&r, ds, X, B, o->quiet, (AdamCfg){(float)c->lr, (float)c->beta1, (float)c->beta2,
+                   (rc = isomap_init(&r, ds, X, B, o, (AdamCfg){(float)c->lr, (float)c->beta1, (float)c->beta2,
                                                                         (float)c->eps}, st))))) { /* a fresh model */
         fclose(log);
         nn_free(X);

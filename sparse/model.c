@@ -133,7 +133,7 @@ static Node *model_loss_window(Tape *t, const Model *m, ParamSet *ps, float *X, 
     Node *ddz = nn_mean_sq(t, nn_sub(t, zt, pred));
     if (m->dz_relative) ddz = ratio(t, ddz, nn_mean_sq(t, zt));
     Node *l1 = nn_sum_abs(t, xi);
-    Node *loss = weighted(t, rx, ddz, m->warmup ? 0.0f : w->dz);
+    Node *loss = weighted(t, rx, ddz, w->dz);
     loss = weighted(t, loss, l1, w->l1);
     if (parts) {
         parts->rec = nn_dense_sq_err_mean(rx, 0);
