@@ -745,6 +745,10 @@ int config_validate(const Config *c, Status *st) {
         return status_set(st, ST_INPUT,
                           "train.warmup_epochs (%ld) + threshold.refine_epochs (%ld) must be less than train.epochs (%ld)",
                           c->warmup_epochs, c->refine_epochs, c->epochs);
+    if (!strcmp(c->derivatives, "latent") && !c->loss_normalize)
+        return status_set(st, ST_INPUT,
+                          "model.derivatives latent needs loss.normalize true: without the decoder's derivative "
+                          "term only the relative latent term keeps the latent from shrinking to nothing");
     if (!strcmp(c->derivative, "savgol")) {
         if (c->sg_window % 2 == 0)
             return status_set(st, ST_INPUT, "data.derivative.window: must be odd for savgol (is %d)", c->sg_window);

@@ -349,6 +349,9 @@ static const struct {
      "threshold.refine_epochs (1000) must be less than train.epochs (1000)"},
     {"{\"data\": {\"frames\": \"f\"}, \"train\": {\"epochs\": 1500, \"warmup_epochs\": 500}}",
      "train.warmup_epochs (500) + threshold.refine_epochs (1000) must be less than train.epochs (1500)"},
+    /* measured: the lantern demo's latent collapsed to a constant (0 active terms) without it */
+    {"{\"data\": {\"frames\": \"f\"}, \"model\": {\"derivatives\": \"latent\"}}",
+     "model.derivatives latent needs loss.normalize true"},
     {"{\"data\": {\"frames\": \"f\", \"derivative\": {\"method\": \"savgol\", \"window\": 8}}}",
      "data.derivative.window: must be odd for savgol (is 8)"},
     {"{\"data\": {\"frames\": \"f\", \"derivative\": {\"method\": \"savgol\", \"window\": 5, \"degree\": 5}}}",

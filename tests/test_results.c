@@ -72,7 +72,10 @@ static int setup_mode(void **state, int latent) {
     snprintf(c->val_names[1], CFG_NAME_MAX, "rec2");
     c->epochs = 10;
     c->refine_epochs = 1;
-    if (latent) snprintf(c->derivatives, sizeof c->derivatives, "latent");
+    if (latent) {
+        snprintf(c->derivatives, sizeof c->derivatives, "latent");
+        c->loss_normalize = 1; /* required with latent derivatives */
+    }
     char path[700];
     snprintf(path, sizeof path, "%s/config.json", fx->run);
     char *json = config_to_json(c);

@@ -388,6 +388,35 @@ static void test_isomap_init_follows_the_curve(void **state) {
     if (!(fabs(pca) < 0.9)) fail_msg("pca start: rank correlation with phi %.4f (expected a fold)", pca);
 }
 
+/* Ctrl-C during the Isomap start: the run stops with a message and nothing saved, so that a resume
+ * starts over (and ends as an uninterrupted run would). */
+static void test_stop_during_isomap_start(void **state) {
+    (void)state;
+    char dir[256];
+    assert_non_null(test_tmpdir(dir, sizeof dir));
+    Config c;
+    small_config(&c, dir);
+    c.latent = 1;
+    c.epochs = 1;
+    c.refine_epochs = 0;
+    snprintf(c.init, sizeof c.init, "isomap");
+    TrainData ds = {RING, 2, RING_N, 0, 0.01, ring_gather, NULL, NULL};
+    volatile sig_atomic_t stop = 1; /* as if Ctrl-C came during the embedding */
+    TrainOpts opts = {&c, dir, 0, 1, &stop, 0};
+    Model m;
+    ParamSet ps;
+    TrainResult res;
+    Status st;
+    assert_int_equal(train_run(&opts, &ds, &m, &ps, &res, &st), ST_RUNTIME);
+    assert_non_null(strstr(st.msg, "stopped during the isomap start"));
+    char path[512];
+    snprintf(path, sizeof path, "%s/checkpoints/best.ckpt", dir);
+    assert_int_equal(access(path, F_OK), -1);
+    model_free(&m);
+    params_free(&ps);
+    test_rmtree(dir);
+}
+
 /* A non-finite loss stops the run with a message naming the usual remedies, and the checkpoints
  * written before it stay loadable. The data turn to NaN after 25 batches (inside epoch 3). */
 typedef struct {
@@ -440,6 +469,7 @@ int main(void) {
         cmocka_unit_test(test_divergence_stops_and_keeps_checkpoints),
         cmocka_unit_test(test_warmup_then_fit),
         cmocka_unit_test(test_isomap_init_follows_the_curve),
+        cmocka_unit_test(test_stop_during_isomap_start),
     };
     return cmocka_run_group_tests_name("training loop", tests, NULL, NULL);
 }
