@@ -21,29 +21,39 @@ static Node *build(Tape *t, ParamSet *ps, void *ctx) {
 /* |Xi|_1 has a kink at 0; Xi is set away from it and elements within 2h of 0 are skipped. */
 static int near_zero(float v, float h) { return fabsf(v) < 2 * h; }
 
+/* A small tanh model (one hidden layer of `hidden`, library of degree `degree` with sines and
+ * cosines), Glorot weights from seed `seed`, Xi away from 0 with alternating signs. */
+static void small_model(Model *m, ParamSet *ps, Rng *r, int n_in, int d, int order, int hidden, int degree,
+                        uint64_t seed) {
+    ModelSpec sp = {0};
+    sp.n_in = n_in;
+    sp.n_latent = d;
+    sp.order = order;
+    sp.n_enc = 1;
+    sp.enc_widths[0] = hidden;
+    sp.dec_mirror = 1;
+    sp.act = ACT_TANH;
+    sp.lib = library_spec_default(d, order);
+    sp.lib.degree = degree;
+    sp.lib.trig = 1;
+    params_init(ps);
+    Status st;
+    assert_int_equal(model_init(m, ps, &sp, &st), 0);
+    params_alloc(ps);
+    rng_seed(r, seed);
+    model_init_params(m, ps, r);
+    Mat xi = params_val(ps, m->xi);
+    for (long i = 0; i < mat_size(xi); i++) xi.d[i] = (float)(0.1 + 0.4 * rng_uniform(r)) * (i % 2 ? 1 : -1);
+}
+
 static void check_model(int order) {
     Case c;
     ModelSpec sp = {0};
     sp.n_in = 7;
-    sp.n_latent = 2;
-    sp.order = order;
-    sp.n_enc = 1;
-    sp.enc_widths[0] = 5;
-    sp.dec_mirror = 1;
-    sp.act = ACT_TANH;
-    sp.lib = library_spec_default(2, order);
-    sp.lib.degree = 2;
-    sp.lib.trig = 1;
     ParamSet ps;
-    params_init(&ps);
-    Status st;
-    assert_int_equal(model_init(&c.m, &ps, &sp, &st), 0);
-    params_alloc(&ps);
     Rng r;
-    rng_seed(&r, 77 + order);
-    model_init_params(&c.m, &ps, &r);
+    small_model(&c.m, &ps, &r, sp.n_in, 2, order, 5, 2, 77 + order);
     Mat xi = params_val(&ps, c.m.xi);
-    for (long i = 0; i < mat_size(xi); i++) xi.d[i] = (float)(0.1 + 0.4 * rng_uniform(&r)) * (i % 2 ? 1 : -1);
     c.B = 4;
     int k = order + 1;
     c.X = malloc((size_t)k * c.B * sp.n_in * sizeof(float));
@@ -95,30 +105,15 @@ static void check_window(int order) {
     Case c;
     ModelSpec sp = {0};
     sp.n_in = 6;
-    sp.n_latent = 1;
-    sp.order = order;
-    sp.n_enc = 1;
-    sp.enc_widths[0] = 4;
-    sp.dec_mirror = 1;
-    sp.act = ACT_TANH;
-    sp.lib = library_spec_default(1, order);
-    sp.lib.degree = 3;
-    sp.lib.trig = 1;
     ParamSet ps;
-    params_init(&ps);
+    Rng r;
+    small_model(&c.m, &ps, &r, sp.n_in, 1, order, 4, 3, 91 + order);
     Status st;
-    assert_int_equal(model_init(&c.m, &ps, &sp, &st), 0);
-    params_alloc(&ps);
     Stencil sten;
     assert_int_equal(stencil_savgol(&sten, 5, 3, &st), 0);
     /* dt 1: the weights / dt^2 would multiply the float32 rounding of the finite differences */
     model_set_window(&c.m, &sten, 1.0);
     assert_int_equal(c.m.win, 5);
-    Rng r;
-    rng_seed(&r, 91 + order);
-    model_init_params(&c.m, &ps, &r);
-    Mat xi = params_val(&ps, c.m.xi);
-    for (long i = 0; i < mat_size(xi); i++) xi.d[i] = (float)(0.1 + 0.4 * rng_uniform(&r)) * (i % 2 ? 1 : -1);
     c.B = 3;
     c.X = malloc((size_t)5 * c.B * sp.n_in * sizeof(float));
     /* smooth in the window (a sample's frames differ a little), so z' and z'' stay moderate */

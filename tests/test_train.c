@@ -337,19 +337,26 @@ static int ring_gather(void *ctx, int split, const int64_t *idx, int B, float *X
     return 0;
 }
 
+/* One epoch on the ring with model.init `init`: the initialisation is what is under test. */
+static void ring_config(Config *c, const char *dir, const char *init) {
+    small_config(c, dir);
+    c->latent = 1;
+    c->epochs = 1;
+    c->refine_epochs = 0;
+    c->w_dz = 0;
+    c->w_dx = 0;
+    snprintf(c->init, sizeof c->init, "%s", init);
+    c->init_epochs = 300;
+}
+
+static const TrainData RING_DATA = {RING, 2, RING_N, 0, 0.01, ring_gather, NULL, NULL};
+
 static double ring_rank_correlation(const char *init) {
     char dir[256];
     assert_non_null(test_tmpdir(dir, sizeof dir));
     Config c;
-    small_config(&c, dir);
-    c.latent = 1;
-    c.epochs = 1;
-    c.refine_epochs = 0;
-    c.w_dz = 0; /* the initialisation alone is under test */
-    c.w_dx = 0;
-    snprintf(c.init, sizeof c.init, "%s", init);
-    c.init_epochs = 300;
-    TrainData ds = {RING, 2, RING_N, 0, 0.01, ring_gather, NULL, NULL};
+    ring_config(&c, dir, init);
+    TrainData ds = RING_DATA;
     TrainOpts opts = {&c, dir, 0, 1, NULL, 0};
     Model m;
     ParamSet ps;
@@ -395,12 +402,8 @@ static void test_stop_during_isomap_start(void **state) {
     char dir[256];
     assert_non_null(test_tmpdir(dir, sizeof dir));
     Config c;
-    small_config(&c, dir);
-    c.latent = 1;
-    c.epochs = 1;
-    c.refine_epochs = 0;
-    snprintf(c.init, sizeof c.init, "isomap");
-    TrainData ds = {RING, 2, RING_N, 0, 0.01, ring_gather, NULL, NULL};
+    ring_config(&c, dir, "isomap");
+    TrainData ds = RING_DATA;
     volatile sig_atomic_t stop = 1; /* as if Ctrl-C came during the embedding */
     TrainOpts opts = {&c, dir, 0, 1, &stop, 0};
     Model m;
