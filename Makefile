@@ -18,7 +18,9 @@ DEB_BUILD := libopenblas-dev libstb-dev libcjson-dev libcmocka-dev
 DEB_TEST  := python3 python3-numpy chromium
 DEB_PKGS  := $(DEB_BUILD) $(DEB_TEST)
 
-LIB_SRC  := $(wildcard nn/*.c) $(wildcard sparse/*.c) $(filter-out io/main.c,$(wildcard io/*.c)) $(wildcard demo/*.c)
+# io/ is in sub-folders (io/README.md); io/cli/main.c is the entry point, not library code.
+LIB_SRC  := $(wildcard nn/*.c) $(wildcard sparse/*.c) $(filter-out io/cli/main.c,$(wildcard io/*/*.c)) $(wildcard demo/*.c)
+HEADERS  := $(wildcard */*.h) $(wildcard io/*/*.h)
 TEST_SRC := $(wildcard tests/test_*.c)
 BENCH_SRC:= $(wildcard tests/bench_*.c)
 
@@ -33,14 +35,14 @@ all: framelaw
 framelaw: $(BUILD)/framelaw
 	cp $< $@
 
-$(BUILD)/framelaw: $(BUILD)/io/main.o $(BUILD)/libframelaw.a
+$(BUILD)/framelaw: $(BUILD)/io/cli/main.o $(BUILD)/libframelaw.a
 	$(CC) $(CFLAGS) -o $@ $^ $(LDLIBS)
 
 $(BUILD)/libframelaw.a: $(LIB_OBJ)
 	rm -f $@
 	ar rcs $@ $^
 
-$(BUILD)/%.o: %.c $(wildcard */*.h)
+$(BUILD)/%.o: %.c $(HEADERS)
 	@mkdir -p $(dir $@)
 	$(CC) $(CFLAGS) -c -o $@ $<
 

@@ -14,7 +14,7 @@
  * Every squared term is a mean over the batch and the components (so the weights compare terms of
  * unit size); the L1 term is a plain sum over the coefficients.
  * With m->dz_relative the latent term is divided by the batch's mean of z'^2 (z''^2), gradient
- * included: scale-free, like the normalised reconstruction terms of io/train.c (loss.normalize).
+ * included: scale-free, like the normalised reconstruction terms of io/run/train.c (loss.normalize).
  * Warm-up (m->warmup): the decoder takes the encoder's z' (z'') in place of the model's, so that with
  * the dz and L1 weights at 0 the autoencoder and its derivatives train alone. */
 #ifndef SPARSE_MODEL_H

@@ -11,8 +11,8 @@
 #include <time.h>
 #include <unistd.h>
 
-#include "io/checkpoint.h"
-#include "io/config.h"
+#include "io/run/checkpoint.h"
+#include "io/run/config.h"
 #include "nn/adam.h"
 #include "sparse/model.h"
 

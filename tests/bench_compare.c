@@ -54,10 +54,10 @@
 #include <time.h>
 #include <unistd.h>
 
-#include "io/config.h"
-#include "io/gather.h"
-#include "io/store.h"
-#include "io/train.h"
+#include "io/run/config.h"
+#include "io/data/gather.h"
+#include "io/data/store.h"
+#include "io/run/train.h"
 #include "nn/mat.h"
 #include "nn/rng.h"
 

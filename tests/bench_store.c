@@ -13,8 +13,8 @@
 #include <time.h>
 #include <unistd.h>
 
-#include "io/gather.h"
-#include "io/store.h"
+#include "io/data/gather.h"
+#include "io/data/store.h"
 #include "nn/rng.h"
 
 enum { N_REC = 10, PER_REC = 2000, W = 64, H = 64, BATCH = 1024 };

@@ -1,9 +1,9 @@
-/* tests/test_base64.c: base64 encoding (io/base64.h) against the test vectors of RFC 4648 ("The
+/* tests/test_base64.c: base64 encoding (io/report/base64.h) against the test vectors of RFC 4648 ("The
  * Base16, Base32, and Base64 Data Encodings", IETF 2006, section 10), both as a string and streamed
  * to a file, plus every byte value through a buffer longer than the streaming buffer. */
 #include "tests/testutil.h"
 
-#include "io/base64.h"
+#include "io/report/base64.h"
 
 /* RFC 4648, section 10: BASE64("") = "", ... BASE64("foobar") = "Zm9vYmFy". */
 static const char *const rfc_in[] = {"", "f", "fo", "foo", "foob", "fooba", "foobar"};

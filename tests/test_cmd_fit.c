@@ -4,7 +4,7 @@
  * input; common practice for command-line tools). */
 #include <sys/wait.h>
 
-#include "io/series.h"
+#include "io/data/series.h"
 #include "sparse/equation.h"
 #include "sparse/integrate.h"
 #include "tests/testutil.h"

@@ -1,11 +1,11 @@
-/* tests/test_cmd_frames.c: `framelaw frames` end to end through the binary (io/cmd_frames.c). */
+/* tests/test_cmd_frames.c: `framelaw frames` end to end through the binary (io/cli/cmd_frames.c). */
 #include "tests/testutil.h"
 
 #include <sys/stat.h>
 #include <sys/wait.h>
 #include <unistd.h>
 
-#include "io/images.h"
+#include "io/data/images.h"
 
 static char g_dir[256];
 

@@ -1,17 +1,17 @@
-/* tests/test_config.c: the run config (io/config.h): defaults, round trip, --set, digest, bad
+/* tests/test_config.c: the run config (io/run/config.h): defaults, round trip, --set, digest, bad
  * configs, config_load and the key list in docs/config.md.
  *
  * Sources: JSON per RFC 8259 (IETF, 2017); FNV-1a per its authors' public description (common
  * practice); the rest (defaults, messages, overrides) is our own design, checked against
- * io/config.h and docs/config.md. No tolerances: every comparison here is exact. */
+ * io/run/config.h and docs/config.md. No tolerances: every comparison here is exact. */
 #include "tests/testutil.h"
 
 #include <limits.h>
 #include <sys/stat.h>
 #include <unistd.h>
 
-#include "io/config.h"
-#include "io/images.h"
+#include "io/run/config.h"
+#include "io/data/images.h"
 #include "nn/act.h"
 #include "sparse/stencil.h"
 
@@ -50,7 +50,7 @@ static void set_ok(Config *c, const char *a) {
     if (config_set(c, a, &st)) fail_msg("config_set(%s) failed: %s", a, st.msg);
 }
 
-/* The defaults documented in io/config.h and docs/config.md. */
+/* The defaults documented in io/run/config.h and docs/config.md. */
 static void test_defaults(void **state) {
     (void)state;
     Config c;

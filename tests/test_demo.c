@@ -7,7 +7,7 @@
 #include "demo/convection.h"
 #include "demo/elliptic.h"
 #include "demo/lantern.h"
-#include "io/images.h"
+#include "io/data/images.h"
 #include "tests/testutil.h"
 
 #define DEG (M_PI / 180)

@@ -1,12 +1,12 @@
-/* tests/test_frames.c: natural sort, folder scan, digest, settings (io/frames.h). */
+/* tests/test_frames.c: natural sort, folder scan, digest, settings (io/data/frames.h). */
 #include "tests/testutil.h"
 
 #include <fcntl.h>
 #include <sys/stat.h>
 #include <unistd.h>
 
-#include "io/frames.h"
-#include "io/images.h"
+#include "io/data/frames.h"
+#include "io/data/images.h"
 
 static void write_png(const char *dir, const char *name, int w, int h, int seed) {
     char path[1024];

@@ -1,12 +1,12 @@
-/* tests/test_gather.c: split, valid samples, scaling and the batch gather (io/gather.h). */
+/* tests/test_gather.c: split, valid samples, scaling and the batch gather (io/data/gather.h). */
 #include "tests/testutil.h"
 
 #include <sys/stat.h>
 #include <unistd.h>
 
-#include "io/gather.h"
-#include "io/images.h"
-#include "io/series.h"
+#include "io/data/gather.h"
+#include "io/data/images.h"
+#include "io/data/series.h"
 
 static void rm_rf(const char *dir) {
     char cmd[1200];

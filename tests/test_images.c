@@ -1,9 +1,9 @@
-/* tests/test_images.c: decoding, grayscale, crop, area-average resize (io/images.h). */
+/* tests/test_images.c: decoding, grayscale, crop, area-average resize (io/data/images.h). */
 #include "tests/testutil.h"
 
 #include <unistd.h>
 
-#include "io/images.h"
+#include "io/data/images.h"
 
 #define REF "tests/reference/images/"
 

@@ -8,9 +8,9 @@
 #include <sys/wait.h>
 #include <unistd.h>
 
-#include "io/config.h"
-#include "io/images.h"
-#include "io/report.h"
+#include "io/run/config.h"
+#include "io/data/images.h"
+#include "io/report/report.h"
 #include "sparse/equation.h"
 #include "sparse/library.h"
 #include "tests/testutil.h"

@@ -11,12 +11,12 @@
 
 #include <cjson/cJSON.h>
 
-#include "io/checkpoint.h"
-#include "io/images.h"
-#include "io/config.h"
-#include "io/rundata.h"
-#include "io/series.h"
-#include "io/train.h"
+#include "io/run/checkpoint.h"
+#include "io/data/images.h"
+#include "io/run/config.h"
+#include "io/run/rundata.h"
+#include "io/data/series.h"
+#include "io/run/train.h"
 #include "tests/testutil.h"
 
 #define W_OSC 2.0

@@ -1,10 +1,10 @@
-/* tests/test_series.c: CSV and .npy readers, .npy writer (io/series.h). */
+/* tests/test_series.c: CSV and .npy readers, .npy writer (io/data/series.h). */
 #include "tests/testutil.h"
 
 #include <sys/stat.h>
 #include <unistd.h>
 
-#include "io/series.h"
+#include "io/data/series.h"
 
 #define REF "tests/reference/series/"
 

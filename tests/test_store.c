@@ -1,5 +1,5 @@
 /* tests/test_store.c: the frame store: build, load, reuse, invalidation, validation, concurrent
- * builders (io/store.h). */
+ * builders (io/data/store.h). */
 #include "tests/testutil.h"
 
 #include <fcntl.h>
@@ -7,8 +7,8 @@
 #include <sys/wait.h>
 #include <unistd.h>
 
-#include "io/images.h"
-#include "io/store.h"
+#include "io/data/images.h"
+#include "io/data/store.h"
 
 /* Frame k of a recording: pixel i = (i * 7 + 13 k + seed) mod 256. */
 static uint8_t pix(int i, int k, int seed) { return (uint8_t)((i * 7 + 13 * k + seed) % 256); }

@@ -1,8 +1,8 @@
-/* tests/test_svgplot.c: the SVG line plots of the report (io/svgplot.h): nice tick numbers, tick
+/* tests/test_svgplot.c: the SVG line plots of the report (io/report/svgplot.h): nice tick numbers, tick
  * labels, log axes, gaps, thinning that keeps a spike, marker positions, escaping. */
 #include "tests/testutil.h"
 
-#include "io/svgplot.h"
+#include "io/report/svgplot.h"
 
 /* What svg_plot writes for p, from a temporary file; malloc'ed. */
 static char *render(const Plot *p) {

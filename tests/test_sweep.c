@@ -1,4 +1,4 @@
-/* tests/test_sweep.c: parameter sweeps (io/sweep.h, `framelaw sweep`): grid order and member ids,
+/* tests/test_sweep.c: parameter sweeps (io/sweep/sweep.h, `framelaw sweep`): grid order and member ids,
  * bad sweep files, the skip / resume decision on hand-made member folders, the summary's ranking,
  * Pareto marking and structure grouping on hand-made results, the Slurm batch script, and end to end
  * on tiny numeric recordings: members run two at a time, members (and plain runs) that start together
@@ -11,9 +11,9 @@
 #include <time.h>
 #include <unistd.h>
 
-#include "io/config.h"
-#include "io/store.h"
-#include "io/sweep.h"
+#include "io/run/config.h"
+#include "io/data/store.h"
+#include "io/sweep/sweep.h"
 #include "nn/rng.h"
 #include "tests/testutil.h"
 

@@ -8,9 +8,9 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
-#include "io/checkpoint.h"
-#include "io/config.h"
-#include "io/train.h"
+#include "io/run/checkpoint.h"
+#include "io/run/config.h"
+#include "io/run/train.h"
 #include "tests/testutil.h"
 
 enum { NCH = 64, NREC = 6, NT = 200 };

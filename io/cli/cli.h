@@ -1,0 +1,43 @@
+/* io/cli/cli.h: the commands of the front end. Each returns the process exit status:
+ * 0 success, 1 runtime failure, 2 bad usage or bad input. */
+#ifndef IO_CLI_H
+#define IO_CLI_H
+
+#define FRAMELAW_VERSION "0.1.0"
+
+typedef struct {
+    const char *name;
+    const char *summary;
+    int (*run)(int argc, char **argv);  /* argv[0] is the command name */
+} Command;
+
+/* Print "framelaw: <message>" to stderr and return code (for `return cli_error(2, ...)`). */
+int cli_error(int code, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
+/* 1 when argv holds --help or -h. */
+int cli_wants_help(int argc, char **argv);
+
+/* framelaw fit FILE: a sparse ODE fitted to a time series of state coordinates (io/cli/cmd_fit.c). */
+int cmd_fit(int argc, char **argv);
+
+/* framelaw frames DIR: inspect a frames folder (io/cli/cmd_frames.c). */
+int cmd_frames(int argc, char **argv);
+
+/* framelaw report RUN_DIR: the run's self-contained HTML report (io/cli/cmd_report.c). */
+int cmd_report(int argc, char **argv);
+
+/* framelaw demo SCENARIO OUT_DIR: render a demo scenario's recordings (io/cli/cmd_demo.c). */
+int cmd_demo(int argc, char **argv);
+
+
+
+
+int cmd_train(int argc, char **argv);   /* io/cli/cmd_train.c */
+int cmd_resume(int argc, char **argv);  /* io/cli/cmd_train.c */
+int cmd_sweep(int argc, char **argv);   /* io/cli/cmd_sweep.c */
+
+int cmd_export(int argc, char **argv);   /* io/cli/cmd_results.c */
+int cmd_forecast(int argc, char **argv); /* io/cli/cmd_results.c */
+
+int cmd_verify(int argc, char **argv);   /* io/cli/cmd_verify.c */
+
+#endif

@@ -1,0 +1,58 @@
+/* io/cli/cmd_results.c: `framelaw export RUN_DIR` and `framelaw forecast RUN_DIR`. */
+#include <stdio.h>
+#include <string.h>
+
+#include "io/cli/cli.h"
+#include "io/run/results.h"
+
+static int run_dir_arg(int argc, char **argv, const char **dir, int *quiet) {
+    *dir = NULL;
+    for (int i = 1; i < argc; i++) {
+        if (!strcmp(argv[i], "--quiet")) *quiet = 1;
+        else if (argv[i][0] == '-') return cli_error(2, "%s: unknown option (framelaw %s --help)", argv[i], argv[0]);
+        else if (*dir) return cli_error(2, "%s: one run folder only", argv[i]);
+        else *dir = argv[i];
+    }
+    if (!*dir) return cli_error(2, "%s: missing RUN_DIR (framelaw %s --help)", argv[0], argv[0]);
+    return 0;
+}
+
+static int with_run(int argc, char **argv, int (*fn)(LoadedRun *, int, Status *)) {
+    const char *dir;
+    int quiet = 0, rc = run_dir_arg(argc, argv, &dir, &quiet);
+    if (rc) return rc;
+    static LoadedRun r; /* large (the config holds paths): not on the stack */
+    Status st;
+    if (loaded_run_open(&r, dir, &st)) return cli_error(st.code, "%s", st.msg);
+    rc = fn(&r, quiet, &st);
+    if (rc) cli_error(rc, "%s", st.msg);
+    loaded_run_close(&r);
+    return rc;
+}
+
+int cmd_export(int argc, char **argv) {
+    if (cli_wants_help(argc, argv)) {
+        printf("usage: framelaw export RUN_DIR [--quiet]\n\n"
+               "Write what a trained run learned, from its newest checkpoint, into RUN_DIR (docs/formats.md):\n"
+               "equations.txt / .tex / .json, trajectories/<recording>.csv and .npy (t, z, z', the model's\n"
+               "z' or z''), reconstructions/<recording>.png (original | decoded | difference) for image data,\n"
+               "and region.json (the range of latent states seen in training). `framelaw train` runs it at\n"
+               "the end of a run.\n\n  --quiet   no summary line\n");
+        return 0;
+    }
+    return with_run(argc, argv, results_export);
+}
+
+int cmd_forecast(int argc, char **argv) {
+    if (cli_wants_help(argc, argv)) {
+        printf("usage: framelaw forecast RUN_DIR [--quiet]\n\n"
+               "For each held-out recording: encode its first frame (and, for a second-order model, the first\n"
+               "derivative from the stencil), integrate the learned model over the recording (forecast.method,\n"
+               "forecast.tolerance), decode every step and compare with the real frames. Prints the mean\n"
+               "relative error and the time it first exceeds forecast.bound (default 10%%), flags forecasts\n"
+               "that leave the training region, and writes forecast.json and forecast/<recording>.csv.\n"
+               "`framelaw train` runs it at the end of a run.\n\n  --quiet   no summary lines\n");
+        return 0;
+    }
+    return with_run(argc, argv, results_forecast);
+}

@@ -1,0 +1,228 @@
+/* io/cli/cmd_train.c: `framelaw train CONFIG` and `framelaw resume RUN_DIR`. */
+#include <errno.h>
+#include <math.h>
+#include <signal.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+
+#include "io/fs/atomic_file.h"
+#include "io/cli/cli.h"
+#include "io/run/config.h"
+#include "io/run/results.h"
+#include "io/run/rundata.h"
+#include "io/run/train.h"
+#include "sparse/coef.h"
+#include "sparse/equation.h"
+
+static volatile sig_atomic_t stop_flag = 0;
+static void on_signal(int sig) {
+    (void)sig;
+    stop_flag = 1;
+}
+
+/* ---- results at the end of training -------------------------------------------------------------- */
+
+/* Export and forecast from the final checkpoint, then print the equations. */
+static int finish_run(const char *run_dir, int quiet, Status *st) {
+    LoadedRun *r = malloc(sizeof *r);
+    if (!r) return status_set(st, ST_RUNTIME, "out of memory");
+    int rc = loaded_run_open(r, run_dir, st);
+    if (!rc) rc = results_export(r, quiet, st);
+    if (!rc) {
+        printf("learned equations (%ld active terms):\n", model_active(&r->m));
+        equation_fprint(stdout, EQ_TEXT, &r->m.lib, r->coef.xi, r->coef.mask, 4);
+        fflush(stdout);
+        rc = results_forecast(r, quiet, st);
+    }
+    if (!rc && !quiet) fprintf(stderr, "framelaw: results in %s\n", run_dir);
+    if (r->have_model || r->have_data) loaded_run_close(r);
+    free(r);
+    return rc;
+}
+
+/* ---- shared by train and resume ---------------------------------------------------------------- */
+
+static int mkdir_p(const char *path, Status *st) {
+    char buf[CFG_PATH_MAX];
+    snprintf(buf, sizeof buf, "%s", path);
+    for (char *p = buf + 1; *p; p++) {
+        if (*p != '/') continue;
+        *p = 0;
+        if (mkdir(buf, 0777) && errno != EEXIST)
+            return status_set(st, ST_RUNTIME, "%s: cannot create folder: %s", buf, strerror(errno));
+        *p = '/';
+    }
+    if (mkdir(buf, 0777) && errno != EEXIST)
+        return status_set(st, ST_RUNTIME, "%s: cannot create folder: %s", buf, strerror(errno));
+    return 0;
+}
+
+static int run_training(Config *c, const char *run_dir, int resume, int quiet) {
+    Status st;
+    RunData data;
+    int rc = rundata_open(&data, c, &st);
+    if (rc) {
+        rundata_close(&data);
+        return cli_error(rc, "%s", st.msg);
+    }
+    TrainData td = data.td;
+    if (!quiet) {
+        fprintf(stderr, "framelaw: %s %s: %ld training and %ld validation samples of %d values, dt %.6g s\n",
+                resume ? "resuming" : "training", run_dir, td.n_train, td.n_val, td.n_in, td.dt);
+        fprintf(stderr, "framelaw: model: latent %d, order %d, %s; batch %d, %ld epochs; log in %s/log.csv\n",
+                c->latent, c->order, c->activation, c->batch, c->epochs, run_dir);
+    }
+    struct sigaction sa;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = on_signal;
+    sigemptyset(&sa.sa_mask);
+    sigaction(SIGINT, &sa, NULL);
+    sigaction(SIGTERM, &sa, NULL);
+    TrainOpts o = {c, run_dir, resume, quiet, &stop_flag, 0};
+    Model m;
+    ParamSet ps;
+    TrainResult res;
+    rc = train_run(&o, &td, &m, &ps, &res, &st);
+    /* training is over: Ctrl-C now stops at once (export and forecast write atomically) */
+    sa.sa_handler = SIG_DFL;
+    sigaction(SIGINT, &sa, NULL);
+    sigaction(SIGTERM, &sa, NULL);
+    if (rc) {
+        cli_error(rc, "%s", st.msg);
+    } else if (res.interrupted) {
+        fprintf(stderr, "framelaw: stopped after epoch %ld; checkpoint %s\nframelaw: continue with: framelaw resume %s\n",
+                res.epochs_done, res.checkpoint, run_dir);
+        rc = 1;
+    } else {
+        if (!quiet && isfinite(res.best_val))
+            fprintf(stderr, "framelaw: best validation loss %.4g\n", res.best_val);
+    }
+    model_free(&m);
+    params_free(&ps);
+    rundata_close(&data);
+    if (!rc && !res.interrupted && finish_run(run_dir, quiet, &st)) rc = cli_error(st.code, "%s", st.msg);
+    return rc;
+}
+
+static int parse_sets(Config *c, int argc, char **argv, int *quiet, const char **pos, int resume) {
+    Status st;
+    *pos = NULL;
+    for (int i = 1; i < argc; i++) {
+        if (!strcmp(argv[i], "--quiet")) {
+            *quiet = 1;
+        } else if (!strcmp(argv[i], "--set") || !strncmp(argv[i], "--set=", 6)) {
+            const char *a = argv[i][5] == '=' ? argv[i] + 6 : (i + 1 < argc ? argv[++i] : NULL);
+            if (!a) return cli_error(2, "--set needs KEY.PATH=VALUE");
+            if (resume) {
+                int ok = 0;
+                for (int k = 0; config_resume_safe_keys[k]; k++) {
+                    size_t n = strlen(config_resume_safe_keys[k]);
+                    if (!strncmp(a, config_resume_safe_keys[k], n) && a[n] == '=') ok = 1;
+                }
+                if (!ok) {
+                    char keys[512];
+                    config_safe_keys_text(keys, sizeof keys);
+                    return cli_error(2, "--set %s: only these keys may change on resume: %s", a, keys);
+                }
+            }
+            if (c && config_set(c, a, &st)) return cli_error(st.code, "%s", st.msg);
+        } else if (argv[i][0] == '-') {
+            return cli_error(2, "%s: unknown option (framelaw %s --help)", argv[i], argv[0]);
+        } else if (*pos) {
+            return cli_error(2, "%s: one %s only", argv[i], resume ? "run folder" : "config file");
+        } else {
+            *pos = argv[i];
+        }
+    }
+    return 0;
+}
+
+int cmd_train(int argc, char **argv) {
+    if (cli_wants_help(argc, argv)) {
+        printf("usage: framelaw train CONFIG [--set KEY.PATH=VALUE ...] [--quiet]\n\n"
+               "Train the autoencoder and the sparse latent model described by CONFIG (JSON; every key is\n"
+               "listed in docs/config.md). Writes the run folder given by `output` (default runs/<config name>):\n"
+               "config.json, log.csv, checkpoints/, equations.txt / .tex / .json.\n\n"
+               "  --set KEY.PATH=VALUE   override a config key (VALUE is JSON; repeatable)\n"
+               "  --quiet                no progress output\n\n"
+               "Ctrl-C (or SIGTERM) finishes the current step, writes a checkpoint and says how to resume.\n");
+        return 0;
+    }
+    int quiet = 0;
+    const char *path;
+    int rc = parse_sets(NULL, argc, argv, &quiet, &path, 0);
+    if (rc) return rc;
+    if (!path) return cli_error(2, "train: missing CONFIG (framelaw train --help)");
+    Config *c = malloc(sizeof *c);
+    if (!c) return cli_error(1, "out of memory");
+    Status st;
+    if (config_load(c, path, &st) || (rc = parse_sets(c, argc, argv, &quiet, &path, 0)) || config_validate(c, &st)) {
+        free(c);
+        return rc ? rc : cli_error(st.code, "%s", st.msg);
+    }
+    char ck[CFG_PATH_MAX + 32];
+    snprintf(ck, sizeof ck, "%s/checkpoints", c->output);
+    struct stat sb;
+    if (stat(ck, &sb) == 0) {
+        rc = cli_error(2, "%s: already holds a run; continue it with `framelaw resume %s` or choose another "
+                          "output (--set output=...)", c->output, c->output);
+        free(c);
+        return rc;
+    }
+    char cfg_path[CFG_PATH_MAX + 32];
+    snprintf(cfg_path, sizeof cfg_path, "%s/config.json", c->output);
+    char *json = config_to_json(c);
+    if (mkdir_p(c->output, &st) || atomic_write_bytes(cfg_path, json, strlen(json), &st)) {
+        free(json);
+        free(c);
+        return cli_error(st.code, "%s", st.msg);
+    }
+    free(json);
+    char run_dir[CFG_PATH_MAX];
+    snprintf(run_dir, sizeof run_dir, "%s", c->output);
+    rc = run_training(c, run_dir, 0, quiet);
+    free(c);
+    return rc;
+}
+
+int cmd_resume(int argc, char **argv) {
+    if (cli_wants_help(argc, argv)) {
+        printf("usage: framelaw resume RUN_DIR [--set KEY.PATH=VALUE ...] [--quiet]\n\n"
+               "Continue a run from its newest valid checkpoint, exactly as if it had not stopped. A checkpoint\n"
+               "that is truncated or damaged is skipped with a message and the one before it is used.\n"
+               "Only these keys may change: train.epochs, train.threads, train.validate_every,\n"
+               "checkpoint.every, checkpoint.keep, output, forecast.bound, forecast.method,\n"
+               "forecast.tolerance.\n");
+        return 0;
+    }
+    int quiet = 0;
+    const char *dir;
+    int rc = parse_sets(NULL, argc, argv, &quiet, &dir, 1);
+    if (rc) return rc;
+    if (!dir) return cli_error(2, "resume: missing RUN_DIR (framelaw resume --help)");
+    char cfg_path[CFG_PATH_MAX + 32];
+    snprintf(cfg_path, sizeof cfg_path, "%s/config.json", dir);
+    Config *c = malloc(sizeof *c);
+    if (!c) return cli_error(1, "out of memory");
+    Status st;
+    if (run_config_load(dir, c, &st) || (rc = parse_sets(c, argc, argv, &quiet, &dir, 1)) || config_validate(c, &st)) {
+        free(c);
+        return rc ? rc : cli_error(st.code, "%s", st.msg);
+    }
+    int sets = 0;
+    for (int i = 1; i < argc; i++) sets |= !strncmp(argv[i], "--set", 5);
+    if (sets) { /* store the changed safe keys so a later resume sees them */
+        char *json = config_to_json(c);
+        if (atomic_write_bytes(cfg_path, json, strlen(json), &st)) {
+            free(json);
+            free(c);
+            return cli_error(st.code, "%s", st.msg);
+        }
+        free(json);
+    }
+    rc = run_training(c, dir, 1, quiet);
+    free(c);
+    return rc;
+}

@@ -1,0 +1,77 @@
+/* io/cli/main.c: the command-line front end. Dispatches to the commands of io/cli/cli.h; only the front end
+ * decides the exit status. */
+#include <stdarg.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "io/cli/cli.h"
+
+static int cmd_help(int argc, char **argv);
+
+/* One row per command; add a command here and declare it in io/cli/cli.h. */
+static const Command commands[] = {
+    {"train", "train the autoencoder and the sparse latent model from a config file", cmd_train},
+    {"resume", "continue a stopped run from its newest valid checkpoint", cmd_resume},
+    {"export", "write equations, latent trajectories and reconstructions of a trained run", cmd_export},
+    {"forecast", "forecast the held-out recordings with the learned model and measure the error", cmd_forecast},
+    {"verify", "check a run on a demo scenario against its physics (periods, Lyapunov exponent)", cmd_verify},
+    {"help", "show this overview", cmd_help},
+    {"fit", "fit a sparse ODE to a time series of state coordinates (CSV or .npy)", cmd_fit},
+    {"frames", "inspect a frames folder: recordings, sizes, frame store, contact sheet", cmd_frames},
+    {"demo", "render the recordings of a demo scenario (lantern, convection) as PNG frames", cmd_demo},
+    {"sweep", "train every member of a parameter sweep, locally or as a Slurm job array", cmd_sweep},
+    {"report", "write a run's HTML report: settings, losses, equations, forecasts, reconstructions", cmd_report},
+};
+enum { N_COMMANDS = sizeof commands / sizeof commands[0] };
+
+int cli_error(int code, const char *fmt, ...) {
+    va_list ap;
+    va_start(ap, fmt);
+    fputs("framelaw: ", stderr);
+    vfprintf(stderr, fmt, ap);
+    fputc('\n', stderr);
+    va_end(ap);
+    return code;
+}
+
+int cli_wants_help(int argc, char **argv) {
+    for (int i = 1; i < argc; i++)
+        if (!strcmp(argv[i], "--help") || !strcmp(argv[i], "-h")) return 1;
+    return 0;
+}
+
+static void usage(FILE *f) {
+    fprintf(f,
+            "usage: framelaw COMMAND [ARGS...]\n"
+            "       framelaw COMMAND --help\n"
+            "       framelaw --version\n\n"
+            "Learns a few ordinary differential equations, and the coordinates they live in, from video\n"
+            "frames of a moving system.\n\ncommands:\n");
+    for (int i = 0; i < N_COMMANDS; i++) fprintf(f, "  %-10s %s\n", commands[i].name, commands[i].summary);
+    fprintf(f, "\nexit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n");
+}
+
+static int cmd_help(int argc, char **argv) {
+    (void)argc;
+    (void)argv;
+    usage(stdout);
+    return 0;
+}
+
+int main(int argc, char **argv) {
+    if (argc < 2) {
+        usage(stderr);
+        return 2;
+    }
+    if (!strcmp(argv[1], "--help") || !strcmp(argv[1], "-h") || !strcmp(argv[1], "help")) {
+        usage(stdout);
+        return 0;
+    }
+    if (!strcmp(argv[1], "--version")) {
+        printf("framelaw %s\n", FRAMELAW_VERSION);
+        return 0;
+    }
+    for (int i = 0; i < N_COMMANDS; i++)
+        if (!strcmp(argv[1], commands[i].name)) return commands[i].run(argc - 1, argv + 1);
+    return cli_error(2, "unknown command '%s' (framelaw --help lists the commands)", argv[1]);
+}

@@ -1,0 +1,421 @@
+/* io/data/frames.c: settings, folder scan, natural sort, digest (see frames.h). */
+#include "io/data/frames.h"
+
+#include <ctype.h>
+#include <dirent.h>
+#include <errno.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+
+#include "io/data/series.h"
+#include "io/data/store.h"
+
+const char *const scale_mode_names[SCALE_COUNT] = {"unit", "standardize"};
+
+ScaleMode scale_mode_from_name(const char *name) {
+    for (int k = 0; k < SCALE_COUNT; k++)
+        if (!strcmp(name, scale_mode_names[k])) return (ScaleMode)k;
+    return SCALE_COUNT;
+}
+
+FrameSettings frame_settings_default(void) {
+    FrameSettings s;
+    memset(&s, 0, sizeof s);
+    s.gray = GRAY_BT601;
+    s.bits = 8;
+    s.stride = 1;
+    s.fps = 30.0;
+    s.scale = SCALE_UNIT;
+    s.stencil = STENCIL_CENTRAL;
+    s.sg_window = 7;
+    s.sg_degree = 3;
+    s.val_last = 1;
+    return s;
+}
+
+int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st) {
+    *s = frame_settings_default();
+    s->fps = c->fps;
+    s->gray = gray_std_from_name(c->gray);
+    if (s->gray == GRAY_COUNT) return status_set(st, ST_INPUT, "data.gray: unknown standard '%s'", c->gray);
+    s->crop_x = c->crop[0], s->crop_y = c->crop[1], s->crop_w = c->crop[2], s->crop_h = c->crop[3];
+    s->width = c->size[0], s->height = c->size[1];
+    s->scale = scale_mode_from_name(c->scale);
+    if (s->scale == SCALE_COUNT) return status_set(st, ST_INPUT, "data.scale: unknown scaling '%s'", c->scale);
+    s->stride = c->stride;
+    s->bits = c->store_bits;
+    s->stencil = stencil_kind_from_name(c->derivative);
+    if (s->stencil == STENCIL_KIND_COUNT)
+        return status_set(st, ST_INPUT, "data.derivative.method: unknown method '%s'", c->derivative);
+    s->sg_window = c->sg_window, s->sg_degree = c->sg_degree;
+    size_t k = 0;
+    for (int i = 0; i < c->n_val_names && i < CFG_MAX_LIST; i++) {
+        int n = snprintf(s->val_names + k, sizeof s->val_names - k, "%s%s", i ? "," : "", c->val_names[i]);
+        if (n < 0 || (size_t)n >= sizeof s->val_names - k)
+            return status_set(st, ST_INPUT, "data.validation.recordings: names too long");
+        k += (size_t)n;
+    }
+    s->val_last = c->val_last;
+    return frame_settings_check(s, st);
+}
+
+int frame_settings_check(const FrameSettings *s, Status *st) {
+    if (!(s->fps > 0) || s->fps > 1e12)
+        return status_set(st, ST_INPUT, "fps %g must be a positive number", s->fps);
+    if (s->stride < 1) return status_set(st, ST_INPUT, "stride %d must be at least 1", s->stride);
+    if (s->bits != 8 && s->bits != 16) return status_set(st, ST_INPUT, "bits %d must be 8 or 16", s->bits);
+    if (s->gray < 0 || s->gray >= GRAY_COUNT) return status_set(st, ST_INPUT, "unknown grayscale standard");
+    if (s->scale < 0 || s->scale >= SCALE_COUNT) return status_set(st, ST_INPUT, "unknown intensity scaling");
+    if (s->crop_x < 0 || s->crop_y < 0 || s->crop_w < 0 || s->crop_h < 0 || (!s->crop_w != !s->crop_h))
+        return status_set(st, ST_INPUT, "crop %d,%d,%d,%d must have a non-negative corner and a positive size",
+                          s->crop_x, s->crop_y, s->crop_w, s->crop_h);
+    if (s->width < 0 || s->height < 0 || (!s->width != !s->height) || s->width > 65535 || s->height > 65535)
+        return status_set(st, ST_INPUT, "size %dx%d must be two positive numbers (or 0x0 to keep the size)",
+                          s->width, s->height);
+    if (s->val_last < 0) return status_set(st, ST_INPUT, "val-last %d must be >= 0", s->val_last);
+    Stencil tmp;
+    return frame_settings_stencil(s, &tmp, st);
+}
+
+int frame_settings_stencil(const FrameSettings *s, Stencil *out, Status *st) {
+    if (s->stencil < 0 || s->stencil >= STENCIL_KIND_COUNT)
+        return status_set(st, ST_INPUT, "unknown stencil");
+    return stencil_make(out, s->stencil, s->sg_window, s->sg_degree, st);
+}
+
+/* ---- natural sort ------------------------------------------------------------------------ */
+
+int frames_natural_cmp(const char *a, const char *b) {
+    const char *p = a, *q = b;
+    while (*p && *q) {
+        if (isdigit((unsigned char)*p) && isdigit((unsigned char)*q)) {
+            while (*p == '0' && isdigit((unsigned char)p[1])) p++;
+            while (*q == '0' && isdigit((unsigned char)q[1])) q++;
+            size_t lp = 0, lq = 0;
+            while (isdigit((unsigned char)p[lp])) lp++;
+            while (isdigit((unsigned char)q[lq])) lq++;
+            if (lp != lq) return lp < lq ? -1 : 1;
+            int c = memcmp(p, q, lp);
+            if (c) return c < 0 ? -1 : 1;
+            p += lp, q += lq;
+        } else {
+            if (*p != *q) return (unsigned char)*p < (unsigned char)*q ? -1 : 1;
+            p++, q++;
+        }
+    }
+    if (*p || *q) return *p ? 1 : -1;
+    int c = strcmp(a, b);
+    return c < 0 ? -1 : c > 0;
+}
+
+static int cmp_files(const void *x, const void *y) {
+    const SourceFile *a = x, *b = y;
+    const char *na = strrchr(a->path, '/'), *nb = strrchr(b->path, '/');
+    return frames_natural_cmp(na ? na + 1 : a->path, nb ? nb + 1 : b->path);
+}
+
+static int cmp_recs(const void *x, const void *y) {
+    const ScanRecording *a = x, *b = y;
+    return frames_natural_cmp(a->name, b->name);
+}
+
+/* ---- scan -------------------------------------------------------------------------------- */
+
+void frames_scan_free(FrameScan *fs) {
+    for (int r = 0; r < fs->n_rec; r++) {
+        for (int i = 0; i < fs->rec[r].n_files; i++) free(fs->rec[r].files[i].path);
+        free(fs->rec[r].files);
+    }
+    free(fs->rec);
+    fs->rec = NULL;
+    fs->n_rec = 0;
+}
+
+static char *join(const char *dir, const char *name) {
+    size_t a = strlen(dir), b = strlen(name);
+    char *p = malloc(a + b + 2);
+    if (!p) return NULL;
+    memcpy(p, dir, a);
+    size_t k = a;
+    if (a && dir[a - 1] != '/') p[k++] = '/';
+    memcpy(p + k, name, b + 1);
+    return p;
+}
+
+static void fill_stat(SourceFile *f, const struct stat *sb) {
+    f->size = (int64_t)sb->st_size;
+    f->mtime_ns = (int64_t)sb->st_mtim.tv_sec * 1000000000LL + sb->st_mtim.tv_nsec;
+}
+
+static int add_rec(FrameScan *fs, int *cap, Status *st) {
+    if (fs->n_rec == *cap) {
+        int nc = *cap ? 2 * *cap : 8;
+        ScanRecording *nr = realloc(fs->rec, sizeof *nr * (size_t)nc);
+        if (!nr) return status_set(st, ST_RUNTIME, "%s: out of memory", fs->root);
+        fs->rec = nr, *cap = nc;
+    }
+    memset(&fs->rec[fs->n_rec], 0, sizeof fs->rec[0]);
+    fs->n_rec++;
+    return 0;
+}
+
+static void set_name(ScanRecording *r, const char *path, int strip_ext) {
+    const char *base = path + strlen(path);
+    while (base > path && base[-1] == '/') base--;   /* trailing slashes */
+    const char *end = base;
+    while (base > path && base[-1] != '/') base--;
+    size_t n = (size_t)(end - base);
+    if (n == 0) base = ".", n = 1;
+    if (n >= sizeof r->name) n = sizeof r->name - 1;
+    memcpy(r->name, base, n);
+    r->name[n] = 0;
+    if (strip_ext) {
+        char *dot = strrchr(r->name, '.');
+        if (dot && dot != r->name) *dot = 0;
+    }
+}
+
+/* Image files directly inside dir, naturally sorted. *n_img = 0 when none. Counts other entries in
+ * *other_files, *dirs when not NULL. */
+static int list_images(const char *dir, SourceFile **out, int *n_img, int *other_files, int *dirs, Status *st) {
+    *out = NULL;
+    *n_img = 0;
+    DIR *d = opendir(dir);
+    if (!d) return status_set(st, ST_INPUT, "%s: cannot open folder: %s", dir, strerror(errno));
+    int cap = 0, rc = 0;
+    SourceFile *v = NULL;
+    struct dirent *e;
+    while ((e = readdir(d))) {
+        if (e->d_name[0] == '.') continue;
+        char *p = join(dir, e->d_name);
+        struct stat sb;
+        if (!p) {
+            rc = status_set(st, ST_RUNTIME, "%s: out of memory", dir);
+            break;
+        }
+        if (stat(p, &sb) != 0) {
+            free(p);
+            if (other_files) (*other_files)++;
+            continue;
+        }
+        if (S_ISDIR(sb.st_mode)) {
+            if (dirs) (*dirs)++;
+            free(p);
+            continue;
+        }
+        if (!S_ISREG(sb.st_mode) || !image_is_image_name(e->d_name)) {
+            if (other_files) (*other_files)++;
+            free(p);
+            continue;
+        }
+        if (*n_img == cap) {
+            cap = cap ? 2 * cap : 64;
+            SourceFile *nv = realloc(v, sizeof *nv * (size_t)cap);
+            if (!nv) {
+                free(p);
+                rc = status_set(st, ST_RUNTIME, "%s: out of memory", dir);
+                break;
+            }
+            v = nv;
+        }
+        v[*n_img].path = p;
+        fill_stat(&v[*n_img], &sb);
+        (*n_img)++;
+    }
+    closedir(d);
+    if (rc) {
+        for (int i = 0; i < *n_img; i++) free(v[i].path);
+        free(v);
+        *n_img = 0;
+        return rc;
+    }
+    if (*n_img) qsort(v, (size_t)*n_img, sizeof *v, cmp_files);
+    *out = v;
+    return 0;
+}
+
+static int add_numeric(FrameScan *fs, int *cap, const char *path, const struct stat *sb, Status *st) {
+    if (add_rec(fs, cap, st)) return st->code;
+    ScanRecording *r = &fs->rec[fs->n_rec - 1];
+    r->kind = REC_NUMERIC;
+    set_name(r, path, 1);
+    r->files = calloc(1, sizeof *r->files);
+    if (r->files) r->files[0].path = strdup(path);
+    if (!r->files || !r->files[0].path) return status_set(st, ST_RUNTIME, "%s: out of memory", path);
+    r->n_files = 1;
+    fill_stat(&r->files[0], sb);
+    return 0;
+}
+
+int frames_scan(const char *path, FrameScan *fs, Status *st) {
+    memset(fs, 0, sizeof *fs);
+    snprintf(fs->root, sizeof fs->root, "%s", path);
+    int cap = 0;
+    struct stat sb;
+    if (stat(path, &sb) != 0) return status_set(st, ST_INPUT, "%s: %s", path, strerror(errno));
+    if (S_ISREG(sb.st_mode)) {
+        if (!series_is_numeric_path(path))
+            return status_set(st, ST_INPUT, "%s: not a folder, nor a .csv or .npy recording", path);
+        fs->single = 1;
+        fs->kind = REC_NUMERIC;
+        if (add_numeric(fs, &cap, path, &sb, st)) goto fail;
+        return 0;
+    }
+    if (!S_ISDIR(sb.st_mode)) return status_set(st, ST_INPUT, "%s: not a folder", path);
+    SourceFile *imgs;
+    int n_img, other = 0, dirs = 0;
+    if (list_images(path, &imgs, &n_img, &other, &dirs, st)) return st->code;
+    if (n_img) {
+        fs->single = 1;
+        fs->kind = REC_IMAGES;
+        fs->ignored_files = other;
+        fs->ignored_dirs = dirs;
+        if (add_rec(fs, &cap, st)) {
+            for (int i = 0; i < n_img; i++) free(imgs[i].path);
+            free(imgs);
+            goto fail;
+        }
+        set_name(&fs->rec[0], path, 0);
+        fs->rec[0].kind = REC_IMAGES;
+        fs->rec[0].files = imgs;
+        fs->rec[0].n_files = n_img;
+        return 0;
+    }
+    free(imgs);
+    /* Several recordings: sub-folders with images, and numeric files. */
+    DIR *d = opendir(path);
+    if (!d) return status_set(st, ST_INPUT, "%s: cannot open folder: %s", path, strerror(errno));
+    struct dirent *e;
+    int n_img_rec = 0, n_num_rec = 0, rc = 0;
+    char first_img[256] = "", first_num[256] = "";
+    while (!rc && (e = readdir(d))) {
+        if (e->d_name[0] == '.') continue;
+        char *p = join(path, e->d_name);
+        if (!p) {
+            rc = status_set(st, ST_RUNTIME, "%s: out of memory", path);
+            break;
+        }
+        if (stat(p, &sb) != 0) {
+            fs->ignored_files++;
+        } else if (S_ISDIR(sb.st_mode)) {
+            int sub_other = 0, sub_dirs = 0;
+            if (list_images(p, &imgs, &n_img, &sub_other, &sub_dirs, st)) rc = st->code;
+            else if (!n_img) {
+                fs->ignored_dirs++;
+                free(imgs);
+            } else if (add_rec(fs, &cap, st)) {
+                for (int i = 0; i < n_img; i++) free(imgs[i].path);
+                free(imgs);
+                rc = st->code;
+            } else {
+                ScanRecording *r = &fs->rec[fs->n_rec - 1];
+                set_name(r, p, 0);
+                r->kind = REC_IMAGES;
+                r->files = imgs;
+                r->n_files = n_img;
+                fs->ignored_files += sub_other;
+                fs->ignored_dirs += sub_dirs;
+                if (!n_img_rec++) snprintf(first_img, sizeof first_img, "%s", e->d_name);
+            }
+        } else if (S_ISREG(sb.st_mode) && series_is_numeric_path(e->d_name)) {
+            if (add_numeric(fs, &cap, p, &sb, st)) rc = st->code;
+            else if (!n_num_rec++) snprintf(first_num, sizeof first_num, "%s", e->d_name);
+        } else {
+            fs->ignored_files++;
+        }
+        free(p);
+    }
+    closedir(d);
+    if (rc) goto fail;
+    if (fs->n_rec == 0) {
+        status_set(st, ST_INPUT, "%s: no image files or recordings found (%d other files, %d empty sub-folders)",
+                   path, fs->ignored_files, fs->ignored_dirs);
+        goto fail;
+    }
+    if (n_img_rec && n_num_rec) {
+        status_set(st, ST_INPUT, "%s: mixes image recordings (sub-folder %s) and numeric recordings (%s); use one kind",
+                   path, first_img, first_num);
+        goto fail;
+    }
+    fs->kind = n_img_rec ? REC_IMAGES : REC_NUMERIC;
+    qsort(fs->rec, (size_t)fs->n_rec, sizeof fs->rec[0], cmp_recs);
+    for (int r = 1; r < fs->n_rec; r++)
+        if (!strcmp(fs->rec[r].name, fs->rec[r - 1].name)) {
+            status_set(st, ST_INPUT, "%s: two recordings are named '%s' (a sub-folder and a file, or a.csv and a.npy)",
+                       path, fs->rec[r].name);
+            goto fail;
+        }
+    return 0;
+fail:
+    frames_scan_free(fs);
+    return st->code;
+}
+
+/* ---- digest ------------------------------------------------------------------------------ */
+
+typedef struct {
+    uint64_t h;
+} Fnv;
+
+static void fnv_bytes(Fnv *f, const void *p, size_t n) {
+    const unsigned char *b = p;
+    for (size_t i = 0; i < n; i++) f->h = (f->h ^ b[i]) * 0x100000001b3ULL;
+}
+static void fnv_u64(Fnv *f, uint64_t v) {
+    unsigned char b[8];
+    for (int i = 0; i < 8; i++) b[i] = (unsigned char)(v >> (8 * i));
+    fnv_bytes(f, b, 8);
+}
+static void fnv_str(Fnv *f, const char *s) {
+    fnv_u64(f, strlen(s));
+    fnv_bytes(f, s, strlen(s));
+}
+
+uint64_t frames_digest(const FrameScan *fs, const FrameSettings *s) {
+    Fnv f = {0xcbf29ce484222325ULL};
+    fnv_u64(&f, STORE_VERSION);
+    fnv_u64(&f, (uint64_t)fs->n_rec);
+    size_t root_len = strlen(fs->root);
+    for (int r = 0; r < fs->n_rec; r++) {
+        const ScanRecording *rec = &fs->rec[r];
+        fnv_str(&f, rec->name);
+        fnv_u64(&f, rec->kind);
+        fnv_u64(&f, (uint64_t)rec->n_files);
+        for (int i = 0; i < rec->n_files; i++) {
+            const char *p = rec->files[i].path;
+            /* Relative to the root, so that moving the whole folder keeps the store valid. */
+            if (!fs->single && !strncmp(p, fs->root, root_len)) {
+                p += root_len;
+                while (*p == '/') p++;
+            } else if (fs->single) {
+                const char *b = strrchr(p, '/');
+                p = b ? b + 1 : p;
+            }
+            fnv_str(&f, p);
+            fnv_u64(&f, (uint64_t)rec->files[i].size);
+            fnv_u64(&f, (uint64_t)rec->files[i].mtime_ns);
+        }
+    }
+    int64_t v[] = {s->gray, s->crop_x, s->crop_y, s->crop_w, s->crop_h, s->width, s->height,
+                   fs->kind == REC_NUMERIC ? 32 : s->bits, s->stride};
+    for (size_t i = 0; i < sizeof v / sizeof v[0]; i++) fnv_u64(&f, (uint64_t)v[i]);
+    return f.h;
+}
+
+void frames_store_path(const FrameScan *fs, const FrameSettings *s, char *out, size_t n) {
+    if (s->store_path[0]) {
+        snprintf(out, n, "%s", s->store_path);
+        return;
+    }
+    size_t len = strlen(fs->root);
+    while (len > 1 && fs->root[len - 1] == '/') len--;
+    if (fs->single && fs->kind == REC_NUMERIC) {
+        const char *slash = memchr(fs->root, '/', len) ? strrchr(fs->root, '/') : NULL;
+        if (slash) snprintf(out, n, "%.*s/.%s.framelaw-store", (int)(slash - fs->root), fs->root, slash + 1);
+        else snprintf(out, n, ".%s.framelaw-store", fs->root);
+        return;
+    }
+    snprintf(out, n, "%.*s/.framelaw-store", (int)len, fs->root);
+}

@@ -1,0 +1,259 @@
+/* io/data/images.c: decoding and per-frame preprocessing (see images.h). */
+#include "io/data/images.h"
+
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+
+#include <stb/stb_image.h>
+#include <stb/stb_image_write.h>
+
+#include "io/fs/atomic_file.h"
+
+const char *const gray_std_names[GRAY_COUNT] = {"bt601", "bt709"};
+
+GrayStd gray_std_from_name(const char *name) {
+    for (int g = 0; g < GRAY_COUNT; g++)
+        if (!strcasecmp(name, gray_std_names[g])) return (GrayStd)g;
+    return GRAY_COUNT;
+}
+
+void gray_weights(GrayStd g, double w[3]) {
+    if (g == GRAY_BT709) w[0] = 0.2126, w[1] = 0.7152, w[2] = 0.0722;
+    else w[0] = 0.299, w[1] = 0.587, w[2] = 0.114;
+}
+
+int image_is_image_name(const char *name) {
+    static const char *const ext[] = {"png", "jpg", "jpeg", "bmp", "tga", "pgm", "ppm", "pnm", "gif"};
+    const char *dot = strrchr(name, '.');
+    if (!dot || dot == name) return 0;
+    for (size_t i = 0; i < sizeof ext / sizeof ext[0]; i++)
+        if (!strcasecmp(dot + 1, ext[i])) return 1;
+    return 0;
+}
+
+int image_probe(const char *path, int *w, int *h, Status *st) {
+    int c;
+    if (!stbi_info(path, w, h, &c))
+        return status_set(st, ST_INPUT, "%s: cannot read image header (%s)", path, stbi_failure_reason());
+    return 0;
+}
+
+static int read_file(const char *path, unsigned char **buf, long *n, Status *st) {
+    *buf = NULL;
+    FILE *f = fopen(path, "rb");
+    if (!f) return status_set(st, ST_INPUT, "%s: cannot open: %s", path, strerror(errno));
+    if (fseek(f, 0, SEEK_END) || (*n = ftell(f)) < 0 || fseek(f, 0, SEEK_SET)) {
+        fclose(f);
+        return status_set(st, ST_INPUT, "%s: cannot seek", path);
+    }
+    *buf = malloc((size_t)*n + 1);
+    if (!*buf) {
+        fclose(f);
+        return status_set(st, ST_RUNTIME, "%s: out of memory", path);
+    }
+    size_t got = fread(*buf, 1, (size_t)*n, f);
+    fclose(f);
+    if ((long)got != *n) {
+        free(*buf);
+        *buf = NULL;
+        return status_set(st, ST_INPUT, "%s: read error", path);
+    }
+    return 0;
+}
+
+/* Truncation checks that the decoder does not make (see images.h). */
+static int check_truncation(const char *path, const unsigned char *b, long n, Status *st) {
+    if (n >= 2 && b[0] == 0xFF && b[1] == 0xD8) {   /* JPEG start-of-image */
+        long from = n > 1024 ? n - 1024 : 0;
+        for (long i = n - 2; i >= from; i--)
+            if (b[i] == 0xFF && b[i + 1] == 0xD9) return 0;
+        return status_set(st, ST_INPUT, "%s: truncated JPEG (no end-of-image marker)", path);
+    }
+    if (n >= 6 && b[0] == 'B' && b[1] == 'M') {
+        unsigned long declared = b[2] | (unsigned long)b[3] << 8 | (unsigned long)b[4] << 16 |
+                                 (unsigned long)b[5] << 24;
+        if (declared > (unsigned long)n)
+            return status_set(st, ST_INPUT, "%s: truncated BMP (%ld bytes, header declares %lu)", path, n,
+                              declared);
+    }
+    return 0;
+}
+
+/* Binary PGM (P5) and PPM (P6), any maxval up to 65535 (two bytes, most significant first, above
+ * 255): header tokens separated by whitespace, '#' comments, then one whitespace byte. Returns 1
+ * when the buffer is such a file (decoded into *out or an error set in st), 0 when it is not. */
+static int load_pnm(const char *path, const unsigned char *b, long n, GrayStd g, float **out, int *w,
+                    int *h, Status *st) {
+    if (n < 2 || b[0] != 'P' || (b[1] != '5' && b[1] != '6')) return 0;
+    int c = b[1] == '5' ? 1 : 3;
+    long pos = 2, val[3];
+    for (int k = 0; k < 3; k++) {
+        for (;;) {
+            while (pos < n && (b[pos] == ' ' || b[pos] == '\t' || b[pos] == '\n' || b[pos] == '\r' ||
+                               b[pos] == '\v' || b[pos] == '\f'))
+                pos++;
+            if (pos < n && b[pos] == '#') {
+                while (pos < n && b[pos] != '\n') pos++;
+                continue;
+            }
+            break;
+        }
+        if (pos >= n || b[pos] < '0' || b[pos] > '9') {
+            status_set(st, ST_INPUT, "%s: malformed PNM header", path);
+            return 1;
+        }
+        val[k] = 0;
+        while (pos < n && b[pos] >= '0' && b[pos] <= '9' && val[k] < (1L << 24)) val[k] = val[k] * 10 + (b[pos++] - '0');
+    }
+    pos++;   /* the single whitespace byte after maxval */
+    if (val[0] <= 0 || val[1] <= 0 || val[0] >= (1L << 24) || val[1] >= (1L << 24) || val[2] <= 0 || val[2] > 65535) {
+        status_set(st, ST_INPUT, "%s: PNM size %ldx%ld or maxval %ld out of range", path, val[0], val[1], val[2]);
+        return 1;
+    }
+    int bps = val[2] > 255 ? 2 : 1;
+    long np = val[0] * val[1], need = np * c * bps;
+    if (pos > n || n - pos < need) {
+        status_set(st, ST_INPUT, "%s: truncated PNM (%ld data bytes, %ldx%ld needs %ld)", path,
+                   pos > n ? 0 : n - pos, val[0], val[1], need);
+        return 1;
+    }
+    float *f = malloc(sizeof(float) * (size_t)np);   /* (h, w) */
+    if (!f) {
+        status_set(st, ST_RUNTIME, "%s: out of memory", path);
+        return 1;
+    }
+    double wt[3], unit = 1.0 / (double)val[2];
+    gray_weights(g, wt);
+    const unsigned char *d = b + pos;
+    for (long i = 0; i < np; i++) {
+        double s[3];
+        for (int k = 0; k < c; k++) {
+            const unsigned char *q = d + (i * c + k) * bps;
+            s[k] = bps == 2 ? (double)(q[0] << 8 | q[1]) : (double)q[0];
+        }
+        double v = c == 3 ? wt[0] * s[0] + wt[1] * s[1] + wt[2] * s[2] : s[0];
+        f[i] = (float)(v * unit);
+    }
+    *w = (int)val[0], *h = (int)val[1];
+    *out = f;
+    status_ok(st);
+    return 1;
+}
+
+int image_load_gray(const char *path, GrayStd g, float **out, int *w, int *h, Status *st) {
+    *out = NULL;
+    unsigned char *buf;
+    long n = 0;
+    if (read_file(path, &buf, &n, st)) return st->code;
+    if (n == 0) {
+        free(buf);
+        return status_set(st, ST_INPUT, "%s: empty file", path);
+    }
+    if (check_truncation(path, buf, n, st)) {
+        free(buf);
+        return st->code;
+    }
+    if (load_pnm(path, buf, n, g, out, w, h, st)) {
+        free(buf);
+        return st->code;
+    }
+    int c, is16 = stbi_is_16_bit_from_memory(buf, (int)n);
+    void *px = is16 ? (void *)stbi_load_16_from_memory(buf, (int)n, w, h, &c, 0)
+                    : (void *)stbi_load_from_memory(buf, (int)n, w, h, &c, 0);
+    free(buf);
+    if (!px) {
+        const char *why = stbi_failure_reason();
+        return status_set(st, ST_INPUT, "%s: cannot decode image (%s)", path, why ? why : "unknown error");
+    }
+    long np = (long)*w * *h;
+    float *f = malloc(sizeof(float) * (size_t)np);   /* (h, w) */
+    if (!f) {
+        stbi_image_free(px);
+        return status_set(st, ST_RUNTIME, "%s: out of memory", path);
+    }
+    double wt[3];
+    gray_weights(g, wt);
+    double unit = is16 ? 1.0 / 65535.0 : 1.0 / 255.0;
+    const unsigned char *p8 = px;
+    const unsigned short *p16 = px;
+    for (long i = 0; i < np; i++) {
+        double v;
+        if (c >= 3) {
+            double r = is16 ? p16[i * c] : p8[i * c];
+            double gg = is16 ? p16[i * c + 1] : p8[i * c + 1];
+            double b = is16 ? p16[i * c + 2] : p8[i * c + 2];
+            v = wt[0] * r + wt[1] * gg + wt[2] * b;
+        } else {
+            v = is16 ? p16[i * c] : p8[i * c];
+        }
+        f[i] = (float)(v * unit);
+    }
+    stbi_image_free(px);
+    *out = f;
+    return 0;
+}
+
+void image_crop(const float *src, int sw, int sh, int x, int y, int cw, int ch, float *dst) {
+    (void)sh;
+    for (int r = 0; r < ch; r++) memcpy(dst + (long)r * cw, src + (long)(y + r) * sw + x, sizeof(float) * (size_t)cw);
+}
+
+/* One axis of the area average: out[X] = sum_i in[i * step] * overlap(i, X) / S, where source
+ * pixel i covers [i D, (i+1) D) and output pixel X covers [X S, (X+1) S) in units of 1/D. Exact
+ * integer overlaps. */
+static void area_axis(const float *in, long in_step, int S, float *out, long out_step, int D) {
+    for (int X = 0; X < D; X++) {
+        long a = (long)X * S, b = (long)(X + 1) * S;
+        int i0 = (int)(a / D), i1 = (int)((b - 1) / D);
+        double acc = 0;
+        for (int i = i0; i <= i1; i++) {
+            long lo = (long)i * D > a ? (long)i * D : a, hi = (long)(i + 1) * D < b ? (long)(i + 1) * D : b;
+            acc += (double)in[i * in_step] * (double)(hi - lo);
+        }
+        out[X * out_step] = (float)(acc / S);
+    }
+}
+
+void image_resize_area(const float *src, int sw, int sh, float *dst, int dw, int dh, float *tmp) {
+    for (int r = 0; r < sh; r++) area_axis(src + (long)r * sw, 1, sw, tmp + (long)r * dw, 1, dw);   /* (sh, dw) */
+    for (int c = 0; c < dw; c++) area_axis(tmp + c, dw, sh, dst + c, dw, dh);                        /* (dh, dw) */
+}
+
+void image_quantise_u8(const float *src, long n, uint8_t *dst) {
+    for (long i = 0; i < n; i++) {
+        float v = src[i] * 255.0f + 0.5f;
+        dst[i] = v <= 0 ? 0 : v >= 255 ? 255 : (uint8_t)v;
+    }
+}
+
+void image_quantise_u16(const float *src, long n, uint16_t *dst) {
+    for (long i = 0; i < n; i++) {
+        float v = src[i] * 65535.0f + 0.5f;
+        dst[i] = v <= 0 ? 0 : v >= 65535 ? 65535 : (uint16_t)v;
+    }
+}
+
+typedef struct {
+    FILE *f;
+    int ok;
+} PngSink;
+
+static void png_sink(void *ctx, void *data, int size) {
+    PngSink *s = ctx;
+    if (s->ok && fwrite(data, 1, (size_t)size, s->f) != (size_t)size) s->ok = 0;
+}
+
+int image_write_png_gray(const char *path, const uint8_t *px, int w, int h, Status *st) {
+    AtomicFile af;
+    if (atomic_open(&af, path, st)) return st->code;
+    PngSink s = {af.f, 1};
+    if (!stbi_write_png_to_func(png_sink, &s, w, h, 1, px, w) || !s.ok) {
+        atomic_abort(&af);
+        return status_set(st, ST_RUNTIME, "%s: cannot write PNG", path);
+    }
+    return atomic_commit(&af, st);
+}

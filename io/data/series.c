@@ -1,0 +1,419 @@
+/* io/data/series.c: CSV and .npy readers, .npy writer (see series.h). */
+#include "io/data/series.h"
+
+#include <ctype.h>
+#include <errno.h>
+#include <math.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+
+#include "io/fs/atomic_file.h"
+
+/* Whole file into a NUL-terminated buffer (*n bytes, not counting the NUL). */
+static int read_whole(const char *path, char **buf, size_t *n, Status *st) {
+    *buf = NULL;
+    FILE *f = fopen(path, "rb");
+    if (!f) return status_set(st, ST_INPUT, "%s: cannot open: %s", path, strerror(errno));
+    size_t cap = 1 << 16, len = 0;
+    char *b = malloc(cap + 1);
+    if (!b) {
+        fclose(f);
+        return status_set(st, ST_RUNTIME, "%s: out of memory", path);
+    }
+    for (;;) {
+        if (len == cap) {
+            char *nb = realloc(b, 2 * cap + 1);
+            if (!nb) {
+                free(b);
+                fclose(f);
+                return status_set(st, ST_RUNTIME, "%s: out of memory", path);
+            }
+            b = nb, cap *= 2;
+        }
+        size_t got = fread(b + len, 1, cap - len, f);
+        len += got;
+        if (got == 0) break;
+    }
+    int err = ferror(f);
+    fclose(f);
+    if (err) {
+        free(b);
+        return status_set(st, ST_INPUT, "%s: read error", path);
+    }
+    b[len] = 0;
+    *buf = b;
+    *n = len;
+    return 0;
+}
+
+void series_free(Series *s) {
+    if (s->names)
+        for (int c = 0; c < s->cols; c++) free(s->names[c]);
+    free(s->names);
+    free(s->d);
+    memset(s, 0, sizeof *s);
+}
+
+static int ends_with_ci(const char *s, const char *suffix) {
+    size_t a = strlen(s), b = strlen(suffix);
+    return a >= b && !strcasecmp(s + a - b, suffix);
+}
+
+int series_is_numeric_path(const char *path) {
+    return ends_with_ci(path, ".csv") || ends_with_ci(path, ".npy");
+}
+
+int series_read(const char *path, Series *s, Status *st) {
+    if (ends_with_ci(path, ".csv")) return series_read_csv(path, s, st);
+    if (ends_with_ci(path, ".npy")) return series_read_npy(path, s, st);
+    memset(s, 0, sizeof *s);
+    return status_set(st, ST_INPUT, "%s: not a numeric recording (expected .csv or .npy)", path);
+}
+
+/* ---- CSV ---------------------------------------------------------------------------------- */
+
+/* Split one line (NUL-terminated, no line end) in place into fields; returns the count, at most
+ * max. Fields are trimmed of spaces and tabs. */
+static int split_fields(char *line, char **fields, int max) {
+    int n = 0;
+    char *p = line;
+    for (;;) {
+        char *comma = strchr(p, ',');
+        if (comma) *comma = 0;
+        while (*p == ' ' || *p == '\t') p++;
+        char *e = p + strlen(p);
+        while (e > p && (e[-1] == ' ' || e[-1] == '\t')) *--e = 0;
+        if (n < max) fields[n] = p;
+        n++;
+        if (!comma) break;
+        p = comma + 1;
+    }
+    return n;
+}
+
+static int parse_number(const char *f, double *v) {
+    if (!*f) return 0;
+    char *e;
+    errno = 0;
+    *v = strtod(f, &e);
+    if (*e || !isfinite(*v)) return 0;
+    return 1;
+}
+
+int series_read_csv(const char *path, Series *s, Status *st) {
+    memset(s, 0, sizeof *s);
+    char *buf;
+    size_t len;
+    if (read_whole(path, &buf, &len, st)) return st->code;
+    char *p = buf;
+    if (len >= 3 && (unsigned char)p[0] == 0xEF && (unsigned char)p[1] == 0xBB && (unsigned char)p[2] == 0xBF)
+        p += 3;
+    /* Count fields generously: at most one per comma on the longest line. */
+    int max_fields = 1;
+    for (char *q = p, *ls = p; ; q++) {
+        if (*q == '\n' || *q == 0) {
+            int c = 1;
+            for (char *r = ls; r < q; r++) c += *r == ',';
+            if (c > max_fields) max_fields = c;
+            if (*q == 0) break;
+            ls = q + 1;
+        }
+    }
+    char **fields = malloc(sizeof(char *) * (size_t)max_fields);
+    long cap_rows = 256;
+    double *d = NULL;
+    int cols = 0, first_line = 0, rc = 0;
+    long rows = 0, lineno = 0;
+    if (!fields) {
+        rc = status_set(st, ST_RUNTIME, "%s: out of memory", path);
+        goto done;
+    }
+    while (*p) {
+        char *nl = strchr(p, '\n');
+        char *next = nl ? nl + 1 : p + strlen(p);
+        if (nl) *nl = 0;
+        lineno++;
+        char *line = p;
+        p = next;
+        size_t ll = strlen(line);
+        if (ll && line[ll - 1] == '\r') line[--ll] = 0;
+        char *t = line;
+        while (*t == ' ' || *t == '\t') t++;
+        if (!*t || *t == '#') continue;
+        int nf = split_fields(line, fields, max_fields);
+        if (!cols) {
+            cols = nf;
+            first_line = (int)lineno;
+            int header = 0;
+            double v;
+            for (int c = 0; c < nf; c++)
+                if (!parse_number(fields[c], &v)) header = 1;
+            d = malloc(sizeof(double) * (size_t)cap_rows * (size_t)cols);
+            if (!d) {
+                rc = status_set(st, ST_RUNTIME, "%s: out of memory", path);
+                goto done;
+            }
+            if (header) {
+                s->names = calloc((size_t)cols, sizeof(char *));
+                if (!s->names) {
+                    rc = status_set(st, ST_RUNTIME, "%s: out of memory", path);
+                    goto done;
+                }
+                for (int c = 0; c < cols; c++) {
+                    s->names[c] = strdup(fields[c]);
+                    if (!s->names[c]) {
+                        rc = status_set(st, ST_RUNTIME, "%s: out of memory", path);
+                        goto done;
+                    }
+                }
+                s->cols = cols;   /* so series_free releases the names on error */
+                continue;
+            }
+        }
+        if (nf != cols) {
+            rc = status_set(st, ST_INPUT, "%s:%ld: ragged row: %d fields where line %d has %d", path,
+                            lineno, nf, first_line, cols);
+            goto done;
+        }
+        if (rows == cap_rows) {
+            double *nd = realloc(d, sizeof(double) * (size_t)(2 * cap_rows) * (size_t)cols);
+            if (!nd) {
+                rc = status_set(st, ST_RUNTIME, "%s: out of memory", path);
+                goto done;
+            }
+            d = nd, cap_rows *= 2;
+        }
+        for (int c = 0; c < cols; c++) {
+            if (!parse_number(fields[c], &d[rows * cols + c])) {
+                rc = status_set(st, ST_INPUT, "%s:%ld: field %d \"%.40s\" is not a finite number", path,
+                                lineno, c + 1, fields[c]);
+                goto done;
+            }
+        }
+        rows++;
+    }
+    if (rows == 0) rc = status_set(st, ST_INPUT, "%s: no data rows", path);
+done:
+    free(fields);
+    free(buf);
+    s->d = d;
+    s->rows = rows;
+    s->cols = cols;
+    if (rc) series_free(s);
+    return rc;
+}
+
+/* ---- .npy --------------------------------------------------------------------------------- */
+
+static const unsigned char NPY_MAGIC[6] = {0x93, 'N', 'U', 'M', 'P', 'Y'};
+
+/* A tiny reader for the header's Python dict literal. */
+typedef struct {
+    const char *p, *end;
+} Lex;
+
+static void lex_ws(Lex *l) {
+    while (l->p < l->end && isspace((unsigned char)*l->p)) l->p++;
+}
+static int lex_char(Lex *l, char c) {
+    lex_ws(l);
+    if (l->p < l->end && *l->p == c) return l->p++, 1;
+    return 0;
+}
+static int lex_string(Lex *l, char *out, size_t n) {
+    lex_ws(l);
+    if (l->p >= l->end || (*l->p != '\'' && *l->p != '"')) return 0;
+    char q = *l->p++;
+    size_t k = 0;
+    while (l->p < l->end && *l->p != q) {
+        if (k + 1 < n) out[k++] = *l->p;
+        l->p++;
+    }
+    if (l->p >= l->end) return 0;
+    l->p++;
+    out[k] = 0;
+    return 1;
+}
+
+int series_read_npy(const char *path, Series *s, Status *st) {
+    memset(s, 0, sizeof *s);
+    char *buf;
+    size_t len;
+    if (read_whole(path, &buf, &len, st)) return st->code;
+    const unsigned char *u = (const unsigned char *)buf;
+    int rc = 0;
+    double *d = NULL;
+    if (len < 10 || memcmp(u, NPY_MAGIC, 6)) {
+        rc = status_set(st, ST_INPUT, "%s: not a .npy file (bad magic)", path);
+        goto done;
+    }
+    int major = u[6], minor = u[7];
+    size_t hlen, hstart;
+    if (major == 1 && minor == 0) {
+        hlen = (size_t)u[8] | (size_t)u[9] << 8;
+        hstart = 10;
+    } else if ((major == 2 || major == 3) && minor == 0) {
+        if (len < 12) {
+            rc = status_set(st, ST_INPUT, "%s: truncated .npy header", path);
+            goto done;
+        }
+        hlen = (size_t)u[8] | (size_t)u[9] << 8 | (size_t)u[10] << 16 | (size_t)u[11] << 24;
+        hstart = 12;
+    } else {
+        rc = status_set(st, ST_INPUT, "%s: unsupported .npy format version %d.%d (1.0, 2.0, 3.0 are read)",
+                        path, major, minor);
+        goto done;
+    }
+    if (hlen > len - hstart) {
+        rc = status_set(st, ST_INPUT, "%s: truncated .npy header (%zu bytes announced, %zu present)", path,
+                        hlen, len - hstart);
+        goto done;
+    }
+    Lex l = {buf + hstart, buf + hstart + hlen};
+    char descr[32] = "", key[32];
+    int fortran = -1, ndim = -1;
+    long shape[2] = {0, 1};
+    if (!lex_char(&l, '{')) goto bad_header;
+    while (!lex_char(&l, '}')) {
+        if (!lex_string(&l, key, sizeof key) || !lex_char(&l, ':')) goto bad_header;
+        if (!strcmp(key, "descr")) {
+            if (!lex_string(&l, descr, sizeof descr)) goto bad_header;
+        } else if (!strcmp(key, "fortran_order")) {
+            lex_ws(&l);
+            if (l.end - l.p >= 4 && !strncmp(l.p, "True", 4)) fortran = 1, l.p += 4;
+            else if (l.end - l.p >= 5 && !strncmp(l.p, "False", 5)) fortran = 0, l.p += 5;
+            else goto bad_header;
+        } else if (!strcmp(key, "shape")) {
+            if (!lex_char(&l, '(')) goto bad_header;
+            ndim = 0;
+            while (!lex_char(&l, ')')) {
+                lex_ws(&l);
+                char *e;
+                long v = strtol(l.p, &e, 10);
+                if (e == l.p || e > l.end || v < 0) goto bad_header;
+                l.p = e;
+                if (ndim >= 2) {
+                    rc = status_set(st, ST_INPUT, "%s: .npy array has more than 2 dimensions", path);
+                    goto done;
+                }
+                shape[ndim++] = v;
+                lex_char(&l, ',');
+            }
+        } else {
+            goto bad_header;
+        }
+        lex_char(&l, ',');
+    }
+    if (!descr[0] || fortran < 0 || ndim < 0) goto bad_header;
+    int isz, kind;   /* kind: 0 float, 1 signed integer */
+    if (!strcmp(descr, "<f8")) isz = 8, kind = 0;
+    else if (!strcmp(descr, "<f4")) isz = 4, kind = 0;
+    else if (!strcmp(descr, "<i8")) isz = 8, kind = 1;
+    else if (!strcmp(descr, "<i4")) isz = 4, kind = 1;
+    else {
+        rc = status_set(st, ST_INPUT, "%s: .npy element type '%s' not supported (use '<f8', '<f4', '<i4' or '<i8')",
+                        path, descr);
+        goto done;
+    }
+    if (ndim == 0) {
+        rc = status_set(st, ST_INPUT, "%s: .npy array is a scalar, expected (rows, cols) or (rows,)", path);
+        goto done;
+    }
+    if (ndim == 1) shape[1] = 1;
+    long rows = shape[0], cols = shape[1];
+    if (rows <= 0 || cols <= 0 || cols > (1L << 24) || rows > (long)(len / (size_t)isz)) {
+        rc = status_set(st, ST_INPUT, "%s: .npy shape (%ld, %ld) is empty or larger than the file", path,
+                        rows, cols);
+        goto done;
+    }
+    size_t need = (size_t)rows * (size_t)cols * (size_t)isz, have = len - hstart - hlen;
+    if (need != have) {
+        rc = status_set(st, ST_INPUT, "%s: .npy data is %zu bytes, shape (%ld, %ld) of '%s' needs %zu%s", path,
+                        have, rows, cols, descr, need, have < need ? " (truncated)" : "");
+        goto done;
+    }
+    d = malloc(sizeof(double) * (size_t)rows * (size_t)cols);
+    if (!d) {
+        rc = status_set(st, ST_RUNTIME, "%s: out of memory", path);
+        goto done;
+    }
+    const unsigned char *src = u + hstart + hlen;
+    for (long k = 0; k < rows * cols; k++) {
+        uint64_t bits = 0;
+        for (int b = isz - 1; b >= 0; b--) bits = bits << 8 | src[k * isz + b];
+        double v;
+        if (kind == 0 && isz == 8) memcpy(&v, &bits, 8);
+        else if (kind == 0) {
+            uint32_t b32 = (uint32_t)bits;
+            float f;
+            memcpy(&f, &b32, 4);
+            v = f;
+        } else if (isz == 8) v = (double)(int64_t)bits;
+        else v = (double)(int32_t)(uint32_t)bits;
+        /* Element k is (r, c) in C order, (c, r) in Fortran order. */
+        long r = fortran ? k % rows : k / cols, c = fortran ? k / rows : k % cols;
+        if (!isfinite(v)) {
+            rc = status_set(st, ST_INPUT, "%s: value at row %ld, column %ld is not finite", path, r + 1, c + 1);
+            goto done;
+        }
+        d[r * cols + c] = v;
+    }
+    s->d = d, d = NULL;
+    s->rows = rows;
+    s->cols = (int)cols;
+    goto done;
+bad_header:
+    rc = status_set(st, ST_INPUT, "%s: malformed .npy header (expected descr, fortran_order, shape)", path);
+done:
+    free(d);
+    free(buf);
+    return rc;
+}
+
+int npy_write(const char *path, const void *data, long rows, int cols, NpyType type, Status *st) {
+    char hdr[256];
+    int isz = type == NPY_F64 ? 8 : 4;
+    int n;
+    if (cols <= 0)
+        n = snprintf(hdr + 10, sizeof hdr - 10, "{'descr': '%s', 'fortran_order': False, 'shape': (%ld,), }",
+                     type == NPY_F64 ? "<f8" : "<f4", rows);
+    else
+        n = snprintf(hdr + 10, sizeof hdr - 10, "{'descr': '%s', 'fortran_order': False, 'shape': (%ld, %d), }",
+                     type == NPY_F64 ? "<f8" : "<f4", rows, cols);
+    /* Pad with spaces and a final newline so that magic + version + length + dict is a multiple of
+     * 64 bytes (the data then starts aligned). */
+    int total = 10 + n + 1;
+    total = (total + 63) / 64 * 64;
+    memset(hdr + 10 + n, ' ', (size_t)(total - 10 - n));
+    hdr[total - 1] = '\n';
+    memcpy(hdr, NPY_MAGIC, 6);
+    hdr[6] = 1, hdr[7] = 0;
+    int hl = total - 10;
+    hdr[8] = (char)(hl & 0xff), hdr[9] = (char)(hl >> 8);
+    AtomicFile af;
+    if (atomic_open(&af, path, st)) return st->code;
+    int ok = fwrite(hdr, 1, (size_t)total, af.f) == (size_t)total;
+    long count = rows * (cols > 0 ? cols : 1);
+    const unsigned char *src = data;
+    unsigned char le[8];
+    for (long k = 0; ok && k < count; k++) {
+        /* Little-endian on any host. */
+        uint64_t bits = 0;
+        if (isz == 8) memcpy(&bits, src + k * 8, 8);
+        else {
+            uint32_t b32;
+            memcpy(&b32, src + k * 4, 4);
+            bits = b32;
+        }
+        for (int b = 0; b < isz; b++) le[b] = (unsigned char)(bits >> (8 * b));
+        ok = fwrite(le, 1, (size_t)isz, af.f) == (size_t)isz;
+    }
+    if (!ok) {
+        atomic_abort(&af);
+        return status_set(st, ST_RUNTIME, "%s: write failed", path);
+    }
+    return atomic_commit(&af, st);
+}

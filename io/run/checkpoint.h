@@ -1,0 +1,51 @@
+/* io/run/checkpoint.h: checkpoints, everything needed to resume a run bit for bit.
+ *
+ * File format (version 1; docs/formats.md describes it completely), little-endian:
+ *   offset 0   8 bytes   magic "FLAWCKPT"
+ *          8   u32       format version (1)
+ *         12   u32       number of sections
+ *         16   sections: each  tag (4 ASCII bytes), u32 zero, u64 payload length, payload
+ *         end  u32       CRC-32 (ISO-HDLC / IEEE 802.3 polynomial, reflected 0xEDB88320) of every
+ *                        byte before it
+ * Sections: "META" scalars (below), "VIEW" parameter names and shapes, "PVAL" values, "ADM1" and
+ * "ADM2" Adam moments (float32), "MASK" the coefficient mask (u8), "ORDR" the current epoch's
+ * sample order (i64).
+ * The whole file is written to a temporary, flushed, fsync'ed and renamed (io/fs/atomic_file.h). */
+#ifndef IO_CHECKPOINT_H
+#define IO_CHECKPOINT_H
+
+#include <stdint.h>
+
+#include "nn/core.h"
+#include "nn/params.h"
+#include "nn/rng.h"
+
+#define CKPT_VERSION 1
+
+typedef struct {
+    uint64_t config_digest;
+    int64_t epoch;          /* epochs completed */
+    int64_t batch;          /* batches completed in the current epoch (0 at an epoch boundary) */
+    Rng rng;
+    double acc[5];          /* partial sums of the current epoch's loss terms (total, rec, dx, dz, l1) */
+    int64_t acc_n;          /* samples in those sums */
+    double best_val;        /* best validation loss so far (inf when none) */
+    int64_t best_epoch;
+    int64_t n_thresholds;   /* thresholding passes done */
+    double seconds;         /* training time so far */
+} CkptMeta;
+
+/* Write params (values, Adam moments, step), the mask (n_mask) and the order (n_order). */
+int ckpt_write(const char *path, const CkptMeta *meta, const ParamSet *ps, const uint8_t *mask, long n_mask,
+               const int64_t *order, long n_order, Status *st);
+
+/* Read into an allocated ParamSet of the same layout (names and shapes must match), mask (n_mask)
+ * and order (n_order). A bad magic, version, size, CRC or layout gives ST_INPUT naming the file and
+ * the fault; nothing is modified unless the whole file checks out. */
+int ckpt_read(const char *path, CkptMeta *meta, ParamSet *ps, uint8_t *mask, long n_mask, int64_t *order,
+              long n_order, Status *st);
+
+/* CRC-32 (reflected, polynomial 0xEDB88320, initial and final xor 0xFFFFFFFF). */
+uint32_t crc32_ieee(const void *data, size_t n);
+
+#endif

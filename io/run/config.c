@@ -1,0 +1,916 @@
+/* io/run/config.c: the run config (see config.h).
+ *
+ * One table, `keys`, drives everything: one row per key with its path, type, default (as JSON
+ * text), allowed range or choices, the Config field it fills and a one-line meaning. Parsing,
+ * defaults, config_to_json, config_set (--set), the digest and the Markdown key list in
+ * docs/config.md all walk that table, so a key added here is parsed, written, digested and
+ * documented at once (tests/test_config.c checks the docs page against the table).
+ *
+ * JSON per RFC 8259 (IETF, 2017), parsed with cJSON; cJSON keeps repeated object members as
+ * separate children, which is how duplicate keys are found. */
+#include "io/run/config.h"
+
+#include <ctype.h>
+#include <errno.h>
+#include <limits.h>
+#include <math.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include <cjson/cJSON.h>
+
+#include "nn/mlp.h"
+#include "sparse/library.h"
+#include "sparse/stencil.h"
+
+/* The Config arrays must hold what the modules they feed accept. */
+_Static_assert(CFG_MAX_LIST <= MLP_MAX_LAYERS, "model.encoder / decoder longer than an Mlp");
+_Static_assert(CFG_NAME_MAX == LIB_NAME_MAX, "term names: config and library disagree");
+_Static_assert(sizeof(((Config *)0)->lib_freq) / sizeof(int) == LIB_MAX_FREQ, "library.multipliers");
+_Static_assert(sizeof(((Config *)0)->lib_include) / CFG_NAME_MAX == LIB_MAX_EDITS, "library.include");
+_Static_assert(sizeof(((Config *)0)->lib_exclude) / CFG_NAME_MAX == LIB_MAX_EDITS, "library.exclude");
+
+/* ---- the key table ------------------------------------------------------------------------ */
+
+typedef enum {
+    T_NUM,          /* double */
+    T_INT,          /* int */
+    T_LONG,         /* long */
+    T_U64,          /* uint64_t */
+    T_BOOL,         /* int, 0 / 1 */
+    T_STR,          /* char[], optionally one of `choices` */
+    T_PATH,         /* char[CFG_PATH_MAX] */
+    T_INTS,         /* int[] with a count field */
+    T_INTS_NULL,    /* int[] with a count field; null gives count -1 */
+    T_STRS,         /* char[][CFG_NAME_MAX] with a count field */
+    T_CROP,         /* int[4] */
+    T_SIZE,         /* int[2] */
+    T_COUNT
+} KeyType;
+
+static const char *const type_names[T_COUNT] = {
+    "number", "integer", "integer", "integer", "bool", "string", "path",
+    "integer list", "integer list or null", "string list", "crop", "size",
+};
+_Static_assert(sizeof type_names / sizeof type_names[0] == T_COUNT, "a key type without a name");
+
+enum { LO_OPEN = 1, HI_OPEN = 2 };   /* numbers: exclusive bounds */
+#define NOMAX INFINITY               /* integers: no bound but the type's */
+#define INT_EXACT 9007199254740992.0 /* 2^53: every integer up to here is exact in a double */
+
+typedef struct {
+    const char *path;       /* "data.derivative.window" */
+    KeyType type;
+    const char *def;        /* default as JSON text */
+    const char *doc_def;    /* default as shown in the docs when def does not say it (or NULL) */
+    double min, max;        /* numbers, integers and list elements */
+    int flags;              /* LO_OPEN, HI_OPEN */
+    int min_n;              /* lists: fewest entries */
+    const char *choices;    /* strings and integers: "a|b|c" (or NULL) */
+    const char *shape;      /* crop / size: "[x, y, width, height]" */
+    size_t off, size;       /* the field in Config */
+    size_t off_n;           /* lists: the int count field */
+    const char *meaning;
+} KeyDef;
+
+#define FIELD(f) .off = offsetof(Config, f), .size = sizeof(((Config *)0)->f)
+#define INTTYPE(f) _Generic(((Config *)0)->f, int: T_INT, long: T_LONG, uint64_t: T_U64)
+
+#define K_NUM(p, f, d, lo, hi, fl, m) \
+    { .path = p, .type = T_NUM, .def = d, .min = lo, .max = hi, .flags = fl, FIELD(f), .meaning = m }
+#define K_INT(p, f, d, lo, hi, ch, m) \
+    { .path = p, .type = INTTYPE(f), .def = d, .min = lo, .max = hi, .choices = ch, FIELD(f), .meaning = m }
+#define K_BOOL(p, f, d, m) { .path = p, .type = T_BOOL, .def = d, FIELD(f), .meaning = m }
+#define K_STR(p, f, d, ch, m) { .path = p, .type = T_STR, .def = d, .choices = ch, FIELD(f), .meaning = m }
+#define K_PATH(p, f, dd, m) { .path = p, .type = T_PATH, .def = "\"\"", .doc_def = dd, FIELD(f), .meaning = m }
+#define K_INTS(p, t, f, n, d, mn, lo, hi, m)                                                     \
+    { .path = p, .type = t, .def = d, .min = lo, .max = hi, .min_n = mn, FIELD(f),                \
+      .off_n = offsetof(Config, n), .meaning = m }
+#define K_STRS(p, f, n, d, m) \
+    { .path = p, .type = T_STRS, .def = d, FIELD(f), .off_n = offsetof(Config, n), .meaning = m }
+#define K_FIXED(p, t, f, d, sh, m) \
+    { .path = p, .type = t, .def = d, .min = 0, .max = NOMAX, .shape = sh, FIELD(f), .meaning = m }
+
+static const KeyDef keys[] = {
+    /* data */
+    K_PATH("data.frames", frames, "(required)",
+           "frames folder (one sub-folder per recording), or a folder or file of CSV / .npy recordings; "
+           "relative to the config file's folder"),
+    K_NUM("data.fps", fps, "30", 0, INFINITY, LO_OPEN,
+          "frames (samples) per second of the source; the time step is data.stride / data.fps"),
+    K_STR("data.gray", gray, "\"bt601\"", "bt601|bt709", "weights that turn colour frames to gray"),
+    K_FIXED("data.crop", T_CROP, crop, "[0, 0, 0, 0]", "[x, y, width, height]",
+            "crop in source pixels, before resizing; width 0 = no crop"),
+    K_FIXED("data.size", T_SIZE, size, "[0, 0]", "[width, height]",
+            "frame size after cropping and resizing (area average); [0, 0] = keep"),
+    K_STR("data.scale", scale, "\"unit\"", "unit|standardize",
+          "pixel scaling: unit = [0, 1]; standardize = zero mean, unit variance per pixel"),
+    K_INT("data.stride", stride, "1", 1, NOMAX, NULL, "keep every n-th frame"),
+    K_INT("data.store_bits", store_bits, "8", 8, 16, "8|16", "bits per pixel in the frame store"),
+    K_STR("data.derivative.method", derivative, "\"central\"", "central|savgol",
+          "how x' and x'' are formed from neighbouring frames: central differences or Savitzky-Golay"),
+    K_INT("data.derivative.window", sg_window, "7", 3, STENCIL_MAX_LEN, NULL,
+          "Savitzky-Golay window in frames (odd, > degree)"),
+    K_INT("data.derivative.degree", sg_degree, "3", 2, STENCIL_MAX_LEN - 1, NULL,
+          "Savitzky-Golay polynomial degree"),
+    K_STRS("data.validation.recordings", val_names, n_val_names, "[]",
+           "names of the recordings held out for validation and forecasts"),
+    K_INT("data.validation.last", val_last, "1", 0, NOMAX, NULL,
+          "when no names are given: hold out the last N recordings (0 = no validation)"),
+    /* model */
+    K_INT("model.latent", latent, "1", 1, LIB_MAX_VARS, NULL, "latent variables z1..zk"),
+    K_INT("model.order", order, "2", 1, 2, "1|2", "order of the latent ODE: 1 (dz/dt) or 2 (d2z/dt2)"),
+    K_INTS("model.encoder", T_INTS, encoder, n_encoder, "[128, 64, 32]", 0, 1, NOMAX,
+           "widths of the encoder's hidden layers"),
+    K_INTS("model.decoder", T_INTS_NULL, decoder, n_decoder, "null", 0, 1, NOMAX,
+           "widths of the decoder's hidden layers; null = the encoder's reversed"),
+    K_STR("model.activation", activation, "\"sigmoid\"", "sigmoid|tanh|softplus|silu",
+          "activation of the hidden layers (the output layers are linear)"),
+    K_STR("model.init", init, "\"glorot\"", "glorot|pca|isomap",
+          "glorot: uniform weights, zero biases; pca: in addition, the encoder's first layer projects on the "
+          "leading principal directions of the training frames (whitened) and the decoder starts at the mean "
+          "frame; isomap: pca, then the encoder is fitted to an Isomap embedding of the training frames (and "
+          "the decoder to its inverse), so that the latent starts along the frames' manifold"),
+    K_STR("model.derivatives", derivatives, "\"frames\"", "frames|latent",
+          "frames: z' (and z'') by carrying the frames' stencil derivatives x' (x'') through the encoder; "
+          "latent: by the same stencil (data.derivative) applied to the codes of the frames around each "
+          "sample, robust when the picture changes a lot from one frame to the next (loss.dx is then not "
+          "used)"),
+    K_INT("model.init_epochs", init_epochs, "200", 1, NOMAX, NULL,
+          "isomap: epochs over the embedded frames that fit the encoder and decoder to the embedding"),
+    K_INT("model.init_frames", init_frames, "2000", 16, 20000, NULL,
+          "isomap: training frames embedded (evenly spaced; the cost grows as the square)"),
+    /* library */
+    K_INT("library.degree", lib_degree, "3", 0, LIB_MAX_DEGREE, NULL,
+          "highest total degree of the polynomial terms"),
+    K_BOOL("library.constant", lib_constant, "true", "include the constant term"),
+    K_BOOL("library.trig", lib_trig, "false", "include sin(k z) and cos(k z) terms"),
+    K_BOOL("library.trig_velocity", lib_trig_velocity, "true",
+           "second order: sin and cos of the velocities dz/dt too"),
+    K_INTS("library.multipliers", T_INTS, lib_freq, n_lib_freq, "[1]", 1, 1, 100,
+           "the multipliers k of the trigonometric terms"),
+    K_STRS("library.include", lib_include, n_lib_include, "[]",
+           "extra terms by name, e.g. \"z1 dz1/dt\", \"sin(2 z1)\""),
+    K_STRS("library.exclude", lib_exclude, n_lib_exclude, "[]", "terms removed by name, e.g. \"1\""),
+    /* loss */
+    K_NUM("loss.reconstruction", w_rec, "1", 0, INFINITY, 0, "weight of |x - x_hat|^2"),
+    K_NUM("loss.dx", w_dx, "0.1", 0, INFINITY, 0,
+          "weight of |x' - x_hat'|^2 (first order) or |x'' - x_hat''|^2 (second order)"),
+    K_NUM("loss.dz", w_dz, "1", 0, INFINITY, 0,
+          "weight of |z' - z'_pred|^2 (first order) or |z'' - z''_pred|^2 (second order)"),
+    K_NUM("loss.l1", w_l1, "0.001", 0, INFINITY, 0,
+          "weight of the L1 norm of the coefficients (0 during refinement)"),
+    K_BOOL("loss.normalize", loss_normalize, "false",
+           "divide |x - x_hat|^2 by the variance of x and the dx term by the mean square of x' (or x'') "
+           "over the training set, and |z' - z'_pred|^2 by the batch's mean of z'^2 (z''^2), so that the "
+           "weights compare relative errors"),
+    /* optimizer */
+    K_NUM("optimizer.lr", lr, "0.001", 0, INFINITY, LO_OPEN, "Adam learning rate"),
+    K_NUM("optimizer.beta1", beta1, "0.9", 0, 1, HI_OPEN, "Adam decay of the first moment"),
+    K_NUM("optimizer.beta2", beta2, "0.999", 0, 1, HI_OPEN, "Adam decay of the second moment"),
+    K_NUM("optimizer.eps", eps, "1e-08", 0, INFINITY, LO_OPEN, "Adam epsilon"),
+    K_STR("optimizer.schedule", schedule, "\"constant\"", "constant|step|cosine",
+          "learning-rate schedule: constant; step (times decay_factor every decay_every epochs); "
+          "cosine (from lr down to lr_min over the run)"),
+    K_INT("optimizer.decay_every", sched_every, "1000", 1, NOMAX, NULL, "step schedule: epochs between decays"),
+    K_NUM("optimizer.decay_factor", sched_factor, "0.5", 0, 1, LO_OPEN, "step schedule: multiplier per decay"),
+    K_NUM("optimizer.lr_min", lr_min, "0", 0, INFINITY, 0, "cosine schedule: the final learning rate"),
+    /* train */
+    K_INT("train.batch", batch, "1024", 1, 1 << 20, NULL, "samples per mini-batch"),
+    K_INT("train.epochs", epochs, "3000", 1, NOMAX, NULL, "epochs in all, refinement included"),
+    K_INT("train.seed", seed, "1", 0, INT_EXACT, NULL,
+          "seed of the random generator (initialisation, shuffling)"),
+    K_INT("train.threads", threads, "0", 0, 1024, NULL, "worker threads; 0 = all cores"),
+    K_INT("train.validate_every", validate_every, "10", 1, NOMAX, NULL, "epochs between validation passes"),
+    K_INT("train.warmup_epochs", warmup_epochs, "0", 0, NOMAX, NULL,
+          "first epochs train the autoencoder alone: the decoder takes the encoder's z' (z''), no dz and "
+          "no L1 term"),
+    K_BOOL("train.warmup_fit", warmup_fit, "true",
+           "at the end of the warm-up, set Xi by sequentially thresholded least squares on the encoded "
+           "training set (threshold.value)"),
+    /* threshold */
+    K_NUM("threshold.value", threshold, "0.1", 0, INFINITY, 0,
+          "coefficients with |Xi| below this are set to zero and masked out for good"),
+    K_INT("threshold.every", threshold_every, "500", 1, NOMAX, NULL, "epochs between thresholding passes"),
+    K_INT("threshold.refine_epochs", refine_epochs, "1000", 0, NOMAX, NULL,
+          "the last epochs: mask fixed, no L1, no thresholding; < train.epochs"),
+    /* checkpoint */
+    K_INT("checkpoint.every", ckpt_every, "100", 1, NOMAX, NULL, "epochs between checkpoints"),
+    K_INT("checkpoint.keep", ckpt_keep, "3", 1, NOMAX, NULL,
+          "periodic checkpoints kept (the best one is kept besides)"),
+    /* forecast */
+    K_NUM("forecast.bound", fc_bound, "0.1", 0, INFINITY, LO_OPEN,
+          "relative error at which a forecast counts as lost (its time is reported)"),
+    K_STR("forecast.method", fc_method, "\"dopri5\"", "dopri5|rk4", "integrator of the learned model"),
+    K_NUM("forecast.tolerance", fc_tol, "1e-08", 0, INFINITY, LO_OPEN,
+          "relative tolerance of dopri5 (absolute: 1e-3 of it); rk4 takes 8 steps per frame"),
+    /* output */
+    K_PATH("output", output, "`runs/<config file stem>`",
+           "run directory, relative to the current directory"),
+};
+#define N_KEYS ((int)(sizeof keys / sizeof keys[0]))
+
+const char *const config_resume_safe_keys[] = {
+    "train.epochs", "train.threads", "train.validate_every", "checkpoint.every", "checkpoint.keep",
+    "output", "forecast.bound", "forecast.method", "forecast.tolerance", NULL,
+};
+
+void config_safe_keys_text(char *buf, size_t n) {
+    size_t k = 0;
+    if (n) buf[0] = 0;
+    for (int i = 0; config_resume_safe_keys[i] && k < n; i++) {
+        int w = snprintf(buf + k, n - k, "%s%s", i ? ", " : "", config_resume_safe_keys[i]);
+        if (w < 0) break;
+        k += (size_t)w;
+    }
+}
+
+const char *config_key_path(int i) { return i >= 0 && i < N_KEYS ? keys[i].path : NULL; }
+
+static const KeyDef *find_key(const char *path) {
+    for (int i = 0; i < N_KEYS; i++)
+        if (!strcmp(keys[i].path, path)) return &keys[i];
+    return NULL;
+}
+
+/* 1 when path is a section: some key path starts with "path.". */
+static int is_section(const char *path) {
+    size_t n = strlen(path);
+    for (int i = 0; i < N_KEYS; i++)
+        if (!strncmp(keys[i].path, path, n) && keys[i].path[n] == '.') return 1;
+    return 0;
+}
+
+static int is_resume_safe(const char *path) {
+    for (int i = 0; config_resume_safe_keys[i]; i++)
+        if (!strcmp(config_resume_safe_keys[i], path)) return 1;
+    return 0;
+}
+
+/* ---- rules as text (messages and docs) ---------------------------------------------------- */
+
+/* "bt601|bt709" -> "bt601, bt709" */
+static void choices_text(char *b, size_t n, const char *choices) {
+    size_t j = 0;
+    for (const char *p = choices; *p && j + 3 < n; p++) {
+        if (*p == '|') b[j++] = ',', b[j++] = ' ';
+        else b[j++] = *p;
+    }
+    b[j] = 0;
+}
+
+/* The largest value an integer field can hold exactly. */
+static double int_limit(KeyType t) { return t == T_INT || t == T_BOOL ? (double)INT_MAX : INT_EXACT; }
+
+/* "a positive integer", "an integer >= 0", "an integer from 1 to 1048576", "one of 8, 16" */
+static void int_rule(char *b, size_t n, double lo, double hi, const char *choices) {
+    if (choices) {
+        char c[256];
+        choices_text(c, sizeof c, choices);
+        snprintf(b, n, "one of %s", c);
+    } else if (isinf(hi)) {
+        if (lo == 1) snprintf(b, n, "a positive integer");
+        else snprintf(b, n, "an integer >= %.0f", lo);
+    } else {
+        snprintf(b, n, "an integer from %.0f to %.0f", lo, hi);
+    }
+}
+
+/* "a number > 0", "a number >= 0 and < 1" */
+static void num_rule(char *b, size_t n, const KeyDef *k) {
+    int o = snprintf(b, n, "a number");
+    if (!isinf(k->min))
+        o += snprintf(b + o, n - (size_t)o, " %s %g", k->flags & LO_OPEN ? ">" : ">=", k->min);
+    if (!isinf(k->max))
+        snprintf(b + o, n - (size_t)o, "%s %s %g", isinf(k->min) ? "" : " and", k->flags & HI_OPEN ? "<" : "<=",
+                 k->max);
+}
+
+/* The whole rule of a key, as it follows "must be". */
+static void key_rule(char *b, size_t n, const KeyDef *k) {
+    char e[160], c[256];
+    size_t cap = k->type == T_STRS ? k->size / CFG_NAME_MAX : k->size / sizeof(int);
+    switch (k->type) {
+    case T_NUM: num_rule(b, n, k); break;
+    case T_INT: case T_LONG: case T_U64: int_rule(b, n, k->min, k->max, k->choices); break;
+    case T_BOOL: snprintf(b, n, "true or false"); break;
+    case T_STR:
+        if (k->choices) {
+            choices_text(c, sizeof c, k->choices);
+            snprintf(b, n, "one of %s", c);
+        } else {
+            snprintf(b, n, "a string of at most %zu characters", k->size - 1);
+        }
+        break;
+    case T_PATH: snprintf(b, n, "a path (a string of at most %zu bytes)", k->size - 1); break;
+    case T_INTS: case T_INTS_NULL:
+        int_rule(e, sizeof e, k->min, k->max, NULL);
+        /* "a positive integer" -> "positive integers", "an integer from" -> "integers from" */
+        if (!strncmp(e, "a positive integer", 18)) snprintf(e, sizeof e, "positive integers");
+        else if (!strncmp(e, "an integer", 10)) memmove(e, "integers", 8), memmove(e + 8, e + 10, strlen(e + 10) + 1);
+        if (k->min_n > 0)
+            snprintf(b, n, "%sa list of %d to %zu %s", k->type == T_INTS_NULL ? "null or " : "", k->min_n, cap, e);
+        else
+            snprintf(b, n, "%sa list of up to %zu %s", k->type == T_INTS_NULL ? "null or " : "", cap, e);
+        break;
+    case T_STRS: snprintf(b, n, "a list of up to %zu names (non-empty strings)", cap); break;
+    case T_CROP: case T_SIZE: snprintf(b, n, "%s, integers >= 0", k->shape); break;
+    case T_COUNT: b[0] = 0; break;
+    }
+}
+
+/* ---- errors ------------------------------------------------------------------------------- */
+
+typedef struct {
+    const char *origin;     /* prefix of messages, or NULL */
+    const char *base_dir;   /* for a relative data.frames, or NULL */
+} Ctx;
+
+static int key_error(Status *st, const Ctx *x, const char *path, const char *fmt, ...)
+    __attribute__((format(printf, 4, 5)));
+
+static int key_error(Status *st, const Ctx *x, const char *path, const char *fmt, ...) {
+    char m[600];
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(m, sizeof m, fmt, ap);
+    va_end(ap);
+    if (x->origin) return status_set(st, ST_INPUT, "%s: %.200s: %s", x->origin, path, m);
+    return status_set(st, ST_INPUT, "%.200s: %s", path, m);
+}
+
+static int rule_error(Status *st, const Ctx *x, const char *path, const KeyDef *k) {
+    char r[400];
+    key_rule(r, sizeof r, k);
+    return key_error(st, x, path, "must be %s", r);
+}
+
+/* Optimal string alignment distance (edits, with adjacent transpositions), for suggestions. */
+static int edit_distance(const char *a, const char *b) {
+    size_t n = strlen(a), m = strlen(b);
+    if (n > 64 || m > 64) return 1000;
+    int d[65][65];
+    for (size_t i = 0; i <= n; i++) d[i][0] = (int)i;
+    for (size_t j = 0; j <= m; j++) d[0][j] = (int)j;
+    for (size_t i = 1; i <= n; i++)
+        for (size_t j = 1; j <= m; j++) {
+            int cost = a[i - 1] != b[j - 1];
+            int v = d[i - 1][j] + 1;
+            if (d[i][j - 1] + 1 < v) v = d[i][j - 1] + 1;
+            if (d[i - 1][j - 1] + cost < v) v = d[i - 1][j - 1] + cost;
+            if (i > 1 && j > 1 && a[i - 1] == b[j - 2] && a[i - 2] == b[j - 1] && d[i - 2][j - 2] + 1 < v)
+                v = d[i - 2][j - 2] + 1;
+            d[i][j] = v;
+        }
+    return d[n][m];
+}
+
+static const char *last_part(const char *path) {
+    const char *p = strrchr(path, '.');
+    return p ? p + 1 : path;
+}
+
+/* The closest key or section to an unknown path, or NULL when nothing is close. A key whose last
+ * part matches ("epochs" for train.epochs) counts as one edit away. */
+static void suggest(const char *path, char *out, size_t n) {
+    int best = 1000;
+    out[0] = 0;
+    for (int i = 0; i < N_KEYS; i++) {
+        /* the key itself and each of its sections */
+        char cand[128];
+        snprintf(cand, sizeof cand, "%s", keys[i].path);
+        for (;;) {
+            int d = edit_distance(path, cand);
+            if (!strcmp(last_part(path), last_part(cand)) && d > 1) d = 1;
+            if (d < best) best = d, snprintf(out, n, "%s", cand);
+            char *dot = strrchr(cand, '.');
+            if (!dot) break;
+            *dot = 0;
+        }
+    }
+    size_t len = strlen(path);
+    if (!(best <= 2 || (size_t)best * 3 <= len)) out[0] = 0;
+}
+
+/* ---- applying one value ------------------------------------------------------------------- */
+
+static void *field(Config *c, const KeyDef *k) { return (char *)c + k->off; }
+static const void *cfield(const Config *c, const KeyDef *k) { return (const char *)c + k->off; }
+static int *count_field(Config *c, const KeyDef *k) { return (int *)((char *)c + k->off_n); }
+static int count_of(const Config *c, const KeyDef *k) { return *(const int *)((const char *)c + k->off_n); }
+
+/* 1 when v is an integral number in [lo, min(hi, limit)] and (when given) one of the choices. */
+static int int_ok(const cJSON *v, double lo, double hi, double limit, const char *choices) {
+    if (!cJSON_IsNumber(v)) return 0;
+    double d = v->valuedouble;
+    if (!isfinite(d) || d != floor(d) || d < lo || d > hi || d > limit) return 0;
+    if (choices) {
+        char s[32];
+        snprintf(s, sizeof s, "%.0f", d);
+        size_t n = strlen(s);
+        for (const char *p = choices; p; p = strchr(p, '|') ? strchr(p, '|') + 1 : NULL)
+            if (!strncmp(p, s, n) && (p[n] == '|' || p[n] == 0)) return 1;
+        return 0;
+    }
+    return 1;
+}
+
+static int in_choices(const char *s, const char *choices) {
+    size_t n = strlen(s);
+    for (const char *p = choices; p; p = strchr(p, '|') ? strchr(p, '|') + 1 : NULL)
+        if (!strncmp(p, s, n) && (p[n] == '|' || p[n] == 0)) return 1;
+    return 0;
+}
+
+/* An integer list (T_INTS, T_INTS_NULL, T_CROP, T_SIZE). */
+static int apply_int_list(Config *c, const KeyDef *k, const cJSON *v, const char *path, const Ctx *x,
+                          Status *st) {
+    int *dst = field(c, k);
+    int cap = (int)(k->size / sizeof(int));
+    int fixed = k->type == T_CROP || k->type == T_SIZE;
+    if (k->type == T_INTS_NULL && cJSON_IsNull(v)) {
+        memset(dst, 0, k->size);
+        *count_field(c, k) = -1;
+        return 0;
+    }
+    if (!cJSON_IsArray(v)) return rule_error(st, x, path, k);
+    int n = cJSON_GetArraySize(v);
+    if (fixed && n != cap) return rule_error(st, x, path, k);
+    if (n > cap) return key_error(st, x, path, "must have at most %d entries (has %d)", cap, n);
+    if (n < k->min_n)
+        return key_error(st, x, path, "must have at least %d entr%s", k->min_n, k->min_n == 1 ? "y" : "ies");
+    int vals[CFG_MAX_LIST > 8 ? CFG_MAX_LIST : 8];
+    int i = 0;
+    for (const cJSON *e = v->child; e; e = e->next, i++) {
+        if (!int_ok(e, k->min, k->max, INT_MAX, NULL)) {
+            char r[160], p[300];
+            int_rule(r, sizeof r, k->min, k->max, NULL);
+            snprintf(p, sizeof p, "%s[%d]", path, i);
+            if (cJSON_IsNumber(e) && isinf(k->max) && e->valuedouble > INT_MAX && e->valuedouble == floor(e->valuedouble))
+                return key_error(st, x, p, "must be at most %d", INT_MAX);
+            return key_error(st, x, p, "must be %s", r);
+        }
+        vals[i] = (int)e->valuedouble;
+    }
+    memset(dst, 0, k->size);
+    memcpy(dst, vals, (size_t)n * sizeof(int));
+    if (!fixed) *count_field(c, k) = n;
+    return 0;
+}
+
+static int apply_str_list(Config *c, const KeyDef *k, const cJSON *v, const char *path, const Ctx *x,
+                          Status *st) {
+    int cap = (int)(k->size / CFG_NAME_MAX);
+    if (!cJSON_IsArray(v)) return rule_error(st, x, path, k);
+    int n = cJSON_GetArraySize(v);
+    if (n > cap) return key_error(st, x, path, "must have at most %d entries (has %d)", cap, n);
+    int i = 0;
+    for (const cJSON *e = v->child; e; e = e->next, i++) {
+        char p[300];
+        snprintf(p, sizeof p, "%s[%d]", path, i);
+        if (!cJSON_IsString(e) || !e->valuestring[0] || strlen(e->valuestring) >= CFG_NAME_MAX)
+            return key_error(st, x, p, "must be a non-empty string of at most %d characters", CFG_NAME_MAX - 1);
+    }
+    char (*dst)[CFG_NAME_MAX] = field(c, k);
+    memset(dst, 0, k->size);
+    i = 0;
+    for (const cJSON *e = v->child; e; e = e->next, i++) memcpy(dst[i], e->valuestring, strlen(e->valuestring));
+    *count_field(c, k) = n;
+    return 0;
+}
+
+static int apply_key(Config *c, const KeyDef *k, const cJSON *v, const char *path, const Ctx *x, Status *st) {
+    switch (k->type) {
+    case T_NUM: {
+        if (!cJSON_IsNumber(v) || !isfinite(v->valuedouble)) return rule_error(st, x, path, k);
+        double d = v->valuedouble;
+        int lo_bad = k->flags & LO_OPEN ? !(d > k->min) : !(d >= k->min);
+        int hi_bad = k->flags & HI_OPEN ? !(d < k->max) : !(d <= k->max);
+        if (lo_bad || hi_bad) return rule_error(st, x, path, k);
+        *(double *)field(c, k) = d;
+        return 0;
+    }
+    case T_INT: case T_LONG: case T_U64: {
+        double limit = int_limit(k->type);
+        if (!int_ok(v, k->min, k->max, limit, k->choices)) {
+            if (cJSON_IsNumber(v) && isinf(k->max) && v->valuedouble > limit && v->valuedouble == floor(v->valuedouble))
+                return key_error(st, x, path, "must be at most %.0f", limit);
+            return rule_error(st, x, path, k);
+        }
+        double d = v->valuedouble;
+        if (k->type == T_INT) *(int *)field(c, k) = (int)d;
+        else if (k->type == T_LONG) *(long *)field(c, k) = (long)d;
+        else *(uint64_t *)field(c, k) = (uint64_t)d;
+        return 0;
+    }
+    case T_BOOL:
+        if (!cJSON_IsBool(v)) return rule_error(st, x, path, k);
+        *(int *)field(c, k) = cJSON_IsTrue(v) ? 1 : 0;
+        return 0;
+    case T_STR: case T_PATH: {
+        if (!cJSON_IsString(v)) return rule_error(st, x, path, k);
+        const char *s = v->valuestring;
+        if (k->choices && !in_choices(s, k->choices)) return rule_error(st, x, path, k);
+        char buf[CFG_PATH_MAX];
+        int n;
+        if (k->type == T_PATH && !strcmp(k->path, "data.frames") && s[0] && s[0] != '/' && x->base_dir &&
+            x->base_dir[0] && strcmp(x->base_dir, "."))
+            n = snprintf(buf, sizeof buf, "%s%s%s", x->base_dir,
+                         x->base_dir[strlen(x->base_dir) - 1] == '/' ? "" : "/", s);
+        else
+            n = snprintf(buf, sizeof buf, "%s", s);
+        if (n < 0 || (size_t)n >= k->size) {
+            if (k->type == T_PATH)
+                return key_error(st, x, path, "path too long (at most %zu bytes)", k->size - 1);
+            return rule_error(st, x, path, k);
+        }
+        memset(field(c, k), 0, k->size);
+        memcpy(field(c, k), buf, (size_t)n);
+        return 0;
+    }
+    case T_INTS: case T_INTS_NULL: case T_CROP: case T_SIZE: return apply_int_list(c, k, v, path, x, st);
+    case T_STRS: return apply_str_list(c, k, v, path, x, st);
+    case T_COUNT: break;
+    }
+    return key_error(st, x, path, "internal: key without a type");
+}
+
+/* ---- walking a JSON tree ------------------------------------------------------------------ */
+
+static int walk(Config *c, const cJSON *obj, const char *prefix, const Ctx *x, Status *st) {
+    for (const cJSON *it = obj->child; it; it = it->next) {
+        char path[256];
+        const char *name = it->string ? it->string : "";
+        const char *dot = strchr(name, '.');
+        if (dot && !prefix && (find_key(name) || is_section(name)))
+            return key_error(st, x, name, "unknown key (write nested objects, not dotted names)");
+        int n = prefix ? snprintf(path, sizeof path, "%s.%s", prefix, name) : snprintf(path, sizeof path, "%s", name);
+        if (n < 0 || (size_t)n >= sizeof path) return key_error(st, x, path, "unknown key");
+        for (const cJSON *p = obj->child; p != it; p = p->next)
+            if (p->string && !strcmp(p->string, name)) return key_error(st, x, path, "duplicate key");
+        const KeyDef *k = dot ? NULL : find_key(path);
+        if (k) {
+            if (apply_key(c, k, it, path, x, st)) return st->code;
+        } else if (!dot && is_section(path)) {
+            if (!cJSON_IsObject(it)) return key_error(st, x, path, "must be an object");
+            if (walk(c, it, path, x, st)) return st->code;
+        } else {
+            char s[128];
+            suggest(path, s, sizeof s);
+            if (s[0]) return key_error(st, x, path, "unknown key (did you mean %s?)", s);
+            return key_error(st, x, path, "unknown key");
+        }
+    }
+    return 0;
+}
+
+/* Apply a parsed tree to a copy of *c; commit only when every key was good. */
+static int apply_tree(Config *c, const cJSON *root, const Ctx *x, Status *st) {
+    Config *tmp = nn_alloc(sizeof *tmp);
+    memcpy(tmp, c, sizeof *tmp);
+    int rc = walk(tmp, root, NULL, x, st);
+    if (!rc) memcpy(c, tmp, sizeof *c);
+    nn_free(tmp);
+    return rc;
+}
+
+void config_defaults(Config *c) {
+    memset(c, 0, sizeof *c);
+    Ctx x = {"config_defaults", NULL};
+    for (int i = 0; i < N_KEYS; i++) {
+        cJSON *v = cJSON_Parse(keys[i].def);
+        NN_CHECK(v, "default of %s is not JSON: %s", keys[i].path, keys[i].def);
+        Status st;
+        int rc = apply_key(c, &keys[i], v, keys[i].path, &x, &st);
+        cJSON_Delete(v);
+        NN_CHECK(rc == 0, "default of %s rejected: %s", keys[i].path, st.msg);
+    }
+}
+
+int config_parse(Config *c, const char *json, const char *origin, const char *base_dir, Status *st) {
+    Ctx x = {origin, base_dir};
+    const char *pre = origin ? origin : "config", *sep = ": ";
+    if (!strncmp(json, "\xEF\xBB\xBF", 3)) json += 3;   /* a UTF-8 byte order mark */
+    const char *p = json;
+    while (isspace((unsigned char)*p)) p++;
+    if (!*p) return status_set(st, ST_INPUT, "%s%sempty (expected a JSON object)", pre, sep);
+    const char *end = NULL;
+    cJSON *root = cJSON_ParseWithOpts(json, &end, 1);
+    if (!root) {
+        size_t pos = end && end >= json ? (size_t)(end - json) : 0;
+        int line = 1, col = 1;
+        for (size_t i = 0; i < pos && json[i]; i++) {
+            if (json[i] == '\n') line++, col = 1;
+            else col++;
+        }
+        char near[32];
+        size_t j = 0;
+        for (const char *q = json + pos; *q && *q != '\n' && *q != '\r' && j < 20; q++) near[j++] = *q;
+        near[j] = 0;
+        if (j) return status_set(st, ST_INPUT, "%s%sline %d, column %d: malformed JSON near '%s'", pre, sep, line, col, near);
+        return status_set(st, ST_INPUT, "%s%sline %d, column %d: malformed JSON at the end of the text", pre, sep, line, col);
+    }
+    int rc;
+    if (!cJSON_IsObject(root))
+        rc = status_set(st, ST_INPUT, "%s%sthe top level must be a JSON object ({ ... })", pre, sep);
+    else
+        rc = apply_tree(c, root, &x, st);
+    cJSON_Delete(root);
+    if (!rc) status_ok(st);
+    return rc;
+}
+
+/* ---- files and overrides ------------------------------------------------------------------ */
+
+static int read_text(const char *path, char **out, Status *st) {
+    *out = NULL;
+    FILE *f = fopen(path, "rb");
+    if (!f) return status_set(st, ST_INPUT, "%s: cannot read the config: %s", path, strerror(errno));
+    size_t cap = 4096, len = 0;
+    char *b = malloc(cap + 1);
+    for (;;) {
+        if (!b) {
+            fclose(f);
+            return status_set(st, ST_RUNTIME, "%s: out of memory", path);
+        }
+        if (len == cap) {
+            if (cap >= (1u << 24)) {
+                free(b);
+                fclose(f);
+                return status_set(st, ST_INPUT, "%s: too large for a config (over 16 MiB)", path);
+            }
+            char *nb = realloc(b, 2 * cap + 1);
+            if (!nb) free(b);
+            b = nb, cap *= 2;
+            continue;
+        }
+        size_t got = fread(b + len, 1, cap - len, f);
+        len += got;
+        if (got == 0) break;
+    }
+    int err = ferror(f);
+    int e = errno;
+    fclose(f);
+    if (err) {
+        free(b);
+        return status_set(st, ST_INPUT, "%s: cannot read the config: %s", path, strerror(e));
+    }
+    b[len] = 0;
+    if (strlen(b) != len) {
+        free(b);
+        return status_set(st, ST_INPUT, "%s: not a text file (holds a zero byte)", path);
+    }
+    *out = b;
+    return 0;
+}
+
+int config_load(Config *c, const char *path, Status *st) {
+    char *text;
+    if (read_text(path, &text, st)) return st->code;
+    config_defaults(c); /* the file is read over the defaults */
+    /* the file's folder, made absolute */
+    char dir[CFG_PATH_MAX];
+    const char *slash = strrchr(path, '/');
+    if (!slash) snprintf(dir, sizeof dir, ".");
+    else if (slash == path) snprintf(dir, sizeof dir, "/");
+    else snprintf(dir, sizeof dir, "%.*s", (int)(slash - path), path);
+    char *abs = realpath(dir, NULL);
+    int had_output = c->output[0] != 0;
+    int rc = config_parse(c, text, path, abs ? abs : dir, st);
+    free(abs);
+    free(text);
+    if (rc) return rc;
+    if (!had_output && !c->output[0]) {
+        const char *base = slash ? slash + 1 : path;
+        const char *dot = strrchr(base, '.');
+        int n = dot && dot != base ? (int)(dot - base) : (int)strlen(base);
+        if (n == 0) snprintf(c->output, sizeof c->output, "runs/run");
+        else snprintf(c->output, sizeof c->output, "runs/%.*s", n, base);
+    }
+    return 0;
+}
+
+int config_set(Config *c, const char *assignment, Status *st) {
+    const char *eq = strchr(assignment, '=');
+    if (!eq || eq == assignment)
+        return status_set(st, ST_INPUT, "--set %s: expected KEY=VALUE (for example train.epochs=100)", assignment);
+    size_t klen = (size_t)(eq - assignment);
+    char key[256];
+    if (klen >= sizeof key) return status_set(st, ST_INPUT, "--set: key too long");
+    memcpy(key, assignment, klen);
+    key[klen] = 0;
+    /* the key path: non-empty parts joined by dots */
+    for (size_t i = 0; i < klen; i++)
+        if ((key[i] == '.' && (i == 0 || i + 1 == klen || key[i + 1] == '.')) || isspace((unsigned char)key[i]))
+            return status_set(st, ST_INPUT, "--set: bad key path '%s'", key);
+    if (!find_key(key) && !is_section(key)) {
+        char s[128];
+        suggest(key, s, sizeof s);
+        if (s[0]) return status_set(st, ST_INPUT, "--set: %s: unknown key (did you mean %s?)", key, s);
+        return status_set(st, ST_INPUT, "--set: %s: unknown key", key);
+    }
+    cJSON *value = cJSON_ParseWithOpts(eq + 1, NULL, 1);
+    if (!value) value = cJSON_CreateString(eq + 1);   /* a bare word */
+    if (!value) return status_set(st, ST_RUNTIME, "--set: out of memory");
+    /* nest it: {"a": {"b": value}} for "a.b" */
+    cJSON *root = cJSON_CreateObject(), *cur = root;
+    char *part = key;
+    for (char *dot; (dot = strchr(part, '.')); part = dot + 1) {
+        *dot = 0;
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddItemToObject(cur, part, o);
+        cur = o;
+    }
+    cJSON_AddItemToObject(cur, part, value);
+    char cwd[CFG_PATH_MAX];
+    Ctx x = {"--set", getcwd(cwd, sizeof cwd) ? cwd : NULL};
+    int rc = apply_tree(c, root, &x, st);
+    cJSON_Delete(root);
+    if (!rc) status_ok(st);
+    return rc;
+}
+
+/* ---- validation --------------------------------------------------------------------------- */
+
+int config_validate(const Config *c, Status *st) {
+    if (!c->frames[0]) return status_set(st, ST_INPUT, "data.frames: required (the folder of frames or recordings)");
+    if (c->refine_epochs >= c->epochs)
+        return status_set(st, ST_INPUT, "threshold.refine_epochs (%ld) must be less than train.epochs (%ld)",
+                          c->refine_epochs, c->epochs);
+    if (c->warmup_epochs > 0 && c->warmup_epochs + c->refine_epochs >= c->epochs)
+        return status_set(st, ST_INPUT,
+                          "train.warmup_epochs (%ld) + threshold.refine_epochs (%ld) must be less than train.epochs (%ld)",
+                          c->warmup_epochs, c->refine_epochs, c->epochs);
+    if (!strcmp(c->derivatives, "latent") && !c->loss_normalize)
+        return status_set(st, ST_INPUT,
+                          "model.derivatives latent needs loss.normalize true: without the decoder's derivative "
+                          "term only the relative latent term keeps the latent from shrinking to nothing");
+    if (!strcmp(c->derivative, "savgol")) {
+        if (c->sg_window % 2 == 0)
+            return status_set(st, ST_INPUT, "data.derivative.window: must be odd for savgol (is %d)", c->sg_window);
+        if (c->sg_window <= c->sg_degree)
+            return status_set(st, ST_INPUT, "data.derivative.window (%d) must be greater than data.derivative.degree (%d)",
+                              c->sg_window, c->sg_degree);
+    }
+    if (c->crop[2] != 0 || c->crop[3] != 0) {
+        if (c->crop[2] <= 0 || c->crop[3] <= 0)
+            return status_set(st, ST_INPUT, "data.crop: width and height must both be positive (or both 0 for no crop)");
+    }
+    if ((c->size[0] == 0) != (c->size[1] == 0))
+        return status_set(st, ST_INPUT, "data.size: width and height must both be positive (or [0, 0] to keep the size)");
+    if (c->latent * c->order > LIB_MAX_VARS)
+        return status_set(st, ST_INPUT, "model.latent: at most %d for a model of order %d", LIB_MAX_VARS / c->order,
+                          c->order);
+    if (c->lib_degree == 0 && !c->lib_constant && !c->lib_trig && c->n_lib_include == 0)
+        return status_set(st, ST_INPUT, "library: no candidate terms (degree 0, no constant, no trig, nothing included)");
+    for (int i = 0; i < c->n_val_names; i++)
+        for (int j = 0; j < i; j++)
+            if (!strcmp(c->val_names[i], c->val_names[j]))
+                return status_set(st, ST_INPUT, "data.validation.recordings[%d]: '%s' is listed twice", i, c->val_names[i]);
+    if (!strcmp(c->schedule, "cosine") && c->lr_min > c->lr)
+        return status_set(st, ST_INPUT, "optimizer.lr_min (%g) must not exceed optimizer.lr (%g)", c->lr_min, c->lr);
+    status_ok(st);
+    return 0;
+}
+
+/* ---- writing ------------------------------------------------------------------------------ */
+
+/* Numbers are written as raw text of our own: cJSON's printer accepts a shorter form when it is
+ * merely close, and the written config must read back to the same bits. */
+static cJSON *num_exact(double d) {
+    char b[40];
+    for (int prec = 15; prec <= 17; prec++) {
+        snprintf(b, sizeof b, "%.*g", prec, d);
+        if (strtod(b, NULL) == d) break;
+    }
+    return cJSON_CreateRaw(b);
+}
+
+static cJSON *int_exact(long long v) {
+    char b[32];
+    snprintf(b, sizeof b, "%lld", v);
+    return cJSON_CreateRaw(b);
+}
+
+static cJSON *key_value(const Config *c, const KeyDef *k) {
+    switch (k->type) {
+    case T_NUM: return num_exact(*(const double *)cfield(c, k));
+    case T_INT: return int_exact(*(const int *)cfield(c, k));
+    case T_LONG: return int_exact(*(const long *)cfield(c, k));
+    case T_U64: return int_exact((long long)*(const uint64_t *)cfield(c, k));   /* <= 2^53 */
+    case T_BOOL: return cJSON_CreateBool(*(const int *)cfield(c, k));
+    case T_STR: case T_PATH: return cJSON_CreateString(cfield(c, k));
+    case T_INTS: case T_INTS_NULL: case T_CROP: case T_SIZE: {
+        int n = k->type == T_CROP || k->type == T_SIZE ? (int)(k->size / sizeof(int)) : count_of(c, k);
+        if (n < 0) return cJSON_CreateNull();
+        const int *v = cfield(c, k);
+        cJSON *a = cJSON_CreateArray();
+        for (int i = 0; i < n; i++) cJSON_AddItemToArray(a, int_exact(v[i]));
+        return a;
+    }
+    case T_STRS: {
+        const char(*v)[CFG_NAME_MAX] = cfield(c, k);
+        cJSON *a = cJSON_CreateArray();
+        for (int i = 0; i < count_of(c, k); i++) cJSON_AddItemToArray(a, cJSON_CreateString(v[i]));
+        return a;
+    }
+    case T_COUNT: break;
+    }
+    return cJSON_CreateNull();
+}
+
+/* Every key (but the resume-safe ones when skip_safe) as a nested tree, in table order. */
+/* Keys added after the first release. In the digest they count only when set to something other
+ * than their default, so that runs made before a key existed still match their checkpoints. */
+static const char *const late_keys[] = {"model.derivatives", "model.init_epochs", "model.init_frames"};
+
+static int late_at_default(const Config *c, const KeyDef *k) {
+    int late = 0;
+    for (size_t i = 0; i < sizeof late_keys / sizeof late_keys[0]; i++) late |= !strcmp(k->path, late_keys[i]);
+    if (!late) return 0;
+    cJSON *v = key_value(c, k), *d = cJSON_Parse(k->def); /* compared as printed (exact integers are raw) */
+    char *pv = v ? cJSON_PrintUnformatted(v) : NULL, *pd = d ? cJSON_PrintUnformatted(d) : NULL;
+    int same = pv && pd && !strcmp(pv, pd);
+    free(pv), free(pd);
+    cJSON_Delete(v), cJSON_Delete(d);
+    return same;
+}
+
+/* skip_safe: the digest's tree (no resume-safe keys, no late keys at their defaults). */
+static cJSON *config_tree(const Config *c, int skip_safe) {
+    cJSON *root = cJSON_CreateObject();
+    for (int i = 0; i < N_KEYS; i++) {
+        const KeyDef *k = &keys[i];
+        if (skip_safe && (is_resume_safe(k->path) || late_at_default(c, k))) continue;
+        char path[128];
+        snprintf(path, sizeof path, "%s", k->path);
+        cJSON *cur = root;
+        char *part = path;
+        for (char *dot; (dot = strchr(part, '.')); part = dot + 1) {
+            *dot = 0;
+            cJSON *o = cJSON_GetObjectItemCaseSensitive(cur, part);
+            if (!o) {
+                o = cJSON_CreateObject();
+                cJSON_AddItemToObject(cur, part, o);
+            }
+            cur = o;
+        }
+        cJSON_AddItemToObject(cur, part, key_value(c, k));
+    }
+    return root;
+}
+
+char *config_to_json(const Config *c) {
+    cJSON *t = config_tree(c, 0);
+    char *s = cJSON_Print(t);
+    cJSON_Delete(t);
+    NN_CHECK(s, "config_to_json: out of memory");
+    return s;
+}
+
+uint64_t config_digest(const Config *c) {
+    cJSON *t = config_tree(c, 1);
+    char *s = cJSON_PrintUnformatted(t);
+    cJSON_Delete(t);
+    NN_CHECK(s, "config_digest: out of memory");
+    uint64_t h = 0xcbf29ce484222325ull;     /* FNV-1a 64: offset basis and prime */
+    for (const unsigned char *p = (const unsigned char *)s; *p; p++) h = (h ^ *p) * 0x100000001b3ull;
+    free(s);
+    return h;
+}
+
+/* ---- docs --------------------------------------------------------------------------------- */
+
+/* s with '|' escaped for a Markdown table cell. */
+static void md_cell(char *b, size_t n, const char *s) {
+    size_t j = 0;
+    for (; *s && j + 3 < n; s++) {
+        if (*s == '|') b[j++] = '\\';
+        b[j++] = *s;
+    }
+    b[j] = 0;
+}
+
+char *config_keys_markdown(void) {
+    size_t cap = 64 * 1024, len = 0;
+    char *out = malloc(cap);
+    NN_CHECK(out, "config_keys_markdown: out of memory");
+    len += (size_t)snprintf(out, cap, "| key | type | default | allowed | meaning |\n|---|---|---|---|---|\n");
+    for (int i = 0; i < N_KEYS; i++) {
+        const KeyDef *k = &keys[i];
+        char rule[400], def[160], meaning[400];
+        key_rule(rule, sizeof rule, k);
+        if (k->doc_def) snprintf(def, sizeof def, "%s", k->doc_def);
+        else snprintf(def, sizeof def, "`%s`", k->def);
+        md_cell(meaning, sizeof meaning, k->meaning);
+        int n = snprintf(out + len, cap - len, "| `%s` | %s | %s | %s | %s%s |\n", k->path, type_names[k->type], def,
+                         rule, meaning, is_resume_safe(k->path) ? " (may change on resume)" : "");
+        NN_CHECK(n > 0 && (size_t)n < cap - len, "config_keys_markdown: table larger than %zu bytes", cap);
+        len += (size_t)n;
+    }
+    return out;
+}

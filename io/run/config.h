@@ -1,0 +1,136 @@
+/* io/run/config.h: the run config (JSON), its defaults, validation and overrides.
+ *
+ * Every key, its type, default, range and meaning is listed in docs/config.md; that page and the
+ * key table in io/run/config.c must agree (a test checks that every key in the table appears in the
+ * page). Everything but data.frames has a default.
+ *
+ * Errors name the key path, e.g. `model.encoder[1]: must be a positive integer`, and have code
+ * ST_INPUT (exit 2): unknown keys, wrong types, out-of-range values, malformed JSON (with the line).
+ */
+#ifndef IO_CONFIG_H
+#define IO_CONFIG_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#include "nn/core.h"
+
+#define CFG_PATH_MAX 4096
+#define CFG_MAX_LIST 16
+#define CFG_NAME_MAX 96
+
+typedef struct {
+    /* data */
+    char frames[CFG_PATH_MAX];      /* data.frames: frames folder, or a folder/file of CSV / .npy recordings */
+    double fps;                     /* data.fps: frames (samples) per second; dt = stride / fps     [30] */
+    char gray[16];                  /* data.gray: "bt601" | "bt709"                              [bt601] */
+    int crop[4];                    /* data.crop: [x, y, width, height] in source pixels; width 0 = none */
+    int size[2];                    /* data.size: [width, height] after resizing; 0 = keep           */
+    char scale[16];                 /* data.scale: "unit" ([0,1]) | "standardize" (per pixel)     [unit] */
+    int stride;                     /* data.stride: keep every n-th frame                              [1] */
+    int store_bits;                 /* data.store_bits: 8 | 16                                         [8] */
+    char derivative[16];            /* data.derivative.method: "central" | "savgol"            [central] */
+    int sg_window, sg_degree;       /* data.derivative.window [7], .degree [3]                          */
+    int n_val_names;                /* data.validation.recordings: names of held-out recordings        */
+    char val_names[CFG_MAX_LIST][CFG_NAME_MAX];
+    int val_last;                   /* data.validation.last: hold out the last N recordings        [1] */
+                                    /*   (used when no names are given; 0 = no validation)             */
+    /* model */
+    int latent;                     /* model.latent                                                 [1] */
+    int order;                      /* model.order: 1 | 2                                           [2] */
+    int n_encoder;                  /* model.encoder: hidden widths                      [[128, 64, 32]] */
+    int encoder[CFG_MAX_LIST];
+    int n_decoder;                  /* model.decoder: hidden widths; null = encoder mirrored    [null] */
+                                    /*   (n_decoder = -1 for null)                                     */
+    int decoder[CFG_MAX_LIST];
+    char activation[16];            /* model.activation: sigmoid | tanh | softplus | silu     [sigmoid] */
+    char init[16];                  /* model.init: "glorot"                                    [glorot] */
+    char derivatives[16];           /* model.derivatives: "frames" | "latent"                 [frames] */
+    long init_epochs;               /* model.init_epochs: isomap fitting epochs                   [200] */
+    long init_frames;               /* model.init_frames: frames embedded by isomap              [2000] */
+    /* library */
+    int lib_degree;                 /* library.degree                                               [3] */
+    int lib_constant;               /* library.constant                                          [true] */
+    int lib_trig;                   /* library.trig                                             [false] */
+    int lib_trig_velocity;          /* library.trig_velocity: sin/cos of velocities too          [true] */
+    int n_lib_freq;                 /* library.multipliers: k in sin(k z), cos(k z)               [[1]] */
+    int lib_freq[8];
+    int n_lib_include, n_lib_exclude; /* library.include / library.exclude: term names           [[]] */
+    char lib_include[32][CFG_NAME_MAX];
+    char lib_exclude[32][CFG_NAME_MAX];
+    /* loss */
+    double w_rec, w_dx, w_dz, w_l1; /* loss.reconstruction [1], loss.dx [0.1], loss.dz [1], loss.l1 [1e-3] */
+    int loss_normalize;             /* loss.normalize: divide rec and dx terms by the data's scale [false] */
+    /* optimizer */
+    double lr, beta1, beta2, eps;   /* optimizer.lr [1e-3], .beta1 [0.9], .beta2 [0.999], .eps [1e-8] */
+    char schedule[16];              /* optimizer.schedule: "constant" | "step" | "cosine"    [constant] */
+    int sched_every;                /* optimizer.decay_every: epochs between step decays         [1000] */
+    double sched_factor;            /* optimizer.decay_factor: step decay multiplier              [0.5] */
+    double lr_min;                  /* optimizer.lr_min: floor of the cosine schedule               [0] */
+    /* train */
+    int batch;                      /* train.batch                                               [1024] */
+    long epochs;                    /* train.epochs: total, refinement included                  [3000] */
+    uint64_t seed;                  /* train.seed                                                   [1] */
+    int threads;                    /* train.threads: 0 = all cores                                 [0] */
+    int validate_every;             /* train.validate_every: epochs                                [10] */
+    long warmup_epochs;             /* train.warmup_epochs: autoencoder alone first (no dz, no L1)   [0] */
+    int warmup_fit;                 /* train.warmup_fit: Xi from thresholded least squares after it [true] */
+    /* threshold */
+    double threshold;               /* threshold.value                                            [0.1] */
+    int threshold_every;            /* threshold.every: epochs between passes                     [500] */
+    long refine_epochs;             /* threshold.refine_epochs: last epochs, mask fixed, no L1   [1000] */
+    /* checkpoint */
+    int ckpt_every;                 /* checkpoint.every: epochs                                   [100] */
+    int ckpt_keep;                  /* checkpoint.keep: how many periodic checkpoints to keep       [3] */
+    /* forecast (safe to change on resume: they do not affect training) */
+    double fc_bound;                /* forecast.bound: relative error that ends a good forecast   [0.1] */
+    char fc_method[16];             /* forecast.method: "dopri5" | "rk4"                       [dopri5] */
+    double fc_tol;                  /* forecast.tolerance: dopri5 relative tolerance             [1e-8] */
+    /* output */
+    char output[CFG_PATH_MAX];      /* output: run directory                       [runs/<config name>] */
+} Config;
+
+/* Defaults for every key (data.frames empty). */
+void config_defaults(Config *c);
+
+/* Parse JSON text over the defaults; `origin` names the source in messages (file name; NULL: none).
+ * A relative data.frames is resolved against base_dir (the config file's folder; NULL or "" leaves
+ * it as written, i.e. relative to the current directory); output is always relative to the current
+ * directory. On error *c is left unchanged. Returns 0 or ST_INPUT. */
+int config_parse(Config *c, const char *json, const char *origin, const char *base_dir, Status *st);
+
+/* Read and parse a config file over *c (also fills output with runs/<file stem> when absent).
+ * base_dir is the file's folder made absolute, so the resolved data.frames is absolute. A missing
+ * or unreadable file is ST_INPUT naming the file. */
+int config_load(Config *c, const char *path, Status *st);
+
+/* Apply one `KEY.PATH=VALUE` override (VALUE is JSON; a bare word is taken as a string). KEY.PATH
+ * may also name a section with an object value (`data.derivative={"method":"savgol"}`). Same
+ * validation and messages as the file, prefixed "--set"; a relative data.frames is made absolute
+ * against the current directory. On error *c is left unchanged. */
+int config_set(Config *c, const char *assignment, Status *st);
+
+/* Cross-key checks after parsing and overrides (e.g. refine_epochs < epochs, data.frames given). */
+int config_validate(const Config *c, Status *st);
+
+/* The resolved config as JSON text (every key, defaults filled in); malloc'ed, caller frees. */
+char *config_to_json(const Config *c);
+
+/* Digest (FNV-1a 64) of the resolved config without the keys that are safe to change on resume
+ * (train.epochs, train.threads, train.validate_every, checkpoint.every, checkpoint.keep, output,
+ * forecast.*). */
+uint64_t config_digest(const Config *c);
+
+/* The names of the keys that may change on resume, for messages and docs. */
+extern const char *const config_resume_safe_keys[];
+/* Those names as one comma-separated line, for messages. */
+void config_safe_keys_text(char *buf, size_t n);   /* NULL-terminated */
+
+/* The key table, for docs and tests: the path of key i (0, 1, ...), NULL past the last key. */
+const char *config_key_path(int i);
+
+/* The key table as Markdown (one row per key: key, type, default, allowed values, meaning), as it
+ * appears in docs/config.md; malloc'ed, caller frees. */
+char *config_keys_markdown(void);
+
+#endif

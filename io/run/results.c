@@ -1,0 +1,512 @@
+/* io/run/results.c: export and forecast (see results.h and docs/formats.md). */
+#include "io/run/results.h"
+
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+
+#include <cjson/cJSON.h>
+
+#include "io/fs/atomic_file.h"
+#include "io/data/images.h"
+#include "io/data/series.h"
+#include "sparse/equation.h"
+#include "sparse/integrate.h"
+
+enum { CHUNK = 256 }; /* frames encoded or decoded per batch */
+
+/* ---- loading --------------------------------------------------------------------------------- */
+
+void loaded_run_close(LoadedRun *r) {
+    if (r->have_tape) tape_free(&r->tape);
+    if (r->have_model) {
+        coef_free(&r->coef);
+        model_free(&r->m);
+        params_free(&r->ps);
+    }
+    if (r->have_data) rundata_close(&r->data);
+    r->have_tape = r->have_model = r->have_data = 0;
+}
+
+int loaded_run_open(LoadedRun *r, const char *run_dir, Status *st) {
+    memset(r, 0, sizeof *r);
+    snprintf(r->dir, sizeof r->dir, "%s", run_dir);
+    if (run_config_load(run_dir, &r->cfg, st)) return st->code;
+    if (rundata_open(&r->data, &r->cfg, st)) {
+        rundata_close(&r->data);
+        return st->code;
+    }
+    r->have_data = 1;
+    int rc = train_load_latest(run_dir, &r->cfg, r->data.td.n_in, r->data.td.n_train, &r->m, &r->ps, st);
+    r->have_model = 1;
+    coef_init(&r->coef, r->m.lib.n_terms, r->m.n_latent);
+    if (rc) {
+        if (strstr(st->msg, "no checkpoint"))
+            status_set(st, ST_INPUT, "%s: no checkpoint (has the run been trained?)", run_dir);
+        loaded_run_close(r);
+        return st->code;
+    }
+    if (!strcmp(r->cfg.derivatives, "latent")) model_set_window(&r->m, &r->data.ds.sten, r->data.ds.dt);
+    coef_from_float(&r->coef, params_val(&r->ps, r->m.xi).d, r->m.mask);
+    tape_init(&r->tape, 256, (size_t)16 << 20);
+    r->have_tape = 1;
+    return 0;
+}
+
+/* ---- helpers --------------------------------------------------------------------------------- */
+
+static int ensure_dir(const char *path, Status *st) {
+    if (mkdir(path, 0777) == 0 || errno == EEXIST) return 0;
+    return status_set(st, ST_RUNTIME, "%s: cannot create folder: %s", path, strerror(errno));
+}
+
+/* A recording name made safe as a file name. */
+static void file_stem(const char *name, char *out, size_t n) {
+    size_t k = 0;
+    for (const char *p = name; *p && k + 1 < n; p++)
+        out[k++] = (*p == '/' || *p == '\\' || (unsigned char)*p < 32) ? '_' : *p;
+    out[k] = 0;
+}
+
+/* Blocks of frame-sized rows that encode_frames needs in X for k output blocks. */
+static int x_blocks(const LoadedRun *r, int k) { return r->m.win && k > 1 ? r->m.win : k; }
+
+/* Encode frames (B) with their derivatives: z (k B, d) for k blocks (1: z only). X holds
+ * x_blocks(r, k) * B rows. */
+static void encode_frames(LoadedRun *r, const long *frames, int B, int k, float *X, float *z) {
+    long n = r->data.ds.n;
+    if (k == 1) /* any frame, edges included: no stencil */
+        for (int b = 0; b < B; b++) dataset_frame(&r->data.ds, frames[b], X + (long)b * n);
+    else if (r->m.win) /* derivatives in latent space: the stencil's frames */
+        for (int j = 0; j < r->m.win; j++)
+            for (int b = 0; b < B; b++)
+                dataset_frame(&r->data.ds, frames[b] - r->m.win / 2 + j, X + ((long)j * B + b) * n);
+    else
+        dataset_gather_frames(&r->data.ds, frames, B, X, X + (long)B * n, k >= 3 ? X + 2L * B * n : NULL);
+    tape_reset(&r->tape);
+    model_encode(&r->tape, &r->m, &r->ps, X, B, k, z);
+}
+
+/* Decode z (B, d) to x_hat (B, n). */
+static void decode(LoadedRun *r, float *z, int B, float *xh) {
+    tape_reset(&r->tape);
+    Node *o = mlp_forward(&r->tape, &r->m.dec, &r->ps, nn_input(&r->tape, z, B, r->m.n_latent), 1);
+    memcpy(xh, o->val.d, (size_t)B * r->data.ds.n * sizeof(float));
+}
+
+/* The model's z' (first order) or z'' (second order) at state s (n_vars): pred (d). */
+static void model_rhs(LoadedRun *r, const double *s, double *theta, double *pred) {
+    int d = r->m.n_latent, T = r->m.lib.n_terms;
+    library_eval(&r->m.lib, theta, s, 1);
+    for (int j = 0; j < d; j++) {
+        double acc = 0;
+        for (int t = 0; t < T; t++) acc += theta[t] * r->coef.xi[t * d + j];
+        pred[j] = acc;
+    }
+}
+
+/* ---- the training region --------------------------------------------------------------------- */
+
+int results_region(LoadedRun *r, Region *reg, Status *st) {
+    (void)st;
+    int d = r->m.n_latent, order = r->m.order, k = order; /* z (and z') */
+    reg->d = d;
+    reg->order = order;
+    for (int i = 0; i < order * d; i++) reg->zmin[i] = INFINITY, reg->zmax[i] = -INFINITY;
+    const Dataset *ds = &r->data.ds;
+    long n = ds->n;
+    float *X = nn_alloc((size_t)x_blocks(r, k) * CHUNK * n * sizeof(float));
+    float *z = nn_alloc((size_t)k * CHUNK * d * sizeof(float));
+    long total = ds->count[SPLIT_TRAIN];
+    for (long s = 0; s < total; s += CHUNK) {
+        int B = (int)(total - s < CHUNK ? total - s : CHUNK);
+        encode_frames(r, ds->samples[SPLIT_TRAIN] + s, B, k, X, z);
+        for (int blk = 0; blk < k; blk++)
+            for (int b = 0; b < B; b++)
+                for (int j = 0; j < d; j++) {
+                    double v = z[((long)blk * B + b) * d + j];
+                    int i = blk * d + j;
+                    if (v < reg->zmin[i]) reg->zmin[i] = v;
+                    if (v > reg->zmax[i]) reg->zmax[i] = v;
+                }
+    }
+    nn_free(X);
+    nn_free(z);
+    return 0;
+}
+
+static int region_write(const LoadedRun *r, const Region *reg, Status *st) {
+    cJSON *o = cJSON_CreateObject();
+    int d = reg->d;
+    cJSON_AddItemToObject(o, "z_min", cJSON_CreateDoubleArray(reg->zmin, d));
+    cJSON_AddItemToObject(o, "z_max", cJSON_CreateDoubleArray(reg->zmax, d));
+    cJSON_AddItemToObject(o, "dz_min", cJSON_CreateDoubleArray(reg->zmin + d, reg->order == 2 ? d : 0));
+    cJSON_AddItemToObject(o, "dz_max", cJSON_CreateDoubleArray(reg->zmax + d, reg->order == 2 ? d : 0));
+    char *txt = cJSON_Print(o);
+    cJSON_Delete(o);
+    char path[CFG_PATH_MAX + 32];
+    snprintf(path, sizeof path, "%s/region.json", r->dir);
+    int rc = txt ? atomic_write_bytes(path, txt, strlen(txt), st) : status_set(st, ST_RUNTIME, "out of memory");
+    free(txt);
+    return rc;
+}
+
+static int outside(const Region *reg, const double *y) {
+    for (int i = 0; i < reg->order * reg->d; i++)
+        if (y[i] < reg->zmin[i] || y[i] > reg->zmax[i]) return 1;
+    return 0;
+}
+
+/* ---- export ---------------------------------------------------------------------------------- */
+
+static int write_equations(LoadedRun *r, Status *st) {
+    const EqStyle styles[2] = {EQ_TEXT, EQ_LATEX};
+    const char *names[2] = {"equations.txt", "equations.tex"};
+    char path[CFG_PATH_MAX + 32];
+    for (int i = 0; i < 2; i++) {
+        size_t need = equation_format(NULL, 0, styles[i], &r->m.lib, r->coef.xi, r->coef.mask, 4) + 2;
+        char *buf = malloc(need);
+        if (!buf) return status_set(st, ST_RUNTIME, "out of memory");
+        equation_format(buf, need, styles[i], &r->m.lib, r->coef.xi, r->coef.mask, 4);
+        size_t len = strlen(buf);
+        if (len && buf[len - 1] != '\n') buf[len++] = '\n';
+        snprintf(path, sizeof path, "%s/%s", r->dir, names[i]);
+        int rc = atomic_write_bytes(path, buf, len, st);
+        free(buf);
+        if (rc) return rc;
+    }
+    char *json = equation_json_string(&r->m.lib, r->coef.xi, r->coef.mask, 6);
+    if (!json) return status_set(st, ST_RUNTIME, "out of memory");
+    snprintf(path, sizeof path, "%s/equations.json", r->dir);
+    int rc = atomic_write_bytes(path, json, strlen(json), st);
+    free(json);
+    return rc;
+}
+
+/* Column names of a trajectory: t, z*, dz*, (d2z*), model_dz* or model_d2z*. */
+static int trajectory_cols(const LoadedRun *r) { return 1 + (r->m.order + 2) * r->m.n_latent; }
+
+static int write_trajectory(LoadedRun *r, int rec, Status *st) {
+    const StoreRec *sr = &r->data.store.rec[rec];
+    const Dataset *ds = &r->data.ds;
+    int d = r->m.n_latent, order = r->m.order, k = order + 1, mh = ds->sten.m;
+    long n_rows = sr->count - 2L * mh;
+    if (n_rows <= 0) return 0;
+    int cols = trajectory_cols(r);
+    double *out = nn_alloc((size_t)n_rows * cols * sizeof(double)); /* (n_rows, cols) */
+    float *X = nn_alloc((size_t)x_blocks(r, k) * CHUNK * ds->n * sizeof(float));
+    float *z = nn_alloc((size_t)k * CHUNK * d * sizeof(float));
+    long frames[CHUNK];
+    double s[LIB_MAX_VARS], pred[LIB_MAX_VARS], *theta = nn_alloc((size_t)r->m.lib.n_terms * sizeof(double));
+    for (long i0 = 0; i0 < n_rows; i0 += CHUNK) {
+        int B = (int)(n_rows - i0 < CHUNK ? n_rows - i0 : CHUNK);
+        for (int b = 0; b < B; b++) frames[b] = sr->first + mh + i0 + b;
+        encode_frames(r, frames, B, k, X, z);
+        for (int b = 0; b < B; b++) {
+            double *row = out + (i0 + b) * cols;
+            row[0] = (double)(mh + i0 + b) * ds->dt;
+            for (int blk = 0; blk < k; blk++)
+                for (int j = 0; j < d; j++) row[1 + blk * d + j] = z[((long)blk * B + b) * d + j];
+            for (int j = 0; j < order * d; j++) s[j] = row[1 + j];
+            model_rhs(r, s, theta, pred);
+            for (int j = 0; j < d; j++) row[1 + k * d + j] = pred[j];
+        }
+    }
+    nn_free(theta);
+    nn_free(X);
+    nn_free(z);
+    char stem[300], path[CFG_PATH_MAX + 400];
+    file_stem(sr->name, stem, sizeof stem);
+    snprintf(path, sizeof path, "%s/trajectories/%s.npy", r->dir, stem);
+    int rc = npy_write_f64(path, out, n_rows, cols, st);
+    if (!rc) {
+        snprintf(path, sizeof path, "%s/trajectories/%s.csv", r->dir, stem);
+        AtomicFile af;
+        rc = atomic_open(&af, path, st);
+        if (!rc) {
+            fputs("t", af.f);
+            const char *pre[3] = {"z", "dz", "d2z"};
+            for (int blk = 0; blk < k; blk++)
+                for (int j = 0; j < d; j++) fprintf(af.f, ",%s%d", pre[blk], j + 1);
+            for (int j = 0; j < d; j++) fprintf(af.f, ",model_%s%d", order == 1 ? "dz" : "d2z", j + 1);
+            fputc('\n', af.f);
+            for (long i = 0; i < n_rows; i++) {
+                for (int c = 0; c < cols; c++) fprintf(af.f, c ? ",%.12g" : "%.12g", out[i * cols + c]);
+                fputc('\n', af.f);
+            }
+            rc = atomic_commit(&af, st);
+        }
+    }
+    nn_free(out);
+    return rc;
+}
+
+/* Scaled value back to display intensity in [0, 255]. */
+static uint8_t to_u8(const LoadedRun *r, long p, float x) {
+    const Dataset *ds = &r->data.ds;
+    double q = (x - ds->offset[p]) / ds->gain[p];
+    double full = r->data.store.elem == STORE_U16 ? 65535.0 : 255.0;
+    double v = 255.0 * q / full;
+    return (uint8_t)(v < 0 ? 0 : v > 255 ? 255 : lround(v));
+}
+
+static int write_reconstruction(LoadedRun *r, int rec, Status *st) {
+    const StoreRec *sr = &r->data.store.rec[rec];
+    int W = r->data.store.width, H = r->data.store.height;
+    long n = r->data.ds.n;
+    int nf = sr->count < 4 ? (int)sr->count : 4;
+    if (nf < 1 || (long)W * H != n) return 0;
+    uint8_t *img = nn_calloc((size_t)nf * H * 3 * W, 1); /* (nf H, 3 W) */
+    float *x = nn_alloc((size_t)n * sizeof(float)), *xh = nn_alloc((size_t)n * sizeof(float)), z[LIB_MAX_VARS];
+    for (int i = 0; i < nf; i++) {
+        long f = sr->first + (nf > 1 ? (sr->count - 1) * i / (nf - 1) : 0);
+        dataset_frame(&r->data.ds, f, x);
+        tape_reset(&r->tape);
+        model_encode(&r->tape, &r->m, &r->ps, x, 1, 1, z);
+        decode(r, z, 1, xh);
+        for (int y = 0; y < H; y++)
+            for (int c = 0; c < W; c++) {
+                long p = (long)y * W + c;
+                uint8_t a = to_u8(r, p, x[p]), b = to_u8(r, p, xh[p]);
+                int diff = 128 + (b - a) / 2;
+                uint8_t *row = img + ((size_t)i * H + y) * 3 * W;
+                row[c] = a;
+                row[W + c] = b;
+                row[2 * W + c] = (uint8_t)(diff < 0 ? 0 : diff > 255 ? 255 : diff);
+            }
+    }
+    char stem[300], path[CFG_PATH_MAX + 400];
+    file_stem(sr->name, stem, sizeof stem);
+    snprintf(path, sizeof path, "%s/reconstructions/%s.png", r->dir, stem);
+    int rc = image_write_png_gray(path, img, 3 * W, nf * H, st);
+    nn_free(img);
+    nn_free(x);
+    nn_free(xh);
+    return rc;
+}
+
+int results_export(LoadedRun *r, int quiet, Status *st) {
+    char path[CFG_PATH_MAX + 32];
+    if (write_equations(r, st)) return st->code;
+    snprintf(path, sizeof path, "%s/trajectories", r->dir);
+    if (ensure_dir(path, st)) return st->code;
+    int images = r->data.store.elem != STORE_F32;
+    if (images) {
+        snprintf(path, sizeof path, "%s/reconstructions", r->dir);
+        if (ensure_dir(path, st)) return st->code;
+    }
+    for (int i = 0; i < r->data.store.n_rec; i++) {
+        if (write_trajectory(r, i, st)) return st->code;
+        if (images && write_reconstruction(r, i, st)) return st->code;
+    }
+    Region reg;
+    if (results_region(r, &reg, st) || region_write(r, &reg, st)) return st->code;
+    if (!quiet)
+        fprintf(stderr, "framelaw: exported %d recordings to %s (equations, trajectories%s, region.json)\n",
+                r->data.store.n_rec, r->dir, images ? ", reconstructions" : "");
+    return 0;
+}
+
+/* ---- forecast -------------------------------------------------------------------------------- */
+
+typedef struct {
+    double mean_err, final_err, max_err, exceeds_at, latent_mean, latent_exceeds_at, extrap_from;
+    long frames;
+    double duration;
+    char stopped[512];
+} FcResult;
+
+
+static int forecast_recording(LoadedRun *r, int rec, const Region *reg, FcResult *fr, Status *st) {
+    const StoreRec *sr = &r->data.store.rec[rec];
+    const Dataset *ds = &r->data.ds;
+    int d = r->m.n_latent, order = r->m.order, nv = order * d, mh = ds->sten.m;
+    long n = ds->n, f0 = sr->first + mh, n_out = sr->count - mh;
+    double dt = ds->dt, bound = r->cfg.fc_bound;
+    memset(fr, 0, sizeof *fr);
+    fr->exceeds_at = fr->latent_exceeds_at = fr->extrap_from = NAN;
+    fr->frames = n_out;
+    fr->duration = (double)(sr->count - 1) * dt;
+    if (n_out < 2) return status_set(st, ST_INPUT, "recording %s: too short to forecast", sr->name);
+    /* initial state: encode the first frame with a full stencil (and its derivative) */
+    int k0 = order + 1;
+    float *X = nn_alloc((size_t)x_blocks(r, k0) * CHUNK * n * sizeof(float));
+    float *zb = nn_alloc((size_t)k0 * CHUNK * d * sizeof(float));
+    encode_frames(r, &f0, 1, k0, X, zb);
+    double y0[LIB_MAX_VARS];
+    for (int i = 0; i < nv; i++) y0[i] = zb[i]; /* rows z, z' of the one sample */
+    double *t_out = nn_alloc((size_t)n_out * sizeof(double)), *y = nn_alloc((size_t)n_out * nv * sizeof(double));
+    for (long i = 0; i < n_out; i++) t_out[i] = (double)(mh + i) * dt;
+    for (long i = 0; i < n_out * nv; i++) y[i] = NAN;
+    LearnedOde lo;
+    learned_ode_init(&lo, &r->m.lib, r->coef.xi, r->coef.mask);
+    OdeOptions opt = ode_defaults();
+    opt.method = strcmp(r->cfg.fc_method, "rk4") ? ODE_DOPRI5 : ODE_RK4;
+    opt.h = opt.method == ODE_RK4 ? dt / 8 : 0;
+    opt.rtol = r->cfg.fc_tol;
+    opt.atol = 1e-3 * r->cfg.fc_tol;
+    /* A learned model can blow up or turn stiff far outside the states it was trained on: stop at
+     * ten times the largest |state| seen in training, or after 1000 steps per frame on average,
+     * and report it (the remaining frames count as lost). */
+    double extent = 0;
+    for (int i = 0; i < nv; i++) {
+        if (fabs(reg->zmin[i]) > extent) extent = fabs(reg->zmin[i]);
+        if (fabs(reg->zmax[i]) > extent) extent = fabs(reg->zmax[i]);
+    }
+    opt.bound = 10 * (extent > 0 && isfinite(extent) ? extent : 1.0);
+    opt.max_steps = 1000 * n_out;
+    OdeReport rep;
+    Status s2;
+    double y_end[LIB_MAX_VARS];
+    int rc = ode_solve(learned_ode_rhs, &lo, nv, t_out[0], y0, t_out, (int)n_out, y, y_end, &opt, &rep, &s2);
+    learned_ode_free(&lo);
+    long good = rc ? rep.n_out : n_out;
+    if (rc) snprintf(fr->stopped, sizeof fr->stopped, "%.500s", rep.msg[0] ? rep.msg : s2.msg);
+    /* compare: decode the integrated z, encode the real frames */
+    float *zf = nn_alloc((size_t)CHUNK * d * sizeof(float)), *xh = nn_alloc((size_t)CHUNK * n * sizeof(float));
+    float *ze = nn_alloc((size_t)n_out * d * sizeof(float));
+    double *err = nn_alloc((size_t)n_out * sizeof(double)), *lerr = nn_alloc((size_t)n_out * sizeof(double));
+    long frames[CHUNK];
+    double zsq = 0;
+    for (long i0 = 0; i0 < n_out; i0 += CHUNK) {
+        int B = (int)(n_out - i0 < CHUNK ? n_out - i0 : CHUNK);
+        for (int b = 0; b < B; b++) frames[b] = f0 + i0 + b;
+        encode_frames(r, frames, B, 1, X, ze + i0 * d); /* k = 1: no derivatives needed */
+        for (int b = 0; b < B; b++)
+            for (int j = 0; j < d; j++) {
+                double v = ze[(i0 + b) * d + j];
+                zsq += v * v;
+                zf[b * d + j] = (float)(i0 + b < good ? y[(i0 + b) * nv + j] : 0.0);
+            }
+        decode(r, zf, B, xh);
+        /* X now holds the real frames of this chunk (gathered by encode_frames) */
+        for (int b = 0; b < B; b++) {
+            double num = 0, den = 0;
+            for (long p = 0; p < n; p++) {
+                double a = X[(long)b * n + p], e = xh[(long)b * n + p] - a;
+                num += e * e;
+                den += a * a;
+            }
+            err[i0 + b] = i0 + b < good ? sqrt(num / (den > 0 ? den : 1)) : NAN;
+        }
+    }
+    double zrms = sqrt(zsq / (double)n_out);
+    double sum = 0, lsum = 0;
+    long cnt = 0;
+    for (long i = 0; i < n_out; i++) {
+        if (i >= good) {
+            lerr[i] = NAN;
+            continue;
+        }
+        double num = 0;
+        for (int j = 0; j < d; j++) {
+            double e = y[i * nv + j] - ze[i * d + j];
+            num += e * e;
+        }
+        lerr[i] = sqrt(num) / (zrms > 0 ? zrms : 1);
+        sum += err[i];
+        lsum += lerr[i];
+        cnt++;
+        if (err[i] > fr->max_err) fr->max_err = err[i];
+        if (isnan(fr->exceeds_at) && err[i] > bound) fr->exceeds_at = t_out[i];
+        if (isnan(fr->latent_exceeds_at) && lerr[i] > bound) fr->latent_exceeds_at = t_out[i];
+        if (isnan(fr->extrap_from) && outside(reg, y + i * nv)) fr->extrap_from = t_out[i];
+    }
+    if (good < n_out) {
+        double tb = good < n_out ? t_out[good] : rep.t_bad;
+        if (isnan(fr->exceeds_at)) fr->exceeds_at = tb;
+        if (isnan(fr->latent_exceeds_at)) fr->latent_exceeds_at = tb;
+    }
+    fr->mean_err = cnt ? sum / cnt : NAN;
+    fr->latent_mean = cnt ? lsum / cnt : NAN;
+    fr->final_err = good == n_out ? err[n_out - 1] : NAN;
+    /* forecast/<rec>.csv */
+    char stem[300], path[CFG_PATH_MAX + 400];
+    file_stem(sr->name, stem, sizeof stem);
+    snprintf(path, sizeof path, "%s/forecast/%s.csv", r->dir, stem);
+    AtomicFile af;
+    rc = atomic_open(&af, path, st);
+    if (!rc) {
+        fputs("t,error,latent_error", af.f);
+        for (int j = 0; j < d; j++) fprintf(af.f, ",z%d", j + 1);
+        for (int j = 0; j < d; j++) fprintf(af.f, ",zhat%d", j + 1);
+        fputs(",outside\n", af.f);
+        for (long i = 0; i < n_out; i++) {
+            fprintf(af.f, "%.12g,%.9g,%.9g", t_out[i], err[i], lerr[i]);
+            for (int j = 0; j < d; j++) fprintf(af.f, ",%.9g", (double)ze[i * d + j]);
+            for (int j = 0; j < d; j++) fprintf(af.f, ",%.9g", y[i * nv + j]);
+            fprintf(af.f, ",%d\n", i < good ? outside(reg, y + i * nv) : 1);
+        }
+        rc = atomic_commit(&af, st);
+    }
+    nn_free(X);
+    nn_free(zb);
+    nn_free(t_out);
+    nn_free(y);
+    nn_free(zf);
+    nn_free(xh);
+    nn_free(ze);
+    nn_free(err);
+    nn_free(lerr);
+    return rc;
+}
+
+static cJSON *num_or_null(double v) { return isfinite(v) ? cJSON_CreateNumber(v) : cJSON_CreateNull(); }
+
+int results_forecast(LoadedRun *r, int quiet, Status *st) {
+    Region reg;
+    if (results_region(r, &reg, st)) return st->code;
+    char path[CFG_PATH_MAX + 32];
+    snprintf(path, sizeof path, "%s/forecast", r->dir);
+    if (ensure_dir(path, st)) return st->code;
+    cJSON *root = cJSON_CreateObject(), *list = cJSON_CreateArray();
+    cJSON_AddStringToObject(root, "format", "framelaw-forecast");
+    cJSON_AddNumberToObject(root, "version", 1);
+    cJSON_AddNumberToObject(root, "bound", r->cfg.fc_bound);
+    cJSON_AddItemToObject(root, "recordings", list);
+    int n_val = 0, rc = 0;
+    for (int i = 0; i < r->data.store.n_rec && !rc; i++) {
+        if (r->data.ds.rec_split[i] != SPLIT_VAL) continue;
+        n_val++;
+        FcResult fr;
+        if ((rc = forecast_recording(r, i, &reg, &fr, st))) break;
+        const char *name = r->data.store.rec[i].name;
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddStringToObject(o, "name", name);
+        cJSON_AddNumberToObject(o, "frames", (double)fr.frames);
+        cJSON_AddNumberToObject(o, "duration", fr.duration);
+        cJSON_AddStringToObject(o, "method", r->cfg.fc_method);
+        cJSON_AddItemToObject(o, "mean_error", num_or_null(fr.mean_err));
+        cJSON_AddItemToObject(o, "final_error", num_or_null(fr.final_err));
+        cJSON_AddItemToObject(o, "max_error", num_or_null(fr.max_err));
+        cJSON_AddItemToObject(o, "exceeds_bound_at", num_or_null(fr.exceeds_at));
+        cJSON_AddItemToObject(o, "latent_mean_error", num_or_null(fr.latent_mean));
+        cJSON_AddItemToObject(o, "latent_exceeds_bound_at", num_or_null(fr.latent_exceeds_at));
+        cJSON_AddItemToObject(o, "extrapolating_from", num_or_null(fr.extrap_from));
+        cJSON_AddItemToObject(o, "stopped", fr.stopped[0] ? cJSON_CreateString(fr.stopped) : cJSON_CreateNull());
+        cJSON_AddItemToArray(list, o);
+        if (!quiet) {
+            printf("forecast %s: mean error %.1f%% over %.2f s", name, 100 * fr.mean_err, fr.duration);
+            if (isfinite(fr.exceeds_at)) printf(", exceeds %.0f%% at t = %.3f s", 100 * r->cfg.fc_bound, fr.exceeds_at);
+            else printf(", within %.0f%% throughout", 100 * r->cfg.fc_bound);
+            printf("\n");
+            if (isfinite(fr.extrap_from))
+                printf("  extrapolating beyond the training data from t = %.3f s\n", fr.extrap_from);
+            if (fr.stopped[0]) printf("  the model blew up: %s\n", fr.stopped);
+        }
+    }
+    if (!rc) {
+        char *txt = cJSON_Print(root);
+        snprintf(path, sizeof path, "%s/forecast.json", r->dir);
+        rc = txt ? atomic_write_bytes(path, txt, strlen(txt), st) : status_set(st, ST_RUNTIME, "out of memory");
+        free(txt);
+        if (!rc && !n_val && !quiet)
+            printf("forecast: no held-out recording (data.validation): nothing to forecast\n");
+    }
+    fflush(stdout);
+    cJSON_Delete(root);
+    return rc;
+}

@@ -1,0 +1,46 @@
+/* io/run/results.h: what a trained run gives back: `framelaw export` (equations, latent trajectories,
+ * reconstructions, the training region) and `framelaw forecast` (integrate the learned model from
+ * the first frame of each held-out recording and compare with the real frames). File formats in
+ * docs/formats.md. */
+#ifndef IO_RESULTS_H
+#define IO_RESULTS_H
+
+#include "io/run/config.h"
+#include "io/run/rundata.h"
+#include "nn/params.h"
+#include "nn/tape.h"
+#include "sparse/coef.h"
+#include "sparse/model.h"
+
+/* A run loaded from its folder: config, data, and the model of its newest valid checkpoint. */
+typedef struct {
+    char dir[CFG_PATH_MAX];
+    Config cfg;
+    RunData data;
+    Model m;
+    ParamSet ps;
+    Coef coef;          /* Xi (masked) and mask in double */
+    Tape tape;
+    int have_data, have_model, have_tape;
+} LoadedRun;
+
+int loaded_run_open(LoadedRun *r, const char *run_dir, Status *st);
+void loaded_run_close(LoadedRun *r);
+
+/* The training region: per latent variable the range of z (and of z' for a second-order model)
+ * over every training sample. */
+typedef struct {
+    int d, order;
+    double zmin[LIB_MAX_VARS], zmax[LIB_MAX_VARS];   /* (n_vars): z then z' */
+} Region;
+
+int results_region(LoadedRun *r, Region *reg, Status *st);
+
+/* Write equations, trajectories/, reconstructions/ (image data only) and region.json. */
+int results_export(LoadedRun *r, int quiet, Status *st);
+
+/* Forecast every held-out recording; writes forecast.json and forecast/. With no held-out
+ * recording, writes a forecast.json with an empty list and says so. */
+int results_forecast(LoadedRun *r, int quiet, Status *st);
+
+#endif

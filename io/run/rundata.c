@@ -1,0 +1,65 @@
+/* io/run/rundata.c: a run's config and data (see rundata.h). */
+#include "io/run/rundata.h"
+
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+
+static int gather(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st) {
+    RunData *d = ctx;
+    if (B > d->batch) return status_set(st, ST_RUNTIME, "gather: batch of %d exceeds %d", B, d->batch);
+    for (int i = 0; i < B; i++) d->idx[i] = (int)idx[i];
+    long n = d->ds.n;
+    if (d->td.sten) {
+        dataset_gather_window(&d->ds, split ? SPLIT_VAL : SPLIT_TRAIN, d->idx, B, X);
+        return 0;
+    }
+    dataset_gather(&d->ds, split ? SPLIT_VAL : SPLIT_TRAIN, d->idx, B, X, X + (long)B * n,
+                   d->k == 3 ? X + 2L * B * n : NULL);
+    return 0;
+}
+
+void rundata_close(RunData *d) {
+    if (d->have_ds) dataset_free(&d->ds);
+    if (d->have_store) store_close(&d->store);
+    if (d->have_scan) frames_scan_free(&d->scan);
+    free(d->idx);
+    memset(d, 0, sizeof *d);
+}
+
+int rundata_open(RunData *d, const Config *c, Status *st) {
+    memset(d, 0, sizeof *d);
+    FrameSettings s;
+    if (frame_settings_from_config(c, &s, st) || frame_settings_check(&s, st)) return st->code;
+    if (frames_scan(c->frames, &d->scan, st)) return st->code;
+    d->have_scan = 1;
+    StoreOpenInfo info;
+    if (store_open_for(&d->scan, &s, 0, &d->store, &info, st)) return st->code;
+    d->have_store = 1;
+    if (dataset_init(&d->ds, &d->store, &s, st)) return st->code;
+    d->have_ds = 1;
+    int latent = !strcmp(c->derivatives, "latent");
+    d->k = latent ? 2 * d->ds.sten.m + 1 : c->order + 1;
+    d->batch = c->batch > 0 ? c->batch : 1;
+    d->idx = malloc((size_t)d->batch * sizeof(int));
+    if (!d->idx) return status_set(st, ST_RUNTIME, "out of memory");
+    TrainData *td = &d->td;
+    td->n_in = (int)d->ds.n;
+    td->k = d->k;
+    td->n_train = d->ds.count[SPLIT_TRAIN];
+    td->n_val = d->ds.count[SPLIT_VAL];
+    td->dt = d->ds.dt;
+    td->sten = latent ? &d->ds.sten : NULL;
+    td->gather = gather;
+    td->ctx = d;
+    return 0;
+}
+
+int run_config_load(const char *run_dir, Config *c, Status *st) {
+    struct stat sb;
+    if (stat(run_dir, &sb) != 0 || !S_ISDIR(sb.st_mode)) return status_set(st, ST_INPUT, "%s: no such run folder", run_dir);
+    char path[CFG_PATH_MAX + 32];
+    snprintf(path, sizeof path, "%s/config.json", run_dir);
+    if (stat(path, &sb) != 0) return status_set(st, ST_INPUT, "%s: missing (not a run folder?)", path);
+    return config_load(c, path, st);
+}

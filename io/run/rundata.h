@@ -1,0 +1,31 @@
+/* io/run/rundata.h: what a command needs to work on a run: its config (from RUN_DIR/config.json) and
+ * its data (the frames folder scanned, the frame store opened or built, the training set split),
+ * exposed to the epoch loop as TrainData. */
+#ifndef IO_RUNDATA_H
+#define IO_RUNDATA_H
+
+#include "io/run/config.h"
+#include "io/data/frames.h"
+#include "io/data/gather.h"
+#include "io/data/store.h"
+#include "io/run/train.h"
+
+typedef struct {
+    FrameScan scan;
+    FrameStore store;
+    Dataset ds;
+    TrainData td;       /* gather over ds for the epoch loop */
+    int k;              /* stacked blocks: model order + 1, or the stencil's length (model.derivatives latent) */
+    int *idx;           /* (batch) work for the gather */
+    int batch;
+    int have_scan, have_store, have_ds;
+} RunData;
+
+/* Scan data.frames, open (or build) the frame store, split. ST_INPUT naming the fault. */
+int rundata_open(RunData *d, const Config *c, Status *st);
+void rundata_close(RunData *d);
+
+/* Read RUN_DIR/config.json. ST_INPUT when the folder or the file is missing ("not a run folder"). */
+int run_config_load(const char *run_dir, Config *c, Status *st);
+
+#endif

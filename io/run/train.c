@@ -1,0 +1,717 @@
+/* io/run/train.c: the epoch loop (see train.h). */
+#include "io/run/train.h"
+
+#include <dirent.h>
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <time.h>
+#include <unistd.h>
+
+#include "io/fs/atomic_file.h"
+#include "io/run/checkpoint.h"
+#include "nn/adam.h"
+#include "nn/mat.h"
+#include "nn/isomap.h"
+#include "nn/pca.h"
+#include "sparse/thresh_lsq.h"
+
+static double now_seconds(void) {
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
+
+int model_spec_from_config(const Config *c, int n_in, ModelSpec *sp, Status *st) {
+    memset(sp, 0, sizeof *sp);
+    sp->n_in = n_in;
+    sp->n_latent = c->latent;
+    sp->order = c->order;
+    sp->n_enc = c->n_encoder;
+    for (int i = 0; i < c->n_encoder; i++) sp->enc_widths[i] = c->encoder[i];
+    sp->dec_mirror = c->n_decoder < 0;
+    sp->n_dec = c->n_decoder < 0 ? 0 : c->n_decoder;
+    for (int i = 0; i < sp->n_dec; i++) sp->dec_widths[i] = c->decoder[i];
+    sp->act = act_from_name(c->activation);
+    if (sp->act == ACT_COUNT || sp->act == ACT_NONE)
+        return status_set(st, ST_INPUT, "model.activation: unknown activation '%s'", c->activation);
+    if (sp->n_enc + 1 > MLP_MAX_LAYERS || sp->n_dec + 1 > MLP_MAX_LAYERS)
+        return status_set(st, ST_INPUT, "model.encoder: at most %d hidden layers", MLP_MAX_LAYERS - 1);
+    LibrarySpec *l = &sp->lib;
+    *l = library_spec_default(c->latent, c->order);
+    l->constant = c->lib_constant;
+    l->degree = c->lib_degree;
+    l->trig = c->lib_trig;
+    l->trig_velocity = c->lib_trig_velocity;
+    l->n_freq = c->n_lib_freq;
+    for (int i = 0; i < c->n_lib_freq && i < LIB_MAX_FREQ; i++) l->freq[i] = c->lib_freq[i];
+    l->n_include = c->n_lib_include;
+    l->n_exclude = c->n_lib_exclude;
+    for (int i = 0; i < c->n_lib_include && i < LIB_MAX_EDITS; i++)
+        snprintf(l->include[i], LIB_NAME_MAX, "%s", c->lib_include[i]);
+    for (int i = 0; i < c->n_lib_exclude && i < LIB_MAX_EDITS; i++)
+        snprintf(l->exclude[i], LIB_NAME_MAX, "%s", c->lib_exclude[i]);
+    return 0;
+}
+
+static double lr_at(const Config *c, long epoch) {
+    if (!strcmp(c->schedule, "step") && c->sched_every > 0)
+        return c->lr * pow(c->sched_factor, (double)(epoch / c->sched_every));
+    if (!strcmp(c->schedule, "cosine") && c->epochs > 0)
+        return c->lr_min + 0.5 * (c->lr - c->lr_min) * (1 + cos(M_PI * (double)epoch / (double)c->epochs));
+    return c->lr;
+}
+
+/* ---- checkpoints in the run directory -------------------------------------------------------- */
+
+static int ensure_dir(const char *path, Status *st) {
+    if (mkdir(path, 0777) == 0 || errno == EEXIST) return 0;
+    return status_set(st, ST_RUNTIME, "%s: cannot create folder: %s", path, strerror(errno));
+}
+
+static int cmp_desc(const void *a, const void *b) { return strcmp(*(char *const *)b, *(char *const *)a); }
+
+/* Names of the periodic / stop checkpoints, newest first (zero-padded names sort by time). */
+static int list_checkpoints(const char *dir, char ***names_out) {
+    DIR *d = opendir(dir);
+    *names_out = NULL;
+    if (!d) return 0;
+    int n = 0, cap = 0;
+    char **names = NULL;
+    struct dirent *e;
+    while ((e = readdir(d))) {
+        size_t len = strlen(e->d_name);
+        if (strncmp(e->d_name, "ckpt-", 5) || len < 10 || strcmp(e->d_name + len - 5, ".ckpt")) continue;
+        if (n == cap) {
+            cap = cap ? 2 * cap : 16;
+            char **nn = realloc(names, (size_t)cap * sizeof *nn);
+            if (!nn) break;
+            names = nn;
+        }
+        names[n++] = strdup(e->d_name);
+    }
+    closedir(d);
+    if (n) qsort(names, (size_t)n, sizeof *names, cmp_desc);
+    *names_out = names;
+    return n;
+}
+
+static void free_names(char **names, int n) {
+    for (int i = 0; i < n; i++) free(names[i]);
+    free(names);
+}
+
+/* Keep the newest `keep` checkpoints. */
+static void prune_checkpoints(const char *dir, int keep) {
+    char **names;
+    int n = list_checkpoints(dir, &names);
+    for (int i = keep; i < n; i++) {
+        char path[4200];
+        snprintf(path, sizeof path, "%s/%s", dir, names[i]);
+        unlink(path);
+    }
+    free_names(names, n);
+}
+
+/* ---- the state of a run ---------------------------------------------------------------------- */
+
+typedef struct {
+    const Config *cfg;
+    const TrainData *ds;
+    Model *m;
+    ParamSet *ps;
+    CkptMeta meta;
+    int64_t *order;     /* (n_train) */
+    double rec_norm, dx_norm;   /* loss.normalize: 1 / var(x), 1 / mean(x'^2 or x''^2); else 1 */
+    char ckpt_dir[4150];
+} Run;
+
+static int save(Run *r, const char *name, char *written, Status *st) {
+    char path[4200];
+    snprintf(path, sizeof path, "%s/%s", r->ckpt_dir, name);
+    long n_mask = (long)r->m->lib.n_terms * r->m->n_latent;
+    int rc = ckpt_write(path, &r->meta, r->ps, r->m->mask, n_mask, r->order, r->ds->n_train, st);
+    if (!rc && written) snprintf(written, 4200, "%s", path);
+    return rc;
+}
+
+static int save_periodic(Run *r, char *written, Status *st) {
+    char name[64];
+    snprintf(name, sizeof name, "ckpt-%08lld-%06lld.ckpt", (long long)r->meta.epoch, (long long)r->meta.batch);
+    int rc = save(r, name, written, st);
+    if (!rc) prune_checkpoints(r->ckpt_dir, r->cfg->ckpt_keep > 0 ? r->cfg->ckpt_keep : 1);
+    return rc;
+}
+
+/* Newest checkpoint that reads back whole and matches the config; corrupt ones are reported. */
+static int load_latest(Run *r, int quiet, int allow_fresh, Status *st) {
+    char **names;
+    int n = list_checkpoints(r->ckpt_dir, &names);
+    long n_mask = (long)r->m->lib.n_terms * r->m->n_latent;
+    if (n == 0 && allow_fresh) { /* stopped before the first checkpoint: the run starts over, same seed */
+        if (!quiet) fprintf(stderr, "framelaw: no checkpoint yet in %s; starting the run from the beginning\n", r->ckpt_dir);
+        free_names(names, n);
+        status_ok(st);
+        return 0;
+    }
+    int rc = status_set(st, ST_INPUT, "%s: no checkpoint to resume from", r->ckpt_dir);
+    for (int i = 0; i < n; i++) {
+        char path[4200];
+        snprintf(path, sizeof path, "%s/%s", r->ckpt_dir, names[i]);
+        CkptMeta meta;
+        Status s2;
+        if (ckpt_read(path, &meta, r->ps, r->m->mask, n_mask, r->order, r->ds->n_train, &s2)) {
+            if (!quiet) fprintf(stderr, "framelaw: skipping %s\n", s2.msg);
+            rc = status_set(st, ST_INPUT, "%s", s2.msg);
+            continue;
+        }
+        if (meta.config_digest != config_digest(r->cfg)) {
+            char keys[512];
+            config_safe_keys_text(keys, sizeof keys);
+            rc = status_set(st, ST_INPUT,
+                            "%s: the config changed since this checkpoint; only these keys may change on resume: %s",
+                            path, keys);
+            break;
+        }
+        r->meta = meta;
+        for (long j = 0; j < n_mask; j++) r->m->maskf[j] = r->m->mask[j] ? 1.0f : 0.0f;
+        rc = 0;
+        status_ok(st);
+        if (!quiet) fprintf(stderr, "framelaw: resuming from %s (epoch %lld)\n", path, (long long)meta.epoch);
+        break;
+    }
+    free_names(names, n);
+    return rc;
+}
+
+static void shuffle64(Rng *rng, int64_t *a, long n) {
+    for (long i = n - 1; i > 0; i--) {
+        long j = (long)rng_below(rng, (uint64_t)i + 1);
+        int64_t t = a[i];
+        a[i] = a[j];
+        a[j] = t;
+    }
+}
+
+/* ---- the log --------------------------------------------------------------------------------- */
+
+static const char LOG_HEADER[] = "epoch,phase,lr,loss,reconstruction,dx,dz,l1,active,validation,seconds,epoch_seconds\n";
+
+/* Keep the header and the rows of epochs <= last_epoch (rows written after the checkpoint go). */
+static int log_trim(const char *path, long last_epoch, Status *st) {
+    FILE *f = fopen(path, "r");
+    if (!f) return 0;
+    size_t cap = 1 << 16, n = 0;
+    char *out = malloc(cap), line[1024];
+    if (!out) { fclose(f); return status_set(st, ST_RUNTIME, "out of memory"); }
+    int first = 1;
+    while (fgets(line, sizeof line, f)) {
+        if (!first && strtol(line, NULL, 10) > last_epoch) continue;
+        first = 0;
+        size_t len = strlen(line);
+        if (n + len + 1 > cap) {
+            char *o = realloc(out, cap * 2 + len);
+            if (!o) { free(out); fclose(f); return status_set(st, ST_RUNTIME, "out of memory"); }
+            out = o;
+            cap = cap * 2 + len;
+        }
+        memcpy(out + n, line, len);
+        n += len;
+    }
+    fclose(f);
+    int rc = atomic_write_bytes(path, out, n, st);
+    free(out);
+    return rc;
+}
+
+/* ---- progress -------------------------------------------------------------------------------- */
+
+static void fmt_duration(double s, char *buf, size_t n) {
+    if (s < 0 || !isfinite(s)) snprintf(buf, n, "?");
+    else if (s < 60) snprintf(buf, n, "%.0fs", s);
+    else if (s < 3600) snprintf(buf, n, "%dm%02ds", (int)(s / 60), (int)fmod(s, 60));
+    else snprintf(buf, n, "%dh%02dm", (int)(s / 3600), (int)fmod(s / 60, 60));
+}
+
+/* ---- validation ------------------------------------------------------------------------------ */
+
+static int validate(Run *r, Tape *t, float *X, int Bmax, double *out, Status *st) {
+    const TrainData *ds = r->ds;
+    r->m->dz_relative = r->cfg->loss_normalize;
+    LossWeights w = {(float)(r->cfg->w_rec * r->rec_norm), (float)(r->cfg->w_dx * r->dx_norm), (float)r->cfg->w_dz,
+                     0.0f};
+    double sum = 0;
+    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
+    if (!idx) return status_set(st, ST_RUNTIME, "out of memory");
+    for (long s = 0; s < ds->n_val; s += Bmax) {
+        int B = (int)(ds->n_val - s < Bmax ? ds->n_val - s : Bmax);
+        for (int i = 0; i < B; i++) idx[i] = s + i;
+        if (ds->gather(ds->ctx, 1, idx, B, X, st)) { free(idx); return st->code; }
+        tape_reset(t);
+        LossParts p;
+        model_loss(t, r->m, r->ps, X, B, &w, &p);
+        sum += p.total * B;
+    }
+    free(idx);
+    *out = ds->n_val ? sum / (double)ds->n_val : NAN;
+    return 0;
+}
+
+/* ---- the data's scale, for loss.normalize ----------------------------------------------------- */
+
+/* One pass over the training set in order: var(x) (per value over the samples, averaged over the
+ * values) and the mean square of the highest derivative block (x' or x''). Deterministic, so a
+ * resumed run gets the same figures. */
+static int data_scales(Run *r, const TrainData *ds, int Bmax, float *X, Status *st) {
+    r->rec_norm = r->dx_norm = 1.0;
+    if (!r->cfg->loss_normalize) return 0;
+    long n = ds->n_in, total = ds->n_train;
+    int k = ds->k;
+    double *sum = calloc((size_t)n, sizeof *sum), *sq = calloc((size_t)n, sizeof *sq), dms = 0;
+    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
+    if (!sum || !sq || !idx) {
+        free(sum), free(sq), free(idx);
+        return status_set(st, ST_RUNTIME, "out of memory");
+    }
+    int rc = 0;
+    for (long s0 = 0; s0 < total && !rc; s0 += Bmax) {
+        int B = (int)(total - s0 < Bmax ? total - s0 : Bmax);
+        for (int i = 0; i < B; i++) idx[i] = s0 + i;
+        if ((rc = ds->gather(ds->ctx, 0, idx, B, X, st))) break;
+        for (int b = 0; b < B; b++) {
+            const float *x = X + (long)b * n, *dd = X + ((long)(k - 1) * B + b) * n;
+            for (long p = 0; p < n; p++) {
+                sum[p] += x[p];
+                sq[p] += (double)x[p] * x[p];
+                dms += (double)dd[p] * dd[p];
+            }
+        }
+    }
+    if (!rc) {
+        double var = 0;
+        for (long p = 0; p < n; p++) {
+            double m = sum[p] / (double)total;
+            var += sq[p] / (double)total - m * m;
+        }
+        var /= (double)n;
+        dms /= (double)total * (double)n;
+        r->rec_norm = var > 1e-20 ? 1.0 / var : 1.0;
+        /* with derivatives in latent space the blocks are frames and loss.dx is not used */
+        r->dx_norm = ds->sten || !(dms > 1e-20) ? 1.0 : 1.0 / dms;
+    }
+    free(sum), free(sq), free(idx);
+    return rc;
+}
+
+/* ---- the end of the warm-up: Xi from thresholded least squares ------------------------------- */
+
+/* Encode every training sample, then fit z' (first order) or z'' (second order) on the library of
+ * z (or of z, z') by sequentially thresholded least squares. Xi takes the fit; the mask stays as it
+ * is (the thresholding passes prune). A failed fit (e.g. a rank-deficient library on collapsed
+ * latents) leaves Xi as it was and says so. */
+static int warmup_fit(Run *r, const TrainData *ds, Tape *t, float *X, int Bmax, int quiet, Status *st) {
+    Model *m = r->m;
+    int d = m->n_latent, k = m->order + 1, nv = m->lib.n_vars, T = m->lib.n_terms;
+    long N = ds->n_train;
+    double *theta = malloc((size_t)N * T * sizeof *theta), *target = malloc((size_t)N * d * sizeof *target);
+    double *xi = malloc((size_t)T * d * sizeof *xi);
+    uint8_t *mask = malloc((size_t)T * d);
+    float *z = malloc((size_t)k * Bmax * d * sizeof *z);
+    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
+    int rc = 0;
+    if (!theta || !target || !xi || !mask || !z || !idx) {
+        rc = status_set(st, ST_RUNTIME, "out of memory");
+        goto done;
+    }
+    for (long s0 = 0; s0 < N; s0 += Bmax) {
+        int B = (int)(N - s0 < Bmax ? N - s0 : Bmax);
+        for (int i = 0; i < B; i++) idx[i] = s0 + i;
+        if ((rc = ds->gather(ds->ctx, 0, idx, B, X, st))) goto done;
+        tape_reset(t);
+        model_encode(t, m, r->ps, X, B, k, z);
+        for (int b = 0; b < B; b++) {
+            double sv[LIB_MAX_VARS];
+            for (int j = 0; j < nv; j++) sv[j] = z[((long)(j / d) * B + b) * d + j % d];
+            library_eval(&m->lib, theta + (s0 + b) * T, sv, 1);
+            for (int j = 0; j < d; j++) target[(s0 + b) * d + j] = z[((long)(k - 1) * B + b) * d + j];
+        }
+    }
+    ThreshLsqOptions opt = thresh_lsq_defaults();
+    opt.threshold = r->cfg->threshold;
+    Status s2;
+    if (thresh_lsq_fit(xi, mask, theta, target, N, T, d, NULL, &opt, NULL, &s2)) {
+        if (!quiet) fprintf(stderr, "\nframelaw: the warm-up fit failed (%s); Xi starts at 0\n", s2.msg);
+        goto done;
+    }
+    float *w = params_val(r->ps, m->xi).d;
+    for (long i = 0; i < (long)T * d; i++) w[i] = m->mask[i] ? (float)xi[i] : 0.0f;
+done:
+    free(theta), free(target), free(xi), free(mask), free(z), free(idx);
+    return rc;
+}
+
+/* ---- model.init = pca -------------------------------------------------------------------------- */
+
+/* The encoder's first layer (n_in, h) projects on the h leading principal directions of the
+ * training frames, whitened: W[:, j] = v_j / sqrt(lambda_j), b_j = -mean . W[:, j], so its
+ * pre-activations start centred with unit variance. The decoder's output bias is set so that it
+ * starts at the mean frame: b = mean - s(0) * (column sums of its last W). Deterministic. */
+static int pca_init(Run *r, const TrainData *ds, float *X, int Bmax, Status *st) {
+    Model *m = r->m;
+    int n = ds->n_in, h = m->enc.widths[1];
+    if (h > n) h = n;
+    Pca p;
+    pca_begin(&p, n);
+    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
+    if (!idx) {
+        pca_free(&p);
+        return status_set(st, ST_RUNTIME, "out of memory");
+    }
+    for (long s0 = 0; s0 < ds->n_train; s0 += Bmax) {
+        int B = (int)(ds->n_train - s0 < Bmax ? ds->n_train - s0 : Bmax);
+        for (int i = 0; i < B; i++) idx[i] = s0 + i;
+        if (ds->gather(ds->ctx, 0, idx, B, X, st)) {
+            free(idx);
+            pca_free(&p);
+            return st->code;
+        }
+        pca_add(&p, X, B); /* the primal rows only */
+    }
+    free(idx);
+    double *mean = malloc((size_t)n * sizeof *mean), *vecs = malloc((size_t)h * n * sizeof *vecs);
+    double *vals = malloc((size_t)h * sizeof *vals);
+    int rc = !mean || !vecs || !vals ? status_set(st, ST_RUNTIME, "out of memory") : pca_finish(&p, h, mean, vecs, vals, st);
+    if (!rc) {
+        Mat W = params_val(r->ps, m->enc.W[0]), b = params_val(r->ps, m->enc.b[0]); /* (n, h1), (1, h1) */
+        for (int j = 0; j < W.cols; j++) {
+            double bj = 0;
+            for (int i = 0; i < n; i++) {
+                double w = j < h ? vecs[(long)j * n + i] / sqrt(vals[j] > 1e-12 ? vals[j] : 1e-12) : W.d[(long)i * W.cols + j];
+                W.d[(long)i * W.cols + j] = (float)w;
+                bj -= mean[i] * w;
+            }
+            b.d[j] = (float)bj;
+        }
+        int L = m->dec.n_layers - 1;
+        Mat Wd = params_val(r->ps, m->dec.W[L]), bd = params_val(r->ps, m->dec.b[L]); /* (h_last, n), (1, n) */
+        float s0[4];
+        act_table[L > 0 ? m->dec.act : ACT_NONE].fn(0.0f, s0);
+        for (int j = 0; j < n; j++) {
+            double cs = 0;
+            for (int i = 0; i < Wd.rows; i++) cs += Wd.d[(long)i * n + j];
+            bd.d[j] = (float)(mean[j] - (L > 0 ? s0[0] : 0.0f) * cs);
+        }
+    }
+    free(mean), free(vecs), free(vals);
+    return rc;
+}
+
+/* ---- model.init = isomap ----------------------------------------------------------------------- */
+
+/* After the PCA start: embed up to model.init_frames training frames (evenly spaced) by Isomap in
+ * as many dimensions as the latent has, then fit the encoder to that embedding (x -> y) and the
+ * decoder to its inverse (y -> x) by Adam for model.init_epochs epochs over those frames. The
+ * embedding follows the manifold the frames lie on, so the latent starts as a coordinate along it
+ * instead of a fold of it. Adam's moments and step count are reset afterwards: training proper
+ * starts fresh from these weights. Deterministic. */
+static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, const TrainOpts *o, AdamCfg ad, Status *st) {
+    int quiet = o->quiet, tty = !quiet && isatty(fileno(stderr));
+    Model *m = r->m;
+    ParamSet *ps = r->ps;
+    long n = ds->n_in, N = ds->n_train < r->cfg->init_frames ? ds->n_train : r->cfg->init_frames;
+    int d = m->n_latent;
+    float *F = malloc((size_t)N * n * sizeof *F), *Yf = malloc((size_t)N * d * sizeof *Yf);
+    double *Y = malloc((size_t)N * d * sizeof *Y);
+    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
+    int rc = 0, k_used = 0;
+    double t0 = now_seconds();
+    if (!F || !Yf || !Y || !idx) {
+        rc = status_set(st, ST_RUNTIME, "out of memory");
+        goto done;
+    }
+    for (long s0 = 0; s0 < N; s0 += Bmax) {
+        int B = (int)(N - s0 < Bmax ? N - s0 : Bmax);
+        for (int i = 0; i < B; i++) idx[i] = (int64_t)((s0 + i) * ds->n_train / N);
+        if ((rc = ds->gather(ds->ctx, 0, idx, B, X, st))) goto done;
+        /* the first block: the samples' frames, or with derivatives in latent space the first frame of
+         * each sample's window (a training frame all the same) */
+        memcpy(F + s0 * n, X, (size_t)B * n * sizeof *F);
+    }
+    if (!quiet) fprintf(stderr, "framelaw: isomap of %ld frames in %d dimension%s...", N, d, d > 1 ? "s" : "");
+    if ((rc = isomap_embed(F, N, n, d, 0, Y, &k_used, st))) {
+        if (!quiet) fprintf(stderr, "\n");
+        status_set(st, st->code, "model.init isomap: %s (model.init pca avoids it)", st->msg);
+        goto done;
+    }
+    for (long i = 0; i < N * d; i++) Yf[i] = (float)Y[i];
+    double var = 0; /* per-value variance of the embedded frames: the decoder term's scale */
+    for (long j = 0; j < n; j++) {
+        double s = 0, q = 0;
+        for (long i = 0; i < N; i++) s += F[i * n + j], q += (double)F[i * n + j] * F[i * n + j];
+        var += q / N - (s / N) * (s / N);
+    }
+    var /= (double)n;
+    float wdec = (float)(var > 1e-20 ? 1.0 / var : 1.0);
+    if (!quiet) fprintf(stderr, " %d neighbours, %.1f s; fitting the autoencoder to it...", k_used, now_seconds() - t0);
+    Tape t;
+    tape_init(&t, 64, (size_t)16 << 20);
+    long nb = (N + Bmax - 1) / Bmax;
+    double last = 0, t_fit = now_seconds();
+    for (long e = 0; e < r->cfg->init_epochs; e++) {
+        if (o->stop && *o->stop) { /* nothing saved yet: a resume starts the run over, with the same result */
+            if (!quiet) fprintf(stderr, "\n");
+            rc = status_set(st, ST_RUNTIME, "stopped during the isomap start (model.init), before the first "
+                            "checkpoint: `framelaw resume %s` starts the run over", o->run_dir);
+            break;
+        }
+        if (tty && e > 0) {
+            double per = (now_seconds() - t_fit) / (double)e;
+            fprintf(stderr, "\r\033[Kframelaw: fitting the autoencoder to the embedding: epoch %ld/%ld, loss %.3g, ETA %.0f s",
+                    e, r->cfg->init_epochs, last, per * (double)(r->cfg->init_epochs - e));
+        }
+        double acc = 0;
+        for (long b = 0; b < nb; b++) {
+            long s0 = b * Bmax;
+            int B = (int)(N - s0 < Bmax ? N - s0 : Bmax);
+            tape_reset(&t);
+            params_zero_grad(ps);
+            Node *x = nn_input(&t, F + s0 * n, B, (int)n), *y = nn_input(&t, Yf + s0 * d, B, d);
+            Node *le = nn_mean_sq(&t, nn_sub(&t, mlp_forward(&t, &m->enc, ps, x, 1), y));
+            Node *ld = nn_mean_sq(&t, nn_sub(&t, mlp_forward(&t, &m->dec, ps, y, 1), x));
+            Node *loss = nn_add(&t, le, nn_scale(&t, ld, wdec));
+            tape_backward(&t, loss);
+            adam_step(ps, &ad);
+            acc += loss->val.d[0] * B;
+        }
+        last = acc / (double)N;
+    }
+    tape_free(&t);
+    if (rc) goto done;
+    if (tty) fprintf(stderr, "\r\033[Kframelaw: fitted the autoencoder to the embedding:");
+    memset(ps->m, 0, (size_t)ps->n * sizeof *ps->m);
+    memset(ps->v, 0, (size_t)ps->n * sizeof *ps->v);
+    ps->step = 0;
+    if (!quiet) fprintf(stderr, " loss %.3g, %.1f s\n", last, now_seconds() - t0);
+done:
+    free(F), free(Yf), free(Y), free(idx);
+    return rc;
+}
+
+/* ---- set-up ---------------------------------------------------------------------------------- */
+
+static int setup(Run *r, const Config *cfg, const TrainData *ds, const char *run_dir, Model *m, ParamSet *ps,
+                 Status *st) {
+    memset(r, 0, sizeof *r);
+    memset(m, 0, sizeof *m); /* so that model_free is safe whatever fails below */
+    r->cfg = cfg;
+    r->ds = ds;
+    r->m = m;
+    r->ps = ps;
+    ModelSpec sp;
+    params_init(ps);
+    if (model_spec_from_config(cfg, ds->n_in, &sp, st)) return st->code;
+    if (model_init(m, ps, &sp, st)) return st->code;
+    params_alloc(ps);
+    if (m->lib.n_terms > ds->n_train && ds->n_train > 0) {
+        /* more unknowns per equation than samples: the model is not determined by the data */
+        return status_set(st, ST_INPUT, "library has %d terms but the training set only %ld samples", m->lib.n_terms,
+                          ds->n_train);
+    }
+    if (ds->sten) model_set_window(m, ds->sten, ds->dt);
+    rng_seed(&r->meta.rng, cfg->seed);
+    model_init_params(m, ps, &r->meta.rng);
+    r->order = nn_alloc((size_t)(ds->n_train > 0 ? ds->n_train : 1) * sizeof(int64_t));
+    for (long i = 0; i < ds->n_train; i++) r->order[i] = i;
+    r->meta.config_digest = config_digest(cfg);
+    r->meta.best_val = INFINITY;
+    r->meta.best_epoch = -1;
+    snprintf(r->ckpt_dir, sizeof r->ckpt_dir, "%s/checkpoints", run_dir);
+    return 0;
+}
+
+int train_load_latest(const char *run_dir, const Config *cfg, int n_in, long n_train, Model *m, ParamSet *ps,
+                      Status *st) {
+    TrainData ds = {0};
+    ds.n_in = n_in;
+    ds.n_train = n_train;
+    Run r;
+    int rc = setup(&r, cfg, &ds, run_dir, m, ps, st);
+    if (!rc) rc = load_latest(&r, 1, 0, st);
+    nn_free(r.order);
+    return rc;
+}
+
+/* ---- the loop -------------------------------------------------------------------------------- */
+
+int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, TrainResult *res, Status *st) {
+    const Config *c = o->cfg;
+    memset(res, 0, sizeof *res);
+    res->best_val = NAN;
+    Run r;
+    int rc = setup(&r, c, ds, o->run_dir, m, ps, st);
+    if (rc) { nn_free(r.order); return rc; }
+    if (ds->n_train < 1) { nn_free(r.order); return status_set(st, ST_INPUT, "the training set is empty"); }
+    if (ds->k != (m->win ? m->win : m->order + 1)) {
+        nn_free(r.order);
+        return status_set(st, ST_INPUT, "dataset gives %d blocks, model needs %d", ds->k, m->win ? m->win : m->order + 1);
+    }
+    char log_path[4200];
+    snprintf(log_path, sizeof log_path, "%s/log.csv", o->run_dir);
+    if (ensure_dir(o->run_dir, st) || ensure_dir(r.ckpt_dir, st)) { nn_free(r.order); return st->code; }
+    if (o->resume) {
+        if (load_latest(&r, o->quiet, 1, st) || log_trim(log_path, (long)r.meta.epoch, st)) {
+            nn_free(r.order);
+            return st->code;
+        }
+    } else {
+        if (atomic_write_bytes(log_path, LOG_HEADER, strlen(LOG_HEADER), st)) { nn_free(r.order); return st->code; }
+    }
+    FILE *log = fopen(log_path, "a");
+    if (!log) { nn_free(r.order); return status_set(st, ST_RUNTIME, "%s: cannot open: %s", log_path, strerror(errno)); }
+
+    nn_set_threads(c->threads > 0 ? c->threads : (int)sysconf(_SC_NPROCESSORS_ONLN));
+    int B = c->batch < ds->n_train ? c->batch : (int)ds->n_train;
+    long n_batches = (ds->n_train + B - 1) / B;
+    float *X = nn_alloc((size_t)ds->k * B * ds->n_in * sizeof(float)); /* (k B, n_in) */
+    int fresh = ps->step == 0, use_pca = !strcmp(c->init, "pca") || !strcmp(c->init, "isomap");
+    if (fresh && ((use_pca && (rc = pca_init(&r, ds, X, B, st))) ||
+                  (!strcmp(c->init, "isomap") &&
+                   (rc = isomap_init(&r, ds, X, B, o, (AdamCfg){(float)c->lr, (float)c->beta1, (float)c->beta2,
+                                                                        (float)c->eps}, st))))) { /* a fresh model */
+        fclose(log);
+        nn_free(X);
+        nn_free(r.order);
+        return rc;
+    }
+    if ((rc = data_scales(&r, ds, B, X, st))) {
+        fclose(log);
+        nn_free(X);
+        nn_free(r.order);
+        return rc;
+    }
+    Tape t;
+    tape_init(&t, 256, (size_t)64 << 20);
+    AdamCfg ad = {(float)c->lr, (float)c->beta1, (float)c->beta2, (float)c->eps};
+    long refine_from = c->epochs - c->refine_epochs; /* first epoch of the refinement phase */
+    int tty = isatty(fileno(stderr));
+    double t_start = now_seconds(), seconds0 = r.meta.seconds;
+    long epoch0 = (long)r.meta.epoch, steps = 0;
+    double t_shown = 0;
+    rc = 0;
+
+    while (r.meta.epoch < c->epochs) {
+        long epoch = (long)r.meta.epoch;
+        int refine = epoch >= refine_from, warm = epoch < c->warmup_epochs;
+        m->warmup = warm;
+        m->dz_relative = c->loss_normalize;
+        LossWeights w = {(float)(c->w_rec * r.rec_norm), (float)(c->w_dx * r.dx_norm), warm ? 0.0f : (float)c->w_dz,
+                         refine || warm ? 0.0f : (float)c->w_l1};
+        ad.lr = (float)lr_at(c, epoch);
+        double t_epoch = now_seconds();
+        if (r.meta.batch == 0) {
+            shuffle64(&r.meta.rng, r.order, ds->n_train);
+            memset(r.meta.acc, 0, sizeof r.meta.acc);
+            r.meta.acc_n = 0;
+        }
+        for (long b = r.meta.batch; b < n_batches; b++) {
+            long s0 = b * B;
+            int nb = (int)(ds->n_train - s0 < B ? ds->n_train - s0 : B);
+            if (ds->gather(ds->ctx, 0, r.order + s0, nb, X, st)) { rc = st->code; goto out; }
+            tape_reset(&t);
+            params_zero_grad(ps);
+            LossParts p;
+            Node *loss = model_loss(&t, m, ps, X, nb, &w, &p);
+            if (!isfinite(p.total)) {
+                rc = status_set(st, ST_RUNTIME,
+                                "training diverged at epoch %ld (the loss is not finite); a lower optimizer.lr, "
+                                "smaller loss.dx / loss.dz, or a larger train.batch usually help; resume from the "
+                                "last good checkpoint in %s after changing them in a new run",
+                                epoch + 1, r.ckpt_dir);
+                goto out;
+            }
+            tape_backward(&t, loss);
+            adam_step(ps, &ad);
+            model_apply_mask(m, ps);
+            double parts[5] = {p.total, p.rec, p.dx, p.dz, p.l1};
+            for (int i = 0; i < 5; i++) r.meta.acc[i] += parts[i] * nb;
+            r.meta.acc_n += nb;
+            r.meta.batch = b + 1;
+            steps++;
+            if ((o->stop && *o->stop) || (o->stop_after_steps && steps >= o->stop_after_steps)) {
+                if (r.meta.batch == n_batches) { /* the epoch is complete: finish its bookkeeping below */
+                    break;
+                }
+                r.meta.seconds = seconds0 + now_seconds() - t_start;
+                if ((rc = save_periodic(&r, res->checkpoint, st))) goto out;
+                res->interrupted = 1;
+                goto out;
+            }
+        }
+        /* end of an epoch */
+        double mean[5];
+        for (int i = 0; i < 5; i++) mean[i] = r.meta.acc[i] / (double)(r.meta.acc_n ? r.meta.acc_n : 1);
+        r.meta.epoch = epoch + 1;
+        r.meta.batch = 0;
+        long done = epoch + 1;
+        if (warm && done == c->warmup_epochs) {
+            m->warmup = 0;
+            if (c->warmup_fit && (rc = warmup_fit(&r, ds, &t, X, B, o->quiet, st))) goto out;
+        }
+        if (!refine && !warm && c->threshold_every > 0 && done % c->threshold_every == 0 && done <= refine_from) {
+            model_threshold(m, ps, (float)c->threshold);
+            r.meta.n_thresholds++;
+        }
+        double val = NAN;
+        int validated = ds->n_val > 0 && (done % c->validate_every == 0 || done == c->epochs);
+        if (validated) {
+            if ((rc = validate(&r, &t, X, B, &val, st))) goto out;
+        }
+        r.meta.seconds = seconds0 + now_seconds() - t_start;
+        double ep_s = now_seconds() - t_epoch;
+        long active = model_active(m);
+        fprintf(log, "%ld,%s,%.6g,%.8g,%.8g,%.8g,%.8g,%.8g,%ld,", done, refine ? "refine" : warm ? "warmup" : "train", ad.lr, mean[0],
+                mean[1], mean[2], mean[3], mean[4], active);
+        if (validated) fprintf(log, "%.8g", val);
+        fprintf(log, ",%.3f,%.4f\n", r.meta.seconds, ep_s);
+        fflush(log);
+        if (validated && val < r.meta.best_val) {
+            r.meta.best_val = val;
+            r.meta.best_epoch = done;
+            if ((rc = save(&r, "best.ckpt", NULL, st))) goto out;
+        }
+        res->last_loss = mean[0];
+        int stopping = (o->stop && *o->stop) || (o->stop_after_steps && steps >= o->stop_after_steps);
+        if (done == c->epochs || stopping || (c->ckpt_every > 0 && done % c->ckpt_every == 0)) {
+            if ((rc = save_periodic(&r, res->checkpoint, st))) goto out;
+        }
+        /* on a terminal one updating line every epoch; otherwise a plain line at most every 10 s, at
+         * validations and at the end, so that a log file stays readable */
+        double t_now = now_seconds();
+        int show = tty || validated || done == c->epochs || stopping || t_now - t_shown >= 10.0;
+        if (!o->quiet && show) {
+            t_shown = t_now;
+            double el = t_now - t_start, rate = (double)(done - epoch0) / (el > 0 ? el : 1e-9);
+            char eta[32];
+            fmt_duration((double)(c->epochs - done) / rate, eta, sizeof eta);
+            char vbuf[32] = "";
+            if (validated) snprintf(vbuf, sizeof vbuf, " val %.3e", val);
+            fprintf(stderr, "%sepoch %ld/%ld %s loss %.3e rec %.3e dx %.3e dz %.3e l1 %.3g active %ld%s  %.2f ep/s  ETA %s%s",
+                    tty ? "\r\033[K" : "", done, c->epochs, refine ? "refine" : warm ? "warmup" : "train", mean[0], mean[1], mean[2],
+                    mean[3], mean[4], active, vbuf, rate, eta, tty ? "" : "\n");
+        }
+        if (stopping) { res->interrupted = 1; break; }
+    }
+out:
+    if (!o->quiet && tty) fputc('\n', stderr);
+    fclose(log);
+    res->epochs_done = (long)r.meta.epoch;
+    res->best_val = r.meta.best_val;
+    res->active = model_active(m);
+    tape_free(&t);
+    nn_free(X);
+    nn_free(r.order);
+    return rc;
+}

@@ -1,0 +1,64 @@
+/* io/run/train.h: the epoch loop. Owns time, files and the terminal around sparse/model's step:
+ * shuffling, Adam, the learning-rate schedule, sequential thresholding, the refinement phase,
+ * validation, the CSV log, progress, checkpoints, resume and stopping on a signal.
+ *
+ * Run directory (docs/formats.md):
+ *   config.json              the resolved config (written by the command)
+ *   log.csv                  one row per epoch
+ *   checkpoints/ckpt-<epoch:8>-<batch:6>.ckpt   the last checkpoint.keep periodic ones, plus those
+ *                            written on a stop; checkpoints/best.ckpt the best by validation loss */
+#ifndef IO_TRAIN_H
+#define IO_TRAIN_H
+
+#include <signal.h>
+#include <stdint.h>
+
+#include "io/run/config.h"
+#include "nn/core.h"
+#include "sparse/model.h"
+
+/* Where batches come from. X (k B, n_in): rows [0, B) x, [B, 2B) x', [2B, 3B) x'' of the samples
+ * idx (B) of a split (0 training, 1 validation). k = model order + 1; or, with sten set, the
+ * 2m+1 frames of the stencil around each sample (k = 2m+1). */
+typedef struct {
+    int n_in;
+    int k;
+    long n_train, n_val;
+    double dt;              /* seconds between samples */
+    int (*gather)(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st);
+    void *ctx;
+    const Stencil *sten;    /* non-NULL: derivatives in latent space; the gather gives the stencil's
+                             * 2m+1 frames around each sample as k = 2m+1 blocks */
+} TrainData;
+
+typedef struct {
+    const Config *cfg;
+    const char *run_dir;
+    int resume;                         /* continue from the newest valid checkpoint */
+    int quiet;                          /* no progress output */
+    volatile sig_atomic_t *stop;        /* set by a signal: finish the step, checkpoint, return */
+    int stop_after_steps;               /* tests: behave as if stopped after this many steps (0 = off) */
+} TrainOpts;
+
+typedef struct {
+    long epochs_done;
+    int interrupted;                    /* stopped by a signal, checkpoint written */
+    double last_loss, best_val;
+    long active;
+    char checkpoint[4200];              /* the last checkpoint written */
+} TrainResult;
+
+/* The model the config describes, for n_in inputs. */
+int model_spec_from_config(const Config *c, int n_in, ModelSpec *sp, Status *st);
+
+/* Set up the model (fresh or from the newest valid checkpoint) and run the remaining epochs. On
+ * return the model's parameters and mask are in *m and *ps (initialised by this call; the caller
+ * frees them with model_free / params_free). ST_RUNTIME on divergence (the last good checkpoint
+ * stays) or a file error. */
+int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, TrainResult *res, Status *st);
+
+/* Load the newest valid checkpoint of a run into a model set up from its config (no training). */
+int train_load_latest(const char *run_dir, const Config *cfg, int n_in, long n_train, Model *m, ParamSet *ps,
+                      Status *st);
+
+#endif
