@@ -7,6 +7,7 @@
 
 #include "io/data/frames.h"
 #include "io/data/images.h"
+#include "io/run/rundata.h"
 
 static void write_png(const char *dir, const char *name, int w, int h, int seed) {
     char path[1024];

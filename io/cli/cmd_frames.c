@@ -7,6 +7,7 @@
 
 #include "io/cli/cli.h"
 #include "io/run/config.h"
+#include "io/run/rundata.h"
 #include "io/data/frames.h"
 #include "io/data/gather.h"
 #include "io/data/images.h"

@@ -17,7 +17,6 @@
 
 #include <stdint.h>
 
-#include "io/run/config.h"
 #include "io/data/images.h"
 #include "nn/core.h"
 #include "sparse/stencil.h"
@@ -53,10 +52,6 @@ typedef struct {
 } FrameSettings;
 
 FrameSettings frame_settings_default(void);
-
-/* The data.* keys of a resolved run config (io/run/config.h) as frame settings. ST_INPUT naming the
- * key when a name is unknown. */
-int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st);
 
 /* Time between stored frames: stride / fps. */
 static inline double frame_settings_dt(const FrameSettings *s) { return s->stride / s->fps; }

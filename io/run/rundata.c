@@ -27,6 +27,32 @@ void rundata_close(RunData *d) {
     memset(d, 0, sizeof *d);
 }
 
+int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st) {
+    *s = frame_settings_default();
+    s->fps = c->fps;
+    s->gray = gray_std_from_name(c->gray);
+    if (s->gray == GRAY_COUNT) return status_set(st, ST_INPUT, "data.gray: unknown standard '%s'", c->gray);
+    s->crop_x = c->crop[0], s->crop_y = c->crop[1], s->crop_w = c->crop[2], s->crop_h = c->crop[3];
+    s->width = c->size[0], s->height = c->size[1];
+    s->scale = scale_mode_from_name(c->scale);
+    if (s->scale == SCALE_COUNT) return status_set(st, ST_INPUT, "data.scale: unknown scaling '%s'", c->scale);
+    s->stride = c->stride;
+    s->bits = c->store_bits;
+    s->stencil = stencil_kind_from_name(c->derivative);
+    if (s->stencil == STENCIL_KIND_COUNT)
+        return status_set(st, ST_INPUT, "data.derivative.method: unknown method '%s'", c->derivative);
+    s->sg_window = c->sg_window, s->sg_degree = c->sg_degree;
+    size_t k = 0;
+    for (int i = 0; i < c->n_val_names && i < CFG_MAX_LIST; i++) {
+        int n = snprintf(s->val_names + k, sizeof s->val_names - k, "%s%s", i ? "," : "", c->val_names[i]);
+        if (n < 0 || (size_t)n >= sizeof s->val_names - k)
+            return status_set(st, ST_INPUT, "data.validation.recordings: names too long");
+        k += (size_t)n;
+    }
+    s->val_last = c->val_last;
+    return frame_settings_check(s, st);
+}
+
 int rundata_open(RunData *d, const Config *c, Status *st) {
     memset(d, 0, sizeof *d);
     FrameSettings s;

@@ -21,6 +21,10 @@ typedef struct {
     int have_scan, have_store, have_ds;
 } RunData;
 
+/* The data.* keys of a resolved run config as frame settings. ST_INPUT naming the
+ * key when a name is unknown. */
+int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st);
+
 /* Scan data.frames, open (or build) the frame store, split. ST_INPUT naming the fault. */
 int rundata_open(RunData *d, const Config *c, Status *st);
 void rundata_close(RunData *d);

@@ -19,6 +19,7 @@
 #include "io/fs/atomic_file.h"
 #include "io/data/frames.h"
 #include "io/data/store.h"
+#include "io/run/rundata.h"
 #include "sparse/equation.h"
 
 /* ---- small helpers ----------------------------------------------------------------------------- */
