@@ -9,6 +9,7 @@
 
 #include "io/data/images.h"
 #include "io/data/store.h"
+#include "io/fs/hash.h"
 
 /* Frame k of a recording: pixel i = (i * 7 + 13 k + seed) mod 256. */
 static uint8_t pix(int i, int k, int seed) { return (uint8_t)((i * 7 + 13 * k + seed) % 256); }
@@ -317,7 +318,7 @@ static void test_concurrent(void **state) {
  * CRC Error Detection Algorithms", 1993, check value table). */
 static void test_writer_and_crc(void **state) {
     (void)state;
-    assert_int_equal(store_crc32(0, "123456789", 9), 0xCBF43926u);
+    assert_int_equal(fs_crc32(0, "123456789", 9), 0xCBF43926u);
     char dir[256], path[512];
     assert_non_null(test_tmpdir(dir, sizeof dir));
     snprintf(path, sizeof path, "%s/w.store", dir);

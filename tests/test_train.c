@@ -8,6 +8,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "io/fs/hash.h"
 #include "io/run/checkpoint.h"
 #include "io/run/config.h"
 #include "io/run/train.h"
@@ -209,7 +210,7 @@ static void test_resume_is_bit_exact(void **state) {
  * check value of CRC-32/ISO-HDLC, "A Painless Guide to CRC Error Detection Algorithms", 1993). */
 static void test_corrupt_checkpoints_are_refused(void **state) {
     (void)state;
-    assert_int_equal(crc32_ieee("123456789", 9), 0xCBF43926u);
+    assert_int_equal(fs_crc32(0, "123456789", 9), 0xCBF43926u);
     char dir[256];
     assert_non_null(test_tmpdir(dir, sizeof dir));
     Config c;

@@ -16,12 +16,13 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
-#include <time.h>
 #include <unistd.h>
 
 #include "demo/convection.h"
 #include "demo/lantern.h"
 #include "io/fs/atomic_file.h"
+#include "io/fs/clock.h"
+#include "io/fs/files.h"
 #include "io/cli/cli.h"
 #include "io/data/images.h"
 
@@ -168,23 +169,6 @@ static int dir_state(const char *path) {
     return any;
 }
 
-/* mkdir -p. */
-static int make_dirs(const char *path, Status *st) {
-    char p[4096];
-    if (snprintf(p, sizeof p, "%s", path) >= (int)sizeof p) return status_set(st, ST_INPUT, "%.100s...: path too long", path);
-    for (char *c = p + 1;; c++) {
-        if (*c == '/' || !*c) {
-            char keep = *c;
-            *c = 0;
-            if (mkdir(p, 0755) && errno != EEXIST)
-                return status_set(st, ST_RUNTIME, "%s: cannot create the folder: %s", p, strerror(errno));
-            *c = keep;
-            if (!keep) break;
-        }
-    }
-    return 0;
-}
-
 /* A file that the demo writes into a recording folder (or a temporary left by an atomic write). */
 static int demo_file_name(const char *n) {
     return (!strncmp(n, "frame", 5) && strstr(n, ".png")) || !strncmp(n, "truth.csv", 9);
@@ -242,15 +226,9 @@ typedef struct {
     long done, total;
 } Progress;
 
-static double now_s(void) {
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    return ts.tv_sec + 1e-9 * ts.tv_nsec;
-}
-
 /* At most every 0.2 s on a terminal (one line, redrawn), every 10 s otherwise. */
 static void progress(Progress *p, const char *what, int rec, int n_rec, int force) {
-    double t = now_s();
+    double t = clock_seconds();
     if (!force && t - p->last < (p->tty ? 0.2 : 10)) return;
     p->last = t;
     double frac = p->total ? (double)p->done / p->total : 1;
@@ -382,7 +360,7 @@ static int render_all(const DemoSettings *s, Status *st) {
     double *truth = nn_alloc(sizeof(double) * (size_t)nf * cols);   /* (nf, cols) */
     uint8_t *px = nn_alloc((size_t)width * height);                 /* (height, width) */
     char tmp_dir[4400], final_dir[4400], path[4600];
-    Progress pr = {isatty(fileno(stderr)), now_s(), 0, 0, (long)n * nf};
+    Progress pr = {isatty(fileno(stderr)), clock_seconds(), 0, 0, (long)n * nf};
     pr.last = pr.start;
     int rc = 0;
     for (int k = 0; k < n && !rc; k++) {
@@ -431,7 +409,7 @@ static int render_all(const DemoSettings *s, Status *st) {
     if (pr.tty) fputc('\n', stderr);
     if (!rc)
         printf("wrote %d recordings of %d frames to %s (truth.csv in each, settings in demo.json) in %.1f s\n", n, nf,
-               s->out_dir, now_s() - pr.start);
+               s->out_dir, clock_seconds() - pr.start);
     nn_free(truth);
     nn_free(px);
     nn_free(init);
@@ -455,7 +433,7 @@ int cmd_demo(int argc, char **argv) {
         return cli_error(2, "demo: OUT_DIR '%s' exists and is not empty (--overwrite replaces an earlier demo's recordings)",
                          s.out_dir);
     if (state == 1 && remove_old_demo(s.out_dir, &st)) return cli_error(st.code, "demo: %s", st.msg);
-    if (state < 0 && make_dirs(s.out_dir, &st)) return cli_error(st.code, "demo: %s", st.msg);
+    if (state < 0 && fs_make_dirs(s.out_dir, &st)) return cli_error(st.code, "demo: %s", st.msg);
     if (render_all(&s, &st)) return cli_error(st.code, "demo: %s", st.msg);
     return 0;
 }

@@ -18,6 +18,7 @@
 #include <cjson/cJSON.h>
 
 #include "io/cli/cli.h"
+#include "io/fs/clock.h"
 #include "io/sweep/sweep.h"
 
 static const char *const STATE_NAMES[] = {"train", "resume", "finished"};
@@ -28,12 +29,6 @@ static int count_cores(void) {
     if (sched_getaffinity(0, sizeof set, &set) == 0 && CPU_COUNT(&set) > 0) return CPU_COUNT(&set);
     long n = sysconf(_SC_NPROCESSORS_ONLN);
     return n > 0 ? (int)n : 1;
-}
-
-static double now_s(void) {
-    struct timespec t;
-    clock_gettime(CLOCK_MONOTONIC, &t);
-    return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
 }
 
 static void on_signal(int sig) { (void)sig; }
@@ -151,7 +146,7 @@ static int start_member(Runner *r, int i, MemberState how, Slot *slot, Status *s
     if (pid < 0) return status_set(st, ST_RUNTIME, "fork: %s", strerror(e));
     slot->member = i;
     slot->pid = pid;
-    slot->t0 = now_s();
+    slot->t0 = clock_seconds();
     slot->how = how;
     return 0;
 }
@@ -206,7 +201,7 @@ static int run_queue(Runner *r, const int *queue, const MemberState *how, int n_
 
     int next = 0, running = 0, stopping = 0, n_failed = 0;
     r->n_left = n_queue;
-    double t_report = now_s();
+    double t_report = clock_seconds();
     for (;;) {
         while (!stopping && running < jobs && next < n_queue) {
             int i = queue[next], s = 0;
@@ -250,7 +245,7 @@ static int run_queue(Runner *r, const int *queue, const MemberState *how, int n_
             running--;
             int code = WIFEXITED(ws) ? WEXITSTATUS(ws) : 128 + WTERMSIG(ws);
             const char *dir = sw->members[i].dir;
-            double secs = now_s() - slots[s].t0;
+            double secs = clock_seconds() - slots[s].t0;
             if (code == 0) {
                 r->done++;
                 SweepLog log;
@@ -273,8 +268,8 @@ static int run_queue(Runner *r, const int *queue, const MemberState *how, int n_
             }
             print_counts(r, running);
         }
-        if (running && now_s() - t_report >= 60) {
-            t_report = now_s();
+        if (running && clock_seconds() - t_report >= 60) {
+            t_report = clock_seconds();
             fprintf(stderr, "framelaw: sweep: %d done, %d running, %d left:", r->done, running, r->n_left);
             for (int s = 0; s < jobs; s++) {
                 if (!slots[s].pid) continue;

@@ -1,13 +1,12 @@
 /* io/cli/cmd_train.c: `framelaw train CONFIG` and `framelaw resume RUN_DIR`. */
-#include <errno.h>
 #include <math.h>
 #include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
 
 #include "io/fs/atomic_file.h"
+#include "io/fs/files.h"
 #include "io/cli/cli.h"
 #include "io/run/config.h"
 #include "io/run/results.h"
@@ -43,21 +42,6 @@ static int finish_run(const char *run_dir, int quiet, Status *st) {
 }
 
 /* ---- shared by train and resume ---------------------------------------------------------------- */
-
-static int mkdir_p(const char *path, Status *st) {
-    char buf[CFG_PATH_MAX];
-    snprintf(buf, sizeof buf, "%s", path);
-    for (char *p = buf + 1; *p; p++) {
-        if (*p != '/') continue;
-        *p = 0;
-        if (mkdir(buf, 0777) && errno != EEXIST)
-            return status_set(st, ST_RUNTIME, "%s: cannot create folder: %s", buf, strerror(errno));
-        *p = '/';
-    }
-    if (mkdir(buf, 0777) && errno != EEXIST)
-        return status_set(st, ST_RUNTIME, "%s: cannot create folder: %s", buf, strerror(errno));
-    return 0;
-}
 
 static int run_training(Config *c, const char *run_dir, int resume, int quiet) {
     Status st;
@@ -164,8 +148,7 @@ int cmd_train(int argc, char **argv) {
     }
     char ck[CFG_PATH_MAX + 32];
     snprintf(ck, sizeof ck, "%s/checkpoints", c->output);
-    struct stat sb;
-    if (stat(ck, &sb) == 0) {
+    if (fs_exists(ck)) {
         rc = cli_error(2, "%s: already holds a run; continue it with `framelaw resume %s` or choose another "
                           "output (--set output=...)", c->output, c->output);
         free(c);
@@ -174,7 +157,7 @@ int cmd_train(int argc, char **argv) {
     char cfg_path[CFG_PATH_MAX + 32];
     snprintf(cfg_path, sizeof cfg_path, "%s/config.json", c->output);
     char *json = config_to_json(c);
-    if (mkdir_p(c->output, &st) || atomic_write_bytes(cfg_path, json, strlen(json), &st)) {
+    if (fs_make_dirs(c->output, &st) || atomic_write_bytes(cfg_path, json, strlen(json), &st)) {
         free(json);
         free(c);
         return cli_error(st.code, "%s", st.msg);

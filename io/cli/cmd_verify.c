@@ -11,6 +11,7 @@
 #include "demo/elliptic.h"
 #include "demo/lantern.h"
 #include "io/fs/atomic_file.h"
+#include "io/fs/files.h"
 #include "io/cli/cli.h"
 #include "io/run/results.h"
 #include "sparse/integrate.h"
@@ -163,15 +164,15 @@ int cmd_verify(int argc, char **argv) {
     if (loaded_run_open(&r, dir, &st)) return cli_error(st.code, "%s", st.msg);
     char path[CFG_PATH_MAX + 32];
     snprintf(path, sizeof path, "%s/demo.json", r.cfg.frames);
-    FILE *f = fopen(path, "rb");
-    if (!f) {
+    if (!fs_exists(path)) {
         loaded_run_close(&r);
         return cli_error(2, "%s: missing: verify checks runs on demo scenarios (framelaw demo)", path);
     }
-    char *txt = malloc(1 << 20);
-    size_t n = fread(txt, 1, (1 << 20) - 1, f);
-    txt[n] = 0;
-    fclose(f);
+    char *txt;
+    if (fs_read_file(path, 1u << 20, &txt, NULL, &st)) {
+        loaded_run_close(&r);
+        return cli_error(st.code, "%s", st.msg);
+    }
     cJSON *demo = cJSON_Parse(txt);
     free(txt);
     const char *scenario = demo ? cJSON_GetStringValue(cJSON_GetObjectItem(demo, "scenario")) : NULL;

@@ -10,6 +10,7 @@
 #include <sys/stat.h>
 
 #include "io/data/series.h"
+#include "io/fs/hash.h"
 #include "io/data/store.h"
 
 const char *const scale_mode_names[SCALE_COUNT] = {"unit", "standardize"};
@@ -329,34 +330,19 @@ fail:
 
 /* ---- digest ------------------------------------------------------------------------------ */
 
-typedef struct {
-    uint64_t h;
-} Fnv;
-
-static void fnv_bytes(Fnv *f, const void *p, size_t n) {
-    const unsigned char *b = p;
-    for (size_t i = 0; i < n; i++) f->h = (f->h ^ b[i]) * 0x100000001b3ULL;
-}
-static void fnv_u64(Fnv *f, uint64_t v) {
-    unsigned char b[8];
-    for (int i = 0; i < 8; i++) b[i] = (unsigned char)(v >> (8 * i));
-    fnv_bytes(f, b, 8);
-}
-static void fnv_str(Fnv *f, const char *s) {
-    fnv_u64(f, strlen(s));
-    fnv_bytes(f, s, strlen(s));
-}
+/* A string as its length, then its bytes (so that "ab" + "c" and "a" + "bc" differ). */
+static uint64_t fnv_str(uint64_t h, const char *s) { return fnv1a64_str(fnv1a64_u64(h, strlen(s)), s); }
 
 uint64_t frames_digest(const FrameScan *fs, const FrameSettings *s) {
-    Fnv f = {0xcbf29ce484222325ULL};
-    fnv_u64(&f, STORE_VERSION);
-    fnv_u64(&f, (uint64_t)fs->n_rec);
+    uint64_t h = FNV1A64_INIT;
+    h = fnv1a64_u64(h, STORE_VERSION);
+    h = fnv1a64_u64(h, (uint64_t)fs->n_rec);
     size_t root_len = strlen(fs->root);
     for (int r = 0; r < fs->n_rec; r++) {
         const ScanRecording *rec = &fs->rec[r];
-        fnv_str(&f, rec->name);
-        fnv_u64(&f, rec->kind);
-        fnv_u64(&f, (uint64_t)rec->n_files);
+        h = fnv_str(h, rec->name);
+        h = fnv1a64_u64(h, rec->kind);
+        h = fnv1a64_u64(h, (uint64_t)rec->n_files);
         for (int i = 0; i < rec->n_files; i++) {
             const char *p = rec->files[i].path;
             /* Relative to the root, so that moving the whole folder keeps the store valid. */
@@ -367,15 +353,15 @@ uint64_t frames_digest(const FrameScan *fs, const FrameSettings *s) {
                 const char *b = strrchr(p, '/');
                 p = b ? b + 1 : p;
             }
-            fnv_str(&f, p);
-            fnv_u64(&f, (uint64_t)rec->files[i].size);
-            fnv_u64(&f, (uint64_t)rec->files[i].mtime_ns);
+            h = fnv_str(h, p);
+            h = fnv1a64_u64(h, (uint64_t)rec->files[i].size);
+            h = fnv1a64_u64(h, (uint64_t)rec->files[i].mtime_ns);
         }
     }
     int64_t v[] = {s->gray, s->crop_x, s->crop_y, s->crop_w, s->crop_h, s->width, s->height,
                    fs->kind == REC_NUMERIC ? 32 : s->bits, s->stride};
-    for (size_t i = 0; i < sizeof v / sizeof v[0]; i++) fnv_u64(&f, (uint64_t)v[i]);
-    return f.h;
+    for (size_t i = 0; i < sizeof v / sizeof v[0]; i++) h = fnv1a64_u64(h, (uint64_t)v[i]);
+    return h;
 }
 
 void frames_store_path(const FrameScan *fs, const FrameSettings *s, char *out, size_t n) {

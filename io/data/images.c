@@ -1,7 +1,7 @@
 /* io/data/images.c: decoding and per-frame preprocessing (see images.h). */
 #include "io/data/images.h"
 
-#include <errno.h>
+#include <limits.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -12,6 +12,7 @@
 #include <stb/stb_image_write.h>
 
 #include "io/fs/atomic_file.h"
+#include "io/fs/files.h"
 
 const char *const gray_std_names[GRAY_COUNT] = {"bt601", "bt709"};
 
@@ -39,29 +40,6 @@ int image_probe(const char *path, int *w, int *h, Status *st) {
     int c;
     if (!stbi_info(path, w, h, &c))
         return status_set(st, ST_INPUT, "%s: cannot read image header (%s)", path, stbi_failure_reason());
-    return 0;
-}
-
-static int read_file(const char *path, unsigned char **buf, long *n, Status *st) {
-    *buf = NULL;
-    FILE *f = fopen(path, "rb");
-    if (!f) return status_set(st, ST_INPUT, "%s: cannot open: %s", path, strerror(errno));
-    if (fseek(f, 0, SEEK_END) || (*n = ftell(f)) < 0 || fseek(f, 0, SEEK_SET)) {
-        fclose(f);
-        return status_set(st, ST_INPUT, "%s: cannot seek", path);
-    }
-    *buf = malloc((size_t)*n + 1);
-    if (!*buf) {
-        fclose(f);
-        return status_set(st, ST_RUNTIME, "%s: out of memory", path);
-    }
-    size_t got = fread(*buf, 1, (size_t)*n, f);
-    fclose(f);
-    if ((long)got != *n) {
-        free(*buf);
-        *buf = NULL;
-        return status_set(st, ST_INPUT, "%s: read error", path);
-    }
     return 0;
 }
 
@@ -146,9 +124,11 @@ static int load_pnm(const char *path, const unsigned char *b, long n, GrayStd g,
 
 int image_load_gray(const char *path, GrayStd g, float **out, int *w, int *h, Status *st) {
     *out = NULL;
-    unsigned char *buf;
-    long n = 0;
-    if (read_file(path, &buf, &n, st)) return st->code;
+    char *text;
+    size_t len;
+    if (fs_read_file(path, (size_t)LONG_MAX, &text, &len, st)) return st->code;
+    unsigned char *buf = (unsigned char *)text;
+    long n = (long)len;
     if (n == 0) {
         free(buf);
         return status_set(st, ST_INPUT, "%s: empty file", path);

@@ -11,43 +11,8 @@
 #include <strings.h>
 
 #include "io/fs/atomic_file.h"
-
-/* Whole file into a NUL-terminated buffer (*n bytes, not counting the NUL). */
-static int read_whole(const char *path, char **buf, size_t *n, Status *st) {
-    *buf = NULL;
-    FILE *f = fopen(path, "rb");
-    if (!f) return status_set(st, ST_INPUT, "%s: cannot open: %s", path, strerror(errno));
-    size_t cap = 1 << 16, len = 0;
-    char *b = malloc(cap + 1);
-    if (!b) {
-        fclose(f);
-        return status_set(st, ST_RUNTIME, "%s: out of memory", path);
-    }
-    for (;;) {
-        if (len == cap) {
-            char *nb = realloc(b, 2 * cap + 1);
-            if (!nb) {
-                free(b);
-                fclose(f);
-                return status_set(st, ST_RUNTIME, "%s: out of memory", path);
-            }
-            b = nb, cap *= 2;
-        }
-        size_t got = fread(b + len, 1, cap - len, f);
-        len += got;
-        if (got == 0) break;
-    }
-    int err = ferror(f);
-    fclose(f);
-    if (err) {
-        free(b);
-        return status_set(st, ST_INPUT, "%s: read error", path);
-    }
-    b[len] = 0;
-    *buf = b;
-    *n = len;
-    return 0;
-}
+#include "io/fs/bytes.h"
+#include "io/fs/files.h"
 
 void series_free(Series *s) {
     if (s->names)
@@ -107,7 +72,7 @@ int series_read_csv(const char *path, Series *s, Status *st) {
     memset(s, 0, sizeof *s);
     char *buf;
     size_t len;
-    if (read_whole(path, &buf, &len, st)) return st->code;
+    if (fs_read_file(path, SIZE_MAX, &buf, &len, st)) return st->code;
     char *p = buf;
     if (len >= 3 && (unsigned char)p[0] == 0xEF && (unsigned char)p[1] == 0xBB && (unsigned char)p[2] == 0xBF)
         p += 3;
@@ -242,7 +207,7 @@ int series_read_npy(const char *path, Series *s, Status *st) {
     memset(s, 0, sizeof *s);
     char *buf;
     size_t len;
-    if (read_whole(path, &buf, &len, st)) return st->code;
+    if (fs_read_file(path, SIZE_MAX, &buf, &len, st)) return st->code;
     const unsigned char *u = (const unsigned char *)buf;
     int rc = 0;
     double *d = NULL;
@@ -253,14 +218,14 @@ int series_read_npy(const char *path, Series *s, Status *st) {
     int major = u[6], minor = u[7];
     size_t hlen, hstart;
     if (major == 1 && minor == 0) {
-        hlen = (size_t)u[8] | (size_t)u[9] << 8;
+        hlen = le_get_u16(u + 8);
         hstart = 10;
     } else if ((major == 2 || major == 3) && minor == 0) {
         if (len < 12) {
             rc = status_set(st, ST_INPUT, "%s: truncated .npy header", path);
             goto done;
         }
-        hlen = (size_t)u[8] | (size_t)u[9] << 8 | (size_t)u[10] << 16 | (size_t)u[11] << 24;
+        hlen = le_get_u32(u + 8);
         hstart = 12;
     } else {
         rc = status_set(st, ST_INPUT, "%s: unsupported .npy format version %d.%d (1.0, 2.0, 3.0 are read)",
@@ -342,8 +307,7 @@ int series_read_npy(const char *path, Series *s, Status *st) {
     }
     const unsigned char *src = u + hstart + hlen;
     for (long k = 0; k < rows * cols; k++) {
-        uint64_t bits = 0;
-        for (int b = isz - 1; b >= 0; b--) bits = bits << 8 | src[k * isz + b];
+        uint64_t bits = isz == 8 ? le_get_u64(src + k * isz) : le_get_u32(src + k * isz);
         double v;
         if (kind == 0 && isz == 8) memcpy(&v, &bits, 8);
         else if (kind == 0) {
@@ -392,7 +356,7 @@ int npy_write(const char *path, const void *data, long rows, int cols, NpyType t
     memcpy(hdr, NPY_MAGIC, 6);
     hdr[6] = 1, hdr[7] = 0;
     int hl = total - 10;
-    hdr[8] = (char)(hl & 0xff), hdr[9] = (char)(hl >> 8);
+    le_put_u16((unsigned char *)hdr + 8, (uint16_t)hl);
     AtomicFile af;
     if (atomic_open(&af, path, st)) return st->code;
     int ok = fwrite(hdr, 1, (size_t)total, af.f) == (size_t)total;
@@ -408,7 +372,8 @@ int npy_write(const char *path, const void *data, long rows, int cols, NpyType t
             memcpy(&b32, src + k * 4, 4);
             bits = b32;
         }
-        for (int b = 0; b < isz; b++) le[b] = (unsigned char)(bits >> (8 * b));
+        if (isz == 8) le_put_u64(le, bits);
+        else le_put_u32(le, (uint32_t)bits);
         ok = fwrite(le, 1, (size_t)isz, af.f) == (size_t)isz;
     }
     if (!ok) {

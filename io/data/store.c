@@ -13,6 +13,9 @@
 #include <unistd.h>
 
 #include "io/fs/atomic_file.h"
+#include "io/fs/bytes.h"
+#include "io/fs/clock.h"
+#include "io/fs/hash.h"
 #include "io/data/images.h"
 #include "io/data/series.h"
 
@@ -21,35 +24,6 @@
 #endif
 
 static const char STORE_MAGIC[8] = {'F', 'L', 'A', 'W', 'F', 'R', 'M', 'S'};
-
-uint32_t store_crc32(uint32_t crc, const void *data, size_t n) {
-    const unsigned char *b = data;
-    crc = ~crc;
-    for (size_t i = 0; i < n; i++) {
-        crc ^= b[i];
-        for (int k = 0; k < 8; k++) crc = (crc >> 1) ^ (0xEDB88320u & (0u - (crc & 1u)));
-    }
-    return ~crc;
-}
-
-static void put_u32(unsigned char *p, uint32_t v) {
-    for (int i = 0; i < 4; i++) p[i] = (unsigned char)(v >> (8 * i));
-}
-static void put_u64(unsigned char *p, uint64_t v) {
-    for (int i = 0; i < 8; i++) p[i] = (unsigned char)(v >> (8 * i));
-}
-static uint32_t get_u32(const unsigned char *p) {
-    return (uint32_t)p[0] | (uint32_t)p[1] << 8 | (uint32_t)p[2] << 16 | (uint32_t)p[3] << 24;
-}
-static uint64_t get_u64(const unsigned char *p) {
-    return (uint64_t)get_u32(p) | (uint64_t)get_u32(p + 4) << 32;
-}
-
-static double now_seconds(void) {
-    struct timespec t;
-    clock_gettime(CLOCK_MONOTONIC, &t);
-    return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
-}
 
 /* ---- loading ----------------------------------------------------------------------------- */
 
@@ -64,16 +38,16 @@ static int store_parse(FrameStore *fs, const unsigned char *b, size_t size, cons
     if (size < STORE_HEADER_BYTES)
         return status_set(st, ST_INPUT, "%s: not a frame store (%zu bytes, shorter than the header)", path, size);
     if (memcmp(b, STORE_MAGIC, 8)) return status_set(st, ST_INPUT, "%s: not a frame store (bad magic)", path);
-    uint32_t version = get_u32(b + 8), hbytes = get_u32(b + 12), elem = get_u32(b + 16);
+    uint32_t version = le_get_u32(b + 8), hbytes = le_get_u32(b + 12), elem = le_get_u32(b + 16);
     if (version != STORE_VERSION)
         return status_set(st, ST_INPUT, "%s: frame store version %u, this framelaw reads version %d", path, version,
                           STORE_VERSION);
     if (hbytes != STORE_HEADER_BYTES)
         return status_set(st, ST_INPUT, "%s: header size %u, expected %d", path, hbytes, STORE_HEADER_BYTES);
     if (elem < STORE_U8 || elem > STORE_F32) return status_set(st, ST_INPUT, "%s: unknown element type %u", path, elem);
-    uint32_t w = get_u32(b + 20), h = get_u32(b + 24), n_rec = get_u32(b + 28);
-    uint64_t n_frames = get_u64(b + 32), pay_off = get_u64(b + 40), pay_bytes = get_u64(b + 48);
-    uint64_t tab_off = get_u64(b + 56), tab_bytes = get_u64(b + 64);
+    uint32_t w = le_get_u32(b + 20), h = le_get_u32(b + 24), n_rec = le_get_u32(b + 28);
+    uint64_t n_frames = le_get_u64(b + 32), pay_off = le_get_u64(b + 40), pay_bytes = le_get_u64(b + 48);
+    uint64_t tab_off = le_get_u64(b + 56), tab_bytes = le_get_u64(b + 64);
     if (w == 0 || h == 0 || w > (1u << 24) || h > (1u << 24) || (uint64_t)w * h > (1u << 28))
         return status_set(st, ST_INPUT, "%s: frame size %ux%u out of range", path, w, h);
     if (n_rec == 0 || n_rec > (1u << 24)) return status_set(st, ST_INPUT, "%s: %u recordings", path, n_rec);
@@ -88,15 +62,15 @@ static int store_parse(FrameStore *fs, const unsigned char *b, size_t size, cons
                           size, (unsigned long long)pay_off, (unsigned long long)pay_bytes,
                           (unsigned long long)tab_off, (unsigned long long)tab_bytes,
                           tab_off + tab_bytes > size ? " (truncated)" : "");
-    uint32_t crc = store_crc32(0, b, 112);
-    crc = store_crc32(crc, b + tab_off, tab_bytes);
-    if (crc != get_u32(b + 112)) return status_set(st, ST_INPUT, "%s: header or table CRC mismatch", path);
+    uint32_t crc = fs_crc32(0, b, 112);
+    crc = fs_crc32(crc, b + tab_off, tab_bytes);
+    if (crc != le_get_u32(b + 112)) return status_set(st, ST_INPUT, "%s: header or table CRC mismatch", path);
     StoreRec *rec = calloc(n_rec, sizeof *rec);
     if (!rec) return status_set(st, ST_RUNTIME, "%s: out of memory", path);
     uint64_t next = 0;
     for (uint32_t r = 0; r < n_rec; r++) {
         const unsigned char *e = b + tab_off + (size_t)r * STORE_REC_BYTES;
-        uint64_t first = get_u64(e), count = get_u64(e + 8), src = get_u64(e + 16);
+        uint64_t first = le_get_u64(e), count = le_get_u64(e + 8), src = le_get_u64(e + 16);
         const char *name = (const char *)e + 24;
         if (first != next || count == 0 || count > n_frames - first || !memchr(name, 0, STORE_NAME_MAX)) {
             free(rec);
@@ -117,11 +91,11 @@ static int store_parse(FrameStore *fs, const unsigned char *b, size_t size, cons
     fs->n_frames = (long)n_frames;
     fs->n_rec = (int)n_rec;
     fs->rec = rec;
-    fs->digest = get_u64(b + 72);
-    fs->src_width = (int)get_u32(b + 80), fs->src_height = (int)get_u32(b + 84);
-    fs->gray = (int)get_u32(b + 88);
-    for (int k = 0; k < 4; k++) fs->crop[k] = (int)get_u32(b + 92 + 4 * k);
-    fs->stride = (int)get_u32(b + 108);
+    fs->digest = le_get_u64(b + 72);
+    fs->src_width = (int)le_get_u32(b + 80), fs->src_height = (int)le_get_u32(b + 84);
+    fs->gray = (int)le_get_u32(b + 88);
+    for (int k = 0; k < 4; k++) fs->crop[k] = (int)le_get_u32(b + 92 + 4 * k);
+    fs->stride = (int)le_get_u32(b + 108);
     fs->payload = b + pay_off;
     snprintf(fs->path, sizeof fs->path, "%s", path);
     return 0;
@@ -245,31 +219,31 @@ int store_writer_finish(StoreWriter *w, FrameStore *fs, Status *st) {
     }
     for (int r = 0; r < w->n_rec; r++) {
         unsigned char *e = tab + (size_t)r * STORE_REC_BYTES;
-        put_u64(e, (uint64_t)w->rec[r].first);
-        put_u64(e + 8, (uint64_t)w->rec[r].count);
-        put_u64(e + 16, (uint64_t)w->rec[r].source_count);
+        le_put_u64(e, (uint64_t)w->rec[r].first);
+        le_put_u64(e + 8, (uint64_t)w->rec[r].count);
+        le_put_u64(e + 16, (uint64_t)w->rec[r].source_count);
         memcpy(e + 24, w->rec[r].name, strlen(w->rec[r].name));
     }
     memset(hdr, 0, sizeof hdr);
     memcpy(hdr, STORE_MAGIC, 8);
-    put_u32(hdr + 8, STORE_VERSION);
-    put_u32(hdr + 12, STORE_HEADER_BYTES);
-    put_u32(hdr + 16, (uint32_t)w->lay.elem);
-    put_u32(hdr + 20, (uint32_t)w->lay.width);
-    put_u32(hdr + 24, (uint32_t)w->lay.height);
-    put_u32(hdr + 28, (uint32_t)w->n_rec);
-    put_u64(hdr + 32, (uint64_t)w->n_frames);
-    put_u64(hdr + 40, STORE_PAYLOAD_ALIGN);
-    put_u64(hdr + 48, pay_bytes);
-    put_u64(hdr + 56, tab_off);
-    put_u64(hdr + 64, tab_bytes);
-    put_u64(hdr + 72, w->lay.digest);
-    put_u32(hdr + 80, (uint32_t)w->lay.src_width);
-    put_u32(hdr + 84, (uint32_t)w->lay.src_height);
-    put_u32(hdr + 88, (uint32_t)w->lay.gray);
-    for (int k = 0; k < 4; k++) put_u32(hdr + 92 + 4 * k, (uint32_t)w->lay.crop[k]);
-    put_u32(hdr + 108, (uint32_t)w->lay.stride);
-    put_u32(hdr + 112, store_crc32(store_crc32(0, hdr, 112), tab, tab_bytes));
+    le_put_u32(hdr + 8, STORE_VERSION);
+    le_put_u32(hdr + 12, STORE_HEADER_BYTES);
+    le_put_u32(hdr + 16, (uint32_t)w->lay.elem);
+    le_put_u32(hdr + 20, (uint32_t)w->lay.width);
+    le_put_u32(hdr + 24, (uint32_t)w->lay.height);
+    le_put_u32(hdr + 28, (uint32_t)w->n_rec);
+    le_put_u64(hdr + 32, (uint64_t)w->n_frames);
+    le_put_u64(hdr + 40, STORE_PAYLOAD_ALIGN);
+    le_put_u64(hdr + 48, pay_bytes);
+    le_put_u64(hdr + 56, tab_off);
+    le_put_u64(hdr + 64, tab_bytes);
+    le_put_u64(hdr + 72, w->lay.digest);
+    le_put_u32(hdr + 80, (uint32_t)w->lay.src_width);
+    le_put_u32(hdr + 84, (uint32_t)w->lay.src_height);
+    le_put_u32(hdr + 88, (uint32_t)w->lay.gray);
+    for (int k = 0; k < 4; k++) le_put_u32(hdr + 92 + 4 * k, (uint32_t)w->lay.crop[k]);
+    le_put_u32(hdr + 108, (uint32_t)w->lay.stride);
+    le_put_u32(hdr + 112, fs_crc32(fs_crc32(0, hdr, 112), tab, tab_bytes));
     int ok = fwrite(tab, 1, tab_bytes, w->af.f) == tab_bytes && fflush(w->af.f) == 0 &&
              fseek(w->af.f, 0, SEEK_SET) == 0 && fwrite(hdr, 1, sizeof hdr, w->af.f) == sizeof hdr &&
              fflush(w->af.f) == 0;
@@ -419,7 +393,7 @@ int store_build(const FrameScan *scan, const FrameSettings *s, const char *path,
 int store_open_for(const FrameScan *scan, const FrameSettings *s, int force_rebuild, FrameStore *fs,
                    StoreOpenInfo *info, Status *st) {
     memset(info, 0, sizeof *info);
-    double t0 = now_seconds();
+    double t0 = clock_seconds();
     frames_store_path(scan, s, info->path, sizeof info->path);
     uint64_t digest = frames_digest(scan, s);
     if (force_rebuild) {
@@ -430,7 +404,7 @@ int store_open_for(const FrameScan *scan, const FrameSettings *s, int force_rebu
         Status ls;
         if (store_load(info->path, fs, &ls) == 0) {
             if (fs->digest == digest) {
-                info->seconds = now_seconds() - t0;
+                info->seconds = clock_seconds() - t0;
                 return 0;
             }
             store_close(fs);
@@ -441,6 +415,6 @@ int store_open_for(const FrameScan *scan, const FrameSettings *s, int force_rebu
     }
     info->built = 1;
     int rc = store_build(scan, s, info->path, fs, st);
-    info->seconds = now_seconds() - t0;
+    info->seconds = clock_seconds() - t0;
     return rc;
 }

@@ -136,8 +136,4 @@ int store_build(const FrameScan *scan, const FrameSettings *s, const char *path,
 int store_open_for(const FrameScan *scan, const FrameSettings *s, int force_rebuild, FrameStore *fs,
                    StoreOpenInfo *info, Status *st);
 
-/* CRC-32 (ISO-HDLC / IEEE 802.3 polynomial, reflected 0xEDB88320), continued from crc
- * (start with 0). */
-uint32_t store_crc32(uint32_t crc, const void *data, size_t n);
-
 #endif

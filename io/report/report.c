@@ -3,7 +3,6 @@
 #include "io/report/report.h"
 
 #include <dirent.h>
-#include <errno.h>
 #include <math.h>
 #include <stdarg.h>
 #include <stdint.h>
@@ -15,6 +14,7 @@
 #include <cjson/cJSON.h>
 
 #include "io/fs/atomic_file.h"
+#include "io/fs/files.h"
 #include "io/report/base64.h"
 #include "io/run/config.h"
 #include "io/report/svgplot.h"
@@ -25,49 +25,11 @@
 #define FORECAST_FORMAT "framelaw-forecast"
 #define FORECAST_VERSION 1
 #define MAX_RECORDINGS 16           /* recordings plotted per section; the rest are listed */
-#define MAX_IMAGE_BYTES (32L << 20) /* larger PNGs are not embedded */
+#define MAX_IMAGE_BYTES (32u << 20) /* larger PNGs are not embedded */
+#define MAX_TEXT_BYTES (256u << 20) /* a CSV or JSON file of a run is far smaller */
 #define PATH_LEN 4400
 
 /* ---- files ----------------------------------------------------------------------------------- */
-
-/* Whole file, NUL-terminated, malloc'ed; *len its size. NULL with errno set when unreadable. */
-static char *read_file(const char *path, long *len) {
-    FILE *f = fopen(path, "rb");
-    if (!f) return NULL;
-    char *buf = NULL;
-    long n = 0, cap = 0;
-    for (;;) {
-        if (n + 65536 + 1 > cap) {
-            cap = 2 * cap + 65536 + 1;
-            char *b = realloc(buf, (size_t)cap);
-            if (!b) {
-                free(buf);
-                fclose(f);
-                errno = ENOMEM;
-                return NULL;
-            }
-            buf = b;
-        }
-        size_t r = fread(buf + n, 1, 65536, f);
-        n += (long)r;
-        if (r < 65536) break;
-    }
-    int bad = ferror(f);
-    fclose(f);
-    if (bad) {
-        free(buf);
-        errno = EIO;
-        return NULL;
-    }
-    buf[n] = 0;
-    if (len) *len = n;
-    return buf;
-}
-
-static int exists(const char *path) {
-    struct stat sb;
-    return stat(path, &sb) == 0;
-}
 
 static int cmp_str(const void *a, const void *b) { return strcmp(*(char *const *)a, *(char *const *)b); }
 
@@ -150,9 +112,8 @@ static int split_fields(char *line, char **f, int max) {
  * ST_INPUT too: callers check existence first when the file is optional. */
 static int table_read(const char *path, const char *const *words, Table *t, Status *st) {
     memset(t, 0, sizeof *t);
-    long len;
-    char *buf = read_file(path, &len);
-    if (!buf) return status_set(st, ST_INPUT, "%s: cannot read: %s", path, strerror(errno));
+    char *buf;
+    if (fs_read_file(path, MAX_TEXT_BYTES, &buf, NULL, st)) return st->code;
     char *p = buf;
     if ((unsigned char)p[0] == 0xEF && (unsigned char)p[1] == 0xBB && (unsigned char)p[2] == 0xBF) p += 3;
     long line_no = 0, cap = 0;
@@ -215,8 +176,8 @@ static int table_read(const char *path, const char *const *words, Table *t, Stat
 
 /* Parse a JSON file; ST_INPUT naming the file when it is unreadable or malformed. */
 static int json_read(const char *path, cJSON **root, Status *st) {
-    char *buf = read_file(path, NULL);
-    if (!buf) return status_set(st, ST_INPUT, "%s: cannot read: %s", path, strerror(errno));
+    char *buf;
+    if (fs_read_file(path, MAX_TEXT_BYTES, &buf, NULL, st)) return st->code;
     *root = cJSON_Parse(buf);
     free(buf);
     if (!*root || !cJSON_IsObject(*root)) {
@@ -376,8 +337,9 @@ static void section_equations(Report *r) {
     for (int i = 0; i < 2; i++) {
         char path[PATH_LEN];
         path_in(path, r, files[i]);
-        char *s = read_file(path, NULL);
-        if (!s) {
+        char *s;
+        Status missing;
+        if (fs_read_file(path, MAX_TEXT_BYTES, &s, NULL, &missing)) {
             note(r, "%s: not written yet (training writes it at the end).", files[i]);
             continue;
         }
@@ -392,7 +354,7 @@ static int section_coefficients(Report *r) {
     fputs("<h2 id=\"coefficients\">Coefficients</h2>\n", r->f);
     char path[PATH_LEN];
     path_in(path, r, "equations.json");
-    if (!exists(path)) {
+    if (!fs_exists(path)) {
         note(r, "equations.json: not written yet, so no coefficient table.");
         return 0;
     }
@@ -518,7 +480,7 @@ static int region_read(Report *r, Region *g) {
     memset(g, 0, sizeof *g);
     char path[PATH_LEN];
     path_in(path, r, "region.json");
-    if (!exists(path)) return 0;
+    if (!fs_exists(path)) return 0;
     cJSON *root;
     if (json_read(path, &root, r->st)) return r->st->code;
     static const char *const keys[4] = {"z_min", "z_max", "dz_min", "dz_max"};
@@ -692,7 +654,7 @@ static int forecast_recording(Report *r, const cJSON *rec, double bound) {
     }
     char path[PATH_LEN + 300];
     snprintf(path, sizeof path, "%s/forecast/%s.csv", r->dir, name);
-    if (!exists(path)) {
+    if (!fs_exists(path)) {
         note(r, "forecast/%s.csv: missing, so no plots for this recording.", name);
         return 0;
     }
@@ -750,7 +712,7 @@ static int section_forecast(Report *r) {
     fputs("<h2 id=\"forecast\">Forecasts of held-out recordings</h2>\n", r->f);
     char path[PATH_LEN];
     path_in(path, r, "forecast.json");
-    if (!exists(path)) {
+    if (!fs_exists(path)) {
         note(r, "forecast.json: no forecast yet (run framelaw forecast).");
         return 0;
     }
@@ -834,12 +796,17 @@ static void section_reconstructions(Report *r) {
     for (int i = 0; i < n; i++) {
         char path[PATH_LEN + 300];
         snprintf(path, sizeof path, "%s/%s", dir, names[i]);
-        long len = 0;
-        unsigned char *png = (unsigned char *)read_file(path, &len);
+        char *data;
+        size_t len = 0;
+        Status why;
         int w, h;
-        if (!png || len > MAX_IMAGE_BYTES || !png_size(png, len, &w, &h)) {
-            note(r, "reconstructions/%s: %s, not shown.", names[i],
-                 !png ? "unreadable" : len > MAX_IMAGE_BYTES ? "larger than 32 MB" : "not a PNG file");
+        if (fs_read_file(path, MAX_IMAGE_BYTES, &data, &len, &why)) {
+            note(r, "%s; not shown.", why.msg);
+            continue;
+        }
+        unsigned char *png = (unsigned char *)data;
+        if (!png_size(png, (long)len, &w, &h)) {
+            note(r, "reconstructions/%s: not a PNG file, not shown.", names[i]);
             free(png);
             continue;
         }
@@ -956,7 +923,7 @@ int report_write(const char *run_dir, const char *out_path, ReportSummary *sum, 
     Report r = {.dir = run_dir, .st = st};
     char path[PATH_LEN];
     path_in(path, &r, "config.json");
-    if (!exists(path)) return status_set(st, ST_INPUT, "%s: missing (not a run folder?)", path);
+    if (!fs_exists(path)) return status_set(st, ST_INPUT, "%s: missing (not a run folder?)", path);
     r.cfg = malloc(sizeof *r.cfg);
     if (!r.cfg) return status_set(st, ST_RUNTIME, "out of memory");
     config_defaults(r.cfg);
@@ -967,7 +934,7 @@ int report_write(const char *run_dir, const char *out_path, ReportSummary *sum, 
     r.k = r.cfg->latent;
     r.order = r.cfg->order;
     path_in(path, &r, "log.csv");
-    if (!exists(path)) {
+    if (!fs_exists(path)) {
         free(r.cfg);
         return status_set(st, ST_INPUT, "%s: missing (training has not started, or not a run folder)", path);
     }

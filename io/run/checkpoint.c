@@ -1,13 +1,14 @@
 /* io/run/checkpoint.c: the checkpoint file (format in checkpoint.h). */
 #include "io/run/checkpoint.h"
 
-#include <errno.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include "io/fs/atomic_file.h"
-#include "io/data/store.h"
+#include "io/fs/bytes.h"
+#include "io/fs/files.h"
+#include "io/fs/hash.h"
 
 static const char MAGIC[8] = {'F', 'L', 'A', 'W', 'C', 'K', 'P', 'T'};
 
@@ -17,8 +18,6 @@ static int host_is_little_endian(void) {
     const uint16_t one = 1;
     return *(const uint8_t *)&one == 1;
 }
-
-uint32_t crc32_ieee(const void *data, size_t n) { return store_crc32(0, data, n); }
 
 /* ---- a growable byte buffer ------------------------------------------------------------------ */
 
@@ -41,8 +40,16 @@ static void buf_put(Buf *b, const void *p, size_t n) {
     b->n += n;
 }
 
-static void put_u32(Buf *b, uint32_t v) { buf_put(b, &v, 4); }
-static void put_u64(Buf *b, uint64_t v) { buf_put(b, &v, 8); }
+static void put_u32(Buf *b, uint32_t v) {
+    unsigned char x[4];
+    le_put_u32(x, v);
+    buf_put(b, x, 4);
+}
+static void put_u64(Buf *b, uint64_t v) {
+    unsigned char x[8];
+    le_put_u64(x, v);
+    buf_put(b, x, 8);
+}
 
 static void section(Buf *b, const char tag[4], const void *p, uint64_t n) {
     buf_put(b, tag, 4);
@@ -96,7 +103,7 @@ int ckpt_write(const char *path, const CkptMeta *m, const ParamSet *ps, const ui
     section(&b, "ADM2", ps->v, ps->n * sizeof(float));
     section(&b, "MASK", mask, (uint64_t)n_mask);
     section(&b, "ORDR", order, (uint64_t)n_order * sizeof(int64_t));
-    put_u32(&b, crc32_ieee(b.d, b.n));
+    put_u32(&b, fs_crc32(0, b.d, b.n));
     int rc = atomic_write_bytes(path, b.d, b.n, st);
     nn_free(b.d);
     return rc;
@@ -113,8 +120,7 @@ static int find_section(const uint8_t *d, size_t size, const char tag[4], Sec *o
     size_t off = 16;
     size_t end = size - 4;
     while (off + 16 <= end) {
-        uint64_t len;
-        memcpy(&len, d + off + 8, 8);
+        uint64_t len = le_get_u64(d + off + 8);
         if (len > end - off - 16) return -1;
         if (!memcmp(d + off, tag, 4)) {
             out->p = d + off + 16;
@@ -128,47 +134,26 @@ static int find_section(const uint8_t *d, size_t size, const char tag[4], Sec *o
 
 int ckpt_read(const char *path, CkptMeta *m, ParamSet *ps, uint8_t *mask, long n_mask, int64_t *order,
               long n_order, Status *st) {
-    FILE *f = fopen(path, "rb");
-    if (!f) return status_set(st, ST_INPUT, "%s: cannot open checkpoint: %s", path, strerror(errno));
-    uint8_t *d = NULL;
-    size_t size = 0, cap = 0;
-    for (;;) {
-        if (size == cap) {
-            cap = cap ? 2 * cap : 1 << 16;
-            uint8_t *nd = realloc(d, cap);
-            if (!nd) {
-                free(d);
-                fclose(f);
-                return status_set(st, ST_RUNTIME, "%s: out of memory reading the checkpoint", path);
-            }
-            d = nd;
-        }
-        size_t got = fread(d + size, 1, cap - size, f);
-        size += got;
-        if (got == 0) break;
-    }
-    int io_err = ferror(f);
-    fclose(f);
+    char *text;
+    size_t size;
+    if (fs_read_file(path, SIZE_MAX, &text, &size, st)) return st->code;
+    const uint8_t *d = (const uint8_t *)text;
     int rc = ST_INPUT;
     Sec meta, view, pval, adm1, adm2, msk, ord;
     MetaDisk md;
     uint32_t version, crc;
-    if (io_err) {
-        rc = status_set(st, ST_INPUT, "%s: read error", path);
-        goto done;
-    }
     if (size < 16 + 4 || memcmp(d, MAGIC, 8)) {
         status_set(st, ST_INPUT, "%s: not a framelaw checkpoint (bad magic or too short)", path);
         goto done;
     }
-    memcpy(&version, d + 8, 4);
+    version = le_get_u32(d + 8);
     if (version != CKPT_VERSION) {
         status_set(st, ST_INPUT, "%s: checkpoint format version %u, this framelaw reads version %d", path, version,
                    CKPT_VERSION);
         goto done;
     }
-    memcpy(&crc, d + size - 4, 4);
-    if (crc != crc32_ieee(d, size - 4)) {
+    crc = le_get_u32(d + size - 4);
+    if (crc != fs_crc32(0, d, size - 4)) {
         status_set(st, ST_INPUT, "%s: checkpoint is corrupt (CRC mismatch: truncated or damaged)", path);
         goto done;
     }
@@ -215,6 +200,6 @@ int ckpt_read(const char *path, CkptMeta *m, ParamSet *ps, uint8_t *mask, long n
     rc = 0;
     status_ok(st);
 done:
-    free(d);
+    free(text);
     return rc;
 }

@@ -45,7 +45,4 @@ int ckpt_write(const char *path, const CkptMeta *meta, const ParamSet *ps, const
 int ckpt_read(const char *path, CkptMeta *meta, ParamSet *ps, uint8_t *mask, long n_mask, int64_t *order,
               long n_order, Status *st);
 
-/* CRC-32 (reflected, polynomial 0xEDB88320, initial and final xor 0xFFFFFFFF). */
-uint32_t crc32_ieee(const void *data, size_t n);
-
 #endif

@@ -23,6 +23,8 @@
 
 #include <cjson/cJSON.h>
 
+#include "io/fs/files.h"
+#include "io/fs/hash.h"
 #include "nn/mlp.h"
 #include "sparse/library.h"
 #include "sparse/stencil.h"
@@ -627,44 +629,19 @@ int config_parse(Config *c, const char *json, const char *origin, const char *ba
 /* ---- files and overrides ------------------------------------------------------------------ */
 
 static int read_text(const char *path, char **out, Status *st) {
-    *out = NULL;
-    FILE *f = fopen(path, "rb");
-    if (!f) return status_set(st, ST_INPUT, "%s: cannot read the config: %s", path, strerror(errno));
-    size_t cap = 4096, len = 0;
-    char *b = malloc(cap + 1);
-    for (;;) {
-        if (!b) {
-            fclose(f);
-            return status_set(st, ST_RUNTIME, "%s: out of memory", path);
-        }
-        if (len == cap) {
-            if (cap >= (1u << 24)) {
-                free(b);
-                fclose(f);
-                return status_set(st, ST_INPUT, "%s: too large for a config (over 16 MiB)", path);
-            }
-            char *nb = realloc(b, 2 * cap + 1);
-            if (!nb) free(b);
-            b = nb, cap *= 2;
-            continue;
-        }
-        size_t got = fread(b + len, 1, cap - len, f);
-        len += got;
-        if (got == 0) break;
+    size_t len;
+    Status rs;
+    if (fs_read_file(path, 1u << 24, out, &len, &rs)) {
+        /* rs.msg starts with the path: say what the file was meant to be */
+        size_t pl = strlen(path);
+        const char *why = !strncmp(rs.msg, path, pl) && !strncmp(rs.msg + pl, ": ", 2) ? rs.msg + pl + 2 : rs.msg;
+        return status_set(st, rs.code, "%s: cannot read the config: %s", path, why);
     }
-    int err = ferror(f);
-    int e = errno;
-    fclose(f);
-    if (err) {
-        free(b);
-        return status_set(st, ST_INPUT, "%s: cannot read the config: %s", path, strerror(e));
-    }
-    b[len] = 0;
-    if (strlen(b) != len) {
-        free(b);
+    if (strlen(*out) != len) {
+        free(*out);
+        *out = NULL;
         return status_set(st, ST_INPUT, "%s: not a text file (holds a zero byte)", path);
     }
-    *out = b;
     return 0;
 }
 
@@ -877,8 +854,7 @@ uint64_t config_digest(const Config *c) {
     char *s = cJSON_PrintUnformatted(t);
     cJSON_Delete(t);
     NN_CHECK(s, "config_digest: out of memory");
-    uint64_t h = 0xcbf29ce484222325ull;     /* FNV-1a 64: offset basis and prime */
-    for (const unsigned char *p = (const unsigned char *)s; *p; p++) h = (h ^ *p) * 0x100000001b3ull;
+    uint64_t h = fnv1a64_str(FNV1A64_INIT, s);
     free(s);
     return h;
 }

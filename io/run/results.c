@@ -1,16 +1,15 @@
 /* io/run/results.c: export and forecast (see results.h and docs/formats.md). */
 #include "io/run/results.h"
 
-#include <errno.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
 
 #include <cjson/cJSON.h>
 
 #include "io/fs/atomic_file.h"
+#include "io/fs/files.h"
 #include "io/data/images.h"
 #include "io/data/series.h"
 #include "sparse/equation.h"
@@ -57,11 +56,6 @@ int loaded_run_open(LoadedRun *r, const char *run_dir, Status *st) {
 }
 
 /* ---- helpers --------------------------------------------------------------------------------- */
-
-static int ensure_dir(const char *path, Status *st) {
-    if (mkdir(path, 0777) == 0 || errno == EEXIST) return 0;
-    return status_set(st, ST_RUNTIME, "%s: cannot create folder: %s", path, strerror(errno));
-}
 
 /* A recording name made safe as a file name. */
 static void file_stem(const char *name, char *out, size_t n) {
@@ -292,11 +286,11 @@ int results_export(LoadedRun *r, int quiet, Status *st) {
     char path[CFG_PATH_MAX + 32];
     if (write_equations(r, st)) return st->code;
     snprintf(path, sizeof path, "%s/trajectories", r->dir);
-    if (ensure_dir(path, st)) return st->code;
+    if (fs_make_dirs(path, st)) return st->code;
     int images = r->data.store.elem != STORE_F32;
     if (images) {
         snprintf(path, sizeof path, "%s/reconstructions", r->dir);
-        if (ensure_dir(path, st)) return st->code;
+        if (fs_make_dirs(path, st)) return st->code;
     }
     for (int i = 0; i < r->data.store.n_rec; i++) {
         if (write_trajectory(r, i, st)) return st->code;
@@ -461,7 +455,7 @@ int results_forecast(LoadedRun *r, int quiet, Status *st) {
     if (results_region(r, &reg, st)) return st->code;
     char path[CFG_PATH_MAX + 32];
     snprintf(path, sizeof path, "%s/forecast", r->dir);
-    if (ensure_dir(path, st)) return st->code;
+    if (fs_make_dirs(path, st)) return st->code;
     cJSON *root = cJSON_CreateObject(), *list = cJSON_CreateArray();
     cJSON_AddStringToObject(root, "format", "framelaw-forecast");
     cJSON_AddNumberToObject(root, "version", 1);

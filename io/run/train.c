@@ -7,23 +7,17 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
-#include <time.h>
 #include <unistd.h>
 
 #include "io/fs/atomic_file.h"
+#include "io/fs/clock.h"
+#include "io/fs/files.h"
 #include "io/run/checkpoint.h"
 #include "nn/adam.h"
 #include "nn/mat.h"
 #include "nn/isomap.h"
 #include "nn/pca.h"
 #include "sparse/thresh_lsq.h"
-
-static double now_seconds(void) {
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
-}
 
 int model_spec_from_config(const Config *c, int n_in, ModelSpec *sp, Status *st) {
     memset(sp, 0, sizeof *sp);
@@ -66,11 +60,6 @@ static double lr_at(const Config *c, long epoch) {
 }
 
 /* ---- checkpoints in the run directory -------------------------------------------------------- */
-
-static int ensure_dir(const char *path, Status *st) {
-    if (mkdir(path, 0777) == 0 || errno == EEXIST) return 0;
-    return status_set(st, ST_RUNTIME, "%s: cannot create folder: %s", path, strerror(errno));
-}
 
 static int cmp_desc(const void *a, const void *b) { return strcmp(*(char *const *)b, *(char *const *)a); }
 
@@ -427,7 +416,7 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, const Tr
     double *Y = malloc((size_t)N * d * sizeof *Y);
     int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
     int rc = 0, k_used = 0;
-    double t0 = now_seconds();
+    double t0 = clock_seconds();
     if (!F || !Yf || !Y || !idx) {
         rc = status_set(st, ST_RUNTIME, "out of memory");
         goto done;
@@ -455,11 +444,11 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, const Tr
     }
     var /= (double)n;
     float wdec = (float)(var > 1e-20 ? 1.0 / var : 1.0);
-    if (!quiet) fprintf(stderr, " %d neighbours, %.1f s; fitting the autoencoder to it...", k_used, now_seconds() - t0);
+    if (!quiet) fprintf(stderr, " %d neighbours, %.1f s; fitting the autoencoder to it...", k_used, clock_seconds() - t0);
     Tape t;
     tape_init(&t, 64, (size_t)16 << 20);
     long nb = (N + Bmax - 1) / Bmax;
-    double last = 0, t_fit = now_seconds();
+    double last = 0, t_fit = clock_seconds();
     for (long e = 0; e < r->cfg->init_epochs; e++) {
         if (o->stop && *o->stop) { /* nothing saved yet: a resume starts the run over, with the same result */
             if (!quiet) fprintf(stderr, "\n");
@@ -468,7 +457,7 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, const Tr
             break;
         }
         if (tty && e > 0) {
-            double per = (now_seconds() - t_fit) / (double)e;
+            double per = (clock_seconds() - t_fit) / (double)e;
             fprintf(stderr, "\r\033[Kframelaw: fitting the autoencoder to the embedding: epoch %ld/%ld, loss %.3g, ETA %.0f s",
                     e, r->cfg->init_epochs, last, per * (double)(r->cfg->init_epochs - e));
         }
@@ -494,7 +483,7 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, const Tr
     memset(ps->m, 0, (size_t)ps->n * sizeof *ps->m);
     memset(ps->v, 0, (size_t)ps->n * sizeof *ps->v);
     ps->step = 0;
-    if (!quiet) fprintf(stderr, " loss %.3g, %.1f s\n", last, now_seconds() - t0);
+    if (!quiet) fprintf(stderr, " loss %.3g, %.1f s\n", last, clock_seconds() - t0);
 done:
     free(F), free(Yf), free(Y), free(idx);
     return rc;
@@ -560,7 +549,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     }
     char log_path[4200];
     snprintf(log_path, sizeof log_path, "%s/log.csv", o->run_dir);
-    if (ensure_dir(o->run_dir, st) || ensure_dir(r.ckpt_dir, st)) { nn_free(r.order); return st->code; }
+    if (fs_make_dirs(r.ckpt_dir, st)) { nn_free(r.order); return st->code; }
     if (o->resume) {
         if (load_latest(&r, o->quiet, 1, st) || log_trim(log_path, (long)r.meta.epoch, st)) {
             nn_free(r.order);
@@ -597,7 +586,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     AdamCfg ad = {(float)c->lr, (float)c->beta1, (float)c->beta2, (float)c->eps};
     long refine_from = c->epochs - c->refine_epochs; /* first epoch of the refinement phase */
     int tty = isatty(fileno(stderr));
-    double t_start = now_seconds(), seconds0 = r.meta.seconds;
+    double t_start = clock_seconds(), seconds0 = r.meta.seconds;
     long epoch0 = (long)r.meta.epoch, steps = 0;
     double t_shown = 0;
     rc = 0;
@@ -610,7 +599,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
         LossWeights w = {(float)(c->w_rec * r.rec_norm), (float)(c->w_dx * r.dx_norm), warm ? 0.0f : (float)c->w_dz,
                          refine || warm ? 0.0f : (float)c->w_l1};
         ad.lr = (float)lr_at(c, epoch);
-        double t_epoch = now_seconds();
+        double t_epoch = clock_seconds();
         if (r.meta.batch == 0) {
             shuffle64(&r.meta.rng, r.order, ds->n_train);
             memset(r.meta.acc, 0, sizeof r.meta.acc);
@@ -644,7 +633,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
                 if (r.meta.batch == n_batches) { /* the epoch is complete: finish its bookkeeping below */
                     break;
                 }
-                r.meta.seconds = seconds0 + now_seconds() - t_start;
+                r.meta.seconds = seconds0 + clock_seconds() - t_start;
                 if ((rc = save_periodic(&r, res->checkpoint, st))) goto out;
                 res->interrupted = 1;
                 goto out;
@@ -669,8 +658,8 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
         if (validated) {
             if ((rc = validate(&r, &t, X, B, &val, st))) goto out;
         }
-        r.meta.seconds = seconds0 + now_seconds() - t_start;
-        double ep_s = now_seconds() - t_epoch;
+        r.meta.seconds = seconds0 + clock_seconds() - t_start;
+        double ep_s = clock_seconds() - t_epoch;
         long active = model_active(m);
         fprintf(log, "%ld,%s,%.6g,%.8g,%.8g,%.8g,%.8g,%.8g,%ld,", done, refine ? "refine" : warm ? "warmup" : "train", ad.lr, mean[0],
                 mean[1], mean[2], mean[3], mean[4], active);
@@ -689,7 +678,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
         }
         /* on a terminal one updating line every epoch; otherwise a plain line at most every 10 s, at
          * validations and at the end, so that a log file stays readable */
-        double t_now = now_seconds();
+        double t_now = clock_seconds();
         int show = tty || validated || done == c->epochs || stopping || t_now - t_shown >= 10.0;
         if (!o->quiet && show) {
             t_shown = t_now;

@@ -17,6 +17,8 @@
 #include <cjson/cJSON.h>
 
 #include "io/fs/atomic_file.h"
+#include "io/fs/files.h"
+#include "io/fs/hash.h"
 #include "io/data/frames.h"
 #include "io/data/store.h"
 #include "io/run/rundata.h"
@@ -79,52 +81,15 @@ static char *buf_take(Buf *b) {
     return b->b;
 }
 
-/* Whole file as text; NULL when it cannot be read (errno set). */
-static char *read_file(const char *path, size_t max) {
-    FILE *f = fopen(path, "rb");
-    if (!f) return NULL;
-    Buf b = {0};
-    char chunk[8192];
-    size_t got;
-    while ((got = fread(chunk, 1, sizeof chunk, f)) > 0) {
-        buf_add(&b, chunk, got);
-        if (b.failed || b.n > max) { fclose(f); free(b.b); errno = EFBIG; return NULL; }
+/* Whole file as text; NULL when it cannot be read, with the reason (naming the file) in why. */
+static char *read_text(const char *path, size_t max, char *why, size_t n_why) {
+    char *text;
+    Status st;
+    if (fs_read_file(path, max, &text, NULL, &st)) {
+        snprintf(why, n_why, "%s", st.msg);
+        return NULL;
     }
-    int bad = ferror(f);
-    fclose(f);
-    if (bad) { free(b.b); errno = EIO; return NULL; }
-    return buf_take(&b);
-}
-
-static int is_dir(const char *p) {
-    struct stat sb;
-    return stat(p, &sb) == 0 && S_ISDIR(sb.st_mode);
-}
-
-static int exists(const char *p) { return access(p, F_OK) == 0; }
-
-static int mkdir_p(const char *path, Status *st) {
-    char buf[CFG_PATH_MAX];
-    if (snprintf(buf, sizeof buf, "%s", path) >= (int)sizeof buf)
-        return status_set(st, ST_INPUT, "%.200s...: path too long", path);
-    for (char *p = buf + 1; *p; p++) {
-        if (*p != '/') continue;
-        *p = 0;
-        if (mkdir(buf, 0777) && errno != EEXIST)
-            return status_set(st, ST_RUNTIME, "%s: cannot create folder: %s", buf, strerror(errno));
-        *p = '/';
-    }
-    if (mkdir(buf, 0777) && errno != EEXIST)
-        return status_set(st, ST_RUNTIME, "%s: cannot create folder: %s", buf, strerror(errno));
-    return 0;
-}
-
-static uint64_t fnv1a(uint64_t h, const char *s) {
-    for (; *s; s++) {
-        h ^= (unsigned char)*s;
-        h *= 1099511628211ULL;
-    }
-    return h;
+    return text;
 }
 
 /* Exclusive lock on <dir>/<name> (created if needed), held until lock_release. Waits for it. */
@@ -472,17 +437,17 @@ static int expand(Sweep *sw, Status *st) {
             m->choice[a] = rest % sw->axes[a].n_values;
             rest /= sw->axes[a].n_values;
         }
-        uint64_t h = 14695981039346656037ULL;
+        uint64_t h = FNV1A64_INIT;
         for (int a = 0; a < sw->n_axes; a++) {
-            h = fnv1a(h, sw->axes[a].key);
-            h = fnv1a(h, "=");
-            h = fnv1a(h, sw->axes[a].values[m->choice[a]]);
-            h = fnv1a(h, "\n");
+            h = fnv1a64_str(h, sw->axes[a].key);
+            h = fnv1a64_str(h, "=");
+            h = fnv1a64_str(h, sw->axes[a].values[m->choice[a]]);
+            h = fnv1a64_str(h, "\n");
         }
         if (sw->seeds_vary) {
             char s[64];
             snprintf(s, sizeof s, "train.seed=%llu\n", (unsigned long long)m->seed);
-            h = fnv1a(h, s);
+            h = fnv1a64_str(h, s);
         }
         unsigned hh = (unsigned)((h ^ (h >> 32)) & 0xffffffffu), ii = (unsigned)i % 100000u;
         if (n > 10000) snprintf(m->id, sizeof m->id, "m%05u-%08x", ii, hh);
@@ -498,8 +463,8 @@ static int expand(Sweep *sw, Status *st) {
 static int load_inner(Sweep *sw, const char *path, Status *st) {
     if (snprintf(sw->path, sizeof sw->path, "%s", path) >= (int)sizeof sw->path)
         return status_set(st, ST_INPUT, "%.200s...: path too long", path);
-    char *text = read_file(path, 16u << 20);
-    if (!text) return status_set(st, ST_INPUT, "%s: cannot read the sweep file: %s", path, strerror(errno));
+    char *text;
+    if (fs_read_file(path, 16u << 20, &text, NULL, st)) return st->code;
     if (!realpath(path, sw->abs_path)) {
         free(text);
         return status_set(st, ST_INPUT, "%s: %s", path, strerror(errno));
@@ -632,7 +597,7 @@ int sweep_member_state(const Sweep *sw, int i, MemberState *state, Status *st) {
     if (!mine || !theirs) { free(mine); free(theirs); return status_set(st, ST_RUNTIME, "out of memory"); }
     int rc = sweep_member_config(sw, i, mine, st);
     snprintf(p, sizeof p, "%s/config.json", dir);
-    if (!rc && exists(p)) {
+    if (!rc && fs_exists(p)) {
         Status ls;
         if (config_load(theirs, p, &ls))
             rc = status_set(st, ST_INPUT, "member %s: %s (move the folder away to start this member over)", sw->members[i].id, ls.msg);
@@ -645,10 +610,10 @@ int sweep_member_state(const Sweep *sw, int i, MemberState *state, Status *st) {
         SweepLog log;
         sweep_read_log(dir, &log);
         snprintf(p, sizeof p, "%s/equations.json", dir);
-        int eq = exists(p);
+        int eq = fs_exists(p);
         snprintf(p, sizeof p, "%s/checkpoints", dir);
         if (eq && log.epoch >= mine->epochs) *state = MEMBER_DONE;
-        else if (is_dir(p)) *state = MEMBER_RESUME;
+        else if (fs_is_dir(p)) *state = MEMBER_RESUME;
         else *state = MEMBER_NEW;
     }
     free(mine);
@@ -658,7 +623,7 @@ int sweep_member_state(const Sweep *sw, int i, MemberState *state, Status *st) {
 
 int sweep_member_prepare(const Sweep *sw, int i, MemberState state, int threads, Status *st) {
     const char *dir = sw->members[i].dir;
-    if (mkdir_p(dir, st)) return st->code;
+    if (fs_make_dirs(dir, st)) return st->code;
     if (state != MEMBER_NEW) return 0;
     Config *c = malloc(sizeof *c);
     if (!c) return status_set(st, ST_RUNTIME, "out of memory");
@@ -686,7 +651,7 @@ int sweep_prepare_store(const Sweep *sw, int i, Status *st) {
     int rc = sweep_member_config(sw, i, c, st), fd = -1;
     FrameSettings s;
     if (!rc) rc = frame_settings_from_config(c, &s, st);
-    if (!rc) rc = mkdir_p(sw->output, st);
+    if (!rc) rc = fs_make_dirs(sw->output, st);
     if (!rc) rc = lock_take(sw->output, ".store.lock", &fd, st);
     if (!rc) {
         FrameScan scan;
@@ -761,7 +726,7 @@ int sweep_write_slurm(const Sweep *sw, const char *exe, const char *workdir, cha
     char logs[CFG_PATH_MAX + 16];
     snprintf(logs, sizeof logs, "%s/slurm", sw->output);
     snprintf(path_out, n, "%s/sweep.sbatch", sw->output);
-    int rc = mkdir_p(logs, st);
+    int rc = fs_make_dirs(logs, st);
     if (!rc) rc = atomic_write_bytes(path_out, s, strlen(s), st);
     if (!rc && chmod(path_out, 0755) != 0) rc = status_set(st, ST_RUNTIME, "%s: chmod: %s", path_out, strerror(errno));
     free(s);
@@ -773,8 +738,8 @@ int sweep_write_slurm(const Sweep *sw, const char *exe, const char *workdir, cha
 /* Model structure of an equations.json: per equation, the terms with a nonzero active
  * coefficient. *active gets their number. malloc'ed key, or NULL with a message in why. */
 static char *structure_of(const char *path, long *active, char *why, size_t n_why) {
-    char *text = read_file(path, 64u << 20);
-    if (!text) { snprintf(why, n_why, "equations.json: %s", strerror(errno)); return NULL; }
+    char *text = read_text(path, 64u << 20, why, n_why);
+    if (!text) return NULL;
     Library lib;
     Coef coef;
     Status st;
@@ -811,8 +776,9 @@ static char *structure_of(const char *path, long *active, char *why, size_t n_wh
 static double forecast_error(const char *dir, char *why, size_t n_why) {
     char p[CFG_PATH_MAX + 32];
     snprintf(p, sizeof p, "%s/forecast.json", dir);
-    if (!exists(p)) return NAN;
-    char *text = read_file(p, 64u << 20);
+    if (!fs_exists(p)) return NAN;
+    char *text = read_text(p, 64u << 20, why, n_why);
+    if (!text) return NAN;
     cJSON *root = text ? cJSON_Parse(text) : NULL;
     free(text);
     const cJSON *recs = root ? cJSON_GetObjectItemCaseSensitive(root, "recordings") : NULL;
@@ -831,8 +797,9 @@ static double forecast_error(const char *dir, char *why, size_t n_why) {
 static char *equations_line(const char *dir) {
     char p[CFG_PATH_MAX + 32];
     snprintf(p, sizeof p, "%s/equations.txt", dir);
-    char *t = read_file(p, 1u << 20);
-    if (!t) return NULL;
+    char *t;
+    Status missing;   /* no equations.txt yet: no equations to show */
+    if (fs_read_file(p, 1u << 20, &t, NULL, &missing)) return NULL;
     Buf b = {0};
     int first = 1;
     for (char *line = strtok(t, "\r\n"); line; line = strtok(NULL, "\r\n")) {
@@ -890,13 +857,13 @@ int sweep_summary(const Sweep *sw, SweepSummary *sum, Status *st) {
         r->active = r->log.active;
         long epochs = sweep_member_config(sw, i, c, st) ? 0 : c->epochs;
         snprintf(p, sizeof p, "%s/equations.json", dir);
-        int eq = exists(p);
+        int eq = fs_exists(p);
         if (eq) {
             long act = 0;
             keys[i] = structure_of(p, &act, why, sizeof why);
             if (keys[i]) r->active = act;
         }
-        r->status = eq && r->log.epoch >= epochs ? "finished" : exists(dir) ? "incomplete" : "not started";
+        r->status = eq && r->log.epoch >= epochs ? "finished" : fs_exists(dir) ? "incomplete" : "not started";
         r->equations = equations_line(dir);
         r->error = forecast_error(dir, why[0] ? why + strlen(why) : why, sizeof why - strlen(why));
         if (isfinite(r->error)) {
@@ -1159,7 +1126,7 @@ int sweep_write_summary(const Sweep *sw, SweepSummary *sum_in, Status *st) {
     SweepSummary own;
     SweepSummary *sum = sum_in ? sum_in : &own;
     int fd = -1;
-    int rc = mkdir_p(sw->output, st);
+    int rc = fs_make_dirs(sw->output, st);
     if (!rc) rc = lock_take(sw->output, ".summary.lock", &fd, st);
     if (!rc) rc = sweep_summary(sw, sum, st);
     if (rc) { lock_release(fd); return rc; }
