@@ -9,7 +9,6 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <strings.h>
 
 #include "io/cli/cli.h"
 #include "io/data/series.h"
@@ -237,33 +236,6 @@ static int find_column(const Series *ser, const char *path, const char *what, co
     return -1;
 }
 
-/* File line of every data row of a CSV, by the rules of io/data/series.h (blank lines and lines that
- * start with '#' are skipped; the first row is a header when the series has names). NULL for a
- * .npy file or when the file cannot be read again (messages then name the row instead). */
-static long *csv_row_lines(const char *path, const Series *ser) {
-    size_t n = strlen(path);
-    if (n < 4 || strcasecmp(path + n - 4, ".csv")) return NULL;
-    FILE *f = fopen(path, "rb");
-    if (!f) return NULL;
-    long *lines = calloc((size_t)(ser->rows > 0 ? ser->rows : 1), sizeof *lines);
-    char *buf = NULL;
-    size_t cap = 0;
-    long lineno = 0, row = 0;
-    int header = ser->names != NULL;
-    while (lines && row < ser->rows && getline(&buf, &cap, f) >= 0) {
-        lineno++;
-        const char *t = buf;
-        if (lineno == 1 && !strncmp(t, "\xEF\xBB\xBF", 3)) t += 3;   /* UTF-8 byte order mark */
-        while (*t == ' ' || *t == '\t') t++;
-        if (!*t || *t == '\n' || *t == '\r' || *t == '#') continue;
-        if (header) header = 0;
-        else lines[row++] = lineno;
-    }
-    free(buf);
-    fclose(f);
-    return lines;
-}
-
 /* "file:LINE" for a CSV, "file: row R" for a .npy. */
 static void where(char *buf, size_t n, const char *path, const long *lines, long row) {
     if (lines && lines[row] > 0) snprintf(buf, n, "%s:%ld", path, lines[row]);
@@ -338,7 +310,6 @@ int cmd_fit(int argc, char **argv) {
     if (series_read(s.path, &ser, &st)) return cli_error(st.code, "%s", st.msg);
 
     int rc = 0, cols[LIB_MAX_VARS];
-    long *lines = NULL;
     double *x = NULL, *d1 = NULL, *d2 = NULL, *state = NULL, *theta = NULL, *xi = NULL;
     uint8_t *mask = NULL;
     Library lib = {0};
@@ -362,8 +333,7 @@ int cmd_fit(int argc, char **argv) {
         goto done;
     }
     if (tc >= 0) {
-        lines = csv_row_lines(p, &ser);
-        if ((rc = check_time(&ser, tc, p, lines, &dt))) goto done;
+        if ((rc = check_time(&ser, tc, p, ser.lines, &dt))) goto done;
     } else {
         dt = 1.0 / s.rate;
     }
@@ -483,7 +453,7 @@ int cmd_fit(int argc, char **argv) {
     if (fflush(stdout)) rc = cli_error(1, "fit: writing the output failed");
 
 done:
-    free(lines), free(x), free(d1), free(d2), free(state), free(theta), free(xi), free(mask);
+    free(x), free(d1), free(d2), free(state), free(theta), free(xi), free(mask);
     library_free(&lib);
     series_free(&ser);
     return rc;

@@ -2,7 +2,6 @@
 #include "io/data/series.h"
 
 #include <ctype.h>
-#include <errno.h>
 #include <math.h>
 #include <stdint.h>
 #include <stdio.h>
@@ -10,6 +9,7 @@
 #include <string.h>
 #include <strings.h>
 
+#include "io/data/csv.h"
 #include "io/fs/atomic_file.h"
 #include "io/fs/bytes.h"
 #include "io/fs/files.h"
@@ -19,6 +19,7 @@ void series_free(Series *s) {
         for (int c = 0; c < s->cols; c++) free(s->names[c]);
     free(s->names);
     free(s->d);
+    free(s->lines);
     memset(s, 0, sizeof *s);
 }
 
@@ -40,135 +41,17 @@ int series_read(const char *path, Series *s, Status *st) {
 
 /* ---- CSV ---------------------------------------------------------------------------------- */
 
-/* Split one line (NUL-terminated, no line end) in place into fields; returns the count, at most
- * max. Fields are trimmed of spaces and tabs. */
-static int split_fields(char *line, char **fields, int max) {
-    int n = 0;
-    char *p = line;
-    for (;;) {
-        char *comma = strchr(p, ',');
-        if (comma) *comma = 0;
-        while (*p == ' ' || *p == '\t') p++;
-        char *e = p + strlen(p);
-        while (e > p && (e[-1] == ' ' || e[-1] == '\t')) *--e = 0;
-        if (n < max) fields[n] = p;
-        n++;
-        if (!comma) break;
-        p = comma + 1;
-    }
-    return n;
-}
-
-static int parse_number(const char *f, double *v) {
-    if (!*f) return 0;
-    char *e;
-    errno = 0;
-    *v = strtod(f, &e);
-    if (*e || !isfinite(*v)) return 0;
-    return 1;
-}
-
 int series_read_csv(const char *path, Series *s, Status *st) {
     memset(s, 0, sizeof *s);
-    char *buf;
-    size_t len;
-    if (fs_read_file(path, SIZE_MAX, &buf, &len, st)) return st->code;
-    char *p = buf;
-    if (len >= 3 && (unsigned char)p[0] == 0xEF && (unsigned char)p[1] == 0xBB && (unsigned char)p[2] == 0xBF)
-        p += 3;
-    /* Count fields generously: at most one per comma on the longest line. */
-    int max_fields = 1;
-    for (char *q = p, *ls = p; ; q++) {
-        if (*q == '\n' || *q == 0) {
-            int c = 1;
-            for (char *r = ls; r < q; r++) c += *r == ',';
-            if (c > max_fields) max_fields = c;
-            if (*q == 0) break;
-            ls = q + 1;
-        }
-    }
-    char **fields = malloc(sizeof(char *) * (size_t)max_fields);
-    long cap_rows = 256;
-    double *d = NULL;
-    int cols = 0, first_line = 0, rc = 0;
-    long rows = 0, lineno = 0;
-    if (!fields) {
-        rc = status_set(st, ST_RUNTIME, "%s: out of memory", path);
-        goto done;
-    }
-    while (*p) {
-        char *nl = strchr(p, '\n');
-        char *next = nl ? nl + 1 : p + strlen(p);
-        if (nl) *nl = 0;
-        lineno++;
-        char *line = p;
-        p = next;
-        size_t ll = strlen(line);
-        if (ll && line[ll - 1] == '\r') line[--ll] = 0;
-        char *t = line;
-        while (*t == ' ' || *t == '\t') t++;
-        if (!*t || *t == '#') continue;
-        int nf = split_fields(line, fields, max_fields);
-        if (!cols) {
-            cols = nf;
-            first_line = (int)lineno;
-            int header = 0;
-            double v;
-            for (int c = 0; c < nf; c++)
-                if (!parse_number(fields[c], &v)) header = 1;
-            d = malloc(sizeof(double) * (size_t)cap_rows * (size_t)cols);
-            if (!d) {
-                rc = status_set(st, ST_RUNTIME, "%s: out of memory", path);
-                goto done;
-            }
-            if (header) {
-                s->names = calloc((size_t)cols, sizeof(char *));
-                if (!s->names) {
-                    rc = status_set(st, ST_RUNTIME, "%s: out of memory", path);
-                    goto done;
-                }
-                for (int c = 0; c < cols; c++) {
-                    s->names[c] = strdup(fields[c]);
-                    if (!s->names[c]) {
-                        rc = status_set(st, ST_RUNTIME, "%s: out of memory", path);
-                        goto done;
-                    }
-                }
-                s->cols = cols;   /* so series_free releases the names on error */
-                continue;
-            }
-        }
-        if (nf != cols) {
-            rc = status_set(st, ST_INPUT, "%s:%ld: ragged row: %d fields where line %d has %d", path,
-                            lineno, nf, first_line, cols);
-            goto done;
-        }
-        if (rows == cap_rows) {
-            double *nd = realloc(d, sizeof(double) * (size_t)(2 * cap_rows) * (size_t)cols);
-            if (!nd) {
-                rc = status_set(st, ST_RUNTIME, "%s: out of memory", path);
-                goto done;
-            }
-            d = nd, cap_rows *= 2;
-        }
-        for (int c = 0; c < cols; c++) {
-            if (!parse_number(fields[c], &d[rows * cols + c])) {
-                rc = status_set(st, ST_INPUT, "%s:%ld: field %d \"%.40s\" is not a finite number", path,
-                                lineno, c + 1, fields[c]);
-                goto done;
-            }
-        }
-        rows++;
-    }
-    if (rows == 0) rc = status_set(st, ST_INPUT, "%s: no data rows", path);
-done:
-    free(fields);
-    free(buf);
-    s->d = d;
-    s->rows = rows;
-    s->cols = cols;
-    if (rc) series_free(s);
-    return rc;
+    CsvTable t;
+    const CsvOptions o = {.header = CSV_HEADER_AUTO, .need_rows = 1};
+    if (csv_read_table(path, &o, &t, st)) return st->code;
+    s->d = t.d;
+    s->rows = t.rows;
+    s->cols = t.cols;
+    s->names = t.names;
+    s->lines = t.lines;
+    return 0;
 }
 
 /* ---- .npy --------------------------------------------------------------------------------- */

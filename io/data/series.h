@@ -3,11 +3,12 @@
  *
  * A series is a (rows, cols) row-major double matrix: rows are time samples, columns channels.
  *
- * CSV: one row per line, fields separated by commas, optional spaces or tabs around a field,
- * LF or CRLF line ends, an optional UTF-8 byte order mark. Blank lines and lines starting with '#'
- * are skipped. The first row is a header (its fields become column names) when any of its fields is
- * not a number; every later field must be a finite number (strtod syntax, "nan" and "inf" are
- * refused). Every row must have as many fields as the first. Errors name the file and line:
+ * CSV (read by io/data/csv.h, whose rules apply: commas, optional spaces or tabs around a field,
+ * quoted fields, LF or CRLF line ends, an optional UTF-8 byte order mark, blank lines and lines
+ * starting with '#' skipped): one row per line. The first row is a header (its fields become column
+ * names) when any of its fields is not a number; every later field must be a finite number (strtod
+ * syntax, "nan" and "inf" are refused). Every row must have as many fields as the first. Errors
+ * name the file and line:
  *     data.csv:17: ragged row: 3 fields where line 1 has 4
  *     data.csv:9: field 2 "1.2.3" is not a finite number
  *
@@ -29,6 +30,7 @@ typedef struct {
     long rows;
     int cols;
     char **names;   /* (cols) column names from a CSV header row, or NULL; owned */
+    long *lines;    /* (rows) the file line of each row of a CSV, for messages; NULL for .npy; owned */
 } Series;
 
 int series_read_csv(const char *path, Series *s, Status *st);

@@ -13,6 +13,7 @@
 
 #include <cjson/cJSON.h>
 
+#include "io/data/csv.h"
 #include "io/fs/atomic_file.h"
 #include "io/fs/files.h"
 #include "io/report/base64.h"
@@ -66,110 +67,14 @@ static void free_names(char **names, int n) {
 
 /* ---- CSV tables ------------------------------------------------------------------------------- */
 
-/* A CSV file with a header row, read leniently for display: an empty field is NaN, "nan" and "inf"
- * are read as such, a field equal to words[i] is stored as i. A last line without its newline is
- * dropped (a file still being appended to). */
-typedef struct {
-    int cols;
-    long rows;
-    char **names;   /* (cols) */
-    double *d;      /* (rows, cols) */
-} Table;
-
-static void table_free(Table *t) {
-    if (t->names)
-        for (int i = 0; i < t->cols; i++) free(t->names[i]);
-    free(t->names);
-    free(t->d);
-    memset(t, 0, sizeof *t);
-}
-
-static int table_col(const Table *t, const char *name) {
-    for (int i = 0; i < t->cols; i++)
-        if (!strcmp(t->names[i], name)) return i;
-    return -1;
-}
-
-/* Split line (modified in place) at commas into at most max trimmed fields; returns the count. */
-static int split_fields(char *line, char **f, int max) {
-    int n = 0;
-    char *p = line;
-    for (;;) {
-        char *c = strchr(p, ',');
-        if (c) *c = 0;
-        while (*p == ' ' || *p == '\t') p++;
-        char *e = p + strlen(p);
-        while (e > p && (e[-1] == ' ' || e[-1] == '\t' || e[-1] == '\r')) *--e = 0;
-        if (n < max) f[n] = p;
-        n++;
-        if (!c) break;
-        p = c + 1;
-    }
-    return n;
-}
-
-/* ST_INPUT for a malformed file (message names file and line); 0 otherwise. A missing file is
- * ST_INPUT too: callers check existence first when the file is optional. */
-static int table_read(const char *path, const char *const *words, Table *t, Status *st) {
-    memset(t, 0, sizeof *t);
-    char *buf;
-    if (fs_read_file(path, MAX_TEXT_BYTES, &buf, NULL, st)) return st->code;
-    char *p = buf;
-    if ((unsigned char)p[0] == 0xEF && (unsigned char)p[1] == 0xBB && (unsigned char)p[2] == 0xBF) p += 3;
-    long line_no = 0, cap = 0;
-    char **f = NULL;
-    int rc = 0;
-    while (*p) {
-        char *nl = strchr(p, '\n');
-        if (!nl && t->names) break;     /* an unfinished last row */
-        if (nl) *nl = 0;
-        char *line = p;
-        p = nl ? nl + 1 : p + strlen(p);
-        line_no++;
-        if (!line[0] || line[0] == '\r' || line[0] == '#') continue;
-        if (!t->names) {
-            int n = 1;
-            for (const char *c = line; *c; c++) n += *c == ',';
-            t->names = calloc((size_t)n, sizeof(char *));
-            f = calloc((size_t)n + 1, sizeof(char *));
-            if (!t->names || !f) { rc = status_set(st, ST_RUNTIME, "%s: out of memory", path); break; }
-            split_fields(line, f, n);
-            t->cols = n;
-            for (int i = 0; i < n; i++) t->names[i] = strdup(f[i]);
-            continue;
-        }
-        int n = split_fields(line, f, t->cols + 1);
-        if (n != t->cols) {
-            rc = status_set(st, ST_INPUT, "%s:%ld: %d fields where the header has %d", path, line_no, n, t->cols);
-            break;
-        }
-        if (t->rows == cap) {
-            cap = cap ? 2 * cap : 256;
-            double *d = realloc(t->d, sizeof(double) * (size_t)cap * (size_t)t->cols);
-            if (!d) { rc = status_set(st, ST_RUNTIME, "%s: out of memory", path); break; }
-            t->d = d;
-        }
-        double *row = t->d + t->rows * t->cols;
-        for (int i = 0; i < n && !rc; i++) {
-            row[i] = NAN;
-            if (!f[i][0]) continue;
-            int w = -1;
-            for (int k = 0; words && words[k]; k++)
-                if (!strcmp(f[i], words[k])) w = k;
-            if (w >= 0) { row[i] = w; continue; }
-            char *e;
-            row[i] = strtod(f[i], &e);
-            if (*e) rc = status_set(st, ST_INPUT, "%s:%ld: field %d (%s) \"%.40s\" is not a number", path, line_no,
-                                    i + 1, t->names[i], f[i]);
-        }
-        if (rc) break;
-        t->rows++;
-    }
-    if (!rc && !t->names) rc = status_set(st, ST_INPUT, "%s: empty (no header row)", path);
-    free(f);
-    free(buf);
-    if (rc) table_free(t);
-    return rc;
+/* A CSV file of the run with a header row (io/data/csv.h), read leniently for display: an empty
+ * field is NaN, "nan" and "inf" are read as such, a field equal to words[i] is stored as i. A last
+ * line without its newline is dropped (a file still being appended to). ST_INPUT for a malformed
+ * or missing file: callers check existence first when the file is optional. */
+static int table_read(const char *path, const char *const *words, CsvTable *t, Status *st) {
+    const CsvOptions o = {.header = CSV_HEADER_REQUIRED, .lenient = 1, .words = words, .drop_unfinished = 1,
+                          .max_bytes = MAX_TEXT_BYTES};
+    return csv_read_table(path, &o, t, st);
 }
 
 /* ---- JSON ------------------------------------------------------------------------------------ */
@@ -278,7 +183,7 @@ static const char *const style_sheet =
 
 /* The log: columns by name (a log from an older writer may lack optional ones). */
 typedef struct {
-    Table t;
+    CsvTable t;
     int epoch, phase, loss, rec, dx, dz, l1, active, val, seconds;
 } Log;
 
@@ -291,16 +196,16 @@ static int log_read(Report *r, Log *L) {
     const char *req[] = {"epoch", "phase", "loss", "active"};
     int *idx[] = {&L->epoch, &L->phase, &L->loss, &L->active};
     for (int i = 0; i < 4; i++)
-        if ((*idx[i] = table_col(&L->t, req[i])) < 0) {
-            table_free(&L->t);
+        if ((*idx[i] = csv_col(&L->t, req[i])) < 0) {
+            csv_table_free(&L->t);
             return status_set(r->st, ST_INPUT, "%s: no column \"%s\" in the header (not a framelaw log?)", path, req[i]);
         }
-    L->rec = table_col(&L->t, "reconstruction");
-    L->dx = table_col(&L->t, "dx");
-    L->dz = table_col(&L->t, "dz");
-    L->l1 = table_col(&L->t, "l1");
-    L->val = table_col(&L->t, "validation");
-    L->seconds = table_col(&L->t, "seconds");
+    L->rec = csv_col(&L->t, "reconstruction");
+    L->dx = csv_col(&L->t, "dx");
+    L->dz = csv_col(&L->t, "dz");
+    L->l1 = csv_col(&L->t, "l1");
+    L->val = csv_col(&L->t, "validation");
+    L->seconds = csv_col(&L->t, "seconds");
     return 0;
 }
 
@@ -532,7 +437,7 @@ static void region_table(Report *r, const Region *g) {
 
 /* First time at which a trajectory leaves the training region (z, and dz for a second-order model),
  * NaN when it never does. A margin of 1e-6 of each range absorbs the rounding of the files. */
-static double first_outside(const Region *g, const Table *t, int tc, int order) {
+static double first_outside(const Region *g, const CsvTable *t, int tc, int order) {
     if (!g->present || tc < 0) return NAN;
     for (long i = 0; i < t->rows; i++) {
         const double *row = t->d + i * t->cols;
@@ -540,7 +445,7 @@ static double first_outside(const Region *g, const Table *t, int tc, int order) 
             for (int d = 0; d < (order == 2 && g->has_dz ? 2 : 1); d++) {
                 char name[32];
                 snprintf(name, sizeof name, d ? "dz%d" : "z%d", j + 1);
-                int c = table_col(t, name);
+                int c = csv_col(t, name);
                 double lo = d ? g->dlo[j] : g->lo[j], hi = d ? g->dhi[j] : g->hi[j];
                 if (c < 0 || !isfinite(lo) || !isfinite(hi) || !isfinite(row[c])) continue;
                 double m = 1e-6 * (hi - lo);
@@ -578,12 +483,12 @@ static int section_trajectories(Report *r) {
             break;
         }
         snprintf(path, sizeof path, "%s/%s", dir, names[i]);
-        Table t;
+        CsvTable t;
         if ((rc = table_read(path, NULL, &t, r->st))) break;
         fputs("<h3>Recording ", r->f);
         text(r, rec);
         fputs("</h3>\n", r->f);
-        int tc = table_col(&t, "t");
+        int tc = csv_col(&t, "t");
         double out = first_outside(&g, &t, tc, r->order);
         if (isfinite(out))
             fprintf(r->f, "<p class=\"flag\">extrapolating beyond the training data from t = %.4g s</p>\n", out);
@@ -592,7 +497,7 @@ static int section_trajectories(Report *r) {
         for (int j = 1; j <= r->k && ns < 64; j++) {
             char c[32];
             snprintf(c, sizeof c, "z%d", j);
-            int zc = table_col(&t, c);
+            int zc = csv_col(&t, c);
             if (tc < 0 || zc < 0) continue;
             s[ns++] = (PlotSeries){strdup(c), t.d + tc, t.d + zc, t.rows, t.cols, plot_color(j - 1), DASH_SOLID};
         }
@@ -611,7 +516,7 @@ static int section_trajectories(Report *r) {
             char c[32], m[40];
             snprintf(c, sizeof c, "%s%d", pre, j);
             snprintf(m, sizeof m, "model_%s%d", pre, j);
-            int ec = table_col(&t, c), mc = table_col(&t, m);
+            int ec = csv_col(&t, c), mc = csv_col(&t, m);
             if (tc < 0 || ec < 0 || mc < 0) continue;
             char en[64], mn[64];
             snprintf(en, sizeof en, "%s%d/dt%s from the encoder", r->order == 2 ? "d2z" : "dz", j, r->order == 2 ? "2" : "");
@@ -628,7 +533,7 @@ static int section_trajectories(Report *r) {
             plot(r, &p);
         }
         for (int j = 0; j < ns; j++) free((char *)s[j].name);
-        table_free(&t);
+        csv_table_free(&t);
     }
     free_names(names, n);
     if (!rc) region_table(r, &g);
@@ -658,11 +563,11 @@ static int forecast_recording(Report *r, const cJSON *rec, double bound) {
         note(r, "forecast/%s.csv: missing, so no plots for this recording.", name);
         return 0;
     }
-    Table t;
+    CsvTable t;
     if (table_read(path, NULL, &t, r->st)) return r->st->code;
-    int tc = table_col(&t, "t"), ec = table_col(&t, "error"), lc = table_col(&t, "latent_error");
+    int tc = csv_col(&t, "t"), ec = csv_col(&t, "error"), lc = csv_col(&t, "latent_error");
     if (tc < 0 || (ec < 0 && lc < 0)) {
-        table_free(&t);
+        csv_table_free(&t);
         return status_set(r->st, ST_INPUT, "%s: needs the columns t, error and latent_error", path);
     }
     PlotSeries s[2];
@@ -689,7 +594,7 @@ static int forecast_recording(Report *r, const cJSON *rec, double bound) {
         char a[32], b[32];
         snprintf(a, sizeof a, "z%d", j);
         snprintf(b, sizeof b, "zhat%d", j);
-        int zc = table_col(&t, a), hc = table_col(&t, b);
+        int zc = csv_col(&t, a), hc = csv_col(&t, b);
         if (zc < 0 || hc < 0) continue;
         char an[64], bn[64];
         snprintf(an, sizeof an, "z%d encoded", j);
@@ -704,7 +609,7 @@ static int forecast_recording(Report *r, const cJSON *rec, double bound) {
         plot(r, &q);
     } else note(r, "forecast/%s.csv: no columns z1.., zhat1.. to plot.", name);
     for (int j = 0; j < nz; j++) free((char *)z[j].name);
-    table_free(&t);
+    csv_table_free(&t);
     return 0;
 }
 
@@ -955,7 +860,7 @@ int report_write(const char *run_dir, const char *out_path, ReportSummary *sum, 
         if (rc) atomic_abort(&af);
         else rc = atomic_commit(&af, st);
     }
-    table_free(&L.t);
+    csv_table_free(&L.t);
     free(r.cfg);
     if (!rc && sum) *sum = r.sum;
     return rc;
