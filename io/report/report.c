@@ -18,6 +18,7 @@
 #include "io/fs/files.h"
 #include "io/report/base64.h"
 #include "io/run/config.h"
+#include "io/run/runlog.h"
 #include "io/report/svgplot.h"
 #include "sparse/coef.h"
 #include "sparse/equation.h"
@@ -181,57 +182,42 @@ static const char *const style_sheet =
 
 /* ---- sections -------------------------------------------------------------------------------- */
 
-/* The log: columns by name (a log from an older writer may lack optional ones). */
-typedef struct {
-    CsvTable t;
-    int epoch, phase, loss, rec, dx, dz, l1, active, val, seconds;
-} Log;
-
-static const char *const phase_words[] = {"train", "refine", "warmup", NULL}; /* 0, 1, 2 */
-
-static int log_read(Report *r, Log *L) {
-    char path[PATH_LEN];
-    path_in(path, r, "log.csv");
-    if (table_read(path, phase_words, &L->t, r->st)) return r->st->code;
-    const char *req[] = {"epoch", "phase", "loss", "active"};
-    int *idx[] = {&L->epoch, &L->phase, &L->loss, &L->active};
-    for (int i = 0; i < 4; i++)
-        if ((*idx[i] = csv_col(&L->t, req[i])) < 0) {
-            csv_table_free(&L->t);
-            return status_set(r->st, ST_INPUT, "%s: no column \"%s\" in the header (not a framelaw log?)", path, req[i]);
+/* The log (io/run/runlog.h): these columns are required, the others may be missing in a log from an
+ * older writer. */
+static int log_read(Report *r, RunLog *L) {
+    if (runlog_read(r->dir, L, r->st)) return r->st->code;
+    static const char *const req[] = {"phase", "loss", "active"};
+    static const unsigned bit[] = {RUNLOG_HAVE_PHASE, RUNLOG_HAVE_LOSS, RUNLOG_HAVE_ACTIVE};
+    for (int i = 0; i < 3; i++)
+        if (!(L->have & bit[i])) {
+            runlog_free(L);
+            return status_set(r->st, ST_INPUT, "%s/" RUNLOG_FILE ": no column \"%s\" in the header (not a framelaw log?)",
+                              r->dir, req[i]);
         }
-    L->rec = csv_col(&L->t, "reconstruction");
-    L->dx = csv_col(&L->t, "dx");
-    L->dz = csv_col(&L->t, "dz");
-    L->l1 = csv_col(&L->t, "l1");
-    L->val = csv_col(&L->t, "validation");
-    L->seconds = csv_col(&L->t, "seconds");
     return 0;
 }
 
-static double cell(const Log *L, long i, int c) { return c < 0 ? NAN : L->t.d[i * L->t.cols + c]; }
-
-static void section_summary(Report *r, const Log *L) {
+static void section_summary(Report *r, const RunLog *L) {
     fputs("<h2 id=\"summary\">Summary</h2>\n", r->f);
-    long n = L->t.rows;
+    long n = L->n;
     if (!n) {
         note(r, "log.csv holds no epochs yet: training has not finished its first epoch.");
         return;
     }
+    const RunLogRow *row = L->rows, *last = &row[n - 1];
     long refine = 0, best_i = -1;
     for (long i = 0; i < n; i++) {
-        if (cell(L, i, L->phase) == 1) refine++;
-        double v = cell(L, i, L->val);
-        if (isfinite(v) && (best_i < 0 || v < cell(L, best_i, L->val))) best_i = i;
+        if (row[i].phase == RUNLOG_REFINE) refine++;
+        double v = row[i].validation;
+        if (isfinite(v) && (best_i < 0 || v < row[best_i].validation)) best_i = i;
     }
     char a[32], b[32];
-    fprintf(r->f, "<p>%.0f epochs logged (%ld in the refinement phase); last loss %s, %.0f active coefficients",
-            cell(L, n - 1, L->epoch), refine, num4(a, sizeof a, cell(L, n - 1, L->loss)), cell(L, n - 1, L->active));
+    fprintf(r->f, "<p>%ld epochs logged (%ld in the refinement phase); last loss %s, %ld active coefficients",
+            last->epoch, refine, num4(a, sizeof a, last->loss), last->active);
     if (best_i >= 0)
-        fprintf(r->f, "; lowest validation loss %s at epoch %.0f", num4(b, sizeof b, cell(L, best_i, L->val)),
-                cell(L, best_i, L->epoch));
-    double s = cell(L, n - 1, L->seconds);
-    if (isfinite(s)) fprintf(r->f, "; %.1f s of training", s);
+        fprintf(r->f, "; lowest validation loss %s at epoch %ld", num4(b, sizeof b, row[best_i].validation),
+                row[best_i].epoch);
+    if (isfinite(last->seconds)) fprintf(r->f, "; %.1f s of training", last->seconds);
     fputs(".</p>\n", r->f);
 }
 
@@ -321,24 +307,34 @@ static int section_coefficients(Report *r) {
     return 0;
 }
 
-static void section_training(Report *r, const Log *L) {
+static void section_training(Report *r, const RunLog *L) {
     fputs("<h2 id=\"training\">Training</h2>\n", r->f);
-    long n = L->t.rows;
+    long n = L->n;
     if (!n) {
         note(r, "No epochs logged yet.");
         return;
     }
-    long st = L->t.cols;
-    const double *d = L->t.d;
+    /* the plotted figures as a table (n, 6): epoch, loss, reconstruction, dx, dz, active */
+    enum { EP, LOSS, REC, DX, DZ, ACT, NC };
+    double *d = malloc(sizeof(double) * (size_t)n * NC);
     /* thresholding passes that removed coefficients: epochs where `active` drops */
     double *passes = malloc(sizeof(double) * (size_t)n), refine_at = NAN, warm_end = NAN;
     double *ve = malloc(sizeof(double) * (size_t)n * 2), *vv = ve + n;
+    if (!d || !passes || !ve) {
+        free(d), free(passes), free(ve);
+        note(r, "Out of memory: the training plots are left out.");
+        return;
+    }
     long np = 0, nv = 0;
     for (long i = 0; i < n; i++) {
-        if (i > 0 && cell(L, i, L->active) < cell(L, i - 1, L->active)) passes[np++] = cell(L, i, L->epoch);
-        if (isnan(refine_at) && cell(L, i, L->phase) == 1) refine_at = cell(L, i, L->epoch) - 1;
-        if (cell(L, i, L->phase) == 2) warm_end = cell(L, i, L->epoch);
-        if (isfinite(cell(L, i, L->val))) ve[nv] = cell(L, i, L->epoch), vv[nv++] = cell(L, i, L->val);
+        const RunLogRow *w = &L->rows[i];
+        double *e = d + i * NC;
+        e[EP] = (double)w->epoch, e[LOSS] = w->loss, e[REC] = w->reconstruction, e[DX] = w->dx, e[DZ] = w->dz;
+        e[ACT] = w->active >= 0 ? (double)w->active : NAN;
+        if (i > 0 && e[ACT] < e[ACT - NC]) passes[np++] = e[EP];
+        if (isnan(refine_at) && w->phase == RUNLOG_REFINE) refine_at = e[EP] - 1;
+        if (w->phase == RUNLOG_WARMUP) warm_end = e[EP];
+        if (isfinite(w->validation)) ve[nv] = e[EP], vv[nv++] = w->validation;
     }
     PlotVLines marks[3] = {
         {"thresholding pass (terms removed)", passes, np, "#888", DASH_DASHED},
@@ -349,11 +345,12 @@ static void section_training(Report *r, const Log *L) {
     const char *zname = r->order == 2 ? "z'' term" : "z' term";
     PlotSeries s[6];
     int ns = 0;
-    const double *ep = d + L->epoch;
-    s[ns++] = (PlotSeries){"loss (weighted total)", ep, d + L->loss, n, st, plot_color(0), DASH_SOLID};
-    if (L->rec >= 0) s[ns++] = (PlotSeries){"reconstruction term", ep, d + L->rec, n, st, plot_color(1), DASH_SOLID};
-    if (L->dx >= 0) s[ns++] = (PlotSeries){dname, ep, d + L->dx, n, st, plot_color(2), DASH_SOLID};
-    if (L->dz >= 0) s[ns++] = (PlotSeries){zname, ep, d + L->dz, n, st, plot_color(4), DASH_SOLID};
+    const double *ep = d + EP;
+    s[ns++] = (PlotSeries){"loss (weighted total)", ep, d + LOSS, n, NC, plot_color(0), DASH_SOLID};
+    if (L->have & RUNLOG_HAVE_RECONSTRUCTION)
+        s[ns++] = (PlotSeries){"reconstruction term", ep, d + REC, n, NC, plot_color(1), DASH_SOLID};
+    if (L->have & RUNLOG_HAVE_DX) s[ns++] = (PlotSeries){dname, ep, d + DX, n, NC, plot_color(2), DASH_SOLID};
+    if (L->have & RUNLOG_HAVE_DZ) s[ns++] = (PlotSeries){zname, ep, d + DZ, n, NC, plot_color(4), DASH_SOLID};
     if (nv) s[ns++] = (PlotSeries){"validation loss (no L1)", ve, vv, nv, 1, plot_color(3), DASH_DASHED};
     Plot p = {.title = "Loss over epochs (log scale)", .xlabel = "epoch", .ylabel = "loss (no unit)",
               .ylog = 1, .series = s, .n_series = ns, .vlines = marks, .n_vlines = 3};
@@ -361,10 +358,11 @@ static void section_training(Report *r, const Log *L) {
     fputs("<p>The loss terms are means over the batch and the components, before weighting (docs/training.md); "
           "the total is weighted and includes the L1 term. A thresholding pass that removed no coefficient "
           "leaves no mark.</p>\n", r->f);
-    PlotSeries a = {"active coefficients", ep, d + L->active, n, st, plot_color(0), DASH_SOLID};
+    PlotSeries a = {"active coefficients", ep, d + ACT, n, NC, plot_color(0), DASH_SOLID};
     Plot q = {.title = "Active coefficients over epochs", .xlabel = "epoch", .ylabel = "active coefficients (count)",
               .y_zero = 1, .height = 260, .series = &a, .n_series = 1, .vlines = marks, .n_vlines = 3};
     plot(r, &q);
+    free(d);
     free(passes);
     free(ve);
 }
@@ -788,7 +786,7 @@ static void section_settings(Report *r) {
 
 /* ---- the whole page -------------------------------------------------------------------------- */
 
-static int write_page(Report *r, const Log *L) {
+static int write_page(Report *r, const RunLog *L) {
     FILE *f = r->f;
     char name[256];
     const char *d = r->dir;
@@ -838,12 +836,12 @@ int report_write(const char *run_dir, const char *out_path, ReportSummary *sum, 
     }
     r.k = r.cfg->latent;
     r.order = r.cfg->order;
-    path_in(path, &r, "log.csv");
+    path_in(path, &r, RUNLOG_FILE);
     if (!fs_exists(path)) {
         free(r.cfg);
         return status_set(st, ST_INPUT, "%s: missing (training has not started, or not a run folder)", path);
     }
-    Log L;
+    RunLog L;
     if (log_read(&r, &L)) {
         free(r.cfg);
         return st->code;
@@ -860,7 +858,7 @@ int report_write(const char *run_dir, const char *out_path, ReportSummary *sum, 
         if (rc) atomic_abort(&af);
         else rc = atomic_commit(&af, st);
     }
-    csv_table_free(&L.t);
+    runlog_free(&L);
     free(r.cfg);
     if (!rc && sum) *sum = r.sum;
     return rc;

@@ -2,17 +2,16 @@
 #include "io/run/train.h"
 
 #include <dirent.h>
-#include <errno.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <unistd.h>
 
-#include "io/fs/atomic_file.h"
 #include "io/fs/clock.h"
 #include "io/fs/files.h"
 #include "io/run/checkpoint.h"
+#include "io/run/runlog.h"
 #include "nn/adam.h"
 #include "nn/mat.h"
 #include "nn/isomap.h"
@@ -183,37 +182,6 @@ static void shuffle64(Rng *rng, int64_t *a, long n) {
         a[i] = a[j];
         a[j] = t;
     }
-}
-
-/* ---- the log --------------------------------------------------------------------------------- */
-
-static const char LOG_HEADER[] = "epoch,phase,lr,loss,reconstruction,dx,dz,l1,active,validation,seconds,epoch_seconds\n";
-
-/* Keep the header and the rows of epochs <= last_epoch (rows written after the checkpoint go). */
-static int log_trim(const char *path, long last_epoch, Status *st) {
-    FILE *f = fopen(path, "r");
-    if (!f) return 0;
-    size_t cap = 1 << 16, n = 0;
-    char *out = malloc(cap), line[1024];
-    if (!out) { fclose(f); return status_set(st, ST_RUNTIME, "out of memory"); }
-    int first = 1;
-    while (fgets(line, sizeof line, f)) {
-        if (!first && strtol(line, NULL, 10) > last_epoch) continue;
-        first = 0;
-        size_t len = strlen(line);
-        if (n + len + 1 > cap) {
-            char *o = realloc(out, cap * 2 + len);
-            if (!o) { free(out); fclose(f); return status_set(st, ST_RUNTIME, "out of memory"); }
-            out = o;
-            cap = cap * 2 + len;
-        }
-        memcpy(out + n, line, len);
-        n += len;
-    }
-    fclose(f);
-    int rc = atomic_write_bytes(path, out, n, st);
-    free(out);
-    return rc;
 }
 
 /* ---- progress -------------------------------------------------------------------------------- */
@@ -547,19 +515,12 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
         nn_free(r.order);
         return status_set(st, ST_INPUT, "dataset gives %d blocks, model needs %d", ds->k, m->win ? m->win : m->order + 1);
     }
-    char log_path[4200];
-    snprintf(log_path, sizeof log_path, "%s/log.csv", o->run_dir);
-    if (fs_make_dirs(r.ckpt_dir, st)) { nn_free(r.order); return st->code; }
-    if (o->resume) {
-        if (load_latest(&r, o->quiet, 1, st) || log_trim(log_path, (long)r.meta.epoch, st)) {
-            nn_free(r.order);
-            return st->code;
-        }
-    } else {
-        if (atomic_write_bytes(log_path, LOG_HEADER, strlen(LOG_HEADER), st)) { nn_free(r.order); return st->code; }
+    RunLogWriter log;
+    if (fs_make_dirs(r.ckpt_dir, st) || (o->resume && load_latest(&r, o->quiet, 1, st)) ||
+        runlog_open(&log, o->run_dir, o->resume, (long)r.meta.epoch, st)) {
+        nn_free(r.order);
+        return st->code;
     }
-    FILE *log = fopen(log_path, "a");
-    if (!log) { nn_free(r.order); return status_set(st, ST_RUNTIME, "%s: cannot open: %s", log_path, strerror(errno)); }
 
     nn_set_threads(c->threads > 0 ? c->threads : (int)sysconf(_SC_NPROCESSORS_ONLN));
     int B = c->batch < ds->n_train ? c->batch : (int)ds->n_train;
@@ -570,13 +531,13 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
                   (!strcmp(c->init, "isomap") &&
                    (rc = isomap_init(&r, ds, X, B, o, (AdamCfg){(float)c->lr, (float)c->beta1, (float)c->beta2,
                                                                         (float)c->eps}, st))))) { /* a fresh model */
-        fclose(log);
+        runlog_close(&log);
         nn_free(X);
         nn_free(r.order);
         return rc;
     }
     if ((rc = data_scales(&r, ds, B, X, st))) {
-        fclose(log);
+        runlog_close(&log);
         nn_free(X);
         nn_free(r.order);
         return rc;
@@ -661,11 +622,9 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
         r.meta.seconds = seconds0 + clock_seconds() - t_start;
         double ep_s = clock_seconds() - t_epoch;
         long active = model_active(m);
-        fprintf(log, "%ld,%s,%.6g,%.8g,%.8g,%.8g,%.8g,%.8g,%ld,", done, refine ? "refine" : warm ? "warmup" : "train", ad.lr, mean[0],
-                mean[1], mean[2], mean[3], mean[4], active);
-        if (validated) fprintf(log, "%.8g", val);
-        fprintf(log, ",%.3f,%.4f\n", r.meta.seconds, ep_s);
-        fflush(log);
+        RunLogRow row = {done, refine ? RUNLOG_REFINE : warm ? RUNLOG_WARMUP : RUNLOG_TRAIN, ad.lr, mean[0], mean[1],
+                         mean[2], mean[3], mean[4], active, validated, val, r.meta.seconds, ep_s};
+        if ((rc = runlog_append(&log, &row, st))) goto out;
         if (validated && val < r.meta.best_val) {
             r.meta.best_val = val;
             r.meta.best_epoch = done;
@@ -695,7 +654,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     }
 out:
     if (!o->quiet && tty) fputc('\n', stderr);
-    fclose(log);
+    runlog_close(&log);
     res->epochs_done = (long)r.meta.epoch;
     res->best_val = r.meta.best_val;
     res->active = model_active(m);

@@ -22,6 +22,7 @@
 #include "io/data/frames.h"
 #include "io/data/store.h"
 #include "io/run/rundata.h"
+#include "io/run/runlog.h"
 #include "sparse/equation.h"
 
 /* ---- small helpers ----------------------------------------------------------------------------- */
@@ -542,52 +543,35 @@ int sweep_load(Sweep *sw, const char *path, Status *st) {
 
 /* ---- member folders ---------------------------------------------------------------------------- */
 
-void sweep_read_log(const char *run_dir, SweepLog *log) {
+/* The last row of the member's log (io/run/runlog.h) and its last validation loss. A missing log
+ * gives epoch 0 and no error; a malformed one gives the same with the reason in st. */
+static int read_log(const char *run_dir, SweepLog *log, Status *st) {
     log->epoch = 0;
     log->loss = log->reconstruction = log->dx = log->dz = log->validation = NAN;
     log->active = -1;
     char p[CFG_PATH_MAX + 32];
-    snprintf(p, sizeof p, "%s/log.csv", run_dir);
-    FILE *f = fopen(p, "r");
-    if (!f) return;
-    enum { C_EPOCH, C_LOSS, C_REC, C_DX, C_DZ, C_ACTIVE, C_VAL, C_N };
-    static const char *const names[C_N] = {"epoch", "loss", "reconstruction", "dx", "dz", "active", "validation"};
-    int col[C_N];
-    for (int k = 0; k < C_N; k++) col[k] = -1;
-    char line[2048];
-    if (fgets(line, sizeof line, f)) {
-        int c = 0;
-        for (char *tok = line, *comma; tok; tok = comma ? comma + 1 : NULL, c++) {
-            comma = strchr(tok, ',');
-            size_t len = comma ? (size_t)(comma - tok) : strcspn(tok, "\r\n");
-            for (int k = 0; k < C_N; k++)
-                if (strlen(names[k]) == len && !strncmp(tok, names[k], len)) col[k] = c;
-        }
+    snprintf(p, sizeof p, "%s/" RUNLOG_FILE, run_dir);
+    if (!fs_exists(p)) return 0;
+    RunLog rl;
+    if (runlog_read(run_dir, &rl, st)) return st->code;
+    if (rl.n) {
+        const RunLogRow *last = &rl.rows[rl.n - 1];
+        log->epoch = last->epoch;
+        log->loss = last->loss;
+        log->reconstruction = last->reconstruction;
+        log->dx = last->dx;
+        log->dz = last->dz;
+        log->active = last->active;
     }
-    while (fgets(line, sizeof line, f)) {
-        if (!isdigit((unsigned char)line[0])) continue;
-        double v[C_N];
-        int have[C_N] = {0};
-        int c = 0;
-        for (char *tok = line, *comma; tok; tok = comma ? comma + 1 : NULL, c++) {
-            comma = strchr(tok, ',');
-            for (int k = 0; k < C_N; k++) {
-                if (col[k] != c) continue;
-                char *e;
-                double x = strtod(tok, &e);
-                if (e != tok) v[k] = x, have[k] = 1;
-            }
-        }
-        if (!have[C_EPOCH]) continue;
-        log->epoch = (long)v[C_EPOCH];
-        log->loss = have[C_LOSS] ? v[C_LOSS] : NAN;
-        log->reconstruction = have[C_REC] ? v[C_REC] : NAN;
-        log->dx = have[C_DX] ? v[C_DX] : NAN;
-        log->dz = have[C_DZ] ? v[C_DZ] : NAN;
-        log->active = have[C_ACTIVE] ? (long)v[C_ACTIVE] : -1;
-        if (have[C_VAL]) log->validation = v[C_VAL];
-    }
-    fclose(f);
+    for (long i = 0; i < rl.n; i++)
+        if (rl.rows[i].validated) log->validation = rl.rows[i].validation;
+    runlog_free(&rl);
+    return 0;
+}
+
+void sweep_read_log(const char *run_dir, SweepLog *log) {
+    Status st;
+    read_log(run_dir, log, &st);
 }
 
 int sweep_member_state(const Sweep *sw, int i, MemberState *state, Status *st) {
@@ -812,6 +796,12 @@ static char *equations_line(const char *dir) {
     return buf_take(&b);
 }
 
+/* why += "; " msg */
+static void add_problem(char *why, size_t n, const char *msg) {
+    size_t l = strlen(why);
+    snprintf(why + l, n - l, "%s%s", l ? "; " : "", msg);
+}
+
 static int row_cmp(const void *pa, const void *pb) {
     const SweepRow *a = pa, *b = pb;
     int ra = a->error_from == ERR_FORECAST ? 0 : a->error_from == ERR_VALIDATION ? 1 : 2;
@@ -850,22 +840,26 @@ int sweep_summary(const Sweep *sw, SweepSummary *sum, Status *st) {
     for (int i = 0; i < n; i++) {
         SweepRow *r = &sum->rows[i];
         const char *dir = sw->members[i].dir;
-        char why[1200] = "", p[CFG_PATH_MAX + 32];
+        char why[3200] = "", one[1100] = "", p[CFG_PATH_MAX + 32];
         r->member = i;
         r->structure = -1;
-        sweep_read_log(dir, &r->log);
+        Status ls;
+        if (read_log(dir, &r->log, &ls)) add_problem(why, sizeof why, ls.msg);
         r->active = r->log.active;
         long epochs = sweep_member_config(sw, i, c, st) ? 0 : c->epochs;
         snprintf(p, sizeof p, "%s/equations.json", dir);
         int eq = fs_exists(p);
         if (eq) {
             long act = 0;
-            keys[i] = structure_of(p, &act, why, sizeof why);
+            keys[i] = structure_of(p, &act, one, sizeof one);
             if (keys[i]) r->active = act;
+            else add_problem(why, sizeof why, one);
         }
         r->status = eq && r->log.epoch >= epochs ? "finished" : fs_exists(dir) ? "incomplete" : "not started";
         r->equations = equations_line(dir);
-        r->error = forecast_error(dir, why[0] ? why + strlen(why) : why, sizeof why - strlen(why));
+        one[0] = 0;
+        r->error = forecast_error(dir, one, sizeof one);
+        if (one[0]) add_problem(why, sizeof why, one);
         if (isfinite(r->error)) {
             r->error_from = ERR_FORECAST;
             have_forecast = 1;
