@@ -15,11 +15,8 @@
 #include "io/fs/files.h"
 
 void series_free(Series *s) {
-    if (s->names)
-        for (int c = 0; c < s->cols; c++) free(s->names[c]);
-    free(s->names);
-    free(s->d);
-    free(s->lines);
+    CsvTable t = {.cols = s->cols, .rows = s->rows, .names = s->names, .d = s->d, .lines = s->lines};
+    csv_table_free(&t);   /* a CSV series is the reader's table; a .npy one has only d */
     memset(s, 0, sizeof *s);
 }
 
