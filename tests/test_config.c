@@ -36,6 +36,8 @@ static const char *FULL =
     "  \"threshold\": {\"value\": 0.05, \"every\": 250, \"refine_epochs\": 5000},\n"
     "  \"checkpoint\": {\"every\": 25, \"keep\": 7},\n"
     "  \"forecast\": {\"bound\": 0.2, \"method\": \"rk4\", \"tolerance\": 1e-6},\n"
+    "  \"ensemble\": {\"members\": 40, \"block\": 12, \"block_seconds\": 0.5, \"library_bagging\": true,\n"
+    "               \"drop_fraction\": 0.3, \"inclusion\": 0.7, \"band_members\": 20},\n"
     "  \"output\": \"runs/full\"\n"
     "}\n";
 
@@ -242,6 +244,11 @@ static void test_set(void **state) {
         {"model..latent=1", "bad key path 'model..latent'"},
         {"train=5", "--set: train: must be an object"},
         {"data.derivative={\"window\":8,\"x\":1}", "--set: data.derivative.x: unknown key"},
+        {"ensemble.members=0", "--set: ensemble.members: must be"},
+        {"ensemble.inclusion=0", "--set: ensemble.inclusion: must be"},
+        {"ensemble.inclusion=1.5", "--set: ensemble.inclusion: must be"},
+        {"ensemble.drop_fraction=1", "--set: ensemble.drop_fraction: must be"},
+        {"ensemble.block=-1", "--set: ensemble.block: must be"},
     };
     for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
         memcpy(&before, &c, sizeof c);
@@ -268,7 +275,10 @@ static void test_digest(void **state) {
 
     static const char *const safe[] = {"train.epochs=9", "train.threads=3", "train.validate_every=7",
                                        "checkpoint.every=11", "checkpoint.keep=9", "output=elsewhere",
-                                       "forecast.bound=0.3", "forecast.method=rk4", "forecast.tolerance=1e-6"};
+                                       "forecast.bound=0.3", "forecast.method=rk4", "forecast.tolerance=1e-6",
+                                       "ensemble.members=7", "ensemble.block=3", "ensemble.block_seconds=2",
+                                       "ensemble.library_bagging=true", "ensemble.drop_fraction=0.5",
+                                       "ensemble.inclusion=0.9", "ensemble.band_members=5"};
     Config s = c;
     for (size_t i = 0; i < sizeof safe / sizeof safe[0]; i++) {
         set_ok(&s, safe[i]);
@@ -295,7 +305,7 @@ static void test_digest(void **state) {
         for (int i = 0; config_key_path(i); i++) found |= !strcmp(config_key_path(i), config_resume_safe_keys[n]);
         if (!found) fail_msg("resume-safe key %s is not in the table", config_resume_safe_keys[n]);
     }
-    assert_int_equal(n, 9);
+    assert_int_equal(n, 16);
 }
 
 /* The bad configs: each with the substring its message must hold. The origin prefixes every one. */

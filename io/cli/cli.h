@@ -40,4 +40,7 @@ int cmd_forecast(int argc, char **argv); /* io/cli/cmd_results.c */
 
 int cmd_verify(int argc, char **argv);   /* io/cli/cmd_verify.c */
 
+/* framelaw ensemble RUN_DIR: ensembles by bagging of a finished run (io/cli/cmd_ensemble.c). */
+int cmd_ensemble(int argc, char **argv);
+
 #endif

@@ -10,6 +10,7 @@
 #include "io/cli/cli.h"
 #include "io/run/config.h"
 #include "io/run/results.h"
+#include "io/run/runensemble.h"
 #include "io/run/rundata.h"
 #include "io/run/train.h"
 #include "sparse/coef.h"
@@ -32,6 +33,7 @@ static int finish_run(const char *run_dir, int quiet, Status *st) {
     if (!rc) {
         printf("learned equations (%ld active terms):\n", model_active(&r->m));
         equation_fprint(stdout, EQ_TEXT, &r->m.lib, r->coef.xi, r->coef.mask, 4);
+        if (!quiet) run_ensemble_print(stdout, r);
         fflush(stdout);
         rc = results_forecast(r, quiet, st);
     }

@@ -26,6 +26,7 @@
 #include "io/fs/files.h"
 #include "io/fs/hash.h"
 #include "nn/mlp.h"
+#include "sparse/ensemble.h"
 #include "sparse/library.h"
 #include "sparse/stencil.h"
 
@@ -210,6 +211,24 @@ static const KeyDef keys[] = {
     K_STR("forecast.method", fc_method, "\"dopri5\"", "dopri5|rk4", "integrator of the learned model"),
     K_NUM("forecast.tolerance", fc_tol, "1e-08", 0, INFINITY, LO_OPEN,
           "relative tolerance of dopri5 (absolute: 1e-3 of it); rk4 takes 8 steps per frame"),
+    /* ensemble */
+    K_INT("ensemble.members", ens_members, "100", 1, ENSEMBLE_MAX_MEMBERS, NULL,
+          "fits of the ensemble by bagging on the encoded training set after training (docs/ensembles.md)"),
+    K_INT("ensemble.block", ens_block, "0", 0, NOMAX, NULL,
+          "samples per resampled block of consecutive samples; 0 = automatic: twice the derivative "
+          "stencil's window, at least 10"),
+    K_NUM("ensemble.block_seconds", ens_block_seconds, "0", 0, INFINITY, 0,
+          "when > 0: the block length in seconds (rounded to whole samples, at least 1) instead of "
+          "ensemble.block"),
+    K_BOOL("ensemble.library_bagging", ens_bagging, "false",
+           "each member also drops a random fraction of the library's terms"),
+    K_NUM("ensemble.drop_fraction", ens_drop, "0.2", 0, 1, HI_OPEN,
+          "library bagging: the fraction of the terms each member drops"),
+    K_NUM("ensemble.inclusion", ens_inclusion, "0.5", 0, 1, LO_OPEN,
+          "the ensemble law keeps the terms whose inclusion probability is at or above this"),
+    K_INT("ensemble.band_members", ens_band_members, "100", 1, ENSEMBLE_MAX_MEMBERS, NULL,
+          "members whose laws are integrated for the forecast bands (the first ones; at most "
+          "ensemble.members)"),
     /* output */
     K_PATH("output", output, "`runs/<config file stem>`",
            "run directory, relative to the current directory"),
@@ -218,7 +237,9 @@ static const KeyDef keys[] = {
 
 const char *const config_resume_safe_keys[] = {
     "train.epochs", "train.threads", "train.validate_every", "checkpoint.every", "checkpoint.keep",
-    "output", "forecast.bound", "forecast.method", "forecast.tolerance", NULL,
+    "output", "forecast.bound", "forecast.method", "forecast.tolerance", "ensemble.members", "ensemble.block",
+    "ensemble.block_seconds", "ensemble.library_bagging", "ensemble.drop_fraction", "ensemble.inclusion",
+    "ensemble.band_members", NULL,
 };
 
 void config_safe_keys_text(char *buf, size_t n) {

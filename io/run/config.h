@@ -86,6 +86,14 @@ typedef struct {
     double fc_bound;                /* forecast.bound: relative error that ends a good forecast   [0.1] */
     char fc_method[16];             /* forecast.method: "dopri5" | "rk4"                       [dopri5] */
     double fc_tol;                  /* forecast.tolerance: dopri5 relative tolerance             [1e-8] */
+    /* ensemble by bagging after training (safe to change on resume; docs/ensembles.md) */
+    int ens_members;                /* ensemble.members                                           [100] */
+    long ens_block;                 /* ensemble.block: samples per block; 0 = automatic             [0] */
+    double ens_block_seconds;       /* ensemble.block_seconds: > 0 overrides ensemble.block         [0] */
+    int ens_bagging;                /* ensemble.library_bagging                                 [false] */
+    double ens_drop;                /* ensemble.drop_fraction                                     [0.2] */
+    double ens_inclusion;           /* ensemble.inclusion: threshold on inclusion probability     [0.5] */
+    int ens_band_members;           /* ensemble.band_members: members integrated for bands        [100] */
     /* output */
     char output[CFG_PATH_MAX];      /* output: run directory                       [runs/<config name>] */
 } Config;
@@ -118,7 +126,7 @@ char *config_to_json(const Config *c);
 
 /* Digest (FNV-1a 64) of the resolved config without the keys that are safe to change on resume
  * (train.epochs, train.threads, train.validate_every, checkpoint.every, checkpoint.keep, output,
- * forecast.*). */
+ * forecast.*, ensemble.*). */
 uint64_t config_digest(const Config *c);
 
 /* The names of the keys that may change on resume, for messages and docs. */

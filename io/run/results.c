@@ -12,6 +12,7 @@
 #include "io/fs/files.h"
 #include "io/data/images.h"
 #include "io/data/series.h"
+#include "io/run/runensemble.h"
 #include "sparse/equation.h"
 #include "sparse/integrate.h"
 
@@ -20,6 +21,8 @@ enum { CHUNK = 256 }; /* frames encoded or decoded per batch */
 /* ---- loading --------------------------------------------------------------------------------- */
 
 void loaded_run_close(LoadedRun *r) {
+    run_ensemble_free(r->ens);
+    r->ens = NULL;
     if (r->have_tape) tape_free(&r->tape);
     if (r->have_model) {
         coef_free(&r->coef);
@@ -156,7 +159,8 @@ static int outside(const Region *reg, const double *y) {
 
 /* ---- export ---------------------------------------------------------------------------------- */
 
-static int write_equations(LoadedRun *r, Status *st) {
+int results_write_equations(LoadedRun *r, int quiet, Status *st) {
+    if (run_ensemble_get(r, quiet, st)) return st->code;
     const EqStyle styles[2] = {EQ_TEXT, EQ_LATEX};
     const char *names[2] = {"equations.txt", "equations.tex"};
     char path[CFG_PATH_MAX + 32];
@@ -172,7 +176,10 @@ static int write_equations(LoadedRun *r, Status *st) {
         free(buf);
         if (rc) return rc;
     }
-    char *json = equation_json_string(&r->m.lib, r->coef.xi, r->coef.mask, 6);
+    cJSON *tree = equation_json(&r->m.lib, r->coef.xi, r->coef.mask, 6);
+    if (tree) cJSON_AddItemToObject(tree, "ensemble", run_ensemble_json(r, 6));
+    char *json = tree ? cJSON_Print(tree) : NULL;
+    cJSON_Delete(tree);
     if (!json) return status_set(st, ST_RUNTIME, "out of memory");
     snprintf(path, sizeof path, "%s/equations.json", r->dir);
     int rc = atomic_write_bytes(path, json, strlen(json), st);
@@ -284,7 +291,7 @@ static int write_reconstruction(LoadedRun *r, int rec, Status *st) {
 
 int results_export(LoadedRun *r, int quiet, Status *st) {
     char path[CFG_PATH_MAX + 32];
-    if (write_equations(r, st)) return st->code;
+    if (results_write_equations(r, quiet, st)) return st->code;
     snprintf(path, sizeof path, "%s/trajectories", r->dir);
     if (fs_make_dirs(path, st)) return st->code;
     int images = r->data.store.elem != STORE_F32;
@@ -311,6 +318,8 @@ typedef struct {
     long frames;
     double duration;
     char stopped[512];
+    int band_members, band_stopped;     /* the ensemble's band (io/run/runensemble.h) */
+    double band_exceeds_at, band_final_width;
 } FcResult;
 
 
@@ -321,7 +330,7 @@ static int forecast_recording(LoadedRun *r, int rec, const Region *reg, FcResult
     long n = ds->n, f0 = sr->first + mh, n_out = sr->count - mh;
     double dt = ds->dt, bound = r->cfg.fc_bound;
     memset(fr, 0, sizeof *fr);
-    fr->exceeds_at = fr->latent_exceeds_at = fr->extrap_from = NAN;
+    fr->exceeds_at = fr->latent_exceeds_at = fr->extrap_from = fr->band_exceeds_at = fr->band_final_width = NAN;
     fr->frames = n_out;
     fr->duration = (double)(sr->count - 1) * dt;
     if (n_out < 2) return status_set(st, ST_INPUT, "recording %s: too short to forecast", sr->name);
@@ -388,6 +397,20 @@ static int forecast_recording(LoadedRun *r, int rec, const Region *reg, FcResult
         }
     }
     double zrms = sqrt(zsq / (double)n_out);
+    /* the ensemble's band: every member's law from the same start (at most 100 steps per frame) */
+    EnsembleBands eb;
+    OdeOptions bopt = opt;
+    bopt.max_steps = 100 * n_out;
+    int band_rc = run_ensemble_bands(r, y0, t_out, (int)n_out, zrms, &bopt, &eb, st);
+    if (band_rc) {
+        nn_free(X), nn_free(zb), nn_free(t_out), nn_free(y), nn_free(zf), nn_free(xh), nn_free(ze), nn_free(err),
+            nn_free(lerr);
+        return band_rc;
+    }
+    fr->band_members = eb.members;
+    fr->band_stopped = eb.stopped;
+    fr->band_exceeds_at = eb.exceeds_at;
+    fr->band_final_width = eb.width[n_out - 1];
     double sum = 0, lsum = 0;
     long cnt = 0;
     for (long i = 0; i < n_out; i++) {
@@ -427,12 +450,19 @@ static int forecast_recording(LoadedRun *r, int rec, const Region *reg, FcResult
         fputs("t,error,latent_error", af.f);
         for (int j = 0; j < d; j++) fprintf(af.f, ",z%d", j + 1);
         for (int j = 0; j < d; j++) fprintf(af.f, ",zhat%d", j + 1);
-        fputs(",outside\n", af.f);
+        fputs(",outside", af.f);
+        for (int j = 0; j < d; j++) fprintf(af.f, ",band_median%d,band_low%d,band_high%d", j + 1, j + 1, j + 1);
+        fputs(",band_width\n", af.f);
         for (long i = 0; i < n_out; i++) {
             fprintf(af.f, "%.12g,%.9g,%.9g", t_out[i], err[i], lerr[i]);
             for (int j = 0; j < d; j++) fprintf(af.f, ",%.9g", (double)ze[i * d + j]);
             for (int j = 0; j < d; j++) fprintf(af.f, ",%.9g", y[i * nv + j]);
-            fprintf(af.f, ",%d\n", i < good ? outside(reg, y + i * nv) : 1);
+            fprintf(af.f, ",%d", i < good ? outside(reg, y + i * nv) : 1);
+            for (int j = 0; j < d; j++) {
+                long q = i * nv + j;
+                fprintf(af.f, ",%.9g,%.9g,%.9g", eb.median[q], eb.q05[q], eb.q95[q]);
+            }
+            fprintf(af.f, ",%.9g\n", eb.width[i]);
         }
         rc = atomic_commit(&af, st);
     }
@@ -445,12 +475,14 @@ static int forecast_recording(LoadedRun *r, int rec, const Region *reg, FcResult
     nn_free(ze);
     nn_free(err);
     nn_free(lerr);
+    ensemble_bands_free(&eb);
     return rc;
 }
 
 static cJSON *num_or_null(double v) { return isfinite(v) ? cJSON_CreateNumber(v) : cJSON_CreateNull(); }
 
 int results_forecast(LoadedRun *r, int quiet, Status *st) {
+    if (run_ensemble_get(r, quiet, st)) return st->code;
     Region reg;
     if (results_region(r, &reg, st)) return st->code;
     char path[CFG_PATH_MAX + 32];
@@ -481,6 +513,11 @@ int results_forecast(LoadedRun *r, int quiet, Status *st) {
         cJSON_AddItemToObject(o, "latent_exceeds_bound_at", num_or_null(fr.latent_exceeds_at));
         cJSON_AddItemToObject(o, "extrapolating_from", num_or_null(fr.extrap_from));
         cJSON_AddItemToObject(o, "stopped", fr.stopped[0] ? cJSON_CreateString(fr.stopped) : cJSON_CreateNull());
+        cJSON *band = cJSON_AddObjectToObject(o, "band");
+        cJSON_AddNumberToObject(band, "members", fr.band_members);
+        cJSON_AddNumberToObject(band, "stopped", fr.band_stopped);
+        cJSON_AddItemToObject(band, "width_exceeds_bound_at", num_or_null(fr.band_exceeds_at));
+        cJSON_AddItemToObject(band, "final_width", num_or_null(fr.band_final_width));
         cJSON_AddItemToArray(list, o);
         if (!quiet) {
             printf("forecast %s: mean error %.1f%% over %.2f s", name, 100 * fr.mean_err, fr.duration);
@@ -490,6 +527,11 @@ int results_forecast(LoadedRun *r, int quiet, Status *st) {
             if (isfinite(fr.extrap_from))
                 printf("  extrapolating beyond the training data from t = %.3f s\n", fr.extrap_from);
             if (fr.stopped[0]) printf("  the model blew up: %s\n", fr.stopped);
+            printf("  band of %d ensemble members: ", fr.band_members);
+            if (isfinite(fr.band_exceeds_at)) printf("wider than %.0f%% from t = %.3f s", 100 * r->cfg.fc_bound, fr.band_exceeds_at);
+            else printf("within %.0f%% throughout", 100 * r->cfg.fc_bound);
+            if (fr.band_stopped) printf(" (%d members blew up)", fr.band_stopped);
+            printf("\n");
         }
     }
     if (!rc) {

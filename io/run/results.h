@@ -22,6 +22,7 @@ typedef struct {
     Coef coef;          /* Xi (masked) and mask in double */
     Tape tape;
     int have_data, have_model, have_tape;
+    struct RunEnsemble *ens;    /* the ensemble by bagging, once computed (io/run/runensemble.h) */
 } LoadedRun;
 
 int loaded_run_open(LoadedRun *r, const char *run_dir, Status *st);
@@ -36,11 +37,14 @@ typedef struct {
 
 int results_region(LoadedRun *r, Region *reg, Status *st);
 
+/* Write equations.txt, .tex and .json (with the ensemble, computed when not yet there). */
+int results_write_equations(LoadedRun *r, int quiet, Status *st);
+
 /* Write equations, trajectories/, reconstructions/ (image data only) and region.json. */
 int results_export(LoadedRun *r, int quiet, Status *st);
 
-/* Forecast every held-out recording; writes forecast.json and forecast/. With no held-out
- * recording, writes a forecast.json with an empty list and says so. */
+/* Forecast every held-out recording, with the ensemble's bands; writes forecast.json and forecast/.
+ * With no held-out recording, writes a forecast.json with an empty list and says so. */
 int results_forecast(LoadedRun *r, int quiet, Status *st);
 
 #endif
