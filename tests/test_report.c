@@ -72,7 +72,35 @@ static void write_equations(const char *dir) {
     xi[library_find(&lib, "z2") * 2 + 1] = -2.25;
     equation_format(eq_text, sizeof eq_text, EQ_TEXT, &lib, xi, NULL, 4);
     equation_format(eq_tex, sizeof eq_tex, EQ_LATEX, &lib, xi, NULL, 4);
-    char *json = equation_json_string(&lib, xi, NULL, 4);
+    /* the ensemble object (docs/formats.md): in equation 1, sin(z1) kept by 97% of the members,
+     * z1 by 31% (not in the ensemble law); the other terms never */
+    cJSON *tree = equation_json(&lib, xi, NULL, 4), *ens = cJSON_AddObjectToObject(tree, "ensemble");
+    cJSON_AddNumberToObject(ens, "members", 100);
+    cJSON_AddNumberToObject(ens, "block", 18);
+    cJSON_AddNumberToObject(ens, "block_seconds", 0.6);
+    cJSON_AddNumberToObject(ens, "threshold", 0.1);
+    cJSON_AddNumberToObject(ens, "inclusion_threshold", 0.5);
+    cJSON *eqs = cJSON_AddArrayToObject(ens, "equations");
+    for (int j = 0; j < 2; j++) {
+        int T = lib.n_terms;
+        double pr[64] = {0}, md[64] = {0}, lo[64] = {0}, hi[64] = {0}, mk[64] = {0};
+        if (j == 0) {
+            int a = library_find(&lib, "sin(z1)"), b = library_find(&lib, "z1");
+            pr[a] = 0.97, md[a] = -0.981, lo[a] = -1.02, hi[a] = -0.9437, mk[a] = 1;
+            pr[b] = 0.31, md[b] = 0, lo[b] = -0.0125, hi[b] = 0.0375;
+        }
+        cJSON *q = cJSON_CreateObject();
+        cJSON_AddStringToObject(q, "lhs", j ? "d2z2/dt2" : "d2z1/dt2");
+        cJSON_AddItemToObject(q, "inclusion", cJSON_CreateDoubleArray(pr, T));
+        cJSON_AddItemToObject(q, "median", cJSON_CreateDoubleArray(md, T));
+        cJSON_AddItemToObject(q, "low", cJSON_CreateDoubleArray(lo, T));
+        cJSON_AddItemToObject(q, "high", cJSON_CreateDoubleArray(hi, T));
+        cJSON_AddItemToObject(q, "mask", cJSON_CreateDoubleArray(mk, T));
+        cJSON_AddStringToObject(q, "text", j ? "d2z2/dt2 = 0" : "d2z1/dt2 = -0.98 sin(z1)");
+        cJSON_AddItemToArray(eqs, q);
+    }
+    char *json = cJSON_Print(tree);
+    cJSON_Delete(tree);
     char p[1024];
     path_of(p, dir, "equations.txt");
     test_write_file(p, eq_text);
@@ -156,17 +184,22 @@ static void write_full_run(const char *dir) {
                   " {\"name\": \"rec4\", \"frames\": 120, \"duration\": 3.97, \"method\": \"dopri5\",\n"
                   "  \"mean_error\": 0.031, \"final_error\": 0.152, \"max_error\": 0.16,\n"
                   "  \"exceeds_bound_at\": 3.1, \"latent_mean_error\": 0.01, \"latent_exceeds_bound_at\": null,\n"
-                  "  \"extrapolating_from\": 2.5, \"stopped\": null}]}\n");
+                  "  \"extrapolating_from\": 2.5, \"stopped\": null,\n"
+                  "  \"band\": {\"members\": 100, \"stopped\": 0, \"width_exceeds_bound_at\": 1.7, \"final_width\": 0.4}}]}\n");
     path_of(d, dir, "forecast");
     mkdir(d, 0755);
     path_of(p, d, "rec4.csv");
     f = fopen(p, "w");
     assert_non_null(f);
-    fprintf(f, "t,error,latent_error,z1,z2,zhat1,zhat2,outside\n");
+    fprintf(f, "t,error,latent_error,z1,z2,zhat1,zhat2,outside,band_median1,band_low1,band_high1,band_median2,"
+               "band_low2,band_high2,band_width\n");
     for (int i = 0; i < 120; i++) {
         double t = i / 30.0;
-        fprintf(f, "%.6g,%.6g,%.6g,%.6g,%.6g,%.6g,%.6g,%d\n", t, 0.01 + 0.035 * t * t / 3.97, 0.002 * t, sin(2 * t),
+        fprintf(f, "%.6g,%.6g,%.6g,%.6g,%.6g,%.6g,%.6g,%d", t, 0.01 + 0.035 * t * t / 3.97, 0.002 * t, sin(2 * t),
                 0.5 * cos(t), sin(2.05 * t), 0.5 * cos(1.02 * t), t >= 2.5);
+        fprintf(f, ",%.6g,%.6g,%.6g,%.6g,%.6g,%.6g,%.6g\n", sin(2.05 * t), sin(2.05 * t) - 0.05 * t,
+                sin(2.05 * t) + 0.05 * t, 0.5 * cos(1.02 * t), 0.5 * cos(1.02 * t) - 0.02 * t,
+                0.5 * cos(1.02 * t) + 0.02 * t, 0.1 * t);
     }
     fclose(f);
     /* a reconstruction strip: 2 rows of (original | decoded | difference), 16 x 16 frames */
@@ -266,6 +299,17 @@ static void test_full_run(void **state) {
     assert_non_null(strstr(html, ">-0.98<"));
     assert_non_null(strstr(html, ">-2.25<"));
     assert_non_null(strstr(html, "4 of the library"));
+    /* the ensemble: bars, numbers, intervals, the law; the band on the latent plot */
+    assert_non_null(strstr(html, "<span style=\"width:97.0%\"></span></span> 0.97"));
+    assert_non_null(strstr(html, "<span style=\"width:31.0%\"></span></span> 0.31"));
+    assert_non_null(strstr(html, "[-1.02, -0.9437]"));
+    assert_non_null(strstr(html, ">-0.981<"));
+    assert_int_equal(count(html, "class=\"bar\""), 2); /* terms no member kept are not listed */
+    assert_non_null(strstr(html, "d2z1/dt2 = -0.98 sin(z1)"));
+    assert_non_null(strstr(html, "z1 band 5%"));
+    assert_non_null(strstr(html, "z2 band 95%"));
+    assert_non_null(strstr(html, "band wider than the bound"));
+    assert_non_null(strstr(html, ">1.7<"));
 
     /* the PNG embedded whole: its base64 text is in the page */
     char png[1024];

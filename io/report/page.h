@@ -61,6 +61,8 @@ const char *page_json_str(const cJSON *o, const char *key); /* NULL when absent 
 /* The sections on recordings (recordings.c); each returns 0 or the status of a malformed file. */
 int report_section_trajectories(Report *r);
 int report_section_forecast(Report *r);
+/* The ensemble by bagging (ensemble.c). */
+int report_section_ensemble(Report *r);
 void report_section_reconstructions(Report *r);
 
 #endif

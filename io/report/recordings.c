@@ -234,7 +234,7 @@ static int forecast_recording(Report *r, const cJSON *rec, double bound) {
 
     PlotSeries z[64];
     int nz = 0;
-    for (int j = 1; j <= r->k && nz + 1 < 64; j++) {
+    for (int j = 1; j <= r->k && nz + 3 < 64; j++) {
         char a[32], b[32];
         snprintf(a, sizeof a, "z%d", j);
         snprintf(b, sizeof b, "zhat%d", j);
@@ -245,11 +245,24 @@ static int forecast_recording(Report *r, const cJSON *rec, double bound) {
         snprintf(bn, sizeof bn, "z%d integrated", j);
         z[nz++] = (PlotSeries){strdup(an), t.d + tc, t.d + zc, t.rows, t.cols, plot_color(j - 1), DASH_SOLID};
         z[nz++] = (PlotSeries){strdup(bn), t.d + tc, t.d + hc, t.rows, t.cols, plot_color(j - 1), DASH_DASHED};
+        /* the ensemble's 5-95% band (columns written since the ensemble exists) */
+        snprintf(a, sizeof a, "band_low%d", j);
+        snprintf(b, sizeof b, "band_high%d", j);
+        int lc2 = csv_col(&t, a), uc = csv_col(&t, b);
+        if (lc2 >= 0 && uc >= 0) {
+            snprintf(an, sizeof an, "z%d band 5%%", j);
+            snprintf(bn, sizeof bn, "z%d band 95%%", j);
+            z[nz++] = (PlotSeries){strdup(an), t.d + tc, t.d + lc2, t.rows, t.cols, plot_color(j - 1), DASH_DOTTED};
+            z[nz++] = (PlotSeries){strdup(bn), t.d + tc, t.d + uc, t.rows, t.cols, plot_color(j - 1), DASH_DOTTED};
+        }
     }
     if (nz) {
-        snprintf(title, sizeof title, "%s: latent state, encoded against integrated", name);
+        snprintf(title, sizeof title, "%s: latent state, encoded against integrated, with the ensemble's band", name);
+        double band_at = page_json_num(cJSON_GetObjectItemCaseSensitive(rec, "band"), "width_exceeds_bound_at");
+        PlotVLines bv[2] = {v[1], {"band wider than the bound", &band_at, isfinite(band_at) ? 1 : 0, "#5c3566",
+                                   DASH_DOTTED}};
         Plot q = {.title = title, .xlabel = "t (s)", .ylabel = "z (latent units)", .series = z, .n_series = nz,
-                  .vlines = &v[1], .n_vlines = 1, .height = 280};
+                  .vlines = bv, .n_vlines = 2, .height = 280};
         page_plot(r, &q);
     } else page_note(r, "forecast/%s.csv: no columns z1.., zhat1.. to plot.", name);
     for (int j = 0; j < nz; j++) free((char *)z[j].name);
@@ -283,7 +296,8 @@ int report_section_forecast(Report *r) {
                       "relative L2 errors (0.1 = 10 %%); the bound is %.3g. Times are in seconds.</p>\n", bound);
         fputs("<table><tr><th>recording</th><th>frames</th><th>duration (s)</th><th>method</th><th>mean error</th>"
               "<th>final error</th><th>max error</th><th>exceeds bound at (s)</th><th>latent mean error</th>"
-              "<th>latent exceeds bound at (s)</th><th>extrapolating from (s)</th></tr>\n", r->f);
+              "<th>latent exceeds bound at (s)</th><th>extrapolating from (s)</th>"
+              "<th>ensemble band wider than bound at (s)</th></tr>\n", r->f);
         const cJSON *rec;
         cJSON_ArrayForEach(rec, recs) {
             char b[8][32];
@@ -294,12 +308,13 @@ int report_section_forecast(Report *r) {
                     page_num4(b[1], 32, page_json_num(rec, "duration")));
             page_text(r, m ? m : "-");
             fprintf(r->f, "</td><td class=\"n\">%s</td><td class=\"n\">%s</td><td class=\"n\">%s</td><td class=\"n\">%s</td>"
-                          "<td class=\"n\">%s</td><td class=\"n\">%s</td><td class=\"n\">%s</td></tr>\n",
+                          "<td class=\"n\">%s</td><td class=\"n\">%s</td><td class=\"n\">%s</td><td class=\"n\">%s</td></tr>\n",
                     page_num4(b[2], 32, page_json_num(rec, "mean_error")), page_num4(b[3], 32, page_json_num(rec, "final_error")),
                     page_num4(b[4], 32, page_json_num(rec, "max_error")), page_num4(b[5], 32, page_json_num(rec, "exceeds_bound_at")),
                     page_num4(b[6], 32, page_json_num(rec, "latent_mean_error")),
                     page_num4(b[7], 32, page_json_num(rec, "latent_exceeds_bound_at")),
-                    page_num4(b[0], 32, page_json_num(rec, "extrapolating_from")));
+                    page_num4(b[0], 32, page_json_num(rec, "extrapolating_from")),
+                    page_num4(b[1], 32, page_json_num(cJSON_GetObjectItemCaseSensitive(rec, "band"), "width_exceeds_bound_at")));
         }
         fputs("</table>\n<p>A dash in a time column: never.</p>\n", r->f);
         int i = 0, rc = 0;

@@ -34,7 +34,9 @@ static const char *const style_sheet =
     "figure{margin:.6em 0}svg{max-width:100%;height:auto}figcaption{font-size:.9em;color:#444}\n"
     "img.strip{image-rendering:pixelated;border:1px solid #ccc;background:#808080}\n"
     ".strips{display:flex;flex-wrap:wrap;gap:0 1.5em;align-items:flex-start}\n"
-    "nav a{margin-right:1em}\n";
+    "nav a{margin-right:1em}\n"
+    ".bar{display:inline-block;width:6em;height:.75em;background:#eee;border:1px solid #bbb;vertical-align:middle}"
+    ".bar span{display:block;height:100%;background:#3465a4}\n";
 
 /* ---- sections -------------------------------------------------------------------------------- */
 
@@ -295,12 +297,13 @@ static int write_page(Report *r, const RunLog *L) {
     page_text(r, name);
     fputs("</h1>\n<p class=\"caution\"><b>Caution.</b> " REPORT_CAUTION "</p>\n", f);
     fputs("<nav><a href=\"#summary\">Summary</a><a href=\"#equations\">Equations</a>"
-          "<a href=\"#coefficients\">Coefficients</a><a href=\"#training\">Training</a>"
+          "<a href=\"#coefficients\">Coefficients</a><a href=\"#ensemble\">Ensemble</a><a href=\"#training\">Training</a>"
           "<a href=\"#trajectories\">Trajectories</a><a href=\"#forecast\">Forecasts</a>"
           "<a href=\"#reconstructions\">Reconstructions</a><a href=\"#settings\">Settings</a></nav>\n", f);
     section_summary(r, L);
     section_equations(r);
     if (section_coefficients(r)) return r->st->code;
+    if (report_section_ensemble(r)) return r->st->code;
     section_training(r, L);
     if (report_section_trajectories(r)) return r->st->code;
     if (report_section_forecast(r)) return r->st->code;
