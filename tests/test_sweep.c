@@ -543,6 +543,29 @@ static void test_summary_ranking_pareto_groups(void **state) {
     assert_string_equal(sum.groups[3].key, "dz1/dt: z2 | dz2/dt: 0");
     static const int group[6] = {1, 0, 2, 0, 3, -1};
     for (int k = 0; k < 6; k++) assert_int_equal(sum.rows[k].structure, group[k]);
+    /* each term across the 5 members with equations (each member a sample): dz1/dt keeps z2 in all
+     * of A, A2, B, C, D and z1 only in B; dz2/dt keeps z1 in A, A2, B, D (not C), 1 in D, z2 in B */
+    assert_int_equal(sum.inclusion.members, 5);
+    static const struct { const char *lhs, *term; int kept; } incl[] = {
+        {"dz1/dt", "z2", 5}, {"dz1/dt", "z1", 1}, {"dz1/dt", "1", 0},
+        {"dz2/dt", "z1", 4}, {"dz2/dt", "1", 1}, {"dz2/dt", "z2", 1},
+    };
+    assert_int_equal(sum.inclusion.n, 6);
+    for (int i = 0; i < 6; i++) {
+        int found = 0;
+        for (int q = 0; q < sum.inclusion.n; q++) {
+            const SweepTermStat *t = &sum.inclusion.t[q];
+            if (strcmp(t->lhs, incl[i].lhs) || strcmp(t->term, incl[i].term)) continue;
+            found = 1;
+            assert_int_equal(t->offered, 5);
+            if (t->kept != incl[i].kept) fail_msg("%s %s kept by %d, expected %d", t->lhs, t->term, t->kept, incl[i].kept);
+            assert_int_equal(t->ens_n, 0); /* hand-made equations.json without an ensemble */
+        }
+        if (!found) fail_msg("%s %s missing", incl[i].lhs, incl[i].term);
+    }
+    /* sorted by equation, then by the fraction kept */
+    assert_string_equal(sum.inclusion.t[0].term, "z2");
+    assert_string_equal(sum.inclusion.t[3].term, "z1");
     sweep_summary_free(&sum);
 
     /* the files: CSV with a header and one row per member in rank order; HTML without scripts */
@@ -568,7 +591,16 @@ static void test_summary_ranking_pareto_groups(void **state) {
     assert_null(strstr(html, "<script"));
     assert_non_null(strstr(html, "<tr class=\"front\">"));
     assert_non_null(strstr(html, sw.members[5].id));
+    assert_non_null(strstr(html, "Inclusion of each term across members"));
+    assert_non_null(strstr(html, "<span style=\"width:80.0%\"></span></span> 0.80"));
     free(html);
+    snprintf(p, sizeof p, "%s/inclusion.csv", sw.output);
+    char *inc = test_slurp(p);
+    assert_non_null(inc);
+    assert_int_equal(count_lines(inc), 7);
+    assert_non_null(strstr(inc, "equation,term,members,kept,inclusion,ensemble_inclusion\ndz1/dt,\"z2\",5,5,1,\n"));
+    assert_non_null(strstr(inc, "\ndz2/dt,\"z1\",5,4,0.8,\n"));
+    free(inc);
 
     /* only validation losses: they rank and make the front */
     for (int i = 0; i < 4; i++) {
@@ -668,6 +700,17 @@ static void test_local_sweep_two_at_once(void **state) {
     assert_non_null(csv);
     assert_int_equal(count_lines(csv), 3);
     free(csv);
+    /* trained members carry their ensembles: the inclusion table has the mean of theirs */
+    snprintf(p, sizeof p, "%s/runs/inclusion.csv", fx->dir);
+    char *inc = test_slurp(p);
+    assert_non_null(inc);
+    char *row = strchr(inc, '\n');
+    assert_non_null(row);
+    int ncomma = 0;
+    for (char *c = row + 1; *c && *c != '\n'; c++) ncomma += *c == ',';
+    assert_int_equal(ncomma, 5);
+    assert_true(row[strcspn(row + 1, "\n")] != ','); /* the ensemble column is filled */
+    free(inc);
 
     rc = run_in(fx->dir, out, args);
     text = test_slurp(out);

@@ -23,6 +23,9 @@ void text_printf(TextBuf *b, const char *fmt, ...) __attribute__((format(printf,
 /* Take the text (NULL when memory ran out). */
 char *text_take(TextBuf *b);
 
+/* The summary page's table of each term across members (io/sweep/inclusion.c). */
+void sweep_inclusion_html(TextBuf *b, const SweepInclusion *inc);
+
 /* strdup (NULL when memory ran out). */
 char *sweep_strdup(const char *s);
 /* Whole file as text; NULL when it cannot be read, with the reason (naming the file) in why. */

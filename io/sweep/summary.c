@@ -113,6 +113,7 @@ void sweep_summary_free(SweepSummary *sum) {
     for (int g = 0; g < sum->n_groups; g++) free(sum->groups[g].key);
     free(sum->rows);
     free(sum->groups);
+    sweep_inclusion_free(&sum->inclusion);
     memset(sum, 0, sizeof *sum);
 }
 
@@ -230,6 +231,7 @@ int sweep_summary(const Sweep *sw, SweepSummary *sum, Status *st) {
     for (int a = 0; a < n; a++)
         if (sum->rows[a].structure >= 0) sum->rows[a].structure = where[sum->rows[a].structure];
     free(order), free(where), free(sorted);
+    sweep_inclusion(sw, &sum->inclusion);
     status_ok(st);
     return 0;
 }
@@ -322,7 +324,9 @@ char *sweep_summary_html(const Sweep *sw, const SweepSummary *sum) {
                  "th,td{border:1px solid #ccc;padding:3px 7px;text-align:left;vertical-align:top}\n"
                  "th{background:#f0f0f0}\ntd.n{text-align:right;font-variant-numeric:tabular-nums}\n"
                  "tr.front td{background:#eef6ee}\ntd.eq{font-family:monospace;white-space:pre-wrap}\n"
-                 ".muted{color:#888}\n</style>\n</head>\n<body>\n<h1>Sweep ");
+                 ".muted{color:#888}\n"
+                 ".bar{display:inline-block;width:6em;height:.75em;background:#eee;border:1px solid #bbb;"
+                 "vertical-align:middle}.bar span{display:block;height:100%;background:#3465a4}\n</style>\n</head>\n<body>\n<h1>Sweep ");
     html_text(&b, sw->stem);
     text_puts(&b, "</h1>\n<p>");
     text_printf(&b, "%d members: %d finished, %d incomplete, %d not started. Sweep file: <code>", sum->n_rows, fin, inc, none);
@@ -405,6 +409,7 @@ char *sweep_summary_html(const Sweep *sw, const SweepSummary *sum) {
         }
         text_puts(&b, "</table>\n");
     }
+    sweep_inclusion_html(&b, &sum->inclusion);
     if (by_val) text_printf(&b, "<p class=\"muted\">(v): %d member(s) ranked by the validation loss (no forecast.json).</p>\n", by_val);
     text_puts(&b, "</body>\n</html>\n");
     return text_take(&b);
@@ -418,9 +423,9 @@ int sweep_write_summary(const Sweep *sw, SweepSummary *sum_in, Status *st) {
     if (!rc) rc = sweep_lock(sw->output, ".summary.lock", &fd, st);
     if (!rc) rc = sweep_summary(sw, sum, st);
     if (rc) { sweep_unlock(fd); return rc; }
-    char *csv = sweep_summary_csv(sw, sum), *html = sweep_summary_html(sw, sum);
+    char *csv = sweep_summary_csv(sw, sum), *html = sweep_summary_html(sw, sum), *inc = sweep_inclusion_csv(&sum->inclusion);
     char p[CFG_PATH_MAX + 32];
-    if (!csv || !html) rc = status_set(st, ST_RUNTIME, "out of memory");
+    if (!csv || !html || !inc) rc = status_set(st, ST_RUNTIME, "out of memory");
     if (!rc) {
         snprintf(p, sizeof p, "%s/summary.csv", sw->output);
         rc = atomic_write_bytes(p, csv, strlen(csv), st);
@@ -429,6 +434,11 @@ int sweep_write_summary(const Sweep *sw, SweepSummary *sum_in, Status *st) {
         snprintf(p, sizeof p, "%s/summary.html", sw->output);
         rc = atomic_write_bytes(p, html, strlen(html), st);
     }
+    if (!rc) {
+        snprintf(p, sizeof p, "%s/inclusion.csv", sw->output);
+        rc = atomic_write_bytes(p, inc, strlen(inc), st);
+    }
+    free(inc);
     free(csv);
     free(html);
     sweep_unlock(fd);

@@ -148,12 +148,34 @@ typedef struct {
     int best;                   /* row of the best-ranked member with it */
 } SweepGroup;
 
+/* Inclusion of one term in one equation across members (io/sweep/inclusion.c). */
+typedef struct {
+    char *lhs, *term;           /* "dz1/dt", "z1 z2" */
+    int offered;                /* members with equations whose library has the term */
+    int kept;                   /* ... whose law keeps it (nonzero active coefficient) */
+    double ens_sum;             /* sum of their ensembles' inclusion probabilities */
+    int ens_n;                  /* members with an ensemble */
+} SweepTermStat;
+
+typedef struct {
+    int members;                /* members with a readable equations.json */
+    int n, cap;
+    SweepTermStat *t;           /* (n) by equation, then by fraction kept (larger first) */
+} SweepInclusion;
+
+/* Count over the members' equations.json (unreadable ones are left out; the summary's rows say why). */
+void sweep_inclusion(const Sweep *sw, SweepInclusion *inc);
+void sweep_inclusion_free(SweepInclusion *inc);
+/* inclusion.csv: equation,term,members,kept,inclusion,ensemble_inclusion; malloc'ed. */
+char *sweep_inclusion_csv(const SweepInclusion *inc);
+
 typedef struct {
     int n_rows;
     SweepRow *rows;             /* sorted: rank order */
     int n_groups;
     SweepGroup *groups;         /* by count, larger first; ties by best rank */
     SweepErrorFrom pareto_from; /* the members compared on the front: those with this source */
+    SweepInclusion inclusion;   /* each term across members */
 } SweepSummary;
 
 /* Read every member's results (log.csv, equations.json, equations.txt, forecast.json) and rank
@@ -163,7 +185,7 @@ void sweep_summary_free(SweepSummary *sum);
 /* The summary as CSV and as a self-contained HTML page; malloc'ed, caller frees. */
 char *sweep_summary_csv(const Sweep *sw, const SweepSummary *sum);
 char *sweep_summary_html(const Sweep *sw, const SweepSummary *sum);
-/* Build the summary and write <output>/summary.csv and summary.html atomically, under a lock in
+/* Build the summary and write <output>/summary.csv, summary.html and inclusion.csv atomically, under a lock in
  * the sweep folder (array tasks finishing together). sum may be NULL. */
 int sweep_write_summary(const Sweep *sw, SweepSummary *sum, Status *st);
 
