@@ -223,12 +223,13 @@ static void test_set_members(void **state) {
     if (rc) fail_msg("exit %d:\n%s", rc, out);
     assert_string_equal(out, ""); /* --quiet */
     char *eq = run_file("equations.json"), *fc = run_file("forecast.json"), *cfg = run_file("config.json");
-    cJSON *e = cJSON_GetObjectItem(cJSON_Parse(eq), "ensemble");
+    cJSON *root = cJSON_Parse(eq), *e = cJSON_GetObjectItem(root, "ensemble");
     assert_int_equal(cJSON_GetObjectItem(e, "members")->valueint, 20);
     assert_true(cJSON_IsTrue(cJSON_GetObjectItem(e, "library_bagging")));
     assert_true(cJSON_GetObjectItem(e, "drop_fraction")->valuedouble == 0.2);
     assert_non_null(strstr(fc, "\"members\":\t20"));
     assert_non_null(strstr(cfg, "\"members\":\t20"));
+    cJSON_Delete(root);
     free(eq), free(fc), free(cfg);
 }
 

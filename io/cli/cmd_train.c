@@ -179,7 +179,7 @@ int cmd_resume(int argc, char **argv) {
                "that is truncated or damaged is skipped with a message and the one before it is used.\n"
                "Only these keys may change: train.epochs, train.threads, train.validate_every,\n"
                "checkpoint.every, checkpoint.keep, output, forecast.bound, forecast.method,\n"
-               "forecast.tolerance.\n");
+               "forecast.tolerance, ensemble.* (they act after training).\n");
         return 0;
     }
     int quiet = 0;
