@@ -1,6 +1,7 @@
 /* sparse/model.c: the joint model and its loss (see model.h for the math). */
 #include "sparse/model.h"
 
+#include <math.h>
 #include <string.h>
 
 #include "nn/core.h"
@@ -33,6 +34,7 @@ int model_init(Model *m, ParamSet *ps, const ModelSpec *sp, Status *st) {
     long nc = (long)m->lib.n_terms * sp->n_latent;
     m->mask = nn_alloc((size_t)nc);
     m->maskf = nn_alloc((size_t)nc * sizeof(float));
+    m->l1w = nn_alloc((size_t)nc * sizeof(float));
     memset(m->mask, 1, (size_t)nc);
     for (long i = 0; i < nc; i++) m->maskf[i] = 1.0f;
     return 0;
@@ -42,6 +44,7 @@ void model_free(Model *m) {
     library_free(&m->lib);
     nn_free(m->mask);
     nn_free(m->maskf);
+    nn_free(m->l1w);
     memset(m, 0, sizeof *m);
 }
 
@@ -106,6 +109,23 @@ static Node *window(Tape *t, Node *a, const float *w, int win) {
     return c;
 }
 
+/* The L1 term. With m->l1_contribution each coefficient is weighed by rms(Theta_t) / rms(target_i)
+ * over the batch (theta (B, T) and target (B, d) as recorded): a constant of the step. */
+static Node *l1_term(Tape *t, const Model *m, Node *xi, const Node *theta, const Node *target) {
+    if (!m->l1_contribution) return nn_sum_abs(t, xi);
+    int T = m->lib.n_terms, d = m->n_latent, B = theta->val.rows;
+    double *tq = arena_alloc(&t->arena, (size_t)(T + d) * sizeof *tq), *yq = tq + T;
+    memset(tq, 0, (size_t)(T + d) * sizeof *tq);
+    for (int b = 0; b < B; b++) {
+        const float *th = theta->val.d + (long)b * T, *y = target->val.d + (long)b * d;
+        for (int j = 0; j < T; j++) tq[j] += (double)th[j] * th[j];
+        for (int i = 0; i < d; i++) yq[i] += (double)y[i] * y[i];
+    }
+    for (int j = 0; j < T; j++)
+        for (int i = 0; i < d; i++) m->l1w[(long)j * d + i] = (float)(yq[i] > 0 ? sqrt(tq[j] / yq[i]) : 1.0);
+    return nn_sum_abs(t, nn_mul(t, xi, nn_input(t, m->l1w, T, d)));
+}
+
 static Node *weighted(Tape *t, Node *acc, Node *term, float w) {
     if (w == 0.0f) return acc;
     Node *x = w == 1.0f ? term : nn_scale(t, term, w);
@@ -132,7 +152,7 @@ static Node *model_loss_window(Tape *t, const Model *m, ParamSet *ps, float *X, 
     Node *rx = nn_dense_sq_err(t, hd, nn_param(t, ps, m->dec.W[L]), nn_param(t, ps, m->dec.b[L]), xc, 1, 1, blocks, wx);
     Node *ddz = nn_mean_sq(t, nn_sub(t, zt, pred));
     if (m->dz_relative) ddz = ratio(t, ddz, nn_mean_sq(t, zt));
-    Node *l1 = nn_sum_abs(t, xi);
+    Node *l1 = l1_term(t, m, xi, theta, zt);
     Node *loss = weighted(t, rx, ddz, w->dz);
     loss = weighted(t, loss, l1, w->l1);
     if (parts) {
@@ -171,7 +191,7 @@ Node *model_loss(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const L
                                wx); /* w_rec |x - x_hat|^2 + w_dx |x' - x_hat'|^2 (x'' in second order) */
     Node *ddz = nn_mean_sq(t, nn_sub(t, zt, pred));
     if (m->dz_relative) ddz = ratio(t, ddz, nn_mean_sq(t, zt)); /* |z' - z'_pred|^2 / |z'|^2 */
-    Node *l1 = nn_sum_abs(t, xi);
+    Node *l1 = l1_term(t, m, xi, theta, zt);
     Node *loss = weighted(t, rx, ddz, w->dz);
     loss = weighted(t, loss, l1, w->l1);
     if (parts) {
@@ -220,3 +240,39 @@ long model_threshold(Model *m, ParamSet *ps, float threshold) {
 }
 
 long model_active(const Model *m) { return coef_active(m->mask, (long)m->lib.n_terms * m->n_latent); }
+
+long model_threshold_scaled(Model *m, ParamSet *ps, const double *scale, double threshold) {
+    const ParamView *v = &ps->views[m->xi];
+    long n = (long)v->rows * v->cols;
+    const float *xi = ps->val + v->off;
+    for (long i = 0; i < n; i++)
+        if (m->mask[i] && !(fabs((double)xi[i]) * scale[i] >= threshold)) m->mask[i] = 0;
+    for (long i = 0; i < n; i++) m->maskf[i] = m->mask[i] ? 1.0f : 0.0f;
+    model_apply_mask(m, ps);
+    return model_active(m);
+}
+
+void model_term_scales(const Model *m, const double *theta2, const double *target2, double *scale) {
+    int T = m->lib.n_terms, d = m->n_latent;
+    for (int j = 0; j < T; j++)
+        for (int i = 0; i < d; i++) scale[(long)j * d + i] = target2[i] > 0 ? sqrt(theta2[j] / target2[i]) : 1.0;
+}
+
+void model_accumulate_scales(Tape *t, const Model *m, ParamSet *ps, float *X, int B, double *theta2,
+                             double *target2) {
+    int d = m->n_latent, k = m->order + 1, nv = m->lib.n_vars, T = m->lib.n_terms;
+    tape_reset(t);
+    float *z = arena_alloc(&t->arena, (size_t)k * B * d * sizeof *z);
+    double *th = arena_alloc(&t->arena, (size_t)T * sizeof *th);
+    model_encode(t, m, ps, X, B, k, z);
+    for (int b = 0; b < B; b++) {
+        double sv[LIB_MAX_VARS];
+        for (int j = 0; j < nv; j++) sv[j] = z[((long)(j / d) * B + b) * d + j % d];
+        library_eval(&m->lib, th, sv, 1);
+        for (int j = 0; j < T; j++) theta2[j] += th[j] * th[j];
+        for (int i = 0; i < d; i++) {
+            double y = z[((long)(k - 1) * B + b) * d + i];
+            target2[i] += y * y;
+        }
+    }
+}

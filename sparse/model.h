@@ -48,6 +48,11 @@ typedef struct {
     int dz_relative;            /* 1: the latent term is |z' - z'_pred|^2 / |z'|^2 (z'' for second order),
                                  * a relative error that a shrinking or growing latent scale cannot game */
     float *maskf;               /* (n_terms, n_latent) the same as floats, for the tape */
+    int l1_contribution;        /* 1: the L1 term weighs each coefficient by its term's contribution
+                                 * scale, |Xi_ti| rms(Theta_t) / rms(target_i) over the batch (a constant
+                                 * of the step, no gradient), so that it does not depend on the units of
+                                 * the latent or of time; 0: the plain sum |Xi * M|_1 */
+    float *l1w;                 /* (n_terms, n_latent) work: the weights of the last batch */
     int win;                    /* 0: the input holds x, x' (, x'') and the encoder carries the derivatives
                                  * by tangents; > 0: the input holds the win frames of a derivative stencil
                                  * around each sample, and z', z'' are the stencil applied to their codes */
@@ -89,6 +94,17 @@ void model_encode(Tape *t, const Model *m, ParamSet *ps, float *X, int B, int k,
 void model_apply_mask(Model *m, ParamSet *ps);
 /* Sequential thresholding: mask out |Xi| < threshold for good. Returns the active count after. */
 long model_threshold(Model *m, ParamSet *ps, float threshold);
+/* The same on contributions: mask out |Xi_ti| scale_ti < threshold, scale (n_terms, n_latent) =
+ * rms(Theta_t) / rms(target_i) over the training set (model_term_scales). */
+long model_threshold_scaled(Model *m, ParamSet *ps, const double *scale, double threshold);
+
+/* Contribution scales from sums over samples: scale (n_terms, d) = sqrt(theta2_t / target2_i), with
+ * theta2 (n_terms) the sum of Theta_t^2 and target2 (d) that of the target (z' or z'') squared. */
+void model_term_scales(const Model *m, const double *theta2, const double *target2, double *scale);
+/* Accumulate theta2 (n_terms) and target2 (d) over a batch X (as model_loss takes it, B samples)
+ * encoded by the model. t is reset by the call. */
+void model_accumulate_scales(Tape *t, const Model *m, ParamSet *ps, float *X, int B, double *theta2,
+                             double *target2);
 long model_active(const Model *m);
 
 #endif

@@ -132,3 +132,65 @@ void stencil_apply_all(const Stencil *s, double dt, const double *x, long rows, 
     for (long r = 0; r < nv; r++)
         stencil_apply(s, dt, x, cols, r + s->m, d1 ? d1 + r * cols : NULL, d2 ? d2 + r * cols : NULL);
 }
+
+void stencil_response(const Stencil *s, double theta, double *g1, double *g2, double *noise1, double *noise2) {
+    double a1 = 0, a2 = 0, q1 = 0, q2 = 0;
+    for (int k = 0; k <= 2 * s->m; k++) {
+        double j = k - s->m;
+        a1 += s->w1[k] * sin(theta * j);
+        a2 += s->w2[k] * cos(theta * j);
+        q1 += s->w1[k] * s->w1[k];
+        q2 += s->w2[k] * s->w2[k];
+    }
+    if (g1) *g1 = a1 / theta;
+    if (g2) *g2 = -a2 / (theta * theta);
+    if (noise1) *noise1 = sqrt(q1);
+    if (noise2) *noise2 = sqrt(q2);
+}
+
+int stencil_auto(Stencil *s, double theta, int order, double tol, int max_window, Status *st) {
+    if (!(theta > 0 && theta < M_PI))
+        return status_set(st, ST_INPUT, "derivative stencil: frequency %g rad per sample outside (0, pi)", theta);
+    if (max_window < 5 || max_window > STENCIL_MAX_LEN)
+        return status_set(st, ST_INPUT, "derivative stencil: largest window %d outside [5, %d]", max_window,
+                          STENCIL_MAX_LEN);
+    static const int degrees[] = {3, 5, 7};
+    double best_noise = INFINITY, best_err = INFINITY;
+    int found = 0, bw = 0, bd = 0, ew = 0, ed = 0;
+    for (size_t i = 0; i < sizeof degrees / sizeof degrees[0]; i++) {
+        int d = degrees[i];
+        for (int w = d + 2 - (d % 2 == 0); w <= max_window; w += 2) {
+            Stencil c;
+            Status s2;
+            if (w < 3 || stencil_savgol(&c, w, d, &s2)) continue;
+            double g1, g2, n1, n2;
+            stencil_response(&c, theta, &g1, &g2, &n1, &n2);
+            double err = fmax(fabs(g1 - 1), fabs(g2 - 1)), noise = order == 1 ? n1 : n2;
+            if (err <= tol && noise < best_noise) best_noise = noise, bw = w, bd = d, found = 1;
+            if (err < best_err) best_err = err, ew = w, ed = d;
+        }
+    }
+    if (!found) bw = ew, bd = ed;
+    return stencil_savgol(s, bw, bd, st);
+}
+
+double stencil_rms_frequency(const double *x, long rows, int cols, const long *rec_start, int n_rec) {
+    double dq = 0, vq = 0;
+    for (int c = 0; c < cols; c++) {
+        double sum = 0;
+        long n = 0;
+        for (long i = 0; i < rows; i++) sum += x[i * cols + c], n++;
+        double mean = n ? sum / n : 0;
+        for (long i = 0; i < rows; i++) vq += (x[i * cols + c] - mean) * (x[i * cols + c] - mean);
+        for (int r = 0; r < n_rec; r++)
+            for (long i = rec_start[r] + 1; i + 1 < rec_start[r + 1]; i++) {
+                double e = 0.5 * (x[(i + 1) * cols + c] - x[(i - 1) * cols + c]);
+                dq += e * e;
+            }
+    }
+    long nd = 0;
+    for (int r = 0; r < n_rec; r++) nd += rec_start[r + 1] - rec_start[r] > 2 ? rec_start[r + 1] - rec_start[r] - 2 : 0;
+    if (!(vq > 0) || nd == 0) return 0;
+    double ratio = (dq / (double)nd) / (vq / (double)rows);
+    return asin(ratio < 1 ? sqrt(ratio) : 1.0);
+}

@@ -77,4 +77,26 @@ void stencil_apply(const Stencil *s, double dt, const double *x, int cols, long 
 void stencil_apply_all(const Stencil *s, double dt, const double *x, long rows, int cols, double *d1,
                        double *d2);
 
+/* The stencil's response to a sampled sinusoid of theta radians per sample (0 < theta < pi): the
+ * ratio of its estimate to the exact derivative, g1 = sum_k w1[k] sin(theta j_k) / theta and
+ * g2 = -sum_k w2[k] cos(theta j_k) / theta^2 (j_k = k - m; the weights are odd and even about the
+ * centre). 1 for an exact stencil; central differences give sin(theta) / theta and
+ * (2 - 2 cos theta) / theta^2. The noise gains sqrt(sum w1^2) and sqrt(sum w2^2) (per unit dt and
+ * dt^2) say how much white noise of unit variance the estimates carry. Any of the outputs may be NULL. */
+void stencil_response(const Stencil *s, double theta, double *g1, double *g2, double *noise1, double *noise2);
+
+/* data.derivative.method "auto": the Savitzky-Golay stencil (degree 3, 5 or 7, odd window up to
+ * max_window) whose responses at theta stay within tol of 1 for both derivatives and whose noise
+ * gain for the derivative the model uses (order 1: first, 2: second) is the smallest. When no
+ * stencil meets tol (theta too high: the data are barely sampled), the one closest to exact.
+ * Returns 0, or ST_INPUT for theta outside (0, pi) or max_window < 5. */
+int stencil_auto(Stencil *s, double theta, int order, double tol, int max_window, Status *st);
+
+/* The root-mean-square angular frequency of series, in radians per sample: asin of
+ * sqrt(mean((x[i+1] - x[i-1])^2 / 4) / var(x)) (the central difference of a sinusoid of theta has
+ * the variance sin^2(theta) var), pooled over the cols channels of x (rows, cols) and over the
+ * recordings [rec_start[r], rec_start[r + 1]) (differences never cross a boundary). 0 when the
+ * series is constant. */
+double stencil_rms_frequency(const double *x, long rows, int cols, const long *rec_start, int n_rec);
+
 #endif

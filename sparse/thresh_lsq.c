@@ -16,7 +16,7 @@ extern void dgelsd_(const int *m, const int *n, const int *nrhs, double *a, cons
 #define RCOND 1e-12
 
 ThreshLsqOptions thresh_lsq_defaults(void) {
-    ThreshLsqOptions o = {0.1, 0.0, 10, 1};
+    ThreshLsqOptions o = {0.1, 0.0, 10, 1, 0};
     return o;
 }
 
@@ -92,8 +92,9 @@ int thresh_lsq_fit(double *xi, uint8_t *mask, const double *theta, const double 
     double *y = nn_alloc((size_t)N * sizeof *y);                   /* (N) one target column */
     for (long i = 0; i < N; i++)
         for (int t = 0; t < p; t++) scale[t] += theta[i * p + t] * theta[i * p + t];
+    double *norm = nn_alloc((size_t)p * sizeof *norm);              /* (p) column 2-norms */
     for (int t = 0; t < p; t++) {
-        scale[t] = sqrt(scale[t]);
+        scale[t] = norm[t] = sqrt(scale[t]);
         if (!opt->normalize || scale[t] == 0) scale[t] = 1.0;
     }
     for (int t = 0; t < p; t++)
@@ -118,12 +119,17 @@ int thresh_lsq_fit(double *xi, uint8_t *mask, const double *theta, const double 
     s.work = nn_alloc((size_t)s.lwork * sizeof *s.work);
     s.iwork = nn_alloc((size_t)s.liwork * sizeof *s.iwork);
     int *cols = nn_alloc((size_t)p * sizeof *cols);       /* (q) active column indices */
-    double *c = nn_alloc((size_t)p * sizeof *c);          /* (q) normalised coefficients */
+    double *c = nn_alloc((size_t)2 * p * sizeof *c);      /* (q) normalised coefficients; (p) weights */
     uint8_t *act = nn_alloc((size_t)p);                   /* (p) active set of one output */
 
     int code = 0;
     for (int j = 0; j < m && !code; j++) {
-        for (long i = 0; i < N; i++) y[i] = dx[i * m + j];
+        double ynorm = 0;
+        for (long i = 0; i < N; i++) y[i] = dx[i * m + j], ynorm += y[i] * y[i];
+        ynorm = sqrt(ynorm);
+        /* what the threshold is compared with: |xi_t|, or its contribution |xi_t| |Theta_t| / |y| */
+        double *wt = c + p;
+        for (int t = 0; t < p; t++) wt[t] = !opt->relative ? 1.0 : ynorm > 0 ? norm[t] / ynorm : 0.0;
         for (int t = 0; t < p; t++) act[t] = allowed ? allowed[(long)t * m + j] != 0 : 1;
         int pass = 0;
         for (;;) {
@@ -145,13 +151,13 @@ int thresh_lsq_fit(double *xi, uint8_t *mask, const double *theta, const double 
             if (pass == opt->max_iter) {
                 if (q > 0) {   /* did the last pass still change anything? */
                     for (int t = 0; t < p; t++)
-                        if (act[t] && fabs(xi[(long)t * m + j]) < opt->threshold) r.converged = 0;
+                        if (act[t] && fabs(xi[(long)t * m + j]) * wt[t] < opt->threshold) r.converged = 0;
                 }
                 break;
             }
             int changed = 0;
             for (int t = 0; t < p; t++)
-                if (act[t] && fabs(xi[(long)t * m + j]) < opt->threshold) act[t] = 0, changed = 1;
+                if (act[t] && fabs(xi[(long)t * m + j]) * wt[t] < opt->threshold) act[t] = 0, changed = 1;
             if (!changed) break;
             pass++;
             if (pass > r.passes) r.passes = pass;
@@ -165,7 +171,7 @@ int thresh_lsq_fit(double *xi, uint8_t *mask, const double *theta, const double 
         for (long i = 0; i < (long)p * m; i++) r.active += mask[i] != 0;
         status_ok(st);
     }
-    nn_free(scale), nn_free(an), nn_free(y), nn_free(s.a), nn_free(s.b), nn_free(s.sv);
+    nn_free(scale), nn_free(norm), nn_free(an), nn_free(y), nn_free(s.a), nn_free(s.b), nn_free(s.sv);
     nn_free(s.work), nn_free(s.iwork), nn_free(cols), nn_free(c), nn_free(act);
     if (rep) *rep = r;
     return code;

@@ -31,9 +31,12 @@ typedef struct {
     double ridge;       /* >= 0; 0 is ordinary least squares */
     int max_iter;       /* threshold passes, >= 0 (the published algorithm uses 10) */
     int normalize;      /* 1: unit-norm columns for the solve */
+    int relative;       /* 1: the threshold applies to each term's contribution |xi_t| |Theta_t| / |y_j|
+                         * (2-norms over the samples: rms(term) / rms(target)), the same in any units;
+                         * 0: to |xi_t| in the units of the data */
 } ThreshLsqOptions;
 
-/* threshold 0.1, ridge 0, max_iter 10, normalize 1. */
+/* threshold 0.1, ridge 0, max_iter 10, normalize 1, relative 0. */
 ThreshLsqOptions thresh_lsq_defaults(void);
 
 typedef struct {

@@ -33,7 +33,7 @@ static const char *FULL =
     "                \"decay_every\": 50, \"decay_factor\": 0.25, \"lr_min\": 1e-5},\n"
     "  \"train\": {\"batch\": 64, \"epochs\": 20000, \"seed\": 9007199254740991, \"threads\": 4,\n"
     "            \"validate_every\": 5, \"warmup_epochs\": 50, \"warmup_fit\": false},\n"
-    "  \"threshold\": {\"value\": 0.05, \"every\": 250, \"refine_epochs\": 5000},\n"
+    "  \"threshold\": {\"value\": 0.05, \"measure\": \"contribution\", \"select\": \"every\", \"every\": 250, \"refine_epochs\": 5000},\n"
     "  \"checkpoint\": {\"every\": 25, \"keep\": 7},\n"
     "  \"forecast\": {\"bound\": 0.2, \"method\": \"rk4\", \"tolerance\": 1e-6},\n"
     "  \"ensemble\": {\"members\": 40, \"block\": 12, \"block_seconds\": 0.5, \"library_bagging\": true,\n"

@@ -216,12 +216,90 @@ static void test_apply_all(void **state) {
     }
 }
 
+/* The response of central differences to a sampled sinusoid of theta rad per sample is
+ * sin(theta) / theta and (2 - 2 cos theta) / theta^2 (trigonometric identities: common practice). */
+static void test_response_central(void **state) {
+    (void)state;
+    Stencil s;
+    stencil_central(&s);
+    for (double th = 0.05; th < 3; th += 0.37) {
+        double g1, g2, n1, n2;
+        stencil_response(&s, th, &g1, &g2, &n1, &n2);
+        assert_close(g1, sin(th) / th, 1e-14, 1e-13);
+        assert_close(g2, (2 - 2 * cos(th)) / (th * th), 1e-14, 1e-13);
+        assert_close(n1, sqrt(0.5), 1e-15, 0); /* w1 = [-1/2, 0, 1/2] */
+        assert_close(n2, sqrt(6.0), 1e-15, 0); /* w2 = [1, -2, 1] */
+    }
+}
+
+/* stencil_auto: applied to samples of sin(theta k), the stencil chosen gives x' and x'' within the
+ * tolerance of the exact theta cos and -theta^2 sin (sampled at the centre, where both are largest
+ * in turn); and no feasible stencil of the candidates is quieter. */
+static void test_auto(void **state) {
+    (void)state;
+    const double tol = 0.02;
+    const double thetas[] = {0.05, 0.15, 0.33, 0.6};
+    for (size_t i = 0; i < sizeof thetas / sizeof thetas[0]; i++) {
+        double th = thetas[i];
+        Stencil s;
+        Status st;
+        assert_int_equal(stencil_auto(&s, th, 2, tol, 13, &st), 0);
+        assert_true(2 * s.m + 1 <= 13);
+        double x[STENCIL_MAX_LEN], d1, d2;
+        for (int k = 0; k <= 2 * s.m; k++) x[k] = cos(th * (k - s.m)); /* x'(0) = 0, x''(0) = -th^2 */
+        stencil_apply(&s, 1.0, x, 1, s.m, &d1, &d2);
+        double g2 = -d2 / (th * th);
+        for (int k = 0; k <= 2 * s.m; k++) x[k] = sin(th * (k - s.m)); /* x'(0) = th */
+        stencil_apply(&s, 1.0, x, 1, s.m, &d1, NULL);
+        double g1 = d1 / th;
+        if (th <= 0.6) { /* feasible at these frequencies */
+            assert_true(fabs(g1 - 1) <= tol + 1e-12);
+            assert_true(fabs(g2 - 1) <= tol + 1e-12);
+        }
+        double n2;
+        stencil_response(&s, th, NULL, NULL, NULL, &n2);
+        for (int deg = 3; deg <= 7; deg += 2)
+            for (int w = deg + 2; w <= 13; w += 2) {
+                Stencil c;
+                assert_int_equal(stencil_savgol(&c, w, deg, &st), 0);
+                double a1, a2, m2;
+                stencil_response(&c, th, &a1, &a2, NULL, &m2);
+                if (fabs(a1 - 1) <= tol && fabs(a2 - 1) <= tol) assert_true(n2 <= m2 + 1e-12);
+            }
+    }
+    Stencil s;
+    Status st;
+    assert_int_equal(stencil_auto(&s, 0, 2, tol, 13, &st), ST_INPUT);
+    assert_int_equal(stencil_auto(&s, 0.3, 2, tol, 3, &st), ST_INPUT);
+}
+
+/* The rms frequency of a sampled sinusoid is its frequency: the central difference of
+ * A sin(theta k) has the variance A^2 sin^2(theta) / 2 (common practice), so asin recovers theta
+ * up to the end effects of a finite record (a few 1e-3 over tens of periods). Two recordings of
+ * different amplitude and phase; the jump at their junction must not count. */
+static void test_rms_frequency(void **state) {
+    (void)state;
+    enum { N = 2000 };
+    static double x[2 * N];
+    const double th = 0.33;
+    for (int r = 0; r < 2; r++)
+        for (int k = 0; k < N; k++) x[r * N + k] = (1 + r) * sin(th * k + 1.7 * r);
+    long rs[3] = {0, N, 2 * N};
+    double got = stencil_rms_frequency(x, 2 * N, 1, rs, 2);
+    assert_close(got, th, 0, 3e-3);
+    assert_true(stencil_rms_frequency(x, 2 * N, 1, (long[]){0, 2 * N}, 1) > got); /* the junction counts */
+    double c[10] = {0};
+    assert_true(stencil_rms_frequency(c, 10, 1, (long[]){0, 10}, 1) == 0);
+}
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_central_exact),   cmocka_unit_test(test_savgol_exact),
         cmocka_unit_test(test_sin_truncation),  cmocka_unit_test(test_savgol_published),
         cmocka_unit_test(test_savgol_vs_scipy), cmocka_unit_test(test_symmetry),
         cmocka_unit_test(test_bad_params),      cmocka_unit_test(test_apply_all),
+        cmocka_unit_test(test_response_central), cmocka_unit_test(test_auto),
+        cmocka_unit_test(test_rms_frequency),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

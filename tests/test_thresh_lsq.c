@@ -189,7 +189,7 @@ static void test_ridge_closed_form(void **state) {
                     double f = a[r][k] / a[k][k];
                     for (int c = k; c <= P; c++) a[r][c] -= f * a[k][c];
                 }
-        ThreshLsqOptions o = {0.0, ridge, 0, normalize};
+        ThreshLsqOptions o = {0.0, ridge, 0, normalize, 0};
         double xi[P];
         uint8_t mask[P];
         Status st;
@@ -254,11 +254,45 @@ static void test_threshold_kernels(void **state) {
     assert_true(od[3] == 0 && od[0] == 1);
 }
 
+/* relative = 1 thresholds contributions |xi_t| |Theta_t| / |y|: scaling a column by s and the
+ * target by c scales xi_t by c / s and leaves every contribution as it was, so the active set does
+ * not change (while the plain threshold's does). y = 3 a + 0.05 b + noise-free small term. */
+static void test_relative_is_scale_free(void **state) {
+    (void)state;
+    enum { N = 200, P = 3 };
+    static double th[N * P], th2[N * P], y[N], y2[N];
+    for (int i = 0; i < N; i++) {
+        double t = i * 0.05;
+        th[i * P + 0] = sin(t), th[i * P + 1] = cos(1.3 * t), th[i * P + 2] = sin(2.1 * t + 0.4);
+        y[i] = 3 * th[i * P + 0] + 0.05 * th[i * P + 1] + 0.6 * th[i * P + 2];
+        for (int k = 0; k < P; k++) th2[i * P + k] = th[i * P + k] * (k == 1 ? 1000.0 : 1.0);
+        y2[i] = 0.01 * y[i];
+    }
+    ThreshLsqOptions o = thresh_lsq_defaults();
+    o.relative = 1;
+    o.threshold = 0.02; /* b carries about 0.05 / 3 of the target's rms */
+    double xi[P], xi2[P];
+    uint8_t m[P], m2[P];
+    Status st;
+    assert_int_equal(thresh_lsq_fit(xi, m, th, y, N, P, 1, NULL, &o, NULL, &st), 0);
+    assert_int_equal(thresh_lsq_fit(xi2, m2, th2, y2, N, P, 1, NULL, &o, NULL, &st), 0);
+    assert_memory_equal(m, m2, P);
+    assert_int_equal(m[0], 1);
+    assert_int_equal(m[1], 0);
+    assert_int_equal(m[2], 1);
+    assert_close(xi2[0], 0.01 * xi[0], 1e-12, 1e-9);
+    o.relative = 0; /* the plain threshold keeps b once its column is 1000 times larger (xi 5e-7) or not */
+    o.threshold = 0.02;
+    assert_int_equal(thresh_lsq_fit(xi, m, th, y, N, P, 1, NULL, &o, NULL, &st), 0);
+    assert_int_equal(m[1], 1);
+}
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_lorenz),       cmocka_unit_test(test_pendulum),
         cmocka_unit_test(test_ridge_closed_form), cmocka_unit_test(test_allowed),
         cmocka_unit_test(test_bad_input),    cmocka_unit_test(test_threshold_kernels),
+        cmocka_unit_test(test_relative_is_scale_free),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

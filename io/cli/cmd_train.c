@@ -57,6 +57,10 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet) {
     if (!quiet) {
         fprintf(stderr, "framelaw: %s %s: %ld training and %ld validation samples of %d values, dt %.6g s\n",
                 resume ? "resuming" : "training", run_dir, td.n_train, td.n_val, td.n_in, td.dt);
+        if (data.auto_window)
+            fprintf(stderr, "framelaw: derivatives: Savitzky-Golay window %d, degree %d (data.derivative.method auto: "
+                    "the frames move at %.3g rad per frame, a period of %.1f frames)\n", data.auto_window,
+                    data.auto_degree, data.auto_theta, 2 * M_PI / data.auto_theta);
         fprintf(stderr, "framelaw: model: latent %d, order %d, %s; batch %d, %ld epochs; log in %s/log.csv\n",
                 c->latent, c->order, c->activation, c->batch, c->epochs, run_dir);
     }

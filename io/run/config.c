@@ -114,8 +114,10 @@ static const KeyDef keys[] = {
           "pixel scaling: unit = [0, 1]; standardize = zero mean, unit variance per pixel"),
     K_INT("data.stride", stride, "1", 1, NOMAX, NULL, "keep every n-th frame"),
     K_INT("data.store_bits", store_bits, "8", 8, 16, "8|16", "bits per pixel in the frame store"),
-    K_STR("data.derivative.method", derivative, "\"central\"", "central|savgol",
-          "how x' and x'' are formed from neighbouring frames: central differences or Savitzky-Golay"),
+    K_STR("data.derivative.method", derivative, "\"central\"", "central|savgol|auto",
+          "how x' and x'' (or z', z'') are formed from neighbouring frames: central differences, Savitzky-Golay "
+          "(window, degree), or auto: the Savitzky-Golay stencil of least noise whose response stays within 2% "
+          "of exact at the rms frequency of the training frames' leading principal components (window up to 13)"),
     K_INT("data.derivative.window", sg_window, "7", 3, STENCIL_MAX_LEN, NULL,
           "Savitzky-Golay window in frames (odd, > degree)"),
     K_INT("data.derivative.degree", sg_degree, "3", 2, STENCIL_MAX_LEN - 1, NULL,
@@ -198,6 +200,15 @@ static const KeyDef keys[] = {
     /* threshold */
     K_NUM("threshold.value", threshold, "0.1", 0, INFINITY, 0,
           "coefficients with |Xi| below this are set to zero and masked out for good"),
+    K_STR("threshold.measure", threshold_measure, "\"coefficient\"", "coefficient|contribution",
+          "what threshold.value and loss.l1 measure: coefficient = |Xi| in the units of the latent and of "
+          "time; contribution = |Xi| rms(term) / rms(z' or z'') over the training set (the L1 term over the "
+          "batch), the share of the target a term carries, the same in any units"),
+    K_STR("threshold.select", threshold_select, "\"none\"", "none|first|every",
+           "first (every): the first (every) thresholding pass selects the law instead, from the whole library: candidate laws from thresholded least squares "
+           "on the encoded training set (nested libraries, a grid of contribution thresholds) are integrated "
+           "over segments of the training recordings, and the simplest one that forecasts within 10% of the "
+           "best is kept (docs/training.md)"),
     K_INT("threshold.every", threshold_every, "500", 1, NOMAX, NULL, "epochs between thresholding passes"),
     K_INT("threshold.refine_epochs", refine_epochs, "1000", 0, NOMAX, NULL,
           "the last epochs: mask fixed, no L1, no thresholding; < train.epochs"),
@@ -824,7 +835,8 @@ static cJSON *key_value(const Config *c, const KeyDef *k) {
 /* Every key (but the resume-safe ones when skip_safe) as a nested tree, in table order. */
 /* Keys added after the first release. In the digest they count only when set to something other
  * than their default, so that runs made before a key existed still match their checkpoints. */
-static const char *const late_keys[] = {"model.derivatives", "model.init_epochs", "model.init_frames"};
+static const char *const late_keys[] = {"model.derivatives", "model.init_epochs", "model.init_frames",
+                                        "threshold.measure", "threshold.select"};
 
 static int late_at_default(const Config *c, const KeyDef *k) {
     int late = 0;

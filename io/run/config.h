@@ -77,6 +77,8 @@ typedef struct {
     int warmup_fit;                 /* train.warmup_fit: Xi from thresholded least squares after it [true] */
     /* threshold */
     double threshold;               /* threshold.value                                            [0.1] */
+    char threshold_measure[16];     /* threshold.measure: "coefficient" | "contribution"     [coefficient] */
+    char threshold_select[16];      /* threshold.select: "none" | "first" | "every"                  [none] */
     int threshold_every;            /* threshold.every: epochs between passes                     [500] */
     long refine_epochs;             /* threshold.refine_epochs: last epochs, mask fixed, no L1   [1000] */
     /* checkpoint */

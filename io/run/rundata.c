@@ -1,6 +1,10 @@
 /* io/run/rundata.c: a run's config and data (see rundata.h). */
 #include "io/run/rundata.h"
 
+#include "nn/pca.h"
+
+#include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
@@ -38,7 +42,8 @@ int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st) {
     if (s->scale == SCALE_COUNT) return status_set(st, ST_INPUT, "data.scale: unknown scaling '%s'", c->scale);
     s->stride = c->stride;
     s->bits = c->store_bits;
-    s->stencil = stencil_kind_from_name(c->derivative);
+    /* auto: central differences until rundata_open has looked at the frames */
+    s->stencil = !strcmp(c->derivative, "auto") ? STENCIL_CENTRAL : stencil_kind_from_name(c->derivative);
     if (s->stencil == STENCIL_KIND_COUNT)
         return status_set(st, ST_INPUT, "data.derivative.method: unknown method '%s'", c->derivative);
     s->sg_window = c->sg_window, s->sg_degree = c->sg_degree;
@@ -53,6 +58,67 @@ int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st) {
     return frame_settings_check(s, st);
 }
 
+/* data.derivative.method auto: the rms frequency of the training frames' three leading principal
+ * component scores (stencil_rms_frequency) decides the Savitzky-Golay stencil (stencil_auto). The
+ * scores are smooth functions of the motion even where single pixels are pulses, so their
+ * frequency is close to the latent's; harmonics only raise it (a narrower, safer stencil). */
+#define AUTO_STENCIL_TOL 0.02      /* responses within 2% of exact at that frequency */
+#define AUTO_STENCIL_MAX 13        /* frames per window at most (latent mode encodes each one) */
+
+static int auto_stencil(const Dataset *ds, const FrameStore *fs, int order, FrameSettings *s, double *theta_out,
+                        Status *st) {
+    long n = ds->n, N = 0;
+    int nr = 0;
+    for (int r = 0; r < fs->n_rec; r++)
+        if (ds->rec_split[r] == SPLIT_TRAIN) N += fs->rec[r].count, nr++;
+    int q = n < 3 ? (int)n : 3;
+    float *x = malloc((size_t)n * sizeof *x);
+    double *mean = malloc((size_t)n * sizeof *mean), *vecs = malloc((size_t)q * n * sizeof *vecs), vals[3];
+    double *sc = malloc((size_t)N * q * sizeof *sc);
+    long *rs = malloc((size_t)(nr + 1) * sizeof *rs);
+    int rc = 0;
+    if (!x || !mean || !vecs || !sc || !rs) {
+        rc = status_set(st, ST_RUNTIME, "out of memory");
+        goto done;
+    }
+    Pca p;
+    pca_begin(&p, (int)n);
+    for (int r = 0; r < fs->n_rec; r++)
+        if (ds->rec_split[r] == SPLIT_TRAIN)
+            for (long f = 0; f < fs->rec[r].count; f++) {
+                dataset_frame(ds, fs->rec[r].first + f, x);
+                pca_add(&p, x, 1);
+            }
+    if ((rc = pca_finish(&p, q, mean, vecs, vals, st))) goto done;
+    long i = 0;
+    int k = 0;
+    for (int r = 0; r < fs->n_rec; r++) {
+        if (ds->rec_split[r] != SPLIT_TRAIN) continue;
+        rs[k++] = i;
+        for (long f = 0; f < fs->rec[r].count; f++, i++) {
+            dataset_frame(ds, fs->rec[r].first + f, x);
+            for (int j = 0; j < q; j++) {
+                double a = 0;
+                for (long v = 0; v < n; v++) a += (x[v] - mean[v]) * vecs[(long)j * n + v];
+                sc[i * q + j] = a;
+            }
+        }
+    }
+    rs[k] = i;
+    double theta = stencil_rms_frequency(sc, N, q, rs, nr);
+    if (!(theta > 0)) theta = 0.05; /* still frames: any stencil is exact; take a wide one */
+    if (theta > 3.0) theta = 3.0;
+    Stencil sten;
+    if ((rc = stencil_auto(&sten, theta, order, AUTO_STENCIL_TOL, AUTO_STENCIL_MAX, st))) goto done;
+    s->stencil = STENCIL_SAVGOL;
+    s->sg_window = 2 * sten.m + 1;
+    s->sg_degree = sten.degree;
+    *theta_out = theta;
+done:
+    free(x), free(mean), free(vecs), free(sc), free(rs);
+    return rc;
+}
+
 int rundata_open(RunData *d, const Config *c, Status *st) {
     memset(d, 0, sizeof *d);
     FrameSettings s;
@@ -64,6 +130,14 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     d->have_store = 1;
     if (dataset_init(&d->ds, &d->store, &s, st)) return st->code;
     d->have_ds = 1;
+    if (!strcmp(c->derivative, "auto")) { /* the stencil from the data, then the samples again */
+        if (auto_stencil(&d->ds, &d->store, c->order, &s, &d->auto_theta, st)) return st->code;
+        dataset_free(&d->ds);
+        d->have_ds = 0;
+        if (dataset_init(&d->ds, &d->store, &s, st)) return st->code;
+        d->have_ds = 1;
+        d->auto_window = s.sg_window, d->auto_degree = s.sg_degree;
+    }
     int latent = !strcmp(c->derivatives, "latent");
     d->k = latent ? 2 * d->ds.sten.m + 1 : c->order + 1;
     d->batch = c->batch > 0 ? c->batch : 1;
@@ -75,6 +149,7 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     td->n_train = d->ds.count[SPLIT_TRAIN];
     td->n_val = d->ds.count[SPLIT_VAL];
     td->dt = d->ds.dt;
+    td->sample_frame = d->ds.samples[SPLIT_TRAIN];
     td->sten = latent ? &d->ds.sten : NULL;
     td->gather = gather;
     td->ctx = d;

@@ -19,6 +19,8 @@ typedef struct {
     int *idx;           /* (batch) work for the gather */
     int batch;
     int have_scan, have_store, have_ds;
+    int auto_window, auto_degree;   /* data.derivative.method auto: the stencil chosen (0: not auto) */
+    double auto_theta;              /* and the frames' rms frequency it was chosen for (rad / sample) */
 } RunData;
 
 /* The data.* keys of a resolved run config as frame settings. ST_INPUT naming the

@@ -16,6 +16,7 @@
 #include "nn/mat.h"
 #include "nn/isomap.h"
 #include "nn/pca.h"
+#include "sparse/select.h"
 #include "sparse/thresh_lsq.h"
 
 int model_spec_from_config(const Config *c, int n_in, ModelSpec *sp, Status *st) {
@@ -260,6 +261,83 @@ static int data_scales(Run *r, const TrainData *ds, int Bmax, float *X, Status *
         r->dx_norm = ds->sten || !(dms > 1e-20) ? 1.0 : 1.0 / dms;
     }
     free(sum), free(sq), free(idx);
+    return rc;
+}
+
+/* ---- threshold.measure contribution: the terms' scales over the training set -------------------- */
+
+static int threshold_contribution(Run *r, const TrainData *ds, Tape *t, float *X, int Bmax, Status *st) {
+    Model *m = r->m;
+    int T = m->lib.n_terms, d = m->n_latent;
+    double *theta2 = calloc((size_t)T + d, sizeof *theta2), *scale = malloc((size_t)T * d * sizeof *scale);
+    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
+    int rc = 0;
+    if (!theta2 || !scale || !idx) rc = status_set(st, ST_RUNTIME, "out of memory");
+    for (long s0 = 0; !rc && s0 < ds->n_train; s0 += Bmax) {
+        int B = (int)(ds->n_train - s0 < Bmax ? ds->n_train - s0 : Bmax);
+        for (int i = 0; i < B; i++) idx[i] = s0 + i;
+        if ((rc = ds->gather(ds->ctx, 0, idx, B, X, st))) break;
+        model_accumulate_scales(t, m, r->ps, X, B, theta2, theta2 + T);
+    }
+    if (!rc) {
+        model_term_scales(m, theta2, theta2 + T, scale);
+        model_threshold_scaled(m, r->ps, scale, r->cfg->threshold);
+    }
+    free(theta2), free(scale), free(idx);
+    return rc;
+}
+
+/* ---- threshold.select: the first pass selects the law by forecasts ------------------------------ */
+
+static int select_pass(Run *r, const TrainData *ds, Tape *t, float *X, int Bmax, int quiet, Status *st) {
+    Model *m = r->m;
+    int d = m->n_latent, k = m->order + 1, nv = m->lib.n_vars, T = m->lib.n_terms;
+    long N = ds->n_train;
+    if (!ds->sample_frame) return status_set(st, ST_RUNTIME, "threshold.select: the data gives no sample times");
+    double *state = malloc((size_t)N * nv * sizeof *state), *target = malloc((size_t)N * d * sizeof *target);
+    long *rs = malloc((size_t)(N + 1) * sizeof *rs);
+    float *z = malloc((size_t)k * Bmax * d * sizeof *z);
+    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
+    double *xi = malloc((size_t)T * d * sizeof *xi);
+    uint8_t *mask = malloc((size_t)T * d);
+    int rc = 0, nr = 0;
+    if (!state || !target || !rs || !z || !idx || !xi || !mask) { rc = status_set(st, ST_RUNTIME, "out of memory"); goto done; }
+    for (long s0 = 0; s0 < N; s0 += Bmax) {
+        int B = (int)(N - s0 < Bmax ? N - s0 : Bmax);
+        for (int i = 0; i < B; i++) idx[i] = s0 + i;
+        if ((rc = ds->gather(ds->ctx, 0, idx, B, X, st))) goto done;
+        tape_reset(t);
+        model_encode(t, m, r->ps, X, B, k, z);
+        for (int b = 0; b < B; b++) {
+            for (int j = 0; j < nv; j++) state[(s0 + b) * nv + j] = z[((long)(j / d) * B + b) * d + j % d];
+            for (int j = 0; j < d; j++) target[(s0 + b) * d + j] = z[((long)(k - 1) * B + b) * d + j];
+        }
+    }
+    for (long i = 0; i < N; i++)
+        if (i == 0 || ds->sample_frame[i] != ds->sample_frame[i - 1] + 1) rs[nr++] = i;
+    rs[nr] = N;
+    SelectData D = {N, nv, d, state, target, nr, rs, ds->dt};
+    SelectOptions so = select_defaults();
+    SelectPath path;
+    if ((rc = select_law(&m->lib, &D, NULL, &so, xi, mask, &path, st))) goto done;
+    float *w = params_val(r->ps, m->xi).d;
+    for (long i = 0; i < (long)T * d; i++) {
+        m->mask[i] = mask[i];
+        m->maskf[i] = mask[i] ? 1.0f : 0.0f;
+        w[i] = mask[i] ? (float)xi[i] : 0.0f;
+    }
+    model_apply_mask(m, r->ps);
+    if (!quiet) {
+        fprintf(stderr, "\nframelaw: selection over %d candidate laws (%d segments of %d samples):\n", path.n, path.segments,
+                path.horizon);
+        for (int c = 0; c < path.n; c++)
+            fprintf(stderr, "  %s %2d terms  fit %.3f  forecast %.3f  score %.3f  (level %d, threshold %.3g, step %d)\n",
+                    path.e[c].chosen ? "*" : " ", path.e[c].active, path.e[c].fit, path.e[c].forecast, path.e[c].score,
+                    path.e[c].level, path.e[c].threshold, path.e[c].step);
+    }
+    select_path_free(&path);
+done:
+    free(state), free(target), free(rs), free(z), free(idx), free(xi), free(mask);
     return rc;
 }
 
@@ -557,6 +635,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
         int refine = epoch >= refine_from, warm = epoch < c->warmup_epochs;
         m->warmup = warm;
         m->dz_relative = c->loss_normalize;
+        m->l1_contribution = !strcmp(c->threshold_measure, "contribution");
         LossWeights w = {(float)(c->w_rec * r.rec_norm), (float)(c->w_dx * r.dx_norm), warm ? 0.0f : (float)c->w_dz,
                          refine || warm ? 0.0f : (float)c->w_l1};
         ad.lr = (float)lr_at(c, epoch);
@@ -611,7 +690,14 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
             if (c->warmup_fit && (rc = warmup_fit(&r, ds, &t, X, B, o->quiet, st))) goto out;
         }
         if (!refine && !warm && c->threshold_every > 0 && done % c->threshold_every == 0 && done <= refine_from) {
-            model_threshold(m, ps, (float)c->threshold);
+            if (!strcmp(c->threshold_select, "every") ||
+                (!strcmp(c->threshold_select, "first") && r.meta.n_thresholds == 0)) {
+                if ((rc = select_pass(&r, ds, &t, X, B, o->quiet, st))) goto out;
+            } else if (!strcmp(c->threshold_measure, "contribution")) {
+                if ((rc = threshold_contribution(&r, ds, &t, X, B, st))) goto out;
+            } else {
+                model_threshold(m, ps, (float)c->threshold);
+            }
             r.meta.n_thresholds++;
         }
         double val = NAN;

@@ -27,6 +27,8 @@ typedef struct {
     double dt;              /* seconds between samples */
     int (*gather)(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st);
     void *ctx;
+    const long *sample_frame; /* (n_train) or NULL: the frame of each training sample (consecutive frames
+                             * of one recording are consecutive samples); selection needs it */
     const Stencil *sten;    /* non-NULL: derivatives in latent space; the gather gives the stencil's
                              * 2m+1 frames around each sample as k = 2m+1 blocks */
 } TrainData;

@@ -1,0 +1,333 @@
+/* sparse/select.c: model selection by integrated forecasts (see select.h). */
+#include "sparse/select.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "sparse/thresh_lsq.h"
+
+SelectOptions select_defaults(void) {
+    SelectOptions o = {24, 0.003, 0.5, 0, 3.0, 0, 0.2, 0.05, 8, 2.0};
+    return o;
+}
+
+void select_path_free(SelectPath *p) {
+    if (!p) return;
+    free(p->e), free(p->mask), free(p->xi);
+    memset(p, 0, sizeof *p);
+}
+
+/* The nesting level of a term: polynomial degree (the constant 0), trigonometric terms max + 1. */
+static int term_level(const Term *t, int max_degree) {
+    if (t->kind == TERM_CONST) return 0;
+    if (t->kind != TERM_MONO) return max_degree + 1;
+    int deg = 0;
+    for (int i = 0; i < t->n_fac; i++) deg += t->pow[i];
+    return deg;
+}
+
+static int check_data(const Library *lib, const SelectData *D, Status *st) {
+    if (D->n_vars != lib->n_vars || D->d != lib->spec.n_latent)
+        return status_set(st, ST_INPUT, "selection: the data has %d state values and %d targets, the library %d and %d",
+                          D->n_vars, D->d, lib->n_vars, lib->spec.n_latent);
+    if (D->n_rec < 1 || !D->rec_start || D->rec_start[0] != 0 || D->rec_start[D->n_rec] != D->N)
+        return status_set(st, ST_INPUT, "selection: recording boundaries do not cover the %ld samples", D->N);
+    for (int r = 0; r < D->n_rec; r++)
+        if (D->rec_start[r + 1] < D->rec_start[r])
+            return status_set(st, ST_INPUT, "selection: recording %d ends before it starts", r + 1);
+    if (!(D->dt > 0) || !isfinite(D->dt)) return status_set(st, ST_INPUT, "selection: time step %g must be > 0", D->dt);
+    for (long i = 0; i < D->N * D->n_vars; i++)
+        if (!isfinite(D->state[i])) return status_set(st, ST_INPUT, "selection: non-finite state at sample %ld", i / D->n_vars + 1);
+    for (long i = 0; i < D->N * D->d; i++)
+        if (!isfinite(D->target[i])) return status_set(st, ST_INPUT, "selection: non-finite target at sample %ld", i / D->d + 1);
+    return 0;
+}
+
+/* Standard deviation of z (the first d state values) pooled over components, and the
+ * characteristic angular frequency w_c (see select.h). */
+static void data_scales(const Library *lib, const SelectData *D, double *sd, double *wc) {
+    int d = D->d;
+    double q = 0, tq = 0;
+    for (int j = 0; j < d; j++) {
+        double m = 0, v = 0;
+        for (long i = 0; i < D->N; i++) m += D->state[i * D->n_vars + j];
+        m /= (double)D->N;
+        for (long i = 0; i < D->N; i++) {
+            double e = D->state[i * D->n_vars + j] - m;
+            v += e * e;
+        }
+        q += v;
+    }
+    for (long i = 0; i < D->N * d; i++) tq += D->target[i] * D->target[i];
+    *sd = sqrt(q / ((double)D->N * d));
+    double ratio = *sd > 0 ? sqrt(tq / ((double)D->N * d)) / *sd : 0;
+    *wc = lib->spec.order == 2 ? sqrt(ratio) : ratio;
+}
+
+static int resolve_horizon(const Library *lib, const SelectData *D, const SelectOptions *o, int *H, int *S,
+                           double *sd, Status *st) {
+    double wc;
+    data_scales(lib, D, sd, &wc);
+    long longest = 0;
+    for (int r = 0; r < D->n_rec; r++)
+        if (D->rec_start[r + 1] - D->rec_start[r] > longest) longest = D->rec_start[r + 1] - D->rec_start[r];
+    int h = o->horizon;
+    if (h == 0) {
+        double per = wc > 0 ? 2 * M_PI / wc : INFINITY;
+        double want = o->periods * per / D->dt;
+        h = !isfinite(want) || want > (double)longest ? (int)longest : (int)ceil(want);
+        if (h < 8) h = 8 < longest ? 8 : (int)longest;
+    }
+    if (h < 2 || h > longest)
+        return status_set(st, ST_INPUT, "selection: a forecast segment of %d samples does not fit in the longest recording "
+                          "(%ld samples)", h, longest);
+    *H = h;
+    *S = o->stride > 0 ? o->stride : (h / 2 > 0 ? h / 2 : 1);
+    if (!(*sd > 0)) return status_set(st, ST_INPUT, "selection: the latent is constant over the data set");
+    return 0;
+}
+
+/* f(s) for a law: ds (n_vars); theta (n_terms) work. */
+static void law_rhs(const Library *lib, const double *xi, const uint8_t *mask, const double *s, double *ds,
+                    double *theta) {
+    int d = lib->spec.n_latent, T = lib->n_terms, nv = lib->n_vars;
+    library_eval(lib, theta, s, 1);
+    int off = 0;
+    if (lib->spec.order == 2) { /* s = (z, z'): z' first */
+        for (int j = 0; j < d; j++) ds[j] = s[d + j];
+        off = d;
+    }
+    for (int j = 0; j < d; j++) {
+        double a = 0;
+        for (int t = 0; t < T; t++)
+            if (!mask || mask[(long)t * d + j]) a += xi[(long)t * d + j] * theta[t];
+        ds[off + j] = a;
+    }
+    (void)nv;
+}
+
+static double forecast_error(const Library *lib, const SelectData *D, const double *xi, const uint8_t *mask, int H,
+                             int S, double sd, double cap, int *n_seg) {
+    int nv = lib->n_vars, d = D->d;
+    double *theta = malloc((size_t)lib->n_terms * sizeof *theta);
+    double y[4 * LIB_MAX_VARS], k1[LIB_MAX_VARS], k2[LIB_MAX_VARS], k3[LIB_MAX_VARS], k4[LIB_MAX_VARS];
+    double *tmp = y + LIB_MAX_VARS;
+    double bound = 0; /* a forecast further than 100 standard deviations from every state is lost */
+    for (long i = 0; i < D->N * nv; i++)
+        if (fabs(D->state[i]) > bound) bound = fabs(D->state[i]);
+    bound += 100 * sd;
+    const int sub = 4;
+    double h = D->dt / sub, total = 0;
+    int n = 0;
+    for (int r = 0; r < D->n_rec; r++) {
+        long a = D->rec_start[r], len = D->rec_start[r + 1] - a;
+        for (long s0 = 0; s0 + H <= len; s0 += S) {
+            memcpy(y, D->state + (a + s0) * nv, (size_t)nv * sizeof *y);
+            double se = 0;
+            int lost = 0;
+            for (int k = 1; k < H && !lost; k++) {
+                for (int u = 0; u < sub; u++) { /* classic RK4 */
+                    law_rhs(lib, xi, mask, y, k1, theta);
+                    for (int i = 0; i < nv; i++) tmp[i] = y[i] + 0.5 * h * k1[i];
+                    law_rhs(lib, xi, mask, tmp, k2, theta);
+                    for (int i = 0; i < nv; i++) tmp[i] = y[i] + 0.5 * h * k2[i];
+                    law_rhs(lib, xi, mask, tmp, k3, theta);
+                    for (int i = 0; i < nv; i++) tmp[i] = y[i] + h * k3[i];
+                    law_rhs(lib, xi, mask, tmp, k4, theta);
+                    for (int i = 0; i < nv; i++) y[i] += h / 6 * (k1[i] + 2 * k2[i] + 2 * k3[i] + k4[i]);
+                }
+                for (int i = 0; i < nv; i++)
+                    if (!isfinite(y[i]) || fabs(y[i]) > bound) lost = 1;
+                const double *ref = D->state + (a + s0 + k) * nv;
+                for (int j = 0; j < d && !lost; j++) se += (y[j] - ref[j]) * (y[j] - ref[j]);
+            }
+            double e = lost ? cap : sqrt(se / ((double)(H - 1) * d)) / sd;
+            total += e < cap ? e : cap;
+            n++;
+        }
+    }
+    free(theta);
+    *n_seg = n;
+    return n ? total / n : cap;
+}
+
+int select_forecast_error(const Library *lib, const SelectData *data, const double *xi, const uint8_t *mask,
+                          const SelectOptions *opt, double *err, int *segments, Status *st) {
+    int H, S, n;
+    double sd;
+    if (check_data(lib, data, st) || resolve_horizon(lib, data, opt, &H, &S, &sd, st)) return st->code;
+    *err = forecast_error(lib, data, xi, mask, H, S, sd, opt->cap, &n);
+    if (segments) *segments = n;
+    return 0;
+}
+
+static int path_push(SelectPath *p, const SelectEntry *e, const uint8_t *mask, const double *xi) {
+    long w = (long)p->n_terms * p->d;
+    if (p->n == p->cap) {
+        int cap = p->cap ? 2 * p->cap : 16;
+        SelectEntry *ne = realloc(p->e, (size_t)cap * sizeof *ne);
+        if (ne) p->e = ne;
+        uint8_t *nm = realloc(p->mask, (size_t)cap * w);
+        if (nm) p->mask = nm;
+        double *nx = realloc(p->xi, (size_t)cap * w * sizeof *nx);
+        if (nx) p->xi = nx;
+        if (!ne || !nm || !nx) return -1;
+        p->cap = cap;
+    }
+    p->e[p->n] = *e;
+    memcpy(p->mask + p->n * w, mask, (size_t)w);
+    memcpy(p->xi + p->n * w, xi, (size_t)w * sizeof *xi);
+    p->n++;
+    return 0;
+}
+
+/* What scoring a candidate needs. */
+typedef struct {
+    const Library *lib;
+    const SelectData *D;
+    const SelectOptions *o;
+    const double *theta;        /* (N, T) the library on the data */
+    double tq;                  /* sum of squared targets */
+    int H, S;
+    double sd;
+    Status *st;
+} Ctx;
+
+static double score_of(const SelectOptions *o, double forecast, int active) {
+    return (forecast + o->abs_tol) * pow(1 + o->tol, active);
+}
+
+/* Refit the active set m by least squares (x receives the coefficients), score it and append it to
+ * the path unless the same set is there already. *idx: the candidate's index in the path (-1 for an
+ * empty set or a failed fit). */
+static int consider(Ctx *c, SelectPath *p, uint8_t *m, double *x, int level, double thr, int step, int *idx) {
+    const SelectData *D = c->D;
+    int T = c->lib->n_terms, d = D->d;
+    long w = (long)T * d;
+    *idx = -1;
+    long act = 0;
+    for (long i = 0; i < w; i++) act += m[i];
+    if (!act) return 0;
+    for (int k = 0; k < p->n; k++)
+        if (!memcmp(p->mask + k * w, m, (size_t)w)) {
+            *idx = k;
+            return 0;
+        }
+    ThreshLsqOptions lo = thresh_lsq_defaults();
+    lo.threshold = 0; /* a plain least-squares fit on the active set */
+    lo.max_iter = 0;
+    uint8_t *m2 = malloc((size_t)w);
+    if (!m2) return status_set(c->st, ST_RUNTIME, "out of memory");
+    Status s2;
+    int rc = thresh_lsq_fit(x, m2, c->theta, D->target, D->N, T, d, m, &lo, NULL, &s2);
+    free(m2);
+    if (rc) return rc == ST_INPUT ? status_set(c->st, ST_INPUT, "%s", s2.msg) : 0;
+    double rss = 0;
+    for (long i = 0; i < D->N; i++)
+        for (int j = 0; j < d; j++) {
+            double a = 0;
+            for (int t = 0; t < T; t++) a += c->theta[i * T + t] * x[(long)t * d + j];
+            double e = a - D->target[i * d + j];
+            rss += e * e;
+        }
+    SelectEntry e = {0};
+    e.active = (int)act;
+    e.level = level;
+    e.threshold = thr;
+    e.step = step;
+    e.fit = c->tq > 0 ? sqrt(rss / c->tq) : 0;
+    double n = (double)D->N * d, k = (double)act;
+    e.aicc = n * log(rss / n > 1e-300 ? rss / n : 1e-300) + 2 * k + (n - k - 1 > 0 ? 2 * k * (k + 1) / (n - k - 1) : INFINITY);
+    int nseg = 0;
+    e.forecast = forecast_error(c->lib, D, x, m, c->H, c->S, c->sd, c->o->cap, &nseg);
+    e.score = score_of(c->o, e.forecast, e.active);
+    p->segments = nseg;
+    if (path_push(p, &e, m, x)) return status_set(c->st, ST_RUNTIME, "out of memory");
+    *idx = p->n - 1;
+    return 0;
+}
+
+int select_law(const Library *lib, const SelectData *D, const uint8_t *allowed, const SelectOptions *o, double *xi,
+               uint8_t *mask, SelectPath *out, Status *st) {
+    int T = lib->n_terms, d = D->d, nv = lib->n_vars;
+    long w = (long)T * d;
+    if (o->n_grid < 1 || !(o->thr_min > 0) || !(o->thr_max >= o->thr_min) || !isfinite(o->thr_max))
+        return status_set(st, ST_INPUT, "selection: threshold grid of %d from %g to %g", o->n_grid, o->thr_min, o->thr_max);
+    if (!(o->tol >= 0) || !(o->abs_tol >= 0) || !(o->cap > 0) || o->horizon < 0 || o->stride < 0 || o->max_steps < 0)
+        return status_set(st, ST_INPUT, "selection: bad tolerances or segment settings");
+    int H, S;
+    double sd;
+    if (check_data(lib, D, st) || resolve_horizon(lib, D, o, &H, &S, &sd, st)) return st->code;
+    double *theta = malloc((size_t)D->N * T * sizeof *theta);
+    uint8_t *allow = malloc((size_t)w), *m = malloc((size_t)w);
+    double *x = malloc((size_t)w * sizeof *x);
+    SelectPath p = {0};
+    p.n_terms = T, p.d = d, p.horizon = H;
+    int rc = 0;
+    if (!theta || !allow || !m || !x) {
+        rc = status_set(st, ST_RUNTIME, "out of memory");
+        goto done;
+    }
+    for (long i = 0; i < D->N; i++) library_eval(lib, theta + i * T, D->state + i * nv, 1);
+    int max_deg = lib->spec.degree, top = max_deg + 1;
+    int have_trig = 0;
+    for (int t = 0; t < T; t++) have_trig |= term_level(&lib->terms[t], max_deg) == top;
+    if (!have_trig) top = max_deg;
+    double tq = 0;
+    for (long i = 0; i < D->N * d; i++) tq += D->target[i] * D->target[i];
+    Ctx ctx = {lib, D, o, theta, tq, H, S, sd, st};
+    for (int level = 1; level <= top; level++) {
+        int any = 0;
+        for (int t = 0; t < T; t++)
+            for (int j = 0; j < d; j++) {
+                int a = (!allowed || allowed[(long)t * d + j]) && term_level(&lib->terms[t], max_deg) <= level;
+                allow[(long)t * d + j] = (uint8_t)a;
+                any |= a;
+            }
+        if (!any) continue;
+        for (int g = 0; g < o->n_grid; g++) {
+            double thr = o->n_grid == 1 ? o->thr_min : o->thr_min * pow(o->thr_max / o->thr_min, (double)g / (o->n_grid - 1));
+            ThreshLsqOptions lo = thresh_lsq_defaults();
+            lo.threshold = thr;
+            lo.relative = 1;
+            Status s2;
+            if (thresh_lsq_fit(x, m, theta, D->target, D->N, T, d, allow, &lo, NULL, &s2)) {
+                if (s2.code == ST_INPUT) { rc = status_set(st, ST_INPUT, "%s", s2.msg); goto done; }
+                continue;
+            }
+            int idx;
+            if ((rc = consider(&ctx, &p, m, x, level, thr, 0, &idx))) goto done;
+        }
+    }
+    if (p.n == 0) {
+        rc = status_set(st, ST_RUNTIME, "selection: no candidate law has an active term (the targets may be all zero)");
+        goto done;
+    }
+    int pick = 0;
+    for (int c = 1; c < p.n; c++)
+        if (p.e[c].score < p.e[pick].score) pick = c;
+    /* stepwise: add or drop one term while the score falls */
+    for (int step = 1; step <= o->max_steps; step++) {
+        int best = pick;
+        for (long i = 0; i < w; i++) {
+            if (!(!allowed || allowed[i]) && !p.mask[pick * w + i]) continue;
+            memcpy(m, p.mask + pick * w, (size_t)w);
+            m[i] = !m[i];
+            int idx;
+            if ((rc = consider(&ctx, &p, m, x, 0, 0, step, &idx))) goto done;
+            if (idx >= 0 && p.e[idx].score < p.e[best].score) best = idx;
+        }
+        if (best == pick) break;
+        pick = best;
+    }
+    p.e[pick].chosen = 1;
+    memcpy(xi, p.xi + pick * w, (size_t)w * sizeof *xi);
+    memcpy(mask, p.mask + pick * w, (size_t)w);
+    status_ok(st);
+done:
+    free(theta), free(allow), free(m), free(x);
+    if (!rc && out) *out = p;
+    else select_path_free(&p);
+    return rc;
+}

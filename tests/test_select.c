@@ -1,0 +1,244 @@
+/* tests/test_select.c: model selection by integrated forecasts (sparse/select.h).
+ *
+ * The data are exact solutions with their exact derivatives, so the right law forecasts with an
+ * error at the integrator's rounding, and any other law does worse:
+ * - the damped linear oscillator z'' = -w0^2 z - 2 sigma z' (closed-form solution
+ *   z = exp(-sigma t) (A cos(wd t) + B sin(wd t)), wd = sqrt(w0^2 - sigma^2): any mechanics text,
+ *   e.g. Thornton and Marion, Classical Dynamics of Particles and Systems, 5th ed., 2004, sec. 3.5);
+ * - the same oscillator seen through a warped coordinate is not a law of the library, and the
+ *   selection still returns a law (the one that forecasts best, simplest within tolerance);
+ * - the Lorenz system (sigma 10, rho 28, beta 8/3, "Deterministic nonperiodic flow", Journal of the
+ *   Atmospheric Sciences, 1963), integrated finely by RK4 with the derivatives from the equations.
+ * Recording boundaries: two recordings whose junction would be a jump; forecasts that crossed it
+ * would show an error far above the integrator's. */
+#include "tests/testutil.h"
+
+#include "sparse/library.h"
+#include "sparse/select.h"
+
+enum { NREC = 4, NT = 200 };
+
+static void oscillator(double w0, double sg, double dt, double *state, double *target, long *rs) {
+    double wd = sqrt(w0 * w0 - sg * sg);
+    for (int r = 0; r < NREC; r++) {
+        double A = 0.5 + 0.4 * r, B = 0.3 - 0.2 * r;
+        rs[r] = (long)r * NT;
+        for (int i = 0; i < NT; i++) {
+            double t = i * dt, e = exp(-sg * t), c = cos(wd * t), s = sin(wd * t);
+            double z = e * (A * c + B * s);
+            double v = e * ((-sg * A + wd * B) * c + (-sg * B - wd * A) * s);
+            long k = (long)r * NT + i;
+            state[2 * k] = z, state[2 * k + 1] = v;
+            target[k] = -w0 * w0 * z - 2 * sg * v;
+        }
+    }
+    rs[NREC] = (long)NREC * NT;
+}
+
+static Library make_lib(int latent, int order, int degree, int trig) {
+    LibrarySpec sp = library_spec_default(latent, order);
+    sp.degree = degree;
+    sp.trig = trig;
+    Library lib;
+    Status st;
+    assert_int_equal(library_init(&lib, &sp, &st), 0);
+    return lib;
+}
+
+static void test_linear_oscillator(void **state_) {
+    (void)state_;
+    double dt = 0.04, w0 = 8.27, sg = 0.25;
+    static double state[2 * NREC * NT], target[NREC * NT];
+    long rs[NREC + 1];
+    oscillator(w0, sg, dt, state, target, rs);
+    Library lib = make_lib(1, 2, 3, 1);
+    SelectData D = {NREC * NT, 2, 1, state, target, NREC, rs, dt};
+    SelectOptions o = select_defaults();
+    double xi[64];
+    uint8_t mask[64];
+    SelectPath p;
+    Status st;
+    assert_int_equal(select_law(&lib, &D, NULL, &o, xi, mask, &p, &st), 0);
+    int iz = library_find(&lib, "z1"), iv = library_find(&lib, "dz1/dt");
+    long active = 0;
+    for (int t = 0; t < lib.n_terms; t++) active += mask[t];
+    assert_int_equal(active, 2);
+    assert_true(mask[iz] && mask[iv]);
+    /* exact derivatives: least squares recovers the coefficients to rounding */
+    assert_close(xi[iz], -w0 * w0, 1e-9, 1e-9);
+    assert_close(xi[iv], -2 * sg, 1e-9, 1e-9);
+    int chosen = -1;
+    for (int c = 0; c < p.n; c++)
+        if (p.e[c].chosen) chosen = c;
+    assert_true(chosen >= 0);
+    /* RK4 at h = dt / 4: phase error per step (w0 h)^5 / 120 (common practice for RK4 on an oscillator),
+     * 3e-8 here, 2.6e-5 after the 800 steps of a whole recording */
+    assert_true(p.e[chosen].forecast < 1e-4);
+    /* horizon: 3 periods of w_c = sqrt(rms(z'') / std(z)) at dt */
+    assert_true(p.horizon >= 8 && p.horizon <= NT);
+    select_path_free(&p);
+    library_free(&lib);
+}
+
+/* The same motion in the coordinate u = z + 0.3 z^2 (monotone on the data's range): no law of the
+ * library is exact. The selection must still pick the law of the smallest score among every
+ * candidate it reports, and no single added or dropped term may lower that score. */
+static void test_warped_coordinate(void **state_) {
+    (void)state_;
+    double dt = 0.04, w0 = 8.27, sg = 0.25;
+    static double state[2 * NREC * NT], target[NREC * NT];
+    long rs[NREC + 1];
+    oscillator(w0, sg, dt, state, target, rs);
+    for (long k = 0; k < NREC * NT; k++) { /* u = z + a z^2, u' = (1 + 2 a z) z', u'' = 2 a z'^2 + (1 + 2 a z) z'' */
+        double a = 0.3, z = state[2 * k], v = state[2 * k + 1], acc = target[k];
+        state[2 * k] = z + a * z * z;
+        state[2 * k + 1] = (1 + 2 * a * z) * v;
+        target[k] = 2 * a * v * v + (1 + 2 * a * z) * acc;
+    }
+    Library lib = make_lib(1, 2, 3, 0);
+    SelectData D = {NREC * NT, 2, 1, state, target, NREC, rs, dt};
+    SelectOptions o = select_defaults();
+    double xi[64];
+    uint8_t mask[64];
+    SelectPath p;
+    Status st;
+    assert_int_equal(select_law(&lib, &D, NULL, &o, xi, mask, &p, &st), 0);
+    int chosen = -1;
+    for (int c = 0; c < p.n; c++)
+        if (p.e[c].chosen) chosen = c;
+    assert_true(chosen >= 0);
+    for (int c = 0; c < p.n; c++) {
+        assert_close(p.e[c].score, (p.e[c].forecast + o.abs_tol) * pow(1 + o.tol, p.e[c].active), 0, 1e-12);
+        assert_true(p.e[chosen].score <= p.e[c].score);
+    }
+    /* every neighbour of the choice (one term more or less) was scored and is no better */
+    for (int t = 0; t < lib.n_terms; t++) {
+        int found = 0;
+        for (int c = 0; c < p.n && !found; c++) {
+            int diff = 0;
+            for (int u = 0; u < lib.n_terms; u++) diff += p.mask[c * lib.n_terms + u] != p.mask[chosen * lib.n_terms + u];
+            found = diff == 1 && p.mask[c * lib.n_terms + t] != p.mask[chosen * lib.n_terms + t];
+        }
+        int empty = p.e[chosen].active == 1 && p.mask[chosen * lib.n_terms + t];
+        assert_true(found || empty);
+    }
+    select_path_free(&p);
+    library_free(&lib);
+}
+
+static void lorenz(const double *y, double *f) {
+    f[0] = 10 * (y[1] - y[0]);
+    f[1] = y[0] * (28 - y[2]) - y[1];
+    f[2] = y[0] * y[1] - 8.0 / 3.0 * y[2];
+}
+
+static void test_lorenz(void **state_) {
+    (void)state_;
+    enum { R = 3, N = 300 };
+    double dt = 0.01;
+    static double state[3 * R * N], target[3 * R * N];
+    long rs[R + 1];
+    for (int r = 0; r < R; r++) {
+        double y[3] = {1.0 + 3 * r, 1.0 - 2 * r, 20.0 + r}, k1[3], k2[3], k3[3], k4[3], tmp[3];
+        for (int i = 0; i < 500; i++) { /* onto the attractor, h = dt / 10 */
+            double h = dt / 10;
+            lorenz(y, k1);
+            for (int j = 0; j < 3; j++) tmp[j] = y[j] + h / 2 * k1[j];
+            lorenz(tmp, k2);
+            for (int j = 0; j < 3; j++) tmp[j] = y[j] + h / 2 * k2[j];
+            lorenz(tmp, k3);
+            for (int j = 0; j < 3; j++) tmp[j] = y[j] + h * k3[j];
+            lorenz(tmp, k4);
+            for (int j = 0; j < 3; j++) y[j] += h / 6 * (k1[j] + 2 * k2[j] + 2 * k3[j] + k4[j]);
+        }
+        rs[r] = (long)r * N;
+        for (int i = 0; i < N; i++) {
+            long k = (long)r * N + i;
+            memcpy(state + 3 * k, y, sizeof y);
+            lorenz(y, target + 3 * k);
+            for (int s = 0; s < 10; s++) {
+                double h = dt / 10;
+                lorenz(y, k1);
+                for (int j = 0; j < 3; j++) tmp[j] = y[j] + h / 2 * k1[j];
+                lorenz(tmp, k2);
+                for (int j = 0; j < 3; j++) tmp[j] = y[j] + h / 2 * k2[j];
+                lorenz(tmp, k3);
+                for (int j = 0; j < 3; j++) tmp[j] = y[j] + h * k3[j];
+                lorenz(tmp, k4);
+                for (int j = 0; j < 3; j++) y[j] += h / 6 * (k1[j] + 2 * k2[j] + 2 * k3[j] + k4[j]);
+            }
+        }
+    }
+    rs[R] = (long)R * N;
+    Library lib = make_lib(3, 1, 2, 0);
+    SelectData D = {R * N, 3, 3, state, target, R, rs, dt};
+    SelectOptions o = select_defaults();
+    o.horizon = 50; /* half a time unit: chaos separates longer forecasts whatever the law */
+    double xi[64 * 3];
+    uint8_t mask[64 * 3];
+    Status st;
+    assert_int_equal(select_law(&lib, &D, NULL, &o, xi, mask, NULL, &st), 0);
+    const char *terms[7][2] = {{"z1", "0"}, {"z2", "0"}, {"z1", "1"}, {"z2", "1"}, {"z1 z3", "1"}, {"z1 z2", "2"}, {"z3", "2"}};
+    const double want[7] = {-10, 10, 28, -1, -1, 1, -8.0 / 3.0};
+    long active = 0;
+    for (int i = 0; i < lib.n_terms * 3; i++) active += mask[i];
+    assert_int_equal(active, 7);
+    for (int k = 0; k < 7; k++) {
+        int t = library_find(&lib, terms[k][0]), j = terms[k][1][0] - '0';
+        assert_true(t >= 0);
+        assert_true(mask[t * 3 + j]);
+        /* derivatives exact, states from RK4 at h = 1e-3: coefficients to 1e-6 relative */
+        assert_close(xi[t * 3 + j], want[k], 1e-6, 1e-6);
+    }
+    library_free(&lib);
+}
+
+static void test_boundaries_and_bad_input(void **state_) {
+    (void)state_;
+    double dt = 0.04, w0 = 8.27, sg = 0.25;
+    static double state[2 * NREC * NT], target[NREC * NT];
+    long rs[NREC + 1];
+    oscillator(w0, sg, dt, state, target, rs);
+    Library lib = make_lib(1, 2, 1, 0);
+    double xi[3] = {0, -w0 * w0, -2 * sg};
+    uint8_t mask[3] = {0, 1, 1};
+    SelectData D = {NREC * NT, 2, 1, state, target, NREC, rs, dt};
+    SelectOptions o = select_defaults();
+    o.horizon = NT; /* whole recordings: each segment starts where a recording starts */
+    double err;
+    int nseg;
+    Status st;
+    assert_int_equal(select_forecast_error(&lib, &D, xi, mask, &o, &err, &nseg, &st), 0);
+    assert_int_equal(nseg, NREC);
+    assert_true(err < 1e-4); /* RK4's phase error, as above */
+    /* one long recording made of the four: a segment that crosses a junction meets a jump */
+    long one[2] = {0, NREC * NT};
+    SelectData J = {NREC * NT, 2, 1, state, target, 1, one, dt};
+    o.stride = NT / 2;
+    assert_int_equal(select_forecast_error(&lib, &J, xi, mask, &o, &err, &nseg, &st), 0);
+    assert_true(err > 1e-3);
+    /* bad input */
+    o = select_defaults();
+    o.horizon = NT + 1;
+    uint8_t m2[3];
+    assert_int_equal(select_law(&lib, &D, NULL, &o, xi, m2, NULL, &st), ST_INPUT);
+    assert_non_null(strstr(st.msg, "does not fit"));
+    o = select_defaults();
+    o.n_grid = 0;
+    assert_int_equal(select_law(&lib, &D, NULL, &o, xi, m2, NULL, &st), ST_INPUT);
+    long bad[NREC + 1] = {0, 10, 5, 20, NREC * NT};
+    SelectData B = {NREC * NT, 2, 1, state, target, NREC, bad, dt};
+    o = select_defaults();
+    assert_int_equal(select_law(&lib, &B, NULL, &o, xi, m2, NULL, &st), ST_INPUT);
+    library_free(&lib);
+}
+
+int main(void) {
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_linear_oscillator),
+        cmocka_unit_test(test_warped_coordinate),
+        cmocka_unit_test(test_lorenz),
+        cmocka_unit_test(test_boundaries_and_bad_input),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
