@@ -80,7 +80,7 @@ static HeapItem heap_pop(HeapItem *h, long *size) {
 
 /* ---- the embedding ----------------------------------------------------------------------------- */
 
-int isomap_embed(const float *X, long n, long dim, int d, int k, double *Y, int *k_used, Status *st) {
+int isomap_embed(const float *X, long n, long dim, int d, int k, double *Y, int *k_used, int *bridges, Status *st) {
     if (d > 64) return status_set(st, ST_INPUT, "isomap: at most 64 dimensions (asked %d)", d);
     if (d < 1 || n < d + 2) return status_set(st, ST_INPUT, "isomap: %ld samples for %d dimensions", n, d);
     int kmax = ISOMAP_KMAX < n - 1 ? ISOMAP_KMAX : (int)(n - 1);
@@ -104,13 +104,31 @@ int isomap_embed(const float *X, long n, long dim, int d, int k, double *Y, int 
     nn_free(Xd);
     /* the kmax nearest of each sample (itself excluded) */
     for (long i = 0; i < n; i++) nearest(D + i * n, n, i, kmax, nbr + i * kmax, sq); /* sq: scratch */
+    long bi[ISOMAP_MAX_BRIDGES], bj[ISOMAP_MAX_BRIDGES]; /* extra edges that join separate groups */
+    int nb = 0;
     if (k == 0) {
         for (k = 4; k <= kmax && components(nbr, n, kmax, k, parent) > 1; k++) {}
         if (k > kmax) {
-            rc = status_set(st, ST_INPUT,
-                            "isomap: the %d-nearest-neighbour graph of the %ld samples is still in %ld pieces", kmax,
-                            n, components(nbr, n, kmax, kmax, parent));
-            goto out;
+            /* separate groups of samples (recordings that never pass through the same states): keep the
+             * neighbours of ISOMAP_KBRIDGE and join the groups, nearest pair first, by the shortest edge
+             * between two of them (a minimum spanning tree over the groups) */
+            k = ISOMAP_KBRIDGE < kmax ? ISOMAP_KBRIDGE : kmax;
+            long groups = components(nbr, n, kmax, k, parent);
+            if (groups - 1 > ISOMAP_MAX_BRIDGES) {
+                rc = status_set(st, ST_INPUT, "isomap: the samples form %ld separate groups (at most %d can be joined)",
+                                groups, ISOMAP_MAX_BRIDGES + 1);
+                goto out;
+            }
+            while (groups > 1) {
+                double best = INFINITY;
+                long a = -1, b = -1;
+                for (long i = 0; i < n; i++)
+                    for (long j = i + 1; j < n; j++)
+                        if (D[i * n + j] < best && find(parent, i) != find(parent, j)) best = D[i * n + j], a = i, b = j;
+                bi[nb] = a, bj[nb] = b, nb++;
+                parent[find(parent, a)] = find(parent, b);
+                groups--;
+            }
         }
     } else if (components(nbr, n, kmax, k, parent) > 1) {
         rc = status_set(st, ST_INPUT, "isomap: the %d-nearest-neighbour graph of the %ld samples is in %ld pieces", k, n,
@@ -118,11 +136,13 @@ int isomap_embed(const float *X, long n, long dim, int d, int k, double *Y, int 
         goto out;
     }
     *k_used = k;
+    if (bridges) *bridges = nb;
     {
         /* symmetrised adjacency: i -> its k nearest, and j -> i whenever i lists j */
         long *deg = nn_calloc((size_t)n + 1, sizeof(long));
         for (long i = 0; i < n; i++)
             for (int a = 0; a < k; a++) deg[i + 1]++, deg[nbr[i * kmax + a] + 1]++;
+        for (int e = 0; e < nb; e++) deg[bi[e] + 1]++, deg[bj[e] + 1]++;
         for (long i = 0; i < n; i++) deg[i + 1] += deg[i];
         long m = deg[n], *fill = nn_alloc((size_t)n * sizeof(long)), *adj = nn_alloc((size_t)m * sizeof(long));
         double *len = nn_alloc((size_t)m * sizeof(double));
@@ -134,6 +154,12 @@ int isomap_embed(const float *X, long n, long dim, int d, int k, double *Y, int 
                 adj[fill[i]] = j, len[fill[i]++] = l;
                 adj[fill[j]] = i, len[fill[j]++] = l;
             }
+        for (int e = 0; e < nb; e++) {
+            long i = bi[e], j = bj[e];
+            double l = sqrt(D[i * n + j]);
+            adj[fill[i]] = j, len[fill[i]++] = l;
+            adj[fill[j]] = i, len[fill[j]++] = l;
+        }
         HeapItem *heap = nn_alloc((size_t)(m + 1) * sizeof(HeapItem));
         for (long s = 0; s < n; s++) {
             double *dist = S + s * n;

@@ -20,10 +20,17 @@
 #include "nn/core.h"
 
 #define ISOMAP_KMAX 32
+#define ISOMAP_KBRIDGE 8        /* k = 0 and no k up to ISOMAP_KMAX connects: neighbours kept */
+#define ISOMAP_MAX_BRIDGES 64   /* groups that can be joined, less one */
 
-/* ST_INPUT when n < d + 2 or d < 1, when the graph is not connected at k (or at any k up to
- * ISOMAP_KMAX for k = 0), or when the geodesic distances have fewer than d positive directions;
- * ST_RUNTIME when LAPACK fails. */
-int isomap_embed(const float *X, long n, long dim, int d, int k, double *Y, int *k_used, Status *st);
+/* k = 0 and the graph still in pieces at ISOMAP_KMAX neighbours (separate groups of samples, such as
+ * recordings that never pass through the same states): the graph of ISOMAP_KBRIDGE neighbours is
+ * kept and its groups are joined by the shortest edges between them, nearest groups first (the
+ * minimum spanning tree over the groups; *bridges, when not NULL, receives their number, else 0),
+ * so that geodesic distances across groups run through their closest samples.
+ * ST_INPUT when n < d + 2 or d < 1, when the graph is not connected at a k given by the caller, when
+ * there are more than ISOMAP_MAX_BRIDGES + 1 groups, or when the geodesic distances have fewer than
+ * d positive directions; ST_RUNTIME when LAPACK fails. */
+int isomap_embed(const float *X, long n, long dim, int d, int k, double *Y, int *k_used, int *bridges, Status *st);
 
 #endif

@@ -55,7 +55,7 @@ static int osc_gather(void *ctx, int split, const int64_t *idx, int B, float *X,
 }
 
 static TrainData osc_dataset(Osc *o) {
-    TrainData ds = {NCH, 2, (long)(NREC - 1) * NT, NT, o->dt, osc_gather, o, NULL};
+    TrainData ds = {NCH, 2, (long)(NREC - 1) * NT, NT, o->dt, osc_gather, o, NULL, NULL};
     return ds;
 }
 
@@ -350,7 +350,7 @@ static void ring_config(Config *c, const char *dir, const char *init) {
     c->init_epochs = 300;
 }
 
-static const TrainData RING_DATA = {RING, 2, RING_N, 0, 0.01, ring_gather, NULL, NULL};
+static const TrainData RING_DATA = {RING, 2, RING_N, 0, 0.01, ring_gather, NULL, NULL, NULL};
 
 static double ring_rank_correlation(const char *init) {
     char dir[256];

@@ -153,7 +153,9 @@ int store_writer_open(StoreWriter **out, const char *path, const StoreLayout *la
     w->frame_bytes = (size_t)lay->width * (size_t)lay->height * (size_t)store_elem_size(lay->elem);
     if (atomic_open(&w->af, path, st)) {
         free(w);
-        return status_set(st, ST_RUNTIME, "%s (set the store path to a writable place)", st->msg);
+        char why[sizeof st->msg]; /* never format a status message into itself */
+        snprintf(why, sizeof why, "%s", st->msg);
+        return status_set(st, ST_RUNTIME, "%s (set the store path to a writable place)", why);
     }
     static const unsigned char zeros[STORE_PAYLOAD_ALIGN];
     if (fwrite(zeros, 1, sizeof zeros, w->af.f) != sizeof zeros) {

@@ -205,10 +205,11 @@ static const KeyDef keys[] = {
           "time; contribution = |Xi| rms(term) / rms(z' or z'') over the training set (the L1 term over the "
           "batch), the share of the target a term carries, the same in any units"),
     K_STR("threshold.select", threshold_select, "\"none\"", "none|first|every",
-           "first (every): the first (every) thresholding pass selects the law instead, from the whole library: candidate laws from thresholded least squares "
-           "on the encoded training set (nested libraries, a grid of contribution thresholds) are integrated "
-           "over segments of the training recordings, and the simplest one that forecasts within 10% of the "
-           "best is kept (docs/training.md)"),
+          "first: the law is selected once, on the latent of the start-up before joint training; every: then "
+          "again at every thresholding pass, in place of pruning. Selection: candidate laws from thresholded "
+          "least squares on the encoded training set (nested libraries, a grid of contribution thresholds) "
+          "are integrated over segments of the training recordings and scored by forecast error and number "
+          "of terms (docs/training.md)"),
     K_INT("threshold.every", threshold_every, "500", 1, NOMAX, NULL, "epochs between thresholding passes"),
     K_INT("threshold.refine_epochs", refine_epochs, "1000", 0, NOMAX, NULL,
           "the last epochs: mask fixed, no L1, no thresholding; < train.epochs"),

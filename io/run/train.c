@@ -461,7 +461,7 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, const Tr
     float *F = malloc((size_t)N * n * sizeof *F), *Yf = malloc((size_t)N * d * sizeof *Yf);
     double *Y = malloc((size_t)N * d * sizeof *Y);
     int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
-    int rc = 0, k_used = 0;
+    int rc = 0, k_used = 0, bridges = 0;
     double t0 = clock_seconds();
     if (!F || !Yf || !Y || !idx) {
         rc = status_set(st, ST_RUNTIME, "out of memory");
@@ -476,11 +476,16 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, const Tr
         memcpy(F + s0 * n, X, (size_t)B * n * sizeof *F);
     }
     if (!quiet) fprintf(stderr, "framelaw: isomap of %ld frames in %d dimension%s...", N, d, d > 1 ? "s" : "");
-    if ((rc = isomap_embed(F, N, n, d, 0, Y, &k_used, st))) {
+    if ((rc = isomap_embed(F, N, n, d, 0, Y, &k_used, &bridges, st))) {
         if (!quiet) fprintf(stderr, "\n");
-        status_set(st, st->code, "model.init isomap: %s (model.init pca avoids it)", st->msg);
+        char why[sizeof st->msg]; /* never format a status message into itself */
+        snprintf(why, sizeof why, "%s", st->msg);
+        status_set(st, st->code, "model.init isomap: %s (model.init pca avoids it)", why);
         goto done;
     }
+    if (bridges && !quiet)
+        fprintf(stderr, " the frames form %d separate groups (recordings that never pass through the same states), "
+                "joined at their closest frames;", bridges + 1);
     for (long i = 0; i < N * d; i++) Yf[i] = (float)Y[i];
     double var = 0; /* per-value variance of the embedded frames: the decoder term's scale */
     for (long j = 0; j < n; j++) {
@@ -622,6 +627,15 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     }
     Tape t;
     tape_init(&t, 256, (size_t)64 << 20);
+    /* threshold.select: the law is first chosen on the latent of the start-up, before joint training
+     * can bend the latent towards the dense law of the whole library */
+    if (fresh && strcmp(c->threshold_select, "none") && (rc = select_pass(&r, ds, &t, X, B, o->quiet, st))) {
+        tape_free(&t);
+        runlog_close(&log);
+        nn_free(X);
+        nn_free(r.order);
+        return rc;
+    }
     AdamCfg ad = {(float)c->lr, (float)c->beta1, (float)c->beta2, (float)c->eps};
     long refine_from = c->epochs - c->refine_epochs; /* first epoch of the refinement phase */
     int tty = isatty(fileno(stderr));
@@ -690,8 +704,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
             if (c->warmup_fit && (rc = warmup_fit(&r, ds, &t, X, B, o->quiet, st))) goto out;
         }
         if (!refine && !warm && c->threshold_every > 0 && done % c->threshold_every == 0 && done <= refine_from) {
-            if (!strcmp(c->threshold_select, "every") ||
-                (!strcmp(c->threshold_select, "first") && r.meta.n_thresholds == 0)) {
+            if (!strcmp(c->threshold_select, "every")) {
                 if ((rc = select_pass(&r, ds, &t, X, B, o->quiet, st))) goto out;
             } else if (!strcmp(c->threshold_measure, "contribution")) {
                 if ((rc = threshold_contribution(&r, ds, &t, X, B, st))) goto out;
