@@ -29,7 +29,7 @@ LIB_OBJ  := $(LIB_SRC:%.c=$(BUILD)/%.o)
 TEST_BIN := $(TEST_SRC:tests/%.c=$(BUILD)/tests/%)
 BENCH_BIN:= $(BENCH_SRC:tests/%.c=$(BUILD)/tests/%)
 
-.PHONY: all deps test test-bin sanitize bench demo clean check-deps check-slurm check-discovery
+.PHONY: all deps test test-bin sanitize bench demo clean check-deps check-slurm check-discovery check-battery
 all: framelaw
 
 framelaw: $(BUILD)/framelaw
@@ -117,6 +117,14 @@ DISCOVERY_MIN_CONVECTION ?= 2
 check-discovery: deps framelaw
 	SEEDS="$(DISCOVERY_SEEDS)" MIN_PASS_LANTERN=$(DISCOVERY_MIN_LANTERN) \
 	  MIN_PASS_CONVECTION=$(DISCOVERY_MIN_CONVECTION) FRAMELAW=$(CURDIR)/framelaw bash tests/discovery/check.sh
+
+# The battery (docs/battery.md): every scenario trained with its template config (data.frames, data.fps,
+# model.latent, model.order only) over SEEDS, each run checked by `framelaw verify`; prints a table.
+# BATTERY_MIN sets the seeds each scenario must pass (0: report only); BATTERY_SET adds --set overrides.
+SEEDS ?= 1 2 3 4 5
+BATTERY_MIN ?= 0
+check-battery: deps framelaw
+	SEEDS="$(SEEDS)" MIN_PASS=$(BATTERY_MIN) FRAMELAW=$(CURDIR)/framelaw bash tests/battery/check.sh
 
 clean:
 	rm -rf build build-san framelaw

@@ -158,3 +158,87 @@ int verify_lyapunov(OdeFn f, void *ctx, int n, const double *y0, double t_transi
     *lambda = sum / ((double)blocks * (double)per * h);
     return 0;
 }
+
+/* Central-difference Jacobian J (n, n), row i the derivatives of f_i. */
+static void jacobian(OdeFn f, void *ctx, int n, const double *y, double *J) {
+    double yp[VMAX], fp[VMAX], fm[VMAX];
+    for (int j = 0; j < n; j++) {
+        double e = 1e-6 * (1 + fabs(y[j]));
+        memcpy(yp, y, (size_t)n * sizeof *yp);
+        yp[j] = y[j] + e;
+        f(0, yp, fp, ctx);
+        yp[j] = y[j] - e;
+        f(0, yp, fm, ctx);
+        for (int i = 0; i < n; i++) J[i * n + j] = (fp[i] - fm[i]) / (2 * e);
+    }
+}
+
+/* LAPACK (Fortran calling convention): LU factorisation and solve; general eigenvalues. */
+extern void dgesv_(const int *n, const int *nrhs, double *a, const int *lda, int *ipiv, double *b, const int *ldb,
+                   int *info);
+extern void dgeev_(const char *jobvl, const char *jobvr, const int *n, double *a, const int *lda, double *wr,
+                   double *wi, double *vl, const int *ldvl, double *vr, const int *ldvr, double *work,
+                   const int *lwork, int *info);
+
+int verify_fixed_point(OdeFn f, void *ctx, int n, const double *y0, double *y, Status *st) {
+    if (n < 1 || n > VMAX) return status_set(st, ST_INPUT, "verify: %d state values (1 to %d)", n, VMAX);
+    double J[VMAX * VMAX], Jt[VMAX * VMAX], r[VMAX];
+    int ipiv[VMAX];
+    memcpy(y, y0, (size_t)n * sizeof *y);
+    f(0, y, r, ctx);
+    double r0 = 0, rn = 0;
+    for (int i = 0; i < n; i++) r0 = fmax(r0, fabs(r[i]));
+    for (int it = 0; it < 50; it++) {
+        f(0, y, r, ctx);
+        rn = 0;
+        for (int i = 0; i < n; i++) rn = fmax(rn, fabs(r[i]));
+        if (!finite_state(y, n) || !isfinite(rn)) break;
+        if (rn <= 1e-9 * (1 + r0)) return 0;
+        jacobian(f, ctx, n, y, J);
+        for (int i = 0; i < n; i++) /* column-major for LAPACK */
+            for (int j = 0; j < n; j++) Jt[j * n + i] = J[i * n + j];
+        int one = 1, info = 0;
+        dgesv_(&n, &one, Jt, &n, ipiv, r, &n, &info);
+        if (info != 0) return status_set(st, ST_RUNTIME, "verify: the Jacobian is singular at the Newton iterate");
+        for (int i = 0; i < n; i++) y[i] -= r[i];
+    }
+    return status_set(st, ST_RUNTIME, "verify: no fixed point found near the start (residual %.3g)", rn);
+}
+
+int verify_jacobian_eigs(OdeFn f, void *ctx, int n, const double *y, double *re, double *im, Status *st) {
+    if (n < 1 || n > VMAX) return status_set(st, ST_INPUT, "verify: %d state values (1 to %d)", n, VMAX);
+    double J[VMAX * VMAX], Jt[VMAX * VMAX], work[8 * VMAX], dummy[1];
+    jacobian(f, ctx, n, y, J);
+    for (int i = 0; i < n; i++)
+        for (int j = 0; j < n; j++) Jt[j * n + i] = J[i * n + j];
+    int one = 1, lwork = 8 * VMAX, info = 0;
+    dgeev_("N", "N", &n, Jt, &n, re, im, dummy, &one, dummy, &one, work, &lwork, &info);
+    if (info != 0) return status_set(st, ST_RUNTIME, "verify: LAPACK dgeev failed (info %d)", info);
+    for (int a = 1; a < n; a++) /* insertion sort by (im, re) */
+        for (int b = a; b > 0 && (im[b] < im[b - 1] || (im[b] == im[b - 1] && re[b] < re[b - 1])); b--) {
+            double t = re[b]; re[b] = re[b - 1], re[b - 1] = t;
+            t = im[b], im[b] = im[b - 1], im[b - 1] = t;
+        }
+    return 0;
+}
+
+int verify_cycle(OdeFn f, void *ctx, int n, const double *y0, int i, double t_settle, double t_measure, double h,
+                 double *period, double *range, Status *st) {
+    if (n > VMAX || i < 0 || i >= n || !(h > 0) || !(t_settle >= 0) || !(t_measure > 0))
+        return status_set(st, ST_INPUT, "verify: bad arguments (n %d, component %d, step %g)", n, i, h);
+    double y[VMAX];
+    memcpy(y, y0, (size_t)n * sizeof *y);
+    long skip = (long)ceil(t_settle / h);
+    for (long k = 0; k < skip; k++) {
+        rk4(f, ctx, n, (double)k * h, y, h);
+        if (!finite_state(y, n)) return status_set(st, ST_RUNTIME, "verify: the state became non-finite at t = %g", (double)(k + 1) * h);
+    }
+    double *v;
+    long cnt;
+    if (trace(f, ctx, n, y, i, t_measure, h, &v, &cnt, st)) return st->code;
+    double lo = v[0], hi = v[0];
+    for (long k = 1; k < cnt; k++) lo = fmin(lo, v[k]), hi = fmax(hi, v[k]);
+    free(v);
+    *range = hi - lo;
+    return verify_period(f, ctx, n, y, i, t_measure, h, period, st);
+}

@@ -44,4 +44,21 @@ int verify_decay_rate(OdeFn f, void *ctx, int n, const double *y0, int i, double
 int verify_lyapunov(OdeFn f, void *ctx, int n, const double *y0, double t_transient, double t_total, double h,
                     double renorm, double *lambda, Status *st);
 
+/* A fixed point of y' = f(y) near y0 by Newton's method with a central-difference Jacobian (step
+ * 1e-6 (1 + |y_i|)): y (n) receives it. ST_RUNTIME when it does not converge to |f| <= 1e-9 (1 +
+ * |f(y0)|) within 50 iterations, or the Jacobian is singular. */
+int verify_fixed_point(OdeFn f, void *ctx, int n, const double *y0, double *y, Status *st);
+
+/* Eigenvalues (re, im: n each) of the Jacobian of f at y (central differences as above), by LAPACK
+ * dgeev; sorted by imaginary part, then real part. ST_RUNTIME when LAPACK fails. The linearisation
+ * of a law at a fixed point does not depend on the coordinates: a smooth change of variables turns
+ * the Jacobian into a similar matrix (common practice: the Hartman-Grobman setting). */
+int verify_jacobian_eigs(OdeFn f, void *ctx, int n, const double *y, double *re, double *im, Status *st);
+
+/* Period and size of the cycle a trajectory from y0 settles on: integrate t_settle, then measure the
+ * mean period of y[i] over t_measure (as verify_period) and the peak-to-peak range of y[i] over that
+ * time (*range). ST_RUNTIME when the state blows up or does not oscillate. */
+int verify_cycle(OdeFn f, void *ctx, int n, const double *y0, int i, double t_settle, double t_measure, double h,
+                 double *period, double *range, Status *st);
+
 #endif

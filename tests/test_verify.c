@@ -108,6 +108,74 @@ static void test_failures_are_reported(void **state) {
     assert_non_null(strstr(st.msg, "no oscillation"));
 }
 
+/* Fixed points and their eigenvalues of the Lorenz system (closed forms from the equations, as in
+ * the 1963 paper: C+- = (+-sqrt(beta (rho - 1)), +-sqrt(beta (rho - 1)), rho - 1); at the origin the
+ * eigenvalues are -beta and (-(sigma + 1) +- sqrt((sigma + 1)^2 + 4 sigma (rho - 1))) / 2), and of the
+ * damped pendulum at rest (-c/2 +- i sqrt(g/L - c^2/4)). The Jacobian is by central differences:
+ * 1e-6 relative agreement is its truncation and rounding. */
+static void test_fixed_points_and_eigenvalues(void **state) {
+    (void)state;
+    const double beta = 8.0 / 3.0, q = sqrt(beta * 27);
+    double y0[3] = {q + 0.7, q - 0.4, 27.5}, y[3], re[3], im[3];
+    Status st;
+    assert_int_equal(verify_fixed_point(lorenz, NULL, 3, y0, y, &st), 0);
+    assert_close(y[0], q, 1e-9, 1e-9);
+    assert_close(y[1], q, 1e-9, 1e-9);
+    assert_close(y[2], 27, 1e-9, 1e-9);
+    double o[3] = {0, 0, 0};
+    assert_int_equal(verify_jacobian_eigs(lorenz, NULL, 3, o, re, im, &st), 0);
+    double disc = sqrt(11.0 * 11.0 + 4 * 10 * 27), ev[3] = {(-11 - disc) / 2, -beta, (-11 + disc) / 2};
+    for (int k = 0; k < 3; k++) assert_close(im[k], 0, 1e-9, 0);
+    /* all real: sorted by the real part */
+    for (int k = 0; k < 3; k++) assert_close(re[k], ev[k], 1e-6, 1e-6);
+    Pend p = {G / L, 0.1};
+    double r0[2] = {0.3, -0.2}, r[2];
+    assert_int_equal(verify_fixed_point(pendulum, &p, 2, r0, r, &st), 0);
+    assert_close(r[0], 0, 1e-9, 0);
+    assert_int_equal(verify_jacobian_eigs(pendulum, &p, 2, r, re, im, &st), 0);
+    assert_close(re[1], -0.05, 1e-6, 1e-6);
+    assert_close(im[1], sqrt(G / L - 0.0025), 1e-6, 1e-6);
+    assert_close(im[0], -sqrt(G / L - 0.0025), 1e-6, 1e-6);
+}
+
+typedef struct {
+    double mu;
+} Vdp;
+
+static void vdp(double t, const double *y, double *dy, void *ctx) {
+    (void)t;
+    const Vdp *v = ctx;
+    dy[0] = y[1];
+    dy[1] = v->mu * (1 - y[0] * y[0]) * y[1] - y[0];
+}
+
+/* The van der Pol limit cycle for mu = 1: its period from SciPy (tests/reference/vdp_period.txt,
+ * written by make_vdp_period.py; 6.6633 is also the value usually quoted, from memory), reached from
+ * inside and from outside with the same range (the cycle's x runs from about -2 to 2). RK4 at
+ * h = 1e-3 over 40 cycles: 1e-6 on the period. */
+static void test_limit_cycle(void **state) {
+    (void)state;
+    char *txt = test_slurp("tests/reference/vdp_period.txt");
+    if (!txt) fail_msg("tests/reference/vdp_period.txt not found (run the tests from the project root)");
+    const char *line = strchr(txt, '\n');
+    double want = atof(line ? line + 1 : txt);
+    free(txt);
+    assert_close(want, 6.6633, 1e-4, 0);
+    Vdp v = {1.0};
+    double a[2] = {0.2, 0}, b[2] = {3.0, 0}, pa, pb, ra, rb;
+    Status st;
+    assert_int_equal(verify_cycle(vdp, &v, 2, a, 0, 100, 60, 1e-3, &pa, &ra, &st), 0);
+    assert_int_equal(verify_cycle(vdp, &v, 2, b, 0, 100, 60, 1e-3, &pb, &rb, &st), 0);
+    assert_close(pa, want, 1e-5, 0);
+    assert_close(pb, want, 1e-5, 0);
+    assert_close(ra, rb, 1e-3, 0);
+    assert_close(ra / 2, 2.0, 0.02, 0); /* amplitude about 2 (common practice), 2.0086 */
+    /* a damped oscillator has no cycle: it settles, and no crossings are left to time */
+    Pend p = {G / L, 3.0};
+    double c0[2] = {0.5, 0}, pc, rc;
+    assert_int_equal(verify_cycle(pendulum, &p, 2, c0, 0, 30, 10, 1e-3, &pc, &rc, &st), ST_RUNTIME);
+}
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_pendulum_periods),
@@ -115,6 +183,8 @@ int main(void) {
         cmocka_unit_test(test_pendulum_decay),
         cmocka_unit_test(test_lyapunov),
         cmocka_unit_test(test_failures_are_reported),
+        cmocka_unit_test(test_fixed_points_and_eigenvalues),
+        cmocka_unit_test(test_limit_cycle),
     };
     return cmocka_run_group_tests_name("coordinate-free checks", tests, NULL, NULL);
 }

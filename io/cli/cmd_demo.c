@@ -18,6 +18,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "demo/battery.h"
 #include "demo/convection.h"
 #include "demo/lantern.h"
 #include "io/fs/atomic_file.h"
@@ -40,7 +41,8 @@ static const int def_frames[SC_COUNT] = {300, 1000};
 #define DEF_SEED 1ULL
 
 typedef struct {
-    Scenario sc;
+    Scenario sc;                    /* SC_COUNT for a battery scenario */
+    const BatteryScenario *bat;     /* the battery scenario (docs/battery.md), or NULL */
     const char *out_dir;
     int size, recordings, frames;
     double noise;
@@ -58,10 +60,14 @@ static void demo_usage(FILE *f) {
             "scenarios:\n",
             DEMO_SUBSTEPS);
     for (int s = 0; s < SC_COUNT; s++) fprintf(f, "  %-12s %s\n", scenario_names[s], scenario_about[s]);
+    for (int b = 0; b < battery_count; b++)
+        fprintf(f, "  %-12s %s\n               (%d px, %d recordings of %d frames)\n", battery_scenarios[b].name,
+                battery_scenarios[b].about, battery_scenarios[b].def_size, battery_scenarios[b].def_recordings,
+                battery_scenarios[b].def_frames);
     fprintf(f,
-            "\noptions (default in brackets, lantern | convection):\n"
-            "  --size N          lantern: frame side in pixels; convection: frame height, each\n"
-            "                    panel round(1.414 N) wide                            [%d | %d]\n"
+            "\noptions (default in brackets, lantern | convection; the battery's are listed above):\n"
+            "  --size N          lantern and the battery: frame side in pixels; convection: frame\n"
+            "                    height, each panel round(1.414 N) wide               [%d | %d]\n"
             "  --recordings N    number of recordings                                 [%d | %d]\n"
             "  --frames N        frames per recording                                 [%d | %d]\n"
             "  --noise SIGMA     Gaussian sensor noise, standard deviation as a\n"
@@ -140,12 +146,27 @@ static int parse_args(int argc, char **argv, DemoSettings *s) {
         return cli_error(2, "demo: needs SCENARIO and OUT_DIR");
     }
     s->sc = SC_COUNT;
+    s->bat = battery_find(pos[0]);
     for (int k = 0; k < SC_COUNT; k++)
         if (!strcmp(pos[0], scenario_names[k])) s->sc = (Scenario)k;
-    if (s->sc == SC_COUNT) return cli_error(2, "demo: unknown scenario '%s' (known: lantern, convection)", pos[0]);
+    if (s->sc == SC_COUNT && !s->bat) {
+        char known[256] = "lantern, convection";
+        for (int b = 0; b < battery_count; b++)
+            snprintf(known + strlen(known), sizeof known - strlen(known), ", %s", battery_scenarios[b].name);
+        return cli_error(2, "demo: unknown scenario '%s' (known: %s)", pos[0], known);
+    }
     s->out_dir = pos[1];
     if (!*s->out_dir) return cli_error(2, "demo: OUT_DIR is empty");
     if (strlen(s->out_dir) > 4000) return cli_error(2, "demo: OUT_DIR '%.60s...' is too long", s->out_dir);
+    if (s->bat) {
+        s->size = size > 0 ? size : s->bat->def_size;
+        s->recordings = recs > 0 ? recs : s->bat->def_recordings;
+        s->frames = frames > 0 ? frames : s->bat->def_frames;
+        if (s->recordings > BATTERY_MAX_RECORDINGS)
+            return cli_error(2, "demo: --recordings %d: the %s scenario renders at most %d", s->recordings, s->bat->name,
+                             BATTERY_MAX_RECORDINGS);
+        return 0;
+    }
     s->size = size > 0 ? size : def_size[s->sc];
     s->recordings = recs > 0 ? recs : def_recordings[s->sc];
     s->frames = frames > 0 ? frames : def_frames[s->sc];
@@ -324,8 +345,107 @@ static int write_info(const DemoSettings *s, int width, int height, double fps, 
     return atomic_commit(&af, st);
 }
 
+/* demo.json of a battery scenario. */
+static int write_battery_info(const DemoSettings *s, const BatteryPhysics *p, const double *init, int name_w,
+                              Status *st) {
+    char path[4400], phys[1024];
+    snprintf(path, sizeof path, "%s/demo.json", s->out_dir);
+    battery_physics_json(s->bat, p, phys, sizeof phys);
+    AtomicFile af;
+    if (atomic_open(&af, path, st)) return st->code;
+    FILE *f = af.f;
+    fprintf(f, "{\n  \"scenario\": \"%s\",\n  \"written_by\": \"framelaw %s demo\",\n", s->bat->name, FRAMELAW_VERSION);
+    fprintf(f, "  \"seed\": %llu,\n  \"recordings\": %d,\n  \"frames\": %d,\n  \"fps\": %.15g,\n", s->seed,
+            s->recordings, s->frames, s->bat->fps);
+    fprintf(f, "  \"frame_width\": %d,\n  \"frame_height\": %d,\n  \"noise\": %.15g,\n", s->size, s->size, s->noise);
+    fprintf(f, "  \"integrator\": {\"method\": \"rk4\", \"steps_per_frame\": %d},\n", DEMO_SUBSTEPS);
+    fprintf(f, "  \"model\": {\"order\": %d, \"latent\": %d},\n", s->bat->order, s->bat->latent);
+    fprintf(f, "  \"physics\": {%s},\n  \"initial_states\": [\n", phys);
+    for (int k = 0; k < s->recordings; k++) {
+        char name[32];
+        rec_name(name, k, name_w);
+        fprintf(f, "    {\"name\": \"%s\", \"state\": [", name);
+        for (int i = 0; i < s->bat->n_state; i++) fprintf(f, "%s%.17g", i ? ", " : "", init[(long)k * s->bat->n_state + i]);
+        fprintf(f, "]}%s\n", k + 1 < s->recordings ? "," : "");
+    }
+    fprintf(f, "  ]\n}\n");
+    if (ferror(f)) {
+        atomic_abort(&af);
+        return status_set(st, ST_RUNTIME, "%s: write error", path);
+    }
+    return atomic_commit(&af, st);
+}
+
+/* Render every recording of a battery scenario (demo/battery.h). */
+static int render_battery(const DemoSettings *s, Status *st) {
+    const BatteryScenario *b = s->bat;
+    int n = s->recordings, nf = s->frames, ns = b->n_state, cols = ns + 1;
+    int name_w = 2;
+    for (int m = n - 1; m >= 100; m /= 10) name_w++;
+    BatteryPhysics p = battery_physics_default();
+    Rng init_rng;
+    rng_seed(&init_rng, s->seed);
+    double *init = nn_alloc(sizeof(double) * (size_t)n * ns);
+    battery_initial_states(b, &p, n, &init_rng, init);
+    printf("demo %s: %d recordings x %d frames, %dx%d pixels, %g fps, noise %g, seed %llu -> %s\n", b->name, n, nf,
+           s->size, s->size, b->fps, s->noise, s->seed, s->out_dir);
+    fflush(stdout);
+    double *truth = nn_alloc(sizeof(double) * (size_t)nf * cols);
+    uint8_t *px = nn_alloc((size_t)s->size * s->size);
+    char tmp_dir[4400], final_dir[4400], path[4600];
+    Progress pr = {isatty(fileno(stderr)), clock_seconds(), 0, 0, (long)n * nf};
+    pr.last = pr.start;
+    int rc = 0;
+    for (int k = 0; k < n && !rc; k++) {
+        char name[32];
+        rec_name(name, k, name_w);
+        snprintf(tmp_dir, sizeof tmp_dir, "%s/.demo-tmp-%s", s->out_dir, name);
+        snprintf(final_dir, sizeof final_dir, "%s/%s", s->out_dir, name);
+        if ((rc = battery_simulate(b, &p, init + (long)k * ns, nf, DEMO_SUBSTEPS, truth, st))) {
+            char why[sizeof st->msg];
+            snprintf(why, sizeof why, "%s", st->msg);
+            status_set(st, rc, "%s: %s", final_dir, why);
+            break;
+        }
+        if (access(tmp_dir, F_OK) == 0 && (rc = remove_demo_folder(tmp_dir, st))) break;
+        if (mkdir(tmp_dir, 0755)) {
+            rc = status_set(st, ST_RUNTIME, "%s: cannot create: %s", tmp_dir, strerror(errno));
+            break;
+        }
+        Rng noise;
+        rng_seed(&noise, s->seed + 0x9E3779B97F4A7C15ULL * (uint64_t)(k + 1));
+        for (int f = 0; f < nf && !rc; f++) {
+            battery_render(b, s->size, s->noise, truth + (long)f * cols + 1, &noise, px);
+            snprintf(path, sizeof path, "%s/frame%06d.png", tmp_dir, f);
+            rc = image_write_png_gray(path, px, s->size, s->size, st);
+            pr.done++;
+            progress(&pr, b->name, k + 1, n, 0);
+        }
+        if (rc) break;
+        snprintf(path, sizeof path, "%s/truth.csv", tmp_dir);
+        if ((rc = write_truth(path, b->truth_header, truth, nf, cols, st))) break;
+        if (rename(tmp_dir, final_dir)) {
+            rc = status_set(st, errno == ENOTEMPTY || errno == EEXIST || errno == ENOTDIR ? ST_INPUT : ST_RUNTIME,
+                            "%s: cannot move the recording into place: %s", final_dir, strerror(errno));
+            break;
+        }
+        rc = fsync_parent_dir(final_dir, st);
+    }
+    if (!rc) rc = write_battery_info(s, &p, init, name_w, st);
+    if (pr.tty || !rc) progress(&pr, b->name, n, n, 1);
+    if (pr.tty) fputc('\n', stderr);
+    if (!rc)
+        printf("wrote %d recordings of %d frames to %s (truth.csv in each, settings in demo.json) in %.1f s\n", n, nf,
+               s->out_dir, clock_seconds() - pr.start);
+    nn_free(truth);
+    nn_free(px);
+    nn_free(init);
+    return rc;
+}
+
 /* Render every recording. Returns 0 or a status code (message in st). */
 static int render_all(const DemoSettings *s, Status *st) {
+    if (s->bat) return render_battery(s, st);
     int lantern = s->sc == SC_LANTERN;
     int n = s->recordings, nf = s->frames;
     int name_w = 2;

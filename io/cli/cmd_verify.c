@@ -8,6 +8,7 @@
 
 #include <cjson/cJSON.h>
 
+#include "demo/battery.h"
 #include "demo/elliptic.h"
 #include "demo/lantern.h"
 #include "io/fs/atomic_file.h"
@@ -142,6 +143,128 @@ static int verify_convection(LoadedRun *r, Checks *c, Status *st) {
     return 0;
 }
 
+/* ---- the battery (demo/battery.h, docs/battery.md) ---------------------------------------------- */
+
+/* Encode the noise-free frame of a scenario's state. */
+static void encode_state(LoadedRun *r, const BatteryScenario *b, int size, const double *state, uint8_t *px, float *x,
+                         float *z) {
+    battery_render(b, size, 0.0, state, NULL, px);
+    encode_pixels(r, px, x, z);
+}
+
+static double num(const cJSON *o, const char *k, double def) {
+    const cJSON *v = cJSON_GetObjectItem(o, k);
+    return cJSON_IsNumber(v) ? v->valuedouble : def;
+}
+
+static int verify_battery(LoadedRun *r, const cJSON *demo, const BatteryScenario *b, Checks *c, Status *st) {
+    int size = (int)cJSON_GetNumberValue(cJSON_GetObjectItem(demo, "frame_width"));
+    if (r->data.store.width != size || r->data.store.height != size || r->data.store.elem != STORE_U8)
+        return status_set(st, ST_INPUT, "verify: the run's frames are %dx%d, the scenario renders %dx%d 8-bit frames "
+                          "(verify needs them unresized)", r->data.store.width, r->data.store.height, size, size);
+    if (r->m.order != b->order || r->m.n_latent != b->latent)
+        return status_set(st, ST_INPUT, "verify: the %s check needs model.order %d and model.latent %d (the run has %d and %d)",
+                          b->name, b->order, b->latent, r->m.order, r->m.n_latent);
+    BatteryPhysics p = battery_physics_default();
+    const cJSON *ph = cJSON_GetObjectItem(demo, "physics");
+    p.w0 = num(ph, "w0", p.w0), p.zeta = num(ph, "zeta", p.zeta), p.r = num(ph, "r", p.r), p.K = num(ph, "K", p.K);
+    p.mu = num(ph, "mu", p.mu), p.w = num(ph, "w", p.w), p.f1 = num(ph, "f1", p.f1), p.f2 = num(ph, "f2", p.f2);
+    p.z1 = num(ph, "z1", p.z1), p.z2 = num(ph, "z2", p.z2);
+    int d = b->latent, nv = r->m.lib.n_vars;
+    uint8_t *px = malloc((size_t)size * size);
+    float *x = malloc((size_t)size * size * sizeof *x), z[LIB_MAX_VARS];
+    if (!px || !x) {
+        free(px), free(x);
+        return status_set(st, ST_RUNTIME, "out of memory");
+    }
+    LearnedOde lo;
+    learned_ode_init(&lo, &r->m.lib, r->coef.xi, r->coef.mask);
+    double rest[BATTERY_MAX_STATE] = {0}, y0[LIB_MAX_VARS] = {0}, y[LIB_MAX_VARS], re[LIB_MAX_VARS], im[LIB_MAX_VARS];
+    Status s2;
+    if (!strcmp(b->name, "spring") || !strcmp(b->name, "puck")) {
+        /* the linearisation at the rest position: eigenvalues -sigma +- i w_d per mode (closed form of
+         * the damped linear oscillator: w_d = w0 sqrt(1 - zeta^2), sigma = zeta w0; Thornton and Marion,
+         * Classical Dynamics of Particles and Systems, 5th ed., 2004, sec. 3.5) */
+        encode_state(r, b, size, rest, px, x, z);
+        for (int j = 0; j < d; j++) y0[j] = z[j];
+        int modes = d;
+        double w0[2], zeta[2];
+        if (d == 1) w0[0] = p.w0, zeta[0] = p.zeta;
+        else w0[0] = 2 * M_PI * p.f1, w0[1] = 2 * M_PI * p.f2, zeta[0] = p.z1, zeta[1] = p.z2;
+        int ok = !verify_fixed_point(learned_ode_rhs, &lo, nv, y0, y, &s2) &&
+                 !verify_jacobian_eigs(learned_ode_rhs, &lo, nv, y, re, im, &s2);
+        for (int k = 0; k < modes; k++) {
+            char n1[64], n2[64];
+            snprintf(n1, sizeof n1, "mode %d frequency w_d", k + 1);
+            snprintf(n2, sizeof n2, "mode %d decay rate", k + 1);
+            double wd = w0[k] * sqrt(1 - zeta[k] * zeta[k]), sg = zeta[k] * w0[k];
+            /* eigenvalues sorted by imaginary part: the modes with im > 0 are the last `modes` ones */
+            int e = nv - modes + k;
+            if (ok && im[e] > 0) {
+                check(c, n1, im[e], wd, 0.03, "rad/s");
+                check(c, n2, -re[e], sg, 0.20, "1/s");
+            } else {
+                const char *why = ok ? "the learned law does not oscillate about its rest point" : s2.msg;
+                fail_check(c, n1, wd, 0.03, "rad/s", why);
+                fail_check(c, n2, sg, 0.20, "1/s", why);
+            }
+        }
+    } else if (!strcmp(b->name, "colony")) {
+        /* the stable fixed point of the logistic law A' = r A (1 - A/K) is A = K, with the eigenvalue
+         * -r (linearise: d/dA [r A (1 - A/K)] at K = -r); where it lies in the frames: the area whose
+         * encoded frame the learned fixed point matches */
+        rest[0] = p.K;
+        encode_state(r, b, size, rest, px, x, z);
+        y0[0] = z[0];
+        int ok = !verify_fixed_point(learned_ode_rhs, &lo, nv, y0, y, &s2) &&
+                 !verify_jacobian_eigs(learned_ode_rhs, &lo, nv, y, re, im, &s2);
+        if (ok) check(c, "eigenvalue at the stable fixed point", re[0], -p.r, 0.10, "1/h");
+        else fail_check(c, "eigenvalue at the stable fixed point", -p.r, 0.10, "1/h", s2.msg);
+        double area = NAN, prev = NAN;
+        for (int k = 0; k <= 400 && ok; k++) { /* A from 0.05 K to 1.9 K: where the encoded frame crosses y */
+            double a = p.K * (0.05 + 1.85 * k / 400.0);
+            rest[0] = a;
+            encode_state(r, b, size, rest, px, x, z);
+            if (k && (prev - y[0]) * (z[0] - y[0]) <= 0 && isnan(area))
+                area = a - p.K * 1.85 / 400.0 * (z[0] - y[0]) / (z[0] - prev);
+            prev = z[0];
+        }
+        if (ok && !isnan(area)) check(c, "area at the stable fixed point", area, p.K, 0.10, "K");
+        else fail_check(c, "area at the stable fixed point", p.K, 0.10, "K",
+                        ok ? "the fixed point is outside the frames' range" : s2.msg);
+    } else { /* pulse */
+        /* the limit cycle's period, from a start inside and one outside it, against the true law's
+         * measured the same way (for mu = 1 the van der Pol period is 6.6633 in units of 1/w, a value
+         * from memory; tests/test_verify.c checks verify_cycle against it) */
+        BatteryCtx bc = {b, &p};
+        double ytrue[2] = {0.5, 0}, t_true, range_true;
+        double T0 = 2 * M_PI / p.w, h = T0 / 2000;
+        if (verify_cycle(battery_rhs, &bc, 2, ytrue, 0, 20 * T0, 10 * T0, h, &t_true, &range_true, &s2)) {
+            learned_ode_free(&lo);
+            free(px), free(x);
+            return status_set(st, ST_RUNTIME, "verify: the true law: %s", s2.msg);
+        }
+        double starts[2] = {0.2, 3.0}, per[2], rng[2];
+        int ok[2];
+        for (int k = 0; k < 2; k++) {
+            rest[0] = starts[k], rest[1] = 0;
+            encode_state(r, b, size, rest, px, x, z);
+            y0[0] = z[0], y0[1] = 0;
+            char n1[64];
+            snprintf(n1, sizeof n1, "cycle period from x = %.1f", starts[k]);
+            ok[k] = !verify_cycle(learned_ode_rhs, &lo, nv, y0, 0, 20 * T0, 10 * T0, h, &per[k], &rng[k], &s2);
+            if (ok[k]) check(c, n1, per[k], t_true, 0.03, "s");
+            else fail_check(c, n1, t_true, 0.03, "s", s2.msg);
+        }
+        /* one cycle: both starts end on the same orbit (its range in the latent within 5%) */
+        if (ok[0] && ok[1]) check(c, "same cycle from both starts (range ratio)", rng[1] / rng[0], 1.0, 0.05, "");
+        else fail_check(c, "same cycle from both starts (range ratio)", 1.0, 0.05, "", "a start did not reach a cycle");
+    }
+    learned_ode_free(&lo);
+    free(px), free(x);
+    return 0;
+}
+
 int cmd_verify(int argc, char **argv) {
     if (cli_wants_help(argc, argv)) {
         printf("usage: framelaw verify RUN_DIR\n\n"
@@ -152,7 +275,12 @@ int cmd_verify(int argc, char **argv) {
                "              swing released at rest (within 5%% of 4 sqrt(L/g) K(sin^2 60deg)), and the\n"
                "              damping rate (within 20%% of c);\n"
                "  convection: the largest Lyapunov exponent (within 15%% of 0.9056) and boundedness for\n"
-               "              100 time units.\n"
+               "              100 time units;\n"
+               "  spring:     the frequency (3%%) and decay rate (20%%) of the law linearised at its rest point;\n"
+               "  puck:       the same for both modes;\n"
+               "  colony:     the eigenvalue at the stable fixed point (10%% of -r) and the area there (10%% of K);\n"
+               "  pulse:      the period of the cycle reached from inside and from outside it (3%%), and that\n"
+               "              both reach the same cycle (5%%). docs/battery.md gives the sources.\n"
                "Prints one line per check, writes RUN_DIR/verify.json. Exit status 0 when every check\n"
                "passes, 1 when one fails, 2 for bad input.\n");
         return 0;
@@ -181,6 +309,7 @@ int cmd_verify(int argc, char **argv) {
     if (!scenario) rc = status_set(&st, ST_INPUT, "%s: no scenario named", path);
     else if (!strcmp(scenario, "lantern")) rc = verify_lantern(&r, demo, &c, &st);
     else if (!strcmp(scenario, "convection")) rc = verify_convection(&r, &c, &st);
+    else if (battery_find(scenario)) rc = verify_battery(&r, demo, battery_find(scenario), &c, &st);
     else rc = status_set(&st, ST_INPUT, "%s: unknown scenario '%s'", path, scenario);
     if (!rc) {
         cJSON *o = cJSON_CreateObject();
