@@ -38,31 +38,48 @@ static void fmt_magnitude(char *out, size_t n, double v, int digits, EqStyle sty
     else snprintf(out, n, "%s \\times 10^{%d}", t, ex);
 }
 
+/* The right-hand side: " -10 z1 + 10 z2" (terms in order, zero or masked ones left out). */
+static void write_rhs(Sb *b, EqStyle style, int n_terms, EqTermNameFn name_fn, const void *ctx, const double *coef,
+                      const uint8_t *mask, long stride, int digits) {
+    int written = 0;
+    for (int t = 0; t < n_terms; t++) {
+        double c = coef[(long)t * stride];
+        if ((mask && !mask[(long)t * stride]) || c == 0) continue;
+        char mag[96], name[LIB_NAME_MAX * 2];
+        fmt_magnitude(mag, sizeof mag, c, digits, style);
+        int constant = name_fn(ctx, t, style, name, sizeof name);
+        int unit = !constant && !strcmp(mag, "1");
+        const char *sign = c < 0 ? (written ? " - " : " -") : (written ? " + " : " ");
+        sb_printf(b, "%s", sign);
+        if (constant) sb_printf(b, "%s", mag);
+        else if (unit) sb_printf(b, "%s", name);
+        else sb_printf(b, "%s %s", mag, name);
+        written++;
+    }
+    if (!written) sb_printf(b, " 0");
+}
+
+static int library_name_fn(const void *ctx, int t, EqStyle style, char *buf, size_t n) {
+    const Library *lib = ctx;
+    library_term_name(lib, t, style == EQ_LATEX ? NAME_LATEX : NAME_TEXT, buf, n);
+    return lib->terms[t].kind == TERM_CONST;
+}
+
 static void write_line(Sb *b, EqStyle style, const Library *lib, const double *xi, const uint8_t *mask,
                        int j, int digits) {
     int k = lib->spec.n_latent, second = lib->spec.order == 2;
     if (style == EQ_LATEX) sb_printf(b, "%s{z}_{%d} &=", second ? "\\ddot" : "\\dot", j + 1);
     else sb_printf(b, second ? "d2z%d/dt2 =" : "dz%d/dt =", j + 1);
-    int written = 0;
-    for (int t = 0; t < lib->n_terms; t++) {
-        double c = xi[(long)t * k + j];
-        if ((mask && !mask[(long)t * k + j]) || c == 0) continue;
-        char mag[96], name[LIB_NAME_MAX * 2];
-        fmt_magnitude(mag, sizeof mag, c, digits, style);
-        int constant = lib->terms[t].kind == TERM_CONST;
-        int unit = !constant && !strcmp(mag, "1");
-        const char *sign = c < 0 ? (written ? " - " : " -") : (written ? " + " : " ");
-        sb_printf(b, "%s", sign);
-        if (constant) {
-            sb_printf(b, "%s", mag);
-        } else {
-            library_term_name(lib, t, style == EQ_LATEX ? NAME_LATEX : NAME_TEXT, name, sizeof name);
-            if (unit) sb_printf(b, "%s", name);
-            else sb_printf(b, "%s %s", mag, name);
-        }
-        written++;
-    }
-    if (!written) sb_printf(b, " 0");
+    write_rhs(b, style, lib->n_terms, library_name_fn, lib, xi + j, mask ? mask + j : NULL, k, digits);
+}
+
+size_t equation_line_with(char *buf, size_t n, EqStyle style, const char *lhs, int n_terms, EqTermNameFn name,
+                          const void *ctx, const double *coef, const uint8_t *mask, long stride, int digits) {
+    Sb b = {buf, n, 0};
+    if (n) buf[0] = 0;
+    sb_printf(&b, "%s", lhs);
+    write_rhs(&b, style, n_terms, name, ctx, coef, mask, stride, digits);
+    return b.len;
 }
 
 size_t equation_line(char *buf, size_t n, EqStyle style, const Library *lib, const double *xi,

@@ -43,6 +43,16 @@ typedef enum { EQ_TEXT, EQ_LATEX } EqStyle;
 size_t equation_line(char *buf, size_t n, EqStyle style, const Library *lib, const double *xi,
                      const uint8_t *mask, int j, int digits);
 
+/* Name of term t in a style, written to buf (n bytes); returns 1 when the term is the constant
+ * (its coefficient is then written alone, as a number), else 0. */
+typedef int (*EqTermNameFn)(const void *ctx, int t, EqStyle style, char *buf, size_t n);
+
+/* One equation with the same layout rules from explicit parts: lhs is written as given ("du1/dt =",
+ * "\dot{u}_{1} &="), then the terms t = 0..n_terms-1 named by name(ctx, t, ...) with coefficients
+ * coef[t * stride] and mask[t * stride] (mask may be NULL). snprintf-like. */
+size_t equation_line_with(char *buf, size_t n, EqStyle style, const char *lhs, int n_terms, EqTermNameFn name,
+                          const void *ctx, const double *coef, const uint8_t *mask, long stride, int digits);
+
 /* Every equation (text: one line each; LaTeX: the aligned block), snprintf-like. */
 size_t equation_format(char *buf, size_t n, EqStyle style, const Library *lib, const double *xi,
                        const uint8_t *mask, int digits);
