@@ -8,7 +8,7 @@
 #include "sparse/thresh_lsq.h"
 
 SelectOptions select_defaults(void) {
-    SelectOptions o = {24, 0.003, 0.5, 0, 3.0, 0, 0.2, 0.05, 8, 2.0};
+    SelectOptions o = {24, 0.003, 0.5, 0, 3.0, 0, 0.1, 0.05, 8, 2.0};
     return o;
 }
 
@@ -194,8 +194,22 @@ typedef struct {
     Status *st;
 } Ctx;
 
-static double score_of(const SelectOptions *o, double forecast, int active) {
-    return (forecast + o->abs_tol) * pow(1 + o->tol, active);
+/* The complexity of a term in the score: a monomial its degree (the constant 1), a trigonometric
+ * term 2. */
+static int term_complexity(const Term *t) {
+    if (t->kind == TERM_CONST) return 1;
+    if (t->kind != TERM_MONO) return 2;
+    int deg = 0;
+    for (int i = 0; i < t->n_fac; i++) deg += t->pow[i];
+    return deg;
+}
+
+static double score_of(const Library *lib, const SelectOptions *o, double forecast, const uint8_t *m, int d) {
+    double f = forecast + o->abs_tol;
+    for (int t = 0; t < lib->n_terms; t++)
+        for (int j = 0; j < d; j++)
+            if (m[(long)t * d + j]) f *= 1 + o->tol * term_complexity(&lib->terms[t]);
+    return f;
 }
 
 /* Refit the active set m by least squares (x receives the coefficients), score it and append it to
@@ -241,7 +255,7 @@ static int consider(Ctx *c, SelectPath *p, uint8_t *m, double *x, int level, dou
     e.aicc = n * log(rss / n > 1e-300 ? rss / n : 1e-300) + 2 * k + (n - k - 1 > 0 ? 2 * k * (k + 1) / (n - k - 1) : INFINITY);
     int nseg = 0;
     e.forecast = forecast_error(c->lib, D, x, m, c->H, c->S, c->sd, c->o->cap, &nseg);
-    e.score = score_of(c->o, e.forecast, e.active);
+    e.score = score_of(c->lib, c->o, e.forecast, m, d);
     p->segments = nseg;
     if (path_push(p, &e, m, x)) return status_set(c->st, ST_RUNTIME, "out of memory");
     *idx = p->n - 1;

@@ -19,8 +19,10 @@
  * z over the whole set (pooled over components), capped at `cap` (a forecast that leaves the data's
  * range by far counts as the cap). The candidate's forecast error is the mean over segments.
  *
- * Choice: the smallest score (e + abs_tol) (1 + tol)^k, e the forecast error and k the number of
- * terms: a term earns its place when it makes the forecast better by more than the factor 1 + tol
+ * Choice: the smallest score (e + abs_tol) prod_t (1 + tol c_t) over the active terms t, e the
+ * forecast error and c_t the term's complexity (a monomial its degree, the constant 1, a
+ * trigonometric term 2): a term earns its place when it makes the forecast better by more than the
+ * factor 1 + tol c_t, so a cubic term must buy three times what a linear one must
  * (the parsimony rule of model selection, common practice: the simplest model within the noise of
  * the best; abs_tol keeps errors near zero from buying terms). The best candidate of the path is
  * then improved stepwise: every law that adds one allowed term to it or drops one of its terms is
@@ -59,13 +61,13 @@ typedef struct {
     double periods;             /* horizon 0: this many characteristic periods 2 pi / w_c, where
                                  * w_c = rms(target) / std(z) (second order: sqrt of it) */
     int stride;                 /* samples between segment starts (0: horizon / 2) */
-    double tol, abs_tol;        /* parsimony: the score is (e + abs_tol) (1 + tol)^terms */
+    double tol, abs_tol;        /* parsimony: the score is (e + abs_tol) prod (1 + tol c_t) */
     int max_steps;              /* stepwise moves after the path (0: none) */
     double cap;                 /* largest error of one segment */
 } SelectOptions;
 
-/* 24 thresholds from 0.003 to 0.5, horizon from 3 periods, stride horizon / 2, tol 0.05, abs_tol
- * 0.01, 8 stepwise moves, cap 2. */
+/* 24 thresholds from 0.003 to 0.5, horizon from 3 periods, stride horizon / 2, tol 0.1, abs_tol
+ * 0.05, 8 stepwise moves, cap 2. */
 SelectOptions select_defaults(void);
 
 typedef struct {
@@ -75,7 +77,7 @@ typedef struct {
     double fit;                 /* rms(Theta xi - target) / rms(target), pooled over equations */
     double forecast;            /* mean segment error (see above) */
     double aicc;                /* N log(RSS / N) + 2 k + 2 k (k + 1) / (N - k - 1), k = active */
-    double score;               /* (forecast + abs_tol) (1 + tol)^active */
+    double score;               /* (forecast + abs_tol) prod (1 + tol c_t) */
     int step;                   /* 0: from the path; s > 0: found by the s-th stepwise move */
     int chosen;
 } SelectEntry;
