@@ -12,11 +12,14 @@
 #include "tests/testutil.h"
 
 static const char CFG[] =
-    "{\"data\": {\"frames\": \"%s/data\", \"fps\": 30},\n"
-    " \"model\": {\"latent\": 2, \"order\": 1, \"encoder\": [16], \"activation\": \"tanh\", \"init\": \"pca\"},\n"
-    " \"library\": {\"degree\": 2},\n"
+    "{\"data\": {\"frames\": \"%s/data\", \"fps\": 30, \"derivative\": {\"method\": \"central\"}},\n"
+    " \"model\": {\"latent\": 2, \"order\": 1, \"encoder\": [16], \"activation\": \"tanh\", \"init\": \"pca\", "
+    "\"derivatives\": \"frames\"},\n"
+    " \"library\": {\"degree\": 2, \"trig\": false},\n"
+    " \"loss\": {\"l1\": 1e-3, \"normalize\": false},\n"
     " \"train\": {\"batch\": 32, \"epochs\": 60, \"threads\": 1, \"validate_every\": 5, \"warmup_epochs\": 20},\n"
-    " \"threshold\": {\"value\": 0.05, \"every\": 10, \"refine_epochs\": 10},\n"
+    " \"threshold\": {\"value\": 0.05, \"measure\": \"coefficient\", \"select\": \"none\", \"every\": 10, "
+    "\"refine_epochs\": 10},\n"
     " \"checkpoint\": {\"every\": 25, \"keep\": 2},\n"
     " \"output\": \"%s/run\"}\n";
 

@@ -40,12 +40,14 @@ static void write_config(const char *path, const char *data, const char *out, in
     FILE *f = fopen(path, "w");
     assert_non_null(f);
     fprintf(f,
-            "{\"data\": {\"frames\": \"%s\", \"fps\": 30},\n"
-            " \"model\": {\"latent\": 2, \"order\": 1, \"encoder\": [16], \"activation\": \"tanh\"},\n"
-            " \"library\": {\"degree\": 2},\n"
-            " \"loss\": {\"dx\": 0.1, \"dz\": 1, \"l1\": 1e-3},\n"
+            "{\"data\": {\"frames\": \"%s\", \"fps\": 30, \"derivative\": {\"method\": \"central\"}},\n"
+            " \"model\": {\"latent\": 2, \"order\": 1, \"encoder\": [16], \"activation\": \"tanh\", \"init\": \"glorot\", "
+            "\"derivatives\": \"frames\"},\n"
+            " \"library\": {\"degree\": 2, \"trig\": false},\n"
+            " \"loss\": {\"dx\": 0.1, \"dz\": 1, \"l1\": 1e-3, \"normalize\": false},\n"
             " \"train\": {\"batch\": 32, \"epochs\": %d, \"threads\": 1, \"validate_every\": 5},\n"
-            " \"threshold\": {\"value\": 0.05, \"every\": 10, \"refine_epochs\": 10},\n"
+            " \"threshold\": {\"value\": 0.05, \"measure\": \"coefficient\", \"select\": \"none\", \"every\": 10, "
+            "\"refine_epochs\": 10},\n"
             " \"checkpoint\": {\"every\": 25, \"keep\": 2},\n"
             " \"output\": \"%s\"}\n",
             data, epochs, out);

@@ -24,16 +24,16 @@ static const char *FULL =
     "            \"derivative\": {\"method\": \"savgol\", \"window\": 9, \"degree\": 4},\n"
     "            \"validation\": {\"recordings\": [\"run07\", \"run 08\"], \"last\": 0}},\n"
     "  \"model\": {\"latent\": 2, \"order\": 1, \"encoder\": [256, 64], \"decoder\": [32, 64, 128],\n"
-    "            \"activation\": \"tanh\", \"init\": \"isomap\", \"derivatives\": \"latent\",\n"
+    "            \"activation\": \"tanh\", \"init\": \"pca\", \"derivatives\": \"frames\",\n"
     "            \"init_epochs\": 50, \"init_frames\": 500},\n"
-    "  \"library\": {\"degree\": 2, \"constant\": false, \"trig\": true, \"trig_velocity\": false,\n"
+    "  \"library\": {\"degree\": 2, \"constant\": false, \"trig\": false, \"trig_velocity\": false,\n"
     "              \"multipliers\": [1, 2, 3], \"include\": [\"z1 z2\"], \"exclude\": [\"z1^2\", \"cos(z2)\"]},\n"
-    "  \"loss\": {\"reconstruction\": 0.5, \"dx\": 0.001, \"dz\": 1e-6, \"l1\": 0.1, \"normalize\": true},\n"
+    "  \"loss\": {\"reconstruction\": 0.5, \"dx\": 0.001, \"dz\": 1e-6, \"l1\": 0.1, \"normalize\": false},\n"
     "  \"optimizer\": {\"lr\": 3e-4, \"beta1\": 0.8, \"beta2\": 0.99, \"eps\": 1e-7, \"schedule\": \"cosine\",\n"
     "                \"decay_every\": 50, \"decay_factor\": 0.25, \"lr_min\": 1e-5},\n"
     "  \"train\": {\"batch\": 64, \"epochs\": 20000, \"seed\": 9007199254740991, \"threads\": 4,\n"
     "            \"validate_every\": 5, \"warmup_epochs\": 50, \"warmup_fit\": false},\n"
-    "  \"threshold\": {\"value\": 0.05, \"measure\": \"contribution\", \"select\": \"every\", \"every\": 250, \"refine_epochs\": 5000},\n"
+    "  \"threshold\": {\"value\": 0.05, \"measure\": \"coefficient\", \"select\": \"first\", \"every\": 300, \"refine_epochs\": 5000},\n"
     "  \"checkpoint\": {\"every\": 25, \"keep\": 7},\n"
     "  \"forecast\": {\"bound\": 0.2, \"method\": \"rk4\", \"tolerance\": 1e-6},\n"
     "  \"ensemble\": {\"members\": 40, \"block\": 12, \"block_seconds\": 0.5, \"library_bagging\": true,\n"
@@ -65,41 +65,46 @@ static void test_defaults(void **state) {
     assert_string_equal(c.scale, "unit");
     assert_int_equal(c.stride, 1);
     assert_int_equal(c.store_bits, 8);
-    assert_string_equal(c.derivative, "central");
+    assert_string_equal(c.derivative, "auto");
     assert_int_equal(c.sg_window, 7);
     assert_int_equal(c.sg_degree, 3);
     assert_int_equal(c.n_val_names, 0);
     assert_int_equal(c.val_last, 1);
     assert_int_equal(c.latent, 1);
     assert_int_equal(c.order, 2);
-    assert_int_equal(c.n_encoder, 3);
-    assert_int_equal(c.encoder[0], 128);
-    assert_int_equal(c.encoder[1], 64);
-    assert_int_equal(c.encoder[2], 32);
+    assert_int_equal(c.n_encoder, 2);
+    assert_int_equal(c.encoder[0], 64);
+    assert_int_equal(c.encoder[1], 32);
     assert_int_equal(c.n_decoder, -1);
     assert_string_equal(c.activation, "sigmoid");
-    assert_string_equal(c.init, "glorot");
+    assert_string_equal(c.init, "isomap");
+    assert_string_equal(c.derivatives, "latent");
+    assert_int_equal(c.init_epochs, 200);
+    assert_int_equal(c.init_frames, 2000);
     assert_int_equal(c.lib_degree, 3);
     assert_int_equal(c.lib_constant, 1);
-    assert_int_equal(c.lib_trig, 0);
+    assert_int_equal(c.lib_trig, 1);
     assert_int_equal(c.lib_trig_velocity, 1);
     assert_int_equal(c.n_lib_freq, 1);
     assert_int_equal(c.lib_freq[0], 1);
     assert_int_equal(c.n_lib_include, 0);
     assert_int_equal(c.n_lib_exclude, 0);
-    assert_true(c.w_rec == 1 && c.w_dx == 0.1 && c.w_dz == 1 && c.w_l1 == 1e-3);
+    assert_true(c.w_rec == 1 && c.w_dx == 0.1 && c.w_dz == 1 && c.w_l1 == 1e-4);
+    assert_int_equal(c.loss_normalize, 1);
     assert_true(c.lr == 1e-3 && c.beta1 == 0.9 && c.beta2 == 0.999 && c.eps == 1e-8);
     assert_string_equal(c.schedule, "constant");
     assert_int_equal(c.sched_every, 1000);
     assert_true(c.sched_factor == 0.5 && c.lr_min == 0);
-    assert_int_equal(c.batch, 1024);
-    assert_int_equal(c.epochs, 3000);
+    assert_int_equal(c.batch, 256);
+    assert_int_equal(c.epochs, 1500);
     assert_int_equal(c.seed, 1);
     assert_int_equal(c.threads, 0);
     assert_int_equal(c.validate_every, 10);
-    assert_true(c.threshold == 0.1);
-    assert_int_equal(c.threshold_every, 500);
-    assert_int_equal(c.refine_epochs, 1000);
+    assert_true(c.threshold == 0.02);
+    assert_string_equal(c.threshold_measure, "contribution");
+    assert_string_equal(c.threshold_select, "every");
+    assert_int_equal(c.threshold_every, 250);
+    assert_int_equal(c.refine_epochs, 300);
     assert_int_equal(c.ckpt_every, 100);
     assert_int_equal(c.ckpt_keep, 3);
     assert_string_equal(c.output, "");
@@ -260,15 +265,40 @@ static void test_set(void **state) {
     }
 }
 
+/* The defaults before the template of round 2 (docs/battery.md), as a run folder of then holds them
+ * in its config.json: every key of the first release written out, the keys added later absent. */
+static const char *OLD_RUN_CONFIG =
+    "{\"data\": {\"derivative\": {\"method\": \"central\"}},\n"
+    " \"model\": {\"encoder\": [128, 64, 32], \"init\": \"glorot\"},\n"
+    " \"library\": {\"trig\": false}, \"loss\": {\"l1\": 0.001, \"normalize\": false},\n"
+    " \"train\": {\"batch\": 1024, \"epochs\": 3000},\n"
+    " \"threshold\": {\"value\": 0.1, \"every\": 500, \"refine_epochs\": 1000}}\n";
+
 /* A key that is resume-safe changes nothing in the digest; every other key does. Keys added after
- * the first release count only away from their defaults, so the digest of the default config is the
- * one framelaw computed before they existed: 0x0742f5f2c47c9cf7, printed by the build of commit
- * 429953d (run folders made then must still load). */
+ * the first release count only away from the value that behaves as before they existed, and a run's
+ * config.json read by config_load_run takes that value for the keys it lacks, so the digest of a run
+ * of the first release's defaults is the one framelaw computed then: 0x0742f5f2c47c9cf7, printed by
+ * the build of commit 429953d (run folders made then must still load). */
 static void test_digest(void **state) {
     (void)state;
     Config c;
-    config_defaults(&c);
+    char tmp[256], path[300];
+    assert_non_null(test_tmpdir(tmp, sizeof tmp));
+    snprintf(path, sizeof path, "%s/config.json", tmp);
+    test_write_file(path, OLD_RUN_CONFIG);
+    Status lst;
+    assert_int_equal(config_load_run(&c, path, &lst), 0);
+    assert_string_equal(c.derivatives, "frames");
+    assert_string_equal(c.threshold_measure, "coefficient");
+    assert_string_equal(c.threshold_select, "none");
     assert_true(config_digest(&c) == 0x0742f5f2c47c9cf7ull);
+    /* read as a user's config, the keys it lacks take today's defaults: another digest */
+    Config u0;
+    assert_int_equal(config_load(&u0, path, &lst), 0);
+    assert_string_equal(u0.derivatives, "latent");
+    assert_true(config_digest(&u0) != 0x0742f5f2c47c9cf7ull);
+    test_rmtree(tmp);
+    config_defaults(&c);
     set_ok(&c, "data.frames=/d");
     uint64_t h0 = config_digest(&c);
     assert_true(config_digest(&c) == h0);   /* deterministic */
@@ -289,8 +319,9 @@ static void test_digest(void **state) {
         "data.validation.last=2", "model.encoder=[128,64]", "model.decoder=[32,64,128]",
         "model.latent=2", "library.exclude=[\"1\"]", "loss.l1=0", "optimizer.lr=0.002",
         "train.batch=512", "train.seed=2", "threshold.value=0.2", "threshold.refine_epochs=999",
-        "library.constant=false", "data.gray=bt709", "model.derivatives=latent", "model.init_epochs=5",
-        "model.init_frames=100", "model.init=isomap",
+        "library.constant=false", "data.gray=bt709", "model.init_epochs=5",
+        "model.init_frames=100", "model.init=glorot", "model.derivatives=frames", "threshold.select=none",
+        "threshold.measure=coefficient", "library.trig=false", "data.derivative.method=central",
     };
     for (size_t i = 0; i < sizeof unsafe / sizeof unsafe[0]; i++) {
         Config u = c;
@@ -355,12 +386,12 @@ static const struct {
     {"{\"data\": {\"fps\": 30, \"fps\": 25}}", "run.json: data.fps: duplicate key"},
     /* cross-key checks (config_validate) */
     {"{}", "data.frames: required (the folder of frames or recordings)"},
-    {"{\"data\": {\"frames\": \"f\"}, \"train\": {\"epochs\": 1000}}",
-     "threshold.refine_epochs (1000) must be less than train.epochs (1000)"},
-    {"{\"data\": {\"frames\": \"f\"}, \"train\": {\"epochs\": 1500, \"warmup_epochs\": 500}}",
-     "train.warmup_epochs (500) + threshold.refine_epochs (1000) must be less than train.epochs (1500)"},
+    {"{\"data\": {\"frames\": \"f\"}, \"train\": {\"epochs\": 300}}",
+     "threshold.refine_epochs (300) must be less than train.epochs (300)"},
+    {"{\"data\": {\"frames\": \"f\"}, \"train\": {\"epochs\": 800, \"warmup_epochs\": 500}}",
+     "train.warmup_epochs (500) + threshold.refine_epochs (300) must be less than train.epochs (800)"},
     /* measured: the lantern demo's latent collapsed to a constant (0 active terms) without it */
-    {"{\"data\": {\"frames\": \"f\"}, \"model\": {\"derivatives\": \"latent\"}}",
+    {"{\"data\": {\"frames\": \"f\"}, \"model\": {\"derivatives\": \"latent\"}, \"loss\": {\"normalize\": false}}",
      "model.derivatives latent needs loss.normalize true"},
     {"{\"data\": {\"frames\": \"f\", \"derivative\": {\"method\": \"savgol\", \"window\": 8}}}",
      "data.derivative.window: must be odd for savgol (is 8)"},
@@ -369,7 +400,7 @@ static const struct {
     {"{\"data\": {\"frames\": \"f\", \"crop\": [0, 0, 16, 0]}}", "data.crop: width and height must both be positive"},
     {"{\"data\": {\"frames\": \"f\", \"size\": [32, 0]}}", "data.size: width and height must both be positive"},
     {"{\"data\": {\"frames\": \"f\"}, \"model\": {\"latent\": 17, \"order\": 2}}", "model.latent: at most 16"},
-    {"{\"data\": {\"frames\": \"f\"}, \"library\": {\"degree\": 0, \"constant\": false}}", "library: no candidate terms"},
+    {"{\"data\": {\"frames\": \"f\"}, \"library\": {\"degree\": 0, \"constant\": false, \"trig\": false}}", "library: no candidate terms"},
     {"{\"data\": {\"frames\": \"f\", \"validation\": {\"recordings\": [\"a\", \"a\"]}}}",
      "data.validation.recordings[1]: 'a' is listed twice"},
     {"{\"data\": {\"frames\": \"f\"}, \"optimizer\": {\"schedule\": \"cosine\", \"lr_min\": 0.01}}",

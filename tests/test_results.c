@@ -72,6 +72,14 @@ static int setup_mode(void **state, int latent) {
     snprintf(c->val_names[1], CFG_NAME_MAX, "rec2");
     c->epochs = 10;
     c->refine_epochs = 1;
+    /* a linear library and none of the image levers (the defaults before the template of round 2) */
+    c->lib_trig = 0;
+    c->loss_normalize = 0;
+    snprintf(c->init, sizeof c->init, "glorot");
+    snprintf(c->derivatives, sizeof c->derivatives, "frames");
+    snprintf(c->derivative, sizeof c->derivative, "central");
+    snprintf(c->threshold_measure, sizeof c->threshold_measure, "coefficient");
+    snprintf(c->threshold_select, sizeof c->threshold_select, "none");
     if (latent) {
         snprintf(c->derivatives, sizeof c->derivatives, "latent");
         c->loss_normalize = 1; /* required with latent derivatives */

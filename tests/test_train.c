@@ -83,6 +83,15 @@ static void small_config(Config *c, const char *dir) {
     c->ckpt_keep = 10;
     c->validate_every = 1;
     c->threads = 1;
+    /* the loop's mechanics on synthetic data without frames: the levers of image runs off (the
+     * defaults before the template of round 2) */
+    snprintf(c->init, sizeof c->init, "glorot");
+    snprintf(c->derivatives, sizeof c->derivatives, "frames");
+    snprintf(c->derivative, sizeof c->derivative, "central");
+    snprintf(c->threshold_measure, sizeof c->threshold_measure, "coefficient");
+    snprintf(c->threshold_select, sizeof c->threshold_select, "none");
+    c->lib_trig = 0;
+    c->loss_normalize = 0;
 }
 
 static int run(Config *c, const char *dir, int resume, int stop_after, Model *m, ParamSet *ps, TrainResult *res) {

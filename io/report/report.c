@@ -325,7 +325,7 @@ int report_write(const char *run_dir, const char *out_path, ReportSummary *sum, 
     r.cfg = malloc(sizeof *r.cfg);
     if (!r.cfg) return status_set(st, ST_RUNTIME, "out of memory");
     config_defaults(r.cfg);
-    if (config_load(r.cfg, path, st)) {
+    if (config_load_run(r.cfg, path, st)) {
         free(r.cfg);
         return st->code;
     }

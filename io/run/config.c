@@ -114,7 +114,7 @@ static const KeyDef keys[] = {
           "pixel scaling: unit = [0, 1]; standardize = zero mean, unit variance per pixel"),
     K_INT("data.stride", stride, "1", 1, NOMAX, NULL, "keep every n-th frame"),
     K_INT("data.store_bits", store_bits, "8", 8, 16, "8|16", "bits per pixel in the frame store"),
-    K_STR("data.derivative.method", derivative, "\"central\"", "central|savgol|auto",
+    K_STR("data.derivative.method", derivative, "\"auto\"", "central|savgol|auto",
           "how x' and x'' (or z', z'') are formed from neighbouring frames: central differences, Savitzky-Golay "
           "(window, degree), or auto: the Savitzky-Golay stencil of least noise whose response stays within 2% "
           "of exact at the rms frequency of the training frames' leading principal components (window up to 13)"),
@@ -129,18 +129,18 @@ static const KeyDef keys[] = {
     /* model */
     K_INT("model.latent", latent, "1", 1, LIB_MAX_VARS, NULL, "latent variables z1..zk"),
     K_INT("model.order", order, "2", 1, 2, "1|2", "order of the latent ODE: 1 (dz/dt) or 2 (d2z/dt2)"),
-    K_INTS("model.encoder", T_INTS, encoder, n_encoder, "[128, 64, 32]", 0, 1, NOMAX,
+    K_INTS("model.encoder", T_INTS, encoder, n_encoder, "[64, 32]", 0, 1, NOMAX,
            "widths of the encoder's hidden layers"),
     K_INTS("model.decoder", T_INTS_NULL, decoder, n_decoder, "null", 0, 1, NOMAX,
            "widths of the decoder's hidden layers; null = the encoder's reversed"),
     K_STR("model.activation", activation, "\"sigmoid\"", "sigmoid|tanh|softplus|silu",
           "activation of the hidden layers (the output layers are linear)"),
-    K_STR("model.init", init, "\"glorot\"", "glorot|pca|isomap",
+    K_STR("model.init", init, "\"isomap\"", "glorot|pca|isomap",
           "glorot: uniform weights, zero biases; pca: in addition, the encoder's first layer projects on the "
           "leading principal directions of the training frames (whitened) and the decoder starts at the mean "
           "frame; isomap: pca, then the encoder is fitted to an Isomap embedding of the training frames (and "
           "the decoder to its inverse), so that the latent starts along the frames' manifold"),
-    K_STR("model.derivatives", derivatives, "\"frames\"", "frames|latent",
+    K_STR("model.derivatives", derivatives, "\"latent\"", "frames|latent",
           "frames: z' (and z'') by carrying the frames' stencil derivatives x' (x'') through the encoder; "
           "latent: by the same stencil (data.derivative) applied to the codes of the frames around each "
           "sample, robust when the picture changes a lot from one frame to the next (loss.dx is then not "
@@ -153,7 +153,7 @@ static const KeyDef keys[] = {
     K_INT("library.degree", lib_degree, "3", 0, LIB_MAX_DEGREE, NULL,
           "highest total degree of the polynomial terms"),
     K_BOOL("library.constant", lib_constant, "true", "include the constant term"),
-    K_BOOL("library.trig", lib_trig, "false", "include sin(k z) and cos(k z) terms"),
+    K_BOOL("library.trig", lib_trig, "true", "include sin(k z) and cos(k z) terms"),
     K_BOOL("library.trig_velocity", lib_trig_velocity, "true",
            "second order: sin and cos of the velocities dz/dt too"),
     K_INTS("library.multipliers", T_INTS, lib_freq, n_lib_freq, "[1]", 1, 1, 100,
@@ -167,9 +167,9 @@ static const KeyDef keys[] = {
           "weight of |x' - x_hat'|^2 (first order) or |x'' - x_hat''|^2 (second order)"),
     K_NUM("loss.dz", w_dz, "1", 0, INFINITY, 0,
           "weight of |z' - z'_pred|^2 (first order) or |z'' - z''_pred|^2 (second order)"),
-    K_NUM("loss.l1", w_l1, "0.001", 0, INFINITY, 0,
+    K_NUM("loss.l1", w_l1, "0.0001", 0, INFINITY, 0,
           "weight of the L1 norm of the coefficients (0 during refinement)"),
-    K_BOOL("loss.normalize", loss_normalize, "false",
+    K_BOOL("loss.normalize", loss_normalize, "true",
            "divide |x - x_hat|^2 by the variance of x and the dx term by the mean square of x' (or x'') "
            "over the training set, and |z' - z'_pred|^2 by the batch's mean of z'^2 (z''^2), so that the "
            "weights compare relative errors"),
@@ -185,8 +185,8 @@ static const KeyDef keys[] = {
     K_NUM("optimizer.decay_factor", sched_factor, "0.5", 0, 1, LO_OPEN, "step schedule: multiplier per decay"),
     K_NUM("optimizer.lr_min", lr_min, "0", 0, INFINITY, 0, "cosine schedule: the final learning rate"),
     /* train */
-    K_INT("train.batch", batch, "1024", 1, 1 << 20, NULL, "samples per mini-batch"),
-    K_INT("train.epochs", epochs, "3000", 1, NOMAX, NULL, "epochs in all, refinement included"),
+    K_INT("train.batch", batch, "256", 1, 1 << 20, NULL, "samples per mini-batch"),
+    K_INT("train.epochs", epochs, "1500", 1, NOMAX, NULL, "epochs in all, refinement included"),
     K_INT("train.seed", seed, "1", 0, INT_EXACT, NULL,
           "seed of the random generator (initialisation, shuffling)"),
     K_INT("train.threads", threads, "0", 0, 1024, NULL, "worker threads; 0 = all cores"),
@@ -198,20 +198,20 @@ static const KeyDef keys[] = {
            "at the end of the warm-up, set Xi by sequentially thresholded least squares on the encoded "
            "training set (threshold.value)"),
     /* threshold */
-    K_NUM("threshold.value", threshold, "0.1", 0, INFINITY, 0,
+    K_NUM("threshold.value", threshold, "0.02", 0, INFINITY, 0,
           "coefficients with |Xi| below this are set to zero and masked out for good"),
-    K_STR("threshold.measure", threshold_measure, "\"coefficient\"", "coefficient|contribution",
+    K_STR("threshold.measure", threshold_measure, "\"contribution\"", "coefficient|contribution",
           "what threshold.value and loss.l1 measure: coefficient = |Xi| in the units of the latent and of "
           "time; contribution = |Xi| rms(term) / rms(z' or z'') over the training set (the L1 term over the "
           "batch), the share of the target a term carries, the same in any units"),
-    K_STR("threshold.select", threshold_select, "\"none\"", "none|first|every",
+    K_STR("threshold.select", threshold_select, "\"every\"", "none|first|every",
           "first: the law is selected once, on the latent of the start-up before joint training; every: then "
           "again at every thresholding pass, in place of pruning. Selection: candidate laws from thresholded "
           "least squares on the encoded training set (nested libraries, a grid of contribution thresholds) "
           "are integrated over segments of the training recordings and scored by forecast error and number "
           "of terms (docs/training.md)"),
-    K_INT("threshold.every", threshold_every, "500", 1, NOMAX, NULL, "epochs between thresholding passes"),
-    K_INT("threshold.refine_epochs", refine_epochs, "1000", 0, NOMAX, NULL,
+    K_INT("threshold.every", threshold_every, "250", 1, NOMAX, NULL, "epochs between thresholding passes"),
+    K_INT("threshold.refine_epochs", refine_epochs, "300", 0, NOMAX, NULL,
           "the last epochs: mask fixed, no L1, no thresholding; < train.epochs"),
     /* checkpoint */
     K_INT("checkpoint.every", ckpt_every, "100", 1, NOMAX, NULL, "epochs between checkpoints"),
@@ -678,10 +678,37 @@ static int read_text(const char *path, char **out, Status *st) {
     return 0;
 }
 
-int config_load(Config *c, const char *path, Status *st) {
+/* Keys added after the first release, with the value that behaves as framelaw did before the key
+ * existed (its compat value). A run folder's config.json written before a key existed lacks it, and
+ * config_load_run reads it as the compat value, not today's default; in the digest a late key counts
+ * only away from its compat value, so those runs still match their checkpoints. */
+static const struct {
+    const char *path, *compat;
+} late_keys[] = {{"model.derivatives", "\"frames\""},       {"model.init_epochs", "200"},
+                 {"model.init_frames", "2000"},            {"threshold.measure", "\"coefficient\""},
+                 {"threshold.select", "\"none\""}};
+
+static const char *late_compat(const char *path) {
+    for (size_t i = 0; i < sizeof late_keys / sizeof late_keys[0]; i++)
+        if (!strcmp(path, late_keys[i].path)) return late_keys[i].compat;
+    return NULL;
+}
+
+static int load_file(Config *c, const char *path, int compat, Status *st) {
     char *text;
     if (read_text(path, &text, st)) return st->code;
     config_defaults(c); /* the file is read over the defaults */
+    if (compat) /* a run's config: keys it lacks behave as before they existed */
+        for (int i = 0; i < N_KEYS; i++) {
+            const char *cv = late_compat(keys[i].path);
+            if (!cv) continue;
+            cJSON *v = cJSON_Parse(cv);
+            Ctx x = {"compat", NULL};
+            Status s2;
+            int rc = v ? apply_key(c, &keys[i], v, keys[i].path, &x, &s2) : -1;
+            cJSON_Delete(v);
+            NN_CHECK(rc == 0, "compat value of %s rejected: %s", keys[i].path, cv);
+        }
     /* the file's folder, made absolute */
     char dir[CFG_PATH_MAX];
     const char *slash = strrchr(path, '/');
@@ -703,6 +730,10 @@ int config_load(Config *c, const char *path, Status *st) {
     }
     return 0;
 }
+
+int config_load(Config *c, const char *path, Status *st) { return load_file(c, path, 0, st); }
+
+int config_load_run(Config *c, const char *path, Status *st) { return load_file(c, path, 1, st); }
 
 int config_set(Config *c, const char *assignment, Status *st) {
     const char *eq = strchr(assignment, '=');
@@ -833,17 +864,10 @@ static cJSON *key_value(const Config *c, const KeyDef *k) {
     return cJSON_CreateNull();
 }
 
-/* Every key (but the resume-safe ones when skip_safe) as a nested tree, in table order. */
-/* Keys added after the first release. In the digest they count only when set to something other
- * than their default, so that runs made before a key existed still match their checkpoints. */
-static const char *const late_keys[] = {"model.derivatives", "model.init_epochs", "model.init_frames",
-                                        "threshold.measure", "threshold.select"};
-
-static int late_at_default(const Config *c, const KeyDef *k) {
-    int late = 0;
-    for (size_t i = 0; i < sizeof late_keys / sizeof late_keys[0]; i++) late |= !strcmp(k->path, late_keys[i]);
-    if (!late) return 0;
-    cJSON *v = key_value(c, k), *d = cJSON_Parse(k->def); /* compared as printed (exact integers are raw) */
+static int late_at_compat(const Config *c, const KeyDef *k) {
+    const char *compat = late_compat(k->path);
+    if (!compat) return 0;
+    cJSON *v = key_value(c, k), *d = cJSON_Parse(compat); /* compared as printed (exact integers are raw) */
     char *pv = v ? cJSON_PrintUnformatted(v) : NULL, *pd = d ? cJSON_PrintUnformatted(d) : NULL;
     int same = pv && pd && !strcmp(pv, pd);
     free(pv), free(pd);
@@ -851,12 +875,13 @@ static int late_at_default(const Config *c, const KeyDef *k) {
     return same;
 }
 
-/* skip_safe: the digest's tree (no resume-safe keys, no late keys at their defaults). */
+/* Every key (but the resume-safe ones when skip_safe) as a nested tree, in table order. */
+/* skip_safe: the digest's tree (no resume-safe keys, no late keys at their compat values). */
 static cJSON *config_tree(const Config *c, int skip_safe) {
     cJSON *root = cJSON_CreateObject();
     for (int i = 0; i < N_KEYS; i++) {
         const KeyDef *k = &keys[i];
-        if (skip_safe && (is_resume_safe(k->path) || late_at_default(c, k))) continue;
+        if (skip_safe && (is_resume_safe(k->path) || late_at_compat(c, k))) continue;
         char path[128];
         snprintf(path, sizeof path, "%s", k->path);
         cJSON *cur = root;

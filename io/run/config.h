@@ -29,7 +29,7 @@ typedef struct {
     char scale[16];                 /* data.scale: "unit" ([0,1]) | "standardize" (per pixel)     [unit] */
     int stride;                     /* data.stride: keep every n-th frame                              [1] */
     int store_bits;                 /* data.store_bits: 8 | 16                                         [8] */
-    char derivative[16];            /* data.derivative.method: "central" | "savgol"            [central] */
+    char derivative[16];            /* data.derivative.method: "central" | "savgol" | "auto"      [auto] */
     int sg_window, sg_degree;       /* data.derivative.window [7], .degree [3]                          */
     int n_val_names;                /* data.validation.recordings: names of held-out recordings        */
     char val_names[CFG_MAX_LIST][CFG_NAME_MAX];
@@ -38,20 +38,20 @@ typedef struct {
     /* model */
     int latent;                     /* model.latent                                                 [1] */
     int order;                      /* model.order: 1 | 2                                           [2] */
-    int n_encoder;                  /* model.encoder: hidden widths                      [[128, 64, 32]] */
+    int n_encoder;                  /* model.encoder: hidden widths                           [[64, 32]] */
     int encoder[CFG_MAX_LIST];
     int n_decoder;                  /* model.decoder: hidden widths; null = encoder mirrored    [null] */
                                     /*   (n_decoder = -1 for null)                                     */
     int decoder[CFG_MAX_LIST];
     char activation[16];            /* model.activation: sigmoid | tanh | softplus | silu     [sigmoid] */
-    char init[16];                  /* model.init: "glorot"                                    [glorot] */
-    char derivatives[16];           /* model.derivatives: "frames" | "latent"                 [frames] */
+    char init[16];                  /* model.init: "glorot" | "pca" | "isomap"                 [isomap] */
+    char derivatives[16];           /* model.derivatives: "frames" | "latent"                 [latent] */
     long init_epochs;               /* model.init_epochs: isomap fitting epochs                   [200] */
     long init_frames;               /* model.init_frames: frames embedded by isomap              [2000] */
     /* library */
     int lib_degree;                 /* library.degree                                               [3] */
     int lib_constant;               /* library.constant                                          [true] */
-    int lib_trig;                   /* library.trig                                             [false] */
+    int lib_trig;                   /* library.trig                                              [true] */
     int lib_trig_velocity;          /* library.trig_velocity: sin/cos of velocities too          [true] */
     int n_lib_freq;                 /* library.multipliers: k in sin(k z), cos(k z)               [[1]] */
     int lib_freq[8];
@@ -59,8 +59,8 @@ typedef struct {
     char lib_include[32][CFG_NAME_MAX];
     char lib_exclude[32][CFG_NAME_MAX];
     /* loss */
-    double w_rec, w_dx, w_dz, w_l1; /* loss.reconstruction [1], loss.dx [0.1], loss.dz [1], loss.l1 [1e-3] */
-    int loss_normalize;             /* loss.normalize: divide rec and dx terms by the data's scale [false] */
+    double w_rec, w_dx, w_dz, w_l1; /* loss.reconstruction [1], loss.dx [0.1], loss.dz [1], loss.l1 [1e-4] */
+    int loss_normalize;             /* loss.normalize: divide rec and dx terms by the data's scale [true] */
     /* optimizer */
     double lr, beta1, beta2, eps;   /* optimizer.lr [1e-3], .beta1 [0.9], .beta2 [0.999], .eps [1e-8] */
     char schedule[16];              /* optimizer.schedule: "constant" | "step" | "cosine"    [constant] */
@@ -68,19 +68,19 @@ typedef struct {
     double sched_factor;            /* optimizer.decay_factor: step decay multiplier              [0.5] */
     double lr_min;                  /* optimizer.lr_min: floor of the cosine schedule               [0] */
     /* train */
-    int batch;                      /* train.batch                                               [1024] */
-    long epochs;                    /* train.epochs: total, refinement included                  [3000] */
+    int batch;                      /* train.batch                                                [256] */
+    long epochs;                    /* train.epochs: total, refinement included                  [1500] */
     uint64_t seed;                  /* train.seed                                                   [1] */
     int threads;                    /* train.threads: 0 = all cores                                 [0] */
     int validate_every;             /* train.validate_every: epochs                                [10] */
     long warmup_epochs;             /* train.warmup_epochs: autoencoder alone first (no dz, no L1)   [0] */
     int warmup_fit;                 /* train.warmup_fit: Xi from thresholded least squares after it [true] */
     /* threshold */
-    double threshold;               /* threshold.value                                            [0.1] */
-    char threshold_measure[16];     /* threshold.measure: "coefficient" | "contribution"     [coefficient] */
-    char threshold_select[16];      /* threshold.select: "none" | "first" | "every"                  [none] */
-    int threshold_every;            /* threshold.every: epochs between passes                     [500] */
-    long refine_epochs;             /* threshold.refine_epochs: last epochs, mask fixed, no L1   [1000] */
+    double threshold;               /* threshold.value                                           [0.02] */
+    char threshold_measure[16];     /* threshold.measure: "coefficient" | "contribution" [contribution] */
+    char threshold_select[16];      /* threshold.select: "none" | "first" | "every"                 [every] */
+    int threshold_every;            /* threshold.every: epochs between passes                     [250] */
+    long refine_epochs;             /* threshold.refine_epochs: last epochs, mask fixed, no L1    [300] */
     /* checkpoint */
     int ckpt_every;                 /* checkpoint.every: epochs                                   [100] */
     int ckpt_keep;                  /* checkpoint.keep: how many periodic checkpoints to keep       [3] */
@@ -113,6 +113,11 @@ int config_parse(Config *c, const char *json, const char *origin, const char *ba
  * base_dir is the file's folder made absolute, so the resolved data.frames is absolute. A missing
  * or unreadable file is ST_INPUT naming the file. */
 int config_load(Config *c, const char *path, Status *st);
+
+/* config_load for a run folder's config.json: a key added after the file was written (it lacks it)
+ * takes the value that behaves as framelaw did then, not today's default, so an old run resumes,
+ * reports and verifies as it trained. */
+int config_load_run(Config *c, const char *path, Status *st);
 
 /* Apply one `KEY.PATH=VALUE` override (VALUE is JSON; a bare word is taken as a string). KEY.PATH
  * may also name a section with an object value (`data.derivative={"method":"savgol"}`). Same

@@ -162,5 +162,5 @@ int run_config_load(const char *run_dir, Config *c, Status *st) {
     char path[CFG_PATH_MAX + 32];
     snprintf(path, sizeof path, "%s/config.json", run_dir);
     if (stat(path, &sb) != 0) return status_set(st, ST_INPUT, "%s: missing (not a run folder?)", path);
-    return config_load(c, path, st);
+    return config_load_run(c, path, st);
 }

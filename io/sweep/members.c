@@ -54,7 +54,7 @@ int sweep_member_state(const Sweep *sw, int i, MemberState *state, Status *st) {
     snprintf(p, sizeof p, "%s/config.json", dir);
     if (!rc && fs_exists(p)) {
         Status ls;
-        if (config_load(theirs, p, &ls))
+        if (config_load_run(theirs, p, &ls))
             rc = status_set(st, ST_INPUT, "member %s: %s (move the folder away to start this member over)", sw->members[i].id, ls.msg);
         else if (config_digest(theirs) != config_digest(mine))
             rc = status_set(st, ST_INPUT, "member %s: %s holds a run of another config (the sweep file or its base config "
