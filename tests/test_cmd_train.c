@@ -203,11 +203,48 @@ static void test_bad_usage(void **state) {
     assert_int_equal(run_cmd("resume", "--help", NULL, NULL), 0);
 }
 
+/* Recordings too short for what the defaults need: exit 2 and a line that says what to change. */
+static void test_short_recordings(void **state) {
+    Fixture *fx = *state;
+    char args[1200], out[4096], cfg[600];
+    static const struct {
+        int frames;
+        const char *msg;
+    } cases[] = {
+        {4, "the shortest recording has 4 frames, too few for a Savitzky-Golay stencil (5); record longer "
+            "recordings or set data.derivative.method central"},
+        {10, "library has 14 terms but the training set only 8 samples: record more or longer recordings"},
+    };
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        snprintf(args, sizeof args, "demo spring '%s/short%zu' --recordings 3 --frames %d", fx->dir, i, cases[i].frames);
+        assert_int_equal(test_run_capture(args, out, sizeof out), 0);
+        snprintf(cfg, sizeof cfg, "%s/short%zu.json", fx->dir, i);
+        FILE *f = fopen(cfg, "w");
+        assert_non_null(f);
+        fprintf(f, "{\"data\": {\"frames\": \"short%zu\", \"fps\": 25}, \"model\": {\"latent\": 1, \"order\": 2},\n"
+                   " \"output\": \"%s/short%zu-run\"}\n", i, fx->dir, i);
+        fclose(f);
+        snprintf(args, sizeof args, "train '%s' --quiet", cfg);
+        assert_int_equal(test_run_capture(args, out, sizeof out), 2);
+        if (!strstr(out, cases[i].msg)) fail_msg("%d frames: got '%s'", cases[i].frames, out);
+    }
+    /* a run whose law loses every term ends normally, with a warning that says what to try */
+    char run[600];
+    snprintf(run, sizeof run, "%s/empty", fx->dir);
+    snprintf(cfg, sizeof cfg, "%s/empty.json", fx->dir);
+    write_config(cfg, fx->data, run, 30);
+    snprintf(args, sizeof args, "train '%s' --quiet --set threshold.value=1e9", cfg);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
+    assert_non_null(strstr(out, "learned equations (0 active terms)"));
+    assert_non_null(strstr(out, "warning: no term is left"));
+}
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test_setup_teardown(test_kill_loop_then_resume_matches_straight_run, setup, teardown),
         cmocka_unit_test_setup_teardown(test_interrupt_writes_checkpoint, setup, teardown),
         cmocka_unit_test_setup_teardown(test_bad_usage, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_short_recordings, setup, teardown),
     };
     return cmocka_run_group_tests_name("train and resume commands", tests, NULL, NULL);
 }

@@ -87,7 +87,7 @@ static void test_samples_and_split(void **state) {
     s.val_names[0] = 0;
     s.sg_window = 11, s.sg_degree = 4;
     assert_int_equal(dataset_init(&ds, &fs, &s, &st), ST_INPUT);
-    assert_non_null(strstr(st.msg, "recording 'rec1' has 10 frames (after stride 1), the savgol stencil needs at least 11"));
+    assert_non_null(strstr(st.msg, "recording 'rec1' has 10 frames (after stride 1), the savgol stencil needs at least 11: record longer"));
     /* val_last 0: all training; val_last >= number of recordings: none held out. */
     s = frame_settings_default();
     s.val_last = 0;

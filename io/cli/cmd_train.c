@@ -31,8 +31,13 @@ static int finish_run(const char *run_dir, int quiet, Status *st) {
     int rc = loaded_run_open(r, run_dir, st);
     if (!rc) rc = results_export(r, quiet, st);
     if (!rc) {
-        printf("learned equations (%ld active terms):\n", model_active(&r->m));
+        long active = model_active(&r->m);
+        printf("learned equations (%ld active terms):\n", active);
         equation_fprint(stdout, EQ_TEXT, &r->m.lib, r->coef.xi, r->coef.mask, 4);
+        if (!active) /* a law of nothing: the latent stood still, or every term fell below the threshold */
+            fprintf(stderr, "framelaw: warning: no term is left, so this law says nothing moves: the latent may have "
+                            "collapsed to a constant (see its plot in framelaw report); try more recordings or "
+                            "epochs, a lower threshold.value, or model.init isomap\n");
         if (!quiet) run_ensemble_print(stdout, r);
         fflush(stdout);
         rc = results_forecast(r, quiet, st);

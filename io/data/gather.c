@@ -107,7 +107,8 @@ int dataset_init(Dataset *ds, const FrameStore *fs, const FrameSettings *s, Stat
     for (int r = 0; r < fs->n_rec; r++)
         if (fs->rec[r].count < 2L * m + 1)
             return status_set(st, ST_INPUT,
-                              "recording '%s' has %ld frames (after stride %d), the %s stencil needs at least %d",
+                              "recording '%s' has %ld frames (after stride %d), the %s stencil needs at least %d: record "
+                              "longer recordings, lower data.stride or narrow data.derivative (central needs 3)",
                               fs->rec[r].name, fs->rec[r].count, s->stride, stencil_kind_names[ds->sten.kind], 2 * m + 1);
     ds->gain = malloc(sizeof(float) * (size_t)ds->n);
     ds->offset = malloc(sizeof(float) * (size_t)ds->n);

@@ -108,8 +108,19 @@ static int auto_stencil(const Dataset *ds, const FrameStore *fs, int order, Fram
     double theta = stencil_rms_frequency(sc, N, q, rs, nr);
     if (!(theta > 0)) theta = 0.05; /* still frames: any stencil is exact; take a wide one */
     if (theta > 3.0) theta = 3.0;
+    /* no wider than the shortest recording (a narrower stencil is less exact, but it runs) */
+    long shortest = AUTO_STENCIL_MAX;
+    for (int r = 0; r < fs->n_rec; r++)
+        if (fs->rec[r].count < shortest) shortest = fs->rec[r].count;
+    int max_w = shortest % 2 ? (int)shortest : (int)shortest - 1;
+    if (max_w < 5) { /* Savitzky-Golay of degree 3 needs 5 frames: central differences need 3 */
+        rc = status_set(st, ST_INPUT, "data.derivative auto: the shortest recording has %ld frames, too few for a "
+                        "Savitzky-Golay stencil (5); record longer recordings or set data.derivative.method central",
+                        shortest);
+        goto done;
+    }
     Stencil sten;
-    if ((rc = stencil_auto(&sten, theta, order, AUTO_STENCIL_TOL, AUTO_STENCIL_MAX, st))) goto done;
+    if ((rc = stencil_auto(&sten, theta, order, AUTO_STENCIL_TOL, max_w, st))) goto done;
     s->stencil = STENCIL_SAVGOL;
     s->sg_window = 2 * sten.m + 1;
     s->sg_degree = sten.degree;

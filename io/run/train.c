@@ -557,8 +557,10 @@ static int setup(Run *r, const Config *cfg, const TrainData *ds, const char *run
     params_alloc(ps);
     if (m->lib.n_terms > ds->n_train && ds->n_train > 0) {
         /* more unknowns per equation than samples: the model is not determined by the data */
-        return status_set(st, ST_INPUT, "library has %d terms but the training set only %ld samples", m->lib.n_terms,
-                          ds->n_train);
+        return status_set(st, ST_INPUT,
+                          "library has %d terms but the training set only %ld samples: record more or longer "
+                          "recordings, or shrink the library (library.degree, library.trig)",
+                          m->lib.n_terms, ds->n_train);
     }
     if (ds->sten) model_set_window(m, ds->sten, ds->dt);
     rng_seed(&r->meta.rng, cfg->seed);
