@@ -1199,7 +1199,7 @@ static void apply_conventions(const Prob *P, Map *m, uint8_t *support) {
         if (m->A[i * k + jm] < 0) f = -f;
         for (int j = 0; j < k; j++) m->A[i * k + j] *= f;
         m->b[i] *= f;
-        m->w[i] /= fabs(f);
+        if (P->trig) m->w[i] /= fabs(f); /* w only scales trig arguments: 1 without them */
     }
     if (k == 1) return;
     /* the order: new variable j is old row perm[j], maximising sum_j |standardised A[perm[j], j]| */

@@ -38,6 +38,7 @@ static const char *FULL =
     "  \"forecast\": {\"bound\": 0.2, \"method\": \"rk4\", \"tolerance\": 1e-6},\n"
     "  \"ensemble\": {\"members\": 40, \"block\": 12, \"block_seconds\": 0.5, \"library_bagging\": true,\n"
     "               \"drop_fraction\": 0.3, \"inclusion\": 0.7, \"band_members\": 20},\n"
+    "  \"canonical\": {\"tolerance\": 0.1, \"cond_max\": 500},\n"
     "  \"output\": \"runs/full\"\n"
     "}\n";
 
@@ -308,7 +309,8 @@ static void test_digest(void **state) {
                                        "forecast.bound=0.3", "forecast.method=rk4", "forecast.tolerance=1e-6",
                                        "ensemble.members=7", "ensemble.block=3", "ensemble.block_seconds=2",
                                        "ensemble.library_bagging=true", "ensemble.drop_fraction=0.5",
-                                       "ensemble.inclusion=0.9", "ensemble.band_members=5"};
+                                       "ensemble.inclusion=0.9", "ensemble.band_members=5",
+                                       "canonical.tolerance=0.1", "canonical.cond_max=50"};
     Config s = c;
     for (size_t i = 0; i < sizeof safe / sizeof safe[0]; i++) {
         set_ok(&s, safe[i]);
@@ -336,7 +338,7 @@ static void test_digest(void **state) {
         for (int i = 0; config_key_path(i); i++) found |= !strcmp(config_key_path(i), config_resume_safe_keys[n]);
         if (!found) fail_msg("resume-safe key %s is not in the table", config_resume_safe_keys[n]);
     }
-    assert_int_equal(n, 16);
+    assert_int_equal(n, 18);
 }
 
 /* The bad configs: each with the substring its message must hold. The origin prefixes every one. */

@@ -3,6 +3,8 @@
 #ifndef IO_CLI_H
 #define IO_CLI_H
 
+#include "io/run/config.h"
+
 #define FRAMELAW_VERSION "0.1.0"
 
 typedef struct {
@@ -42,5 +44,12 @@ int cmd_verify(int argc, char **argv);   /* io/cli/cmd_verify.c */
 
 /* framelaw ensemble RUN_DIR: ensembles by bagging of a finished run (io/cli/cmd_ensemble.c). */
 int cmd_ensemble(int argc, char **argv);
+
+/* framelaw canonical RUN_DIR: the sparsest form of a finished run's law (io/cli/cmd_canonical.c). */
+int cmd_canonical(int argc, char **argv);
+
+/* Has the run in dir (config c) finished training? The log's last epoch against train.epochs. 0, or
+ * ST_INPUT saying what to do (io/cli/cmd_ensemble.c). */
+int cli_run_finished(const char *dir, const Config *c, Status *st);
 
 #endif

@@ -12,8 +12,7 @@
 #include "io/run/runensemble.h"
 #include "io/run/runlog.h"
 
-/* Has training finished? The log's last epoch against train.epochs. 0, or ST_INPUT saying what to do. */
-static int check_finished(const char *dir, const Config *c, Status *st) {
+int cli_run_finished(const char *dir, const Config *c, Status *st) {
     RunLog log;
     Status ls;
     if (runlog_read(dir, &log, &ls))
@@ -68,7 +67,7 @@ int cmd_ensemble(int argc, char **argv) {
     if (run_config_load(dir, &c, &st)) return cli_error(st.code, "%s", st.msg);
     for (int i = 0; i < n_sets; i++)
         if (config_set(&c, sets[i], &st)) return cli_error(st.code, "%s", st.msg);
-    if (config_validate(&c, &st) || check_finished(dir, &c, &st)) return cli_error(st.code, "%s", st.msg);
+    if (config_validate(&c, &st) || cli_run_finished(dir, &c, &st)) return cli_error(st.code, "%s", st.msg);
     if (loaded_run_open(&r, dir, &st)) return cli_error(st.code, "%s", st.msg);
     r.cfg = c; /* the folder's config with the --set ensemble keys */
     int rc = run_ensemble_get(&r, quiet, &st);

@@ -10,6 +10,7 @@
 #include "io/cli/cli.h"
 #include "io/run/config.h"
 #include "io/run/results.h"
+#include "io/run/runcanonical.h"
 #include "io/run/runensemble.h"
 #include "io/run/rundata.h"
 #include "io/run/train.h"
@@ -38,6 +39,7 @@ static int finish_run(const char *run_dir, int quiet, Status *st) {
             fprintf(stderr, "framelaw: warning: no term is left, so this law says nothing moves: the latent may have "
                             "collapsed to a constant (see its plot in framelaw report); try more recordings or "
                             "epochs, a lower threshold.value, or model.init isomap\n");
+        run_canonical_print(stdout, r);
         if (!quiet) run_ensemble_print(stdout, r);
         fflush(stdout);
         rc = results_forecast(r, quiet, st);

@@ -16,6 +16,7 @@ static const Command commands[] = {
     {"forecast", "forecast the held-out recordings with the learned model and measure the error", cmd_forecast},
     {"verify", "check a run on a demo scenario against its physics (periods, Lyapunov exponent)", cmd_verify},
     {"ensemble", "how sure is each term: refit the law on resampled data, inclusion probabilities, bands", cmd_ensemble},
+    {"canonical", "the sparsest form of a run's law under a change of latent coordinates, and the map", cmd_canonical},
     {"help", "show this overview", cmd_help},
     {"fit", "fit a sparse ODE to a time series of state coordinates (CSV or .npy)", cmd_fit},
     {"frames", "inspect a frames folder: recordings, sizes, frame store, contact sheet", cmd_frames},

@@ -241,6 +241,13 @@ static const KeyDef keys[] = {
     K_INT("ensemble.band_members", ens_band_members, "100", 1, ENSEMBLE_MAX_MEMBERS, NULL,
           "members whose laws are integrated for the forecast bands (the first ones; at most "
           "ensemble.members)"),
+    /* canonical */
+    K_NUM("canonical.tolerance", canon_tolerance, "0.05", 0, INFINITY, 0,
+          "the canonical law's fit error may exceed the learned law's by this fraction, equation by equation "
+          "(docs/canonical.md)"),
+    K_NUM("canonical.cond_max", canon_cond_max, "1000", 1, INFINITY, 0,
+          "bound on the condition number of the map to canonical coordinates, between standardised "
+          "coordinates; a map beyond it is never reported"),
     /* output */
     K_PATH("output", output, "`runs/<config file stem>`",
            "run directory, relative to the current directory"),
@@ -251,7 +258,7 @@ const char *const config_resume_safe_keys[] = {
     "train.epochs", "train.threads", "train.validate_every", "checkpoint.every", "checkpoint.keep",
     "output", "forecast.bound", "forecast.method", "forecast.tolerance", "ensemble.members", "ensemble.block",
     "ensemble.block_seconds", "ensemble.library_bagging", "ensemble.drop_fraction", "ensemble.inclusion",
-    "ensemble.band_members", NULL,
+    "ensemble.band_members", "canonical.tolerance", "canonical.cond_max", NULL,
 };
 
 void config_safe_keys_text(char *buf, size_t n) {

@@ -96,6 +96,9 @@ typedef struct {
     double ens_drop;                /* ensemble.drop_fraction                                     [0.2] */
     double ens_inclusion;           /* ensemble.inclusion: threshold on inclusion probability     [0.5] */
     int ens_band_members;           /* ensemble.band_members: members integrated for bands        [100] */
+    /* canonical (docs/canonical.md) */
+    double canon_tolerance;         /* canonical.tolerance: allowed growth of the fit error       [0.05] */
+    double canon_cond_max;          /* canonical.cond_max: bound on the map's condition number    [1000] */
     /* output */
     char output[CFG_PATH_MAX];      /* output: run directory                       [runs/<config name>] */
 } Config;

@@ -12,6 +12,7 @@
 #include "io/fs/files.h"
 #include "io/data/images.h"
 #include "io/data/series.h"
+#include "io/run/runcanonical.h"
 #include "io/run/runensemble.h"
 #include "sparse/equation.h"
 #include "sparse/integrate.h"
@@ -23,6 +24,8 @@ enum { CHUNK = 256 }; /* frames encoded or decoded per batch */
 void loaded_run_close(LoadedRun *r) {
     run_ensemble_free(r->ens);
     r->ens = NULL;
+    run_canonical_free(r->canon);
+    r->canon = NULL;
     if (r->have_tape) tape_free(&r->tape);
     if (r->have_model) {
         coef_free(&r->coef);
@@ -160,15 +163,17 @@ static int outside(const Region *reg, const double *y) {
 /* ---- export ---------------------------------------------------------------------------------- */
 
 int results_write_equations(LoadedRun *r, int quiet, Status *st) {
-    if (run_ensemble_get(r, quiet, st)) return st->code;
+    if (run_ensemble_get(r, quiet, st) || run_canonical_get(r, quiet, st)) return st->code;
     const EqStyle styles[2] = {EQ_TEXT, EQ_LATEX};
     const char *names[2] = {"equations.txt", "equations.tex"};
     char path[CFG_PATH_MAX + 32];
     for (int i = 0; i < 2; i++) {
-        size_t need = equation_format(NULL, 0, styles[i], &r->m.lib, r->coef.xi, r->coef.mask, 4) + 2;
+        size_t head = run_canonical_format(NULL, 0, styles[i], r, 4);
+        size_t need = head + equation_format(NULL, 0, styles[i], &r->m.lib, r->coef.xi, r->coef.mask, 4) + 2;
         char *buf = malloc(need);
         if (!buf) return status_set(st, ST_RUNTIME, "out of memory");
-        equation_format(buf, need, styles[i], &r->m.lib, r->coef.xi, r->coef.mask, 4);
+        run_canonical_format(buf, need, styles[i], r, 4);
+        equation_format(buf + head, need - head, styles[i], &r->m.lib, r->coef.xi, r->coef.mask, 4);
         size_t len = strlen(buf);
         if (len && buf[len - 1] != '\n') buf[len++] = '\n';
         snprintf(path, sizeof path, "%s/%s", r->dir, names[i]);
@@ -178,6 +183,8 @@ int results_write_equations(LoadedRun *r, int quiet, Status *st) {
     }
     cJSON *tree = equation_json(&r->m.lib, r->coef.xi, r->coef.mask, 6);
     if (tree) cJSON_AddItemToObject(tree, "ensemble", run_ensemble_json(r, 6));
+    cJSON *canon = tree ? run_canonical_json(r, 6) : NULL;
+    if (canon) cJSON_AddItemToObject(tree, "canonical", canon);
     char *json = tree ? cJSON_Print(tree) : NULL;
     cJSON_Delete(tree);
     if (!json) return status_set(st, ST_RUNTIME, "out of memory");

@@ -23,6 +23,7 @@ typedef struct {
     Tape tape;
     int have_data, have_model, have_tape;
     struct RunEnsemble *ens;    /* the ensemble by bagging, once computed (io/run/runensemble.h) */
+    struct RunCanonical *canon; /* the canonical form, once computed (io/run/runcanonical.h) */
 } LoadedRun;
 
 int loaded_run_open(LoadedRun *r, const char *run_dir, Status *st);
@@ -37,7 +38,8 @@ typedef struct {
 
 int results_region(LoadedRun *r, Region *reg, Status *st);
 
-/* Write equations.txt, .tex and .json (with the ensemble, computed when not yet there). */
+/* Write equations.txt, .tex and .json (with the ensemble and the canonical form, computed when not
+ * yet there; a sparser canonical law opens the text files, the learned law follows it). */
 int results_write_equations(LoadedRun *r, int quiet, Status *st);
 
 /* Write equations, trajectories/, reconstructions/ (image data only) and region.json. */

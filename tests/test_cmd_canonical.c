@@ -1,0 +1,149 @@
+/* tests/test_cmd_canonical.c: the canonical form in a run (io/run/runcanonical.h) and `framelaw
+ * canonical RUN_DIR`, through the binary. The data: a harmonic oscillator z'' = -w^2 z, w = 2 rad/s,
+ * seen through 16 fixed linear channels (so its state (z, z'/w) is a rotation in any coordinates the
+ * encoder picks), 4 CSV recordings. Its law in the learned coordinates is dense; in the canonical
+ * ones it is the real Jordan form u1' = -a u2, u2' = c u1 with a c = w^2 (the eigenvalues +-i w of
+ * the linear law do not change under a change of coordinates; the oscillator's angular frequency,
+ * common practice). The search itself is checked against outside values in tests/test_canonical.c. */
+#include <sys/stat.h>
+
+#include <cjson/cJSON.h>
+
+#include "tests/testutil.h"
+
+static const char CFG[] =
+    "{\"data\": {\"frames\": \"%s/data\", \"fps\": 30, \"derivative\": {\"method\": \"central\"}},\n"
+    " \"model\": {\"latent\": 2, \"order\": 1, \"encoder\": [16], \"activation\": \"tanh\", \"init\": \"pca\", "
+    "\"derivatives\": \"frames\"},\n"
+    " \"library\": {\"degree\": 2, \"trig\": false},\n"
+    " \"loss\": {\"dx\": 0.1, \"dz\": 1, \"l1\": 1e-3, \"normalize\": false},\n"
+    " \"train\": {\"batch\": 32, \"epochs\": 60, \"threads\": 1, \"validate_every\": 5, \"warmup_epochs\": 20},\n"
+    " \"threshold\": {\"value\": 0.05, \"measure\": \"coefficient\", \"select\": \"none\", \"every\": 10, "
+    "\"refine_epochs\": 10},\n"
+    " \"checkpoint\": {\"every\": 25, \"keep\": 2},\n"
+    " \"output\": \"%s/run\"}\n";
+
+#define W_OSC 2.0
+
+static char tmp[256];
+
+static int setup(void **state) {
+    (void)state;
+    char dir[512], path[600], cfg[4096], args[1200], out[8192];
+    if (!test_tmpdir(tmp, sizeof tmp)) return -1;
+    snprintf(dir, sizeof dir, "%s/data", tmp);
+    if (mkdir(dir, 0777)) return -1;
+    for (int k = 0; k < 4; k++) {
+        snprintf(path, sizeof path, "%s/rec%d.csv", dir, k);
+        FILE *f = fopen(path, "w");
+        if (!f) return -1;
+        for (int i = 0; i < 120; i++) {
+            double t = i / 30.0, a = 0.5 + 0.1 * k, z0 = a * sin(W_OSC * t + k), z1 = a * cos(W_OSC * t + k);
+            for (int c = 0; c < 16; c++) fprintf(f, "%s%.9g", c ? "," : "", sin(c + 1.0) * z0 + cos(2.0 * c + 1) * z1);
+            fputc('\n', f);
+        }
+        fclose(f);
+    }
+    snprintf(cfg, sizeof cfg, CFG, tmp, tmp);
+    snprintf(path, sizeof path, "%s/config.json", tmp);
+    test_write_file(path, cfg);
+    snprintf(args, sizeof args, "train '%s'", path);
+    int rc = test_run_capture(args, out, sizeof out);
+    if (rc) fprintf(stderr, "train exited %d:\n%s", rc, out);
+    return rc;
+}
+
+static int teardown(void **state) {
+    (void)state;
+    test_rmtree(tmp);
+    return 0;
+}
+
+static char *run_file(const char *name) {
+    char path[600];
+    snprintf(path, sizeof path, "%s/run/%s", tmp, name);
+    char *s = test_slurp(path);
+    if (!s) fail_msg("%s missing", path);
+    return s;
+}
+
+/* equations.json: the canonical object holds the two-term rotation with the oscillator's frequency,
+ * a map within the condition bound; equations.txt opens with the canonical law, then the learned one. */
+static void test_found_in_training(void **state) {
+    (void)state;
+    char *txt = run_file("equations.json");
+    cJSON *root = cJSON_Parse(txt);
+    assert_non_null(root);
+    cJSON *c = cJSON_GetObjectItem(root, "canonical");
+    assert_non_null(c);
+    assert_string_equal(cJSON_GetObjectItem(c, "status")->valuestring, "found");
+    cJSON *fit = cJSON_GetObjectItem(c, "fit");
+    int active = cJSON_GetObjectItem(fit, "active")->valueint, learned = cJSON_GetObjectItem(fit, "active_learned")->valueint;
+    assert_int_equal(active, 2);
+    assert_true(learned > active);
+    cJSON *map = cJSON_GetObjectItem(c, "map");
+    double cond = cJSON_GetObjectItem(map, "cond")->valuedouble;
+    assert_true(cond >= 1 && cond <= 1000);
+    /* the product of the two coefficients is -w^2 */
+    double prod = 1;
+    int n = 0;
+    cJSON *eqs = cJSON_GetObjectItem(c, "equations"), *eq;
+    cJSON_ArrayForEach(eq, eqs) {
+        cJSON *co = cJSON_GetObjectItem(eq, "coefficients"), *v;
+        cJSON_ArrayForEach(v, co) if (v->valuedouble != 0) prod *= v->valuedouble, n++;
+    }
+    assert_int_equal(n, 2);
+    double w = sqrt(-prod);
+    if (!(fabs(w - W_OSC) < 0.02 * W_OSC)) fail_msg("canonical frequency %g, expected %g", w, W_OSC);
+    cJSON_Delete(root);
+    free(txt);
+    char *eqt = run_file("equations.txt");
+    assert_true(!strncmp(eqt, "# canonical law (2 terms", 24));
+    assert_non_null(strstr(eqt, "du1/dt = "));
+    assert_non_null(strstr(eqt, "# u1 = "));
+    char *lrn = strstr(eqt, "# learned law, in z:\ndz1/dt = ");
+    assert_non_null(lrn);
+    free(eqt);
+    char *tex = run_file("equations.tex");
+    assert_true(!strncmp(tex, "% canonical law", 15));
+    assert_non_null(strstr(tex, "\\dot{u}_{1}"));
+    free(tex);
+}
+
+/* The command: prints the law and the map; --set canonical.* is stored; other keys, bad values and
+ * bad folders are refused with exit status 2. */
+static void test_command(void **state) {
+    (void)state;
+    char args[1200], out[8192];
+    snprintf(args, sizeof args, "canonical '%s/run' --set canonical.tolerance=0.1", tmp);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
+    assert_non_null(strstr(out, "canonical law (2 active terms)"));
+    assert_non_null(strstr(out, "where\nu1 = "));
+    char *cfg = run_file("config.json");
+    assert_non_null(strstr(cfg, "\"tolerance\":\t0.1"));
+    free(cfg);
+    static const struct {
+        const char *args, *msg;
+    } bad[] = {
+        {"canonical '%s/run' --set train.epochs=5", "only canonical.* keys may change here"},
+        {"canonical '%s/run' --set canonical.cond_max=0.5", "canonical.cond_max: must be a number >= 1"},
+        {"canonical '%s/nowhere'", "no such run folder"},
+        {"canonical", "missing RUN_DIR"},
+        {"canonical '%s/run' --bogus", "--bogus: unknown option"},
+    };
+    for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
+        snprintf(args, sizeof args, bad[i].args, tmp);
+        int rc = test_run_capture(args, out, sizeof out);
+        if (rc != 2 || !strstr(out, bad[i].msg)) fail_msg("%s: exit %d, '%s'", args, rc, out);
+    }
+    assert_int_equal(test_run_capture("canonical --help", out, sizeof out), 0);
+    assert_non_null(strstr(out, "usage: framelaw canonical RUN_DIR"));
+}
+
+int main(void) {
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_found_in_training),
+        cmocka_unit_test(test_command),
+    };
+    return cmocka_run_group_tests_name("canonical form in a run", tests, setup, teardown);
+}
