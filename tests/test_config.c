@@ -150,6 +150,7 @@ static void test_round_trip(void **state) {
     /* and the defaults round-trip too */
     config_defaults(&b);
     parse_ok(&b, jd);
+    memset(b.given, 0, sizeof b.given); /* the same values; the file gave every key, the defaults none */
     assert_memory_equal(&d, &b, sizeof d);
     free(ja);
     free(jb);
@@ -167,6 +168,7 @@ static void test_round_trip(void **state) {
         char *j = config_to_json(&a);
         config_defaults(&b);
         parse_ok(&b, j);
+        memset(a.given, 0, sizeof a.given), memset(b.given, 0, sizeof b.given); /* values, not provenance */
         assert_memory_equal(&a, &b, sizeof a);
         free(j);
     }
@@ -266,6 +268,32 @@ static void test_set(void **state) {
     }
 }
 
+/* The threshold schedule follows train.epochs unless given (a sixth between passes, the last fifth
+ * refines), in the file or by --set, in either order; given values stay. */
+static void test_schedule_follows_epochs(void **state) {
+    (void)state;
+    Config c;
+    config_defaults(&c);
+    assert_int_equal(c.threshold_every, 250);
+    assert_int_equal(c.refine_epochs, 300);
+    set_ok(&c, "train.epochs=50");
+    assert_int_equal(c.threshold_every, 8);
+    assert_int_equal(c.refine_epochs, 10);
+    set_ok(&c, "data.frames=/d");
+    Status st;
+    assert_int_equal(config_validate(&c, &st), 0);
+    set_ok(&c, "train.epochs=3");
+    assert_int_equal(c.threshold_every, 1);
+    assert_int_equal(c.refine_epochs, 1);
+    set_ok(&c, "threshold.every=40");
+    set_ok(&c, "train.epochs=600");
+    assert_int_equal(c.threshold_every, 40);    /* given: kept */
+    assert_int_equal(c.refine_epochs, 120);     /* not given: follows */
+    parse_ok(&c, "{\"threshold\": {\"refine_epochs\": 7}, \"train\": {\"epochs\": 900}}");
+    assert_int_equal(c.refine_epochs, 7);
+    assert_int_equal(c.threshold_every, 40);
+}
+
 /* The defaults before the template of round 2 (docs/battery.md), as a run folder of then holds them
  * in its config.json: every key of the first release written out, the keys added later absent. */
 static const char *OLD_RUN_CONFIG =
@@ -301,6 +329,9 @@ static void test_digest(void **state) {
     test_rmtree(tmp);
     config_defaults(&c);
     set_ok(&c, "data.frames=/d");
+    /* as in a run's config.json, which gives every key: the schedule no longer follows train.epochs */
+    set_ok(&c, "threshold.every=250");
+    set_ok(&c, "threshold.refine_epochs=300");
     uint64_t h0 = config_digest(&c);
     assert_true(config_digest(&c) == h0);   /* deterministic */
 
@@ -388,9 +419,10 @@ static const struct {
     {"{\"data\": {\"fps\": 30, \"fps\": 25}}", "run.json: data.fps: duplicate key"},
     /* cross-key checks (config_validate) */
     {"{}", "data.frames: required (the folder of frames or recordings)"},
-    {"{\"data\": {\"frames\": \"f\"}, \"train\": {\"epochs\": 300}}",
+    {"{\"data\": {\"frames\": \"f\"}, \"train\": {\"epochs\": 300}, \"threshold\": {\"refine_epochs\": 300}}",
      "threshold.refine_epochs (300) must be less than train.epochs (300)"},
-    {"{\"data\": {\"frames\": \"f\"}, \"train\": {\"epochs\": 800, \"warmup_epochs\": 500}}",
+    {"{\"data\": {\"frames\": \"f\"}, \"train\": {\"epochs\": 800, \"warmup_epochs\": 500}, "
+     "\"threshold\": {\"refine_epochs\": 300}}",
      "train.warmup_epochs (500) + threshold.refine_epochs (300) must be less than train.epochs (800)"},
     /* measured: the lantern demo's latent collapsed to a constant (0 active terms) without it */
     {"{\"data\": {\"frames\": \"f\"}, \"model\": {\"derivatives\": \"latent\"}, \"loss\": {\"normalize\": false}}",
@@ -540,6 +572,7 @@ int main(void) {
         cmocka_unit_test(test_full_sets_every_key),
         cmocka_unit_test(test_set),
         cmocka_unit_test(test_digest),
+        cmocka_unit_test(test_schedule_follows_epochs),
         cmocka_unit_test(test_bad_configs),
         cmocka_unit_test(test_choices_match_modules),
         cmocka_unit_test(test_load),

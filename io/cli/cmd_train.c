@@ -155,9 +155,13 @@ int cmd_train(int argc, char **argv) {
     Config *c = malloc(sizeof *c);
     if (!c) return cli_error(1, "out of memory");
     Status st;
-    if (config_load(c, path, &st) || (rc = parse_sets(c, argc, argv, &quiet, &path, 0)) || config_validate(c, &st)) {
+    if (config_load(c, path, &st) || (rc = parse_sets(c, argc, argv, &quiet, &path, 0))) {
         free(c);
         return rc ? rc : cli_error(st.code, "%s", st.msg);
+    }
+    if (config_validate(c, &st)) { /* a check across keys: the file (with its --set overrides) is at fault */
+        free(c);
+        return cli_error(st.code, "%s: %s", path, st.msg);
     }
     char ck[CFG_PATH_MAX + 32];
     snprintf(ck, sizeof ck, "%s/checkpoints", c->output);

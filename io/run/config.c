@@ -210,9 +210,13 @@ static const KeyDef keys[] = {
           "least squares on the encoded training set (nested libraries, a grid of contribution thresholds) "
           "are integrated over segments of the training recordings and scored by forecast error and number "
           "of terms (docs/training.md)"),
-    K_INT("threshold.every", threshold_every, "250", 1, NOMAX, NULL, "epochs between thresholding passes"),
-    K_INT("threshold.refine_epochs", refine_epochs, "300", 0, NOMAX, NULL,
-          "the last epochs: mask fixed, no L1, no thresholding; < train.epochs"),
+    {.path = "threshold.every", .type = INTTYPE(threshold_every), .def = "250", .min = 1, .max = NOMAX,
+     .doc_def = "train.epochs / 6 (250)", FIELD(threshold_every),
+     .meaning = "epochs between thresholding passes; unless given, a sixth of train.epochs (rounded, at least 1)"},
+    {.path = "threshold.refine_epochs", .type = INTTYPE(refine_epochs), .def = "300", .min = 0, .max = NOMAX,
+     .doc_def = "train.epochs / 5 (300)", FIELD(refine_epochs),
+     .meaning = "the last epochs: mask fixed, no L1, no thresholding; < train.epochs; unless given, a fifth of "
+                "train.epochs (rounded)"},
     /* checkpoint */
     K_INT("checkpoint.every", ckpt_every, "100", 1, NOMAX, NULL, "epochs between checkpoints"),
     K_INT("checkpoint.keep", ckpt_keep, "3", 1, NOMAX, NULL,
@@ -525,7 +529,32 @@ static int apply_str_list(Config *c, const KeyDef *k, const cJSON *v, const char
     return 0;
 }
 
+static int apply_value(Config *c, const KeyDef *k, const cJSON *v, const char *path, const Ctx *x, Status *st);
+
+/* Set key k and remember that it was given. */
 static int apply_key(Config *c, const KeyDef *k, const cJSON *v, const char *path, const Ctx *x, Status *st) {
+    int rc = apply_value(c, k, v, path, x, st);
+    if (!rc) {
+        int i = (int)(k - keys);
+        c->given[i / 8] |= (unsigned char)(1u << (i % 8));
+    }
+    return rc;
+}
+
+static int given(const Config *c, const char *path) {
+    for (int i = 0; i < N_KEYS; i++)
+        if (!strcmp(keys[i].path, path)) return c->given[i / 8] >> (i % 8) & 1;
+    return 0;
+}
+
+/* The schedule follows train.epochs unless given: a pass every sixth of the run, the last fifth
+ * refines (250 and 300 of the default 1500), so that a short run (--set train.epochs=50) works. */
+static void resolve(Config *c) {
+    if (!given(c, "threshold.every")) c->threshold_every = c->epochs / 6 > 1 ? (int)((c->epochs + 3) / 6) : 1;
+    if (!given(c, "threshold.refine_epochs")) c->refine_epochs = (c->epochs + 2) / 5;
+}
+
+static int apply_value(Config *c, const KeyDef *k, const cJSON *v, const char *path, const Ctx *x, Status *st) {
     switch (k->type) {
     case T_NUM: {
         if (!cJSON_IsNumber(v) || !isfinite(v->valuedouble)) return rule_error(st, x, path, k);
@@ -615,7 +644,10 @@ static int apply_tree(Config *c, const cJSON *root, const Ctx *x, Status *st) {
     Config *tmp = nn_alloc(sizeof *tmp);
     memcpy(tmp, c, sizeof *tmp);
     int rc = walk(tmp, root, NULL, x, st);
-    if (!rc) memcpy(c, tmp, sizeof *c);
+    if (!rc) {
+        resolve(tmp);
+        memcpy(c, tmp, sizeof *c);
+    }
     nn_free(tmp);
     return rc;
 }
@@ -631,6 +663,8 @@ void config_defaults(Config *c) {
         cJSON_Delete(v);
         NN_CHECK(rc == 0, "default of %s rejected: %s", keys[i].path, st.msg);
     }
+    memset(c->given, 0, sizeof c->given); /* defaults are not given */
+    resolve(c);
 }
 
 int config_parse(Config *c, const char *json, const char *origin, const char *base_dir, Status *st) {
@@ -716,6 +750,7 @@ static int load_file(Config *c, const char *path, int compat, Status *st) {
             cJSON_Delete(v);
             NN_CHECK(rc == 0, "compat value of %s rejected: %s", keys[i].path, cv);
         }
+    if (compat) memset(c->given, 0, sizeof c->given);
     /* the file's folder, made absolute */
     char dir[CFG_PATH_MAX];
     const char *slash = strrchr(path, '/');
@@ -787,11 +822,14 @@ int config_set(Config *c, const char *assignment, Status *st) {
 int config_validate(const Config *c, Status *st) {
     if (!c->frames[0]) return status_set(st, ST_INPUT, "data.frames: required (the folder of frames or recordings)");
     if (c->refine_epochs >= c->epochs)
-        return status_set(st, ST_INPUT, "threshold.refine_epochs (%ld) must be less than train.epochs (%ld)",
+        return status_set(st, ST_INPUT,
+                          "threshold.refine_epochs (%ld) must be less than train.epochs (%ld): lower it, or leave it "
+                          "out of the config and it follows train.epochs (a fifth)",
                           c->refine_epochs, c->epochs);
     if (c->warmup_epochs > 0 && c->warmup_epochs + c->refine_epochs >= c->epochs)
         return status_set(st, ST_INPUT,
-                          "train.warmup_epochs (%ld) + threshold.refine_epochs (%ld) must be less than train.epochs (%ld)",
+                          "train.warmup_epochs (%ld) + threshold.refine_epochs (%ld) must be less than train.epochs "
+                          "(%ld): shorten the warm-up or the refinement, or train longer",
                           c->warmup_epochs, c->refine_epochs, c->epochs);
     if (!strcmp(c->derivatives, "latent") && !c->loss_normalize)
         return status_set(st, ST_INPUT,

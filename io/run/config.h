@@ -101,6 +101,7 @@ typedef struct {
     double canon_cond_max;          /* canonical.cond_max: bound on the map's condition number    [1000] */
     /* output */
     char output[CFG_PATH_MAX];      /* output: run directory                       [runs/<config name>] */
+    unsigned char given[16];        /* bit i: key i of the table was given (file, --set), not defaulted */
 } Config;
 
 /* Defaults for every key (data.frames empty). */
