@@ -619,6 +619,42 @@ static void test_summary_ranking_pareto_groups(void **state) {
 
 /* ---- Slurm script ---------------------------------------------------------------------------- */
 
+/* A member whose law lost every term is ranked last, off the Pareto front, with the reason, however
+ * small its forecast error. */
+static void test_summary_empty_law_last(void **state) {
+    Fixture *fx = *state;
+    char base[400], f[400];
+    snprintf(base, sizeof base, "%s/base.json", fx->dir);
+    write_base(base, "data", 40);
+    sweep_file(fx, "empty.json", "{\"base\": \"base.json\", \"vary\": {\"loss.dz\": [1, 0.5, 0.25]}, \"output\": \"empty\"}",
+               f, sizeof f);
+    assert_int_equal(chdir(fx->dir), 0);
+    Sweep sw;
+    Status st;
+    assert_int_equal(sweep_load(&sw, f, &st), 0);
+    const double A[6] = {0, 0, 0, -2, 2, 0}, Z[6] = {0};
+    const double e0[1] = {0.20}, e1[1] = {0.01}, e2[1] = {0.30};
+    for (int i = 0; i < 3; i++) {
+        assert_int_equal(sweep_member_prepare(&sw, i, MEMBER_NEW, 1, &st), 0);
+        write_log(sw.members[i].dir, 40, 0.01);
+    }
+    write_equations(sw.members[0].dir, A), write_forecast(sw.members[0].dir, e0, 1);
+    write_equations(sw.members[1].dir, Z), write_forecast(sw.members[1].dir, e1, 1);   /* the best error, no term */
+    write_equations(sw.members[2].dir, A), write_forecast(sw.members[2].dir, e2, 1);
+    SweepSummary sum;
+    assert_int_equal(sweep_summary(&sw, &sum, &st), 0);
+    static const int rank[3] = {0, 2, 1};
+    for (int k = 0; k < 3; k++)
+        if (sum.rows[k].member != rank[k]) fail_msg("rank %d: member %d, expected %d", k + 1, sum.rows[k].member, rank[k]);
+    assert_int_equal(sum.rows[2].active, 0);
+    assert_int_equal(sum.rows[2].pareto, 0);
+    assert_int_equal(sum.rows[0].pareto, 1);
+    assert_non_null(sum.rows[2].problem);
+    assert_non_null(strstr(sum.rows[2].problem, "the law has no term"));
+    sweep_summary_free(&sum);
+    sweep_free(&sw);
+}
+
 static void test_slurm_script(void **state) {
     Fixture *fx = *state;
     char base[400], f[400];
@@ -895,6 +931,7 @@ int main(void) {
         cmocka_unit_test_setup_teardown(test_bad_sweep_command_starts_nothing, setup, teardown),
         cmocka_unit_test_setup_teardown(test_member_states, setup, teardown),
         cmocka_unit_test_setup_teardown(test_summary_ranking_pareto_groups, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_summary_empty_law_last, setup, teardown),
         cmocka_unit_test_setup_teardown(test_slurm_script, setup, teardown),
         cmocka_unit_test_setup_teardown(test_local_sweep_two_at_once, setup, teardown),
         cmocka_unit_test_setup_teardown(test_members_start_together_without_store, setup, teardown),

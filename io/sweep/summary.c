@@ -96,10 +96,13 @@ static void add_problem(char *why, size_t n, const char *msg) {
     snprintf(why + l, n - l, "%s%s", l ? "; " : "", msg);
 }
 
+/* A finished member whose law has no term says nothing moves: however small its error, it is no law. */
+static int empty_law(const SweepRow *r) { return r->active == 0 && !strcmp(r->status, "finished"); }
+
 static int row_cmp(const void *pa, const void *pb) {
     const SweepRow *a = pa, *b = pb;
-    int ra = a->error_from == ERR_FORECAST ? 0 : a->error_from == ERR_VALIDATION ? 1 : 2;
-    int rb = b->error_from == ERR_FORECAST ? 0 : b->error_from == ERR_VALIDATION ? 1 : 2;
+    int ra = empty_law(a) ? 3 : a->error_from == ERR_FORECAST ? 0 : a->error_from == ERR_VALIDATION ? 1 : 2;
+    int rb = empty_law(b) ? 3 : b->error_from == ERR_FORECAST ? 0 : b->error_from == ERR_VALIDATION ? 1 : 2;
     if (ra != rb) return ra - rb;
     if (ra < 2 && a->error != b->error) return a->error < b->error ? -1 : 1;
     return a->member - b->member;
@@ -165,6 +168,9 @@ int sweep_summary(const Sweep *sw, SweepSummary *sum, Status *st) {
             r->error = NAN;
             r->error_from = ERR_NONE;
         }
+        if (empty_law(r))
+            add_problem(why, sizeof why, "the law has no term (it says nothing moves), ranked last: lower "
+                                         "threshold.value, or train longer before the first threshold pass");
         if (why[0]) r->problem = sweep_strdup(why);
     }
     free(c);
@@ -174,11 +180,11 @@ int sweep_summary(const Sweep *sw, SweepSummary *sum, Status *st) {
     sum->pareto_from = have_forecast ? ERR_FORECAST : ERR_VALIDATION;
     for (int a = 0; a < n; a++) {
         SweepRow *r = &sum->rows[a];
-        if (r->error_from != sum->pareto_from || r->active < 0 || strcmp(r->status, "finished")) continue;
+        if (r->error_from != sum->pareto_from || r->active <= 0 || strcmp(r->status, "finished")) continue;
         int dominated = 0;
         for (int b = 0; b < n && !dominated; b++) {
             const SweepRow *q = &sum->rows[b];
-            if (b == a || q->error_from != sum->pareto_from || q->active < 0 || strcmp(q->status, "finished")) continue;
+            if (b == a || q->error_from != sum->pareto_from || q->active <= 0 || strcmp(q->status, "finished")) continue;
             if (q->error <= r->error && q->active <= r->active && (q->error < r->error || q->active < r->active))
                 dominated = 1;
         }
