@@ -10,6 +10,7 @@
 extern void openblas_set_num_threads(int num_threads);
 extern int openblas_get_num_threads(void);
 extern char *openblas_get_corename(void);
+extern char *openblas_get_config(void);
 
 static void gemm_shapes(int ta, int tb, Mat a, Mat b, Mat c, int *m, int *n, int *k) {
     int am = ta ? a.cols : a.rows, ak = ta ? a.rows : a.cols;
@@ -52,3 +53,4 @@ void nn_set_threads(int n) {
 }
 int nn_get_threads(void) { return openblas_get_num_threads(); }
 const char *nn_blas_corename(void) { return openblas_get_corename(); }
+const char *nn_blas_config(void) { return openblas_get_config(); }

@@ -22,5 +22,6 @@ void mat_gemm_ref(int trans_a, int trans_b, float alpha, Mat a, Mat b, float bet
 void nn_set_threads(int n);
 int nn_get_threads(void);
 const char *nn_blas_corename(void);
+const char *nn_blas_config(void);   /* OpenBLAS's build configuration line */
 
 #endif

@@ -8,6 +8,8 @@
 #include <time.h>
 #include <unistd.h>
 
+#include <cjson/cJSON.h>
+
 #include "nn/rng.h"
 #include "tests/testutil.h"
 
@@ -203,6 +205,49 @@ static void test_bad_usage(void **state) {
     assert_int_equal(run_cmd("resume", "--help", NULL, NULL), 0);
 }
 
+/* provenance.json: one entry per session, with the threads actually used; the report shows them. */
+static void test_provenance(void **state) {
+    Fixture *fx = *state;
+    char cfg[600], run[600], args[1400], out[8192], path[700];
+    snprintf(run, sizeof run, "%s/prov", fx->dir);
+    snprintf(cfg, sizeof cfg, "%s/prov.json", fx->dir);
+    write_config(cfg, fx->data, run, 12);
+    snprintf(args, sizeof args, "train '%s' --quiet", cfg);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
+    snprintf(args, sizeof args, "resume '%s' --quiet --set train.epochs=14", run);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
+    snprintf(path, sizeof path, "%s/provenance.json", run);
+    char *text = test_slurp(path);
+    assert_non_null(text);
+    cJSON *root = cJSON_Parse(text);
+    assert_non_null(root);
+    assert_string_equal(cJSON_GetObjectItem(root, "format")->valuestring, "framelaw-provenance");
+    cJSON *s = cJSON_GetObjectItem(root, "sessions");
+    assert_int_equal(cJSON_GetArraySize(s), 2);
+    static const char *const cmd[2] = {"train", "resume"};
+    for (int i = 0; i < 2; i++) {
+        cJSON *e = cJSON_GetArrayItem(s, i);
+        assert_string_equal(cJSON_GetObjectItem(e, "command")->valuestring, cmd[i]);
+        assert_int_equal(cJSON_GetObjectItem(e, "threads")->valueint, 1);
+        assert_string_equal(cJSON_GetArrayItem(cJSON_GetObjectItem(e, "argv"), 0)->valuestring, cmd[i]);
+        const char *d = cJSON_GetObjectItem(e, "started")->valuestring;
+        assert_int_equal(strlen(d), 20);
+        assert_true(d[4] == '-' && d[10] == 'T' && d[19] == 'Z');
+        assert_true(strlen(cJSON_GetObjectItem(e, "blas_config")->valuestring) > 0);
+    }
+    cJSON_Delete(root);
+    free(text);
+    snprintf(args, sizeof args, "report '%s'", run);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
+    snprintf(path, sizeof path, "%s/report.html", run);
+    char *html = test_slurp(path);
+    assert_non_null(html);
+    const char *sec = strstr(html, "<h2 id=\"provenance\">");
+    assert_non_null(sec);
+    assert_non_null(strstr(sec, "<td>resume</td>"));
+    free(html);
+}
+
 /* Recordings too short for what the defaults need: exit 2 and a line that says what to change. */
 static void test_short_recordings(void **state) {
     Fixture *fx = *state;
@@ -245,6 +290,7 @@ int main(void) {
         cmocka_unit_test_setup_teardown(test_interrupt_writes_checkpoint, setup, teardown),
         cmocka_unit_test_setup_teardown(test_bad_usage, setup, teardown),
         cmocka_unit_test_setup_teardown(test_short_recordings, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_provenance, setup, teardown),
     };
     return cmocka_run_group_tests_name("train and resume commands", tests, NULL, NULL);
 }

@@ -4,11 +4,13 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "io/fs/atomic_file.h"
 #include "io/fs/files.h"
 #include "io/cli/cli.h"
 #include "io/run/config.h"
+#include "io/run/provenance.h"
 #include "io/run/results.h"
 #include "io/run/runcanonical.h"
 #include "io/run/runensemble.h"
@@ -52,11 +54,16 @@ static int finish_run(const char *run_dir, int quiet, Status *st) {
 
 /* ---- shared by train and resume ---------------------------------------------------------------- */
 
-static int run_training(Config *c, const char *run_dir, int resume, int quiet) {
+static int run_training(Config *c, const char *run_dir, int resume, int quiet, int argc, char **argv) {
     Status st;
     RunData data;
     int rc = rundata_open(&data, c, &st);
     if (rc) {
+        rundata_close(&data);
+        return cli_error(rc, "%s", st.msg);
+    }
+    int threads = c->threads > 0 ? c->threads : (int)sysconf(_SC_NPROCESSORS_ONLN);
+    if ((rc = provenance_append(run_dir, resume ? "resume" : "train", argc, argv, FRAMELAW_VERSION, threads, &st))) {
         rundata_close(&data);
         return cli_error(rc, "%s", st.msg);
     }
@@ -182,7 +189,7 @@ int cmd_train(int argc, char **argv) {
     free(json);
     char run_dir[CFG_PATH_MAX];
     snprintf(run_dir, sizeof run_dir, "%s", c->output);
-    rc = run_training(c, run_dir, 0, quiet);
+    rc = run_training(c, run_dir, 0, quiet, argc, argv);
     free(c);
     return rc;
 }
@@ -194,7 +201,7 @@ int cmd_resume(int argc, char **argv) {
                "that is truncated or damaged is skipped with a message and the one before it is used.\n"
                "Only these keys may change: train.epochs, train.threads, train.validate_every,\n"
                "checkpoint.every, checkpoint.keep, output, forecast.bound, forecast.method,\n"
-               "forecast.tolerance, ensemble.* (they act after training).\n");
+               "forecast.tolerance, ensemble.*, canonical.* (they act after training).\n");
         return 0;
     }
     int quiet = 0;
@@ -222,7 +229,7 @@ int cmd_resume(int argc, char **argv) {
         }
         free(json);
     }
-    rc = run_training(c, dir, 1, quiet);
+    rc = run_training(c, dir, 1, quiet, argc, argv);
     free(c);
     return rc;
 }

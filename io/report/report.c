@@ -278,6 +278,50 @@ static void section_settings(Report *r) {
     cJSON_Delete(root);
 }
 
+/* provenance.json: one row per session (io/run/provenance.h). */
+static void section_provenance(Report *r) {
+    fputs("<h2 id=\"provenance\">Provenance (provenance.json)</h2>\n", r->f);
+    char path[PATH_LEN], *text;
+    page_path(path, r, "provenance.json");
+    Status ps;
+    if (fs_read_file(path, MAX_TEXT_BYTES, &text, NULL, &ps)) {
+        page_note(r, "provenance.json: none (a run made before framelaw recorded it).");
+        return;
+    }
+    cJSON *root = cJSON_Parse(text);
+    free(text);
+    const cJSON *sessions = root ? cJSON_GetObjectItem(root, "sessions") : NULL, *s;
+    if (!cJSON_IsArray(sessions)) {
+        page_note(r, "provenance.json: not readable.");
+        cJSON_Delete(root);
+        return;
+    }
+    fputs("<table>\n<tr><th>command</th><th>started (UTC)</th><th>framelaw</th><th>host</th><th>threads</th>"
+          "<th>BLAS</th><th>arguments</th></tr>\n", r->f);
+    static const char *const keys[5] = {"command", "started", "framelaw", "host", "threads"};
+    cJSON_ArrayForEach(s, sessions) {
+        fputs("<tr>", r->f);
+        for (int i = 0; i < 5; i++) {
+            const cJSON *v = cJSON_GetObjectItem(s, keys[i]);
+            fputs("<td>", r->f);
+            if (cJSON_IsString(v)) page_text(r, v->valuestring);
+            else if (cJSON_IsNumber(v)) fprintf(r->f, "%d", v->valueint);
+            fputs("</td>", r->f);
+        }
+        const cJSON *core = cJSON_GetObjectItem(s, "blas_config"), *argv = cJSON_GetObjectItem(s, "argv"), *a;
+        fputs("<td>", r->f);
+        if (cJSON_IsString(core)) page_text(r, core->valuestring);
+        fputs("</td><td><code>", r->f);
+        cJSON_ArrayForEach(a, argv) if (cJSON_IsString(a)) {
+            page_text(r, a->valuestring);
+            fputs(" ", r->f);
+        }
+        fputs("</code></td></tr>\n", r->f);
+    }
+    fputs("</table>\n", r->f);
+    cJSON_Delete(root);
+}
+
 /* ---- the whole page -------------------------------------------------------------------------- */
 
 static int write_page(Report *r, const RunLog *L) {
@@ -299,7 +343,8 @@ static int write_page(Report *r, const RunLog *L) {
     fputs("<nav><a href=\"#summary\">Summary</a><a href=\"#equations\">Equations</a>"
           "<a href=\"#coefficients\">Coefficients</a><a href=\"#ensemble\">Ensemble</a><a href=\"#training\">Training</a>"
           "<a href=\"#trajectories\">Trajectories</a><a href=\"#forecast\">Forecasts</a>"
-          "<a href=\"#reconstructions\">Reconstructions</a><a href=\"#settings\">Settings</a></nav>\n", f);
+          "<a href=\"#reconstructions\">Reconstructions</a><a href=\"#settings\">Settings</a>"
+          "<a href=\"#provenance\">Provenance</a></nav>\n", f);
     section_summary(r, L);
     section_equations(r);
     if (section_coefficients(r)) return r->st->code;
@@ -309,6 +354,7 @@ static int write_page(Report *r, const RunLog *L) {
     if (report_section_forecast(r)) return r->st->code;
     report_section_reconstructions(r);
     section_settings(r);
+    section_provenance(r);
     fputs("<hr>\n<p><small>Written by framelaw report. The guide to this page is docs/report.md.</small></p>\n"
           "</body>\n</html>\n", f);
     return 0;
