@@ -29,7 +29,7 @@ LIB_OBJ  := $(LIB_SRC:%.c=$(BUILD)/%.o)
 TEST_BIN := $(TEST_SRC:tests/%.c=$(BUILD)/tests/%)
 BENCH_BIN:= $(BENCH_SRC:tests/%.c=$(BUILD)/tests/%)
 
-.PHONY: all deps test test-bin sanitize bench demo clean check-deps check-slurm check-discovery check-battery
+.PHONY: all deps test test-bin sanitize bench demo clean check-deps check-slurm check-discovery check-battery check-battery-ci
 all: framelaw
 
 framelaw: $(BUILD)/framelaw
@@ -123,8 +123,18 @@ check-discovery: deps framelaw
 # BATTERY_MIN sets the seeds each scenario must pass (0: report only); BATTERY_SET adds --set overrides.
 SEEDS ?= 1 2 3 4 5
 BATTERY_MIN ?= 0
+SCENARIOS ?= spring colony pulse puck lantern convection
+BATTERY_SET ?=
 check-battery: deps framelaw
-	SEEDS="$(SEEDS)" MIN_PASS=$(BATTERY_MIN) FRAMELAW=$(CURDIR)/framelaw bash tests/battery/check.sh
+	SEEDS="$(SEEDS)" SCENARIOS="$(SCENARIOS)" BATTERY_SET="$(BATTERY_SET)" MIN_PASS=$(BATTERY_MIN) \
+	  FRAMELAW=$(CURDIR)/framelaw bash tests/battery/check.sh
+
+# The part of the battery that CI runs within its budget: seed 1 of the three one-latent scenarios
+# the old defaults failed on, one thread (the thread count changes the bits; the figures in
+# docs/battery.md were measured at one), each must pass.
+check-battery-ci: deps framelaw
+	SEEDS=1 SCENARIOS="spring colony pulse" BATTERY_SET="train.threads=1" MIN_PASS=1 \
+	  FRAMELAW=$(CURDIR)/framelaw bash tests/battery/check.sh
 
 clean:
 	rm -rf build build-san framelaw
