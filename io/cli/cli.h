@@ -4,6 +4,7 @@
 #define IO_CLI_H
 
 #include "io/run/config.h"
+#include "io/run/results.h"
 
 #define FRAMELAW_VERSION "0.1.0"
 
@@ -48,8 +49,26 @@ int cmd_ensemble(int argc, char **argv);
 /* framelaw canonical RUN_DIR: the sparsest form of a finished run's law (io/cli/cmd_canonical.c). */
 int cmd_canonical(int argc, char **argv);
 
+/* ---- commands on a finished run (io/cli/runargs.c) ---- */
+
 /* Has the run in dir (config c) finished training? The log's last epoch against train.epochs. 0, or
- * ST_INPUT saying what to do (io/cli/cmd_ensemble.c). */
+ * ST_INPUT saying what to do. */
 int cli_run_finished(const char *dir, const Config *c, Status *st);
+
+#define CLI_MAX_SETS 64
+typedef struct {
+    const char *dir;
+    int quiet, n_sets;
+    const char *sets[CLI_MAX_SETS];
+} RunArgs;
+
+/* RUN_DIR, --quiet and --set PREFIX.KEY=VALUE (only keys of that section, e.g. "ensemble.");
+ * argv[0] is the command's name. 0, or the exit status after printing the error. */
+int cli_run_args(int argc, char **argv, const char *prefix, RunArgs *a);
+/* Load the run's config, apply the --set keys, validate, check training finished, open the run with
+ * that config. 0, or the exit status after printing the error. */
+int cli_open_finished(const RunArgs *a, Config *c, LoadedRun *r);
+/* Store the config with the --set keys in RUN_DIR/config.json (nothing without --set). */
+int cli_store_sets(const RunArgs *a, const Config *c, Status *st);
 
 #endif
