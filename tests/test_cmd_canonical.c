@@ -136,6 +136,12 @@ static void test_command(void **state) {
         int rc = test_run_capture(args, out, sizeof out);
         if (rc != 2 || !strstr(out, bad[i].msg)) fail_msg("%s: exit %d, '%s'", args, rc, out);
     }
+    /* --opt=value is --opt value */
+    snprintf(args, sizeof args, "canonical '%s/run' --set=canonical.cond_max=900 --quiet", tmp);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
+    cfg = run_file("config.json");
+    assert_non_null(strstr(cfg, "\"cond_max\":\t900"));
+    free(cfg);
     assert_int_equal(test_run_capture("canonical --help", out, sizeof out), 0);
     assert_non_null(strstr(out, "usage: framelaw canonical RUN_DIR"));
 }

@@ -45,6 +45,13 @@ static void test_help(void **state) {
     }
     assert_int_equal(test_run_capture("help", out, sizeof out), 0);
     assert_non_null(strstr(out, "  fit "));
+    /* framelaw help COMMAND is the command's --help; an unknown one is bad usage */
+    char out2[8192];
+    assert_int_equal(test_run_capture("help fit", out2, sizeof out2), 0);
+    assert_int_equal(test_run_capture("fit --help", out, sizeof out), 0);
+    assert_string_equal(out, out2);
+    assert_int_equal(test_run_capture("help fitt", out, sizeof out), 2);
+    assert_non_null(strstr(out, "unknown command 'fitt'"));
 }
 
 /* Lorenz ("Deterministic Nonperiodic Flow", J. Atmos. Sci. 1963; sigma 10, rho 28, beta 8/3):

@@ -878,7 +878,7 @@ static void test_ctrl_c_then_continue(void **state) {
     assert_int_equal(kill(pid, SIGINT), 0);
     int rc = wait_status(pid);
     char *text = test_slurp(out);
-    if (rc != 1) fail_msg("stopped sweep exited %d:\n%s", rc, text);
+    if (rc != 128 + SIGINT) fail_msg("stopped sweep exited %d:\n%s", rc, text);
     assert_non_null(strstr(text, "continue with: framelaw sweep long.json --jobs 2"));
     assert_non_null(strstr(text, "2 stopped with their checkpoints, 1 not started"));
     free(text);

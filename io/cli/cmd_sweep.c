@@ -199,7 +199,7 @@ static int run_queue(Runner *r, const int *queue, const MemberState *how, int n_
     sigaddset(&set, SIGCHLD);
     sigprocmask(SIG_BLOCK, &set, &r->orig_mask);
 
-    int next = 0, running = 0, stopping = 0, n_failed = 0;
+    int next = 0, running = 0, stopping = 0, n_failed = 0, stop_sig = SIGINT;
     r->n_left = n_queue;
     double t_report = clock_seconds();
     for (;;) {
@@ -231,6 +231,7 @@ static int run_queue(Runner *r, const int *queue, const MemberState *how, int n_
                 fprintf(stderr, "\nframelaw: sweep: stopping: %d member%s writing %s checkpoint%s (no new ones start)\n",
                         running, running == 1 ? " is" : "s are", running == 1 ? "its" : "their", running == 1 ? "" : "s");
             stopping = 1;
+            stop_sig = sig;
             for (int s = 0; s < jobs; s++)
                 if (slots[s].pid) kill(slots[s].pid, SIGINT);
         }
@@ -252,7 +253,7 @@ static int run_queue(Runner *r, const int *queue, const MemberState *how, int n_
                 sweep_read_log(dir, &log);
                 fprintf(stderr, "framelaw: sweep: %s finished in %.1f s: validation %.4g, %ld active terms ",
                         sw->members[i].id, secs, log.validation, log.active);
-            } else if (stopping && (code == 1 || code == 128 + SIGINT)) {
+            } else if (stopping && (code == 1 || code == 128 + SIGINT || code == 128 + SIGTERM)) {
                 r->stopped++;
                 SweepLog log;
                 sweep_read_log(dir, &log);
@@ -285,7 +286,7 @@ static int run_queue(Runner *r, const int *queue, const MemberState *how, int n_
     if (stopping) {
         fprintf(stderr, "framelaw: sweep stopped: %d finished, %d stopped with their checkpoints, %d not started\n"
                         "framelaw: continue with: %s\n", r->done, r->stopped, r->n_left, again);
-        rc = 1;
+        rc = 128 + stop_sig; /* as shells expect of a process stopped by a signal */
     }
     if (n_failed) {
         fprintf(stderr, "framelaw: sweep: %d member%s failed:", n_failed, n_failed == 1 ? "" : "s");

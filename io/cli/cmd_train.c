@@ -19,9 +19,9 @@
 #include "sparse/coef.h"
 #include "sparse/equation.h"
 
-static volatile sig_atomic_t stop_flag = 0;
+static volatile sig_atomic_t stop_flag = 0, stop_sig = SIGINT;
 static void on_signal(int sig) {
-    (void)sig;
+    stop_sig = sig;
     stop_flag = 1;
 }
 
@@ -98,7 +98,7 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
     } else if (res.interrupted) {
         fprintf(stderr, "framelaw: stopped after epoch %ld; checkpoint %s\nframelaw: continue with: framelaw resume %s\n",
                 res.epochs_done, res.checkpoint, run_dir);
-        rc = 1;
+        rc = 128 + stop_sig; /* 130 for Ctrl-C, 143 for SIGTERM, as shells expect of a stopped process */
     } else {
         if (!quiet && isfinite(res.best_val))
             fprintf(stderr, "framelaw: best validation loss %.4g\n", res.best_val);

@@ -2,6 +2,7 @@
  * decides the exit status. */
 #include <stdarg.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "io/cli/cli.h"
@@ -50,7 +51,9 @@ static void usage(FILE *f) {
             "Learns a few ordinary differential equations, and the coordinates they live in, from video\n"
             "frames of a moving system.\n\ncommands:\n");
     for (int i = 0; i < N_COMMANDS; i++) fprintf(f, "  %-10s %s\n", commands[i].name, commands[i].summary);
-    fprintf(f, "\nexit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n");
+    fprintf(f, "\nexit status: 0 success, 1 runtime failure, 2 bad usage or bad input, 130 stopped by Ctrl-C\n"
+               "(143 by SIGTERM) with its checkpoints written. --opt=value is --opt value everywhere;\n"
+               "framelaw help COMMAND shows that command's options.\n");
 }
 
 static int cmd_help(int argc, char **argv) {
@@ -65,6 +68,14 @@ int main(int argc, char **argv) {
         usage(stderr);
         return 2;
     }
+    if (!strcmp(argv[1], "help") && argc > 2) { /* framelaw help COMMAND: that command's --help */
+        for (int i = 0; i < N_COMMANDS; i++)
+            if (!strcmp(argv[2], commands[i].name)) {
+                char *a[3] = {argv[2], "--help", NULL};
+                return commands[i].run(2, a);
+            }
+        return cli_error(2, "unknown command '%s' (framelaw --help lists the commands)", argv[2]);
+    }
     if (!strcmp(argv[1], "--help") || !strcmp(argv[1], "-h") || !strcmp(argv[1], "help")) {
         usage(stdout);
         return 0;
@@ -74,6 +85,23 @@ int main(int argc, char **argv) {
         return 0;
     }
     for (int i = 0; i < N_COMMANDS; i++)
-        if (!strcmp(argv[1], commands[i].name)) return commands[i].run(argc - 1, argv + 1);
+        if (!strcmp(argv[1], commands[i].name)) {
+            /* --opt=value is --opt value for every command: split at the first '=' */
+            char **av = malloc(sizeof *av * (size_t)(2 * argc + 1));
+            if (!av) return cli_error(1, "out of memory");
+            int n = 0;
+            for (int k = 1; k < argc; k++) {
+                char *eq = argv[k][0] == '-' && argv[k][1] == '-' ? strchr(argv[k], '=') : NULL;
+                if (eq && eq > argv[k] + 2) {
+                    *eq = 0;
+                    av[n++] = argv[k];
+                    av[n++] = eq + 1;
+                } else av[n++] = argv[k];
+            }
+            av[n] = NULL;
+            int rc = commands[i].run(n, av);
+            free(av);
+            return rc;
+        }
     return cli_error(2, "unknown command '%s' (framelaw --help lists the commands)", argv[1]);
 }
