@@ -162,6 +162,8 @@ static void test_forecast_of_exact_model(void **state) {
     assert_true(cJSON_GetObjectItem(r1, "mean_error")->valuedouble < 1e-5);
     assert_true(cJSON_GetObjectItem(r1, "max_error")->valuedouble < 1e-5);
     assert_true(cJSON_GetObjectItem(r1, "latent_mean_error")->valuedouble < 1e-5);
+    /* identity encoder and decoder: decoding the encoded frames gives them back (float32) */
+    assert_true(cJSON_GetObjectItem(r1, "reconstruction_floor")->valuedouble < 1e-6);
     assert_true(cJSON_IsNull(cJSON_GetObjectItem(r1, "exceeds_bound_at")));
     /* rec1 (amplitude 0.4) stays inside the training box |z_i| <= 0.5; rec2 (0.8) leaves it */
     assert_true(cJSON_IsNull(cJSON_GetObjectItem(r1, "extrapolating_from")));
