@@ -29,7 +29,7 @@ LIB_OBJ  := $(LIB_SRC:%.c=$(BUILD)/%.o)
 TEST_BIN := $(TEST_SRC:tests/%.c=$(BUILD)/tests/%)
 BENCH_BIN:= $(BENCH_SRC:tests/%.c=$(BUILD)/tests/%)
 
-.PHONY: all deps test test-bin sanitize bench demo clean check-deps check-slurm check-discovery check-battery check-battery-ci
+.PHONY: all deps test test-bin sanitize bench demo clean check-deps check-slurm check-discovery check-battery check-battery-ci install uninstall
 all: framelaw
 
 framelaw: $(BUILD)/framelaw
@@ -135,6 +135,17 @@ check-battery: deps framelaw
 check-battery-ci: deps framelaw
 	SEEDS=1 SCENARIOS="spring colony pulse" BATTERY_SET="train.threads=1" MIN_PASS=1 \
 	  FRAMELAW=$(CURDIR)/framelaw bash tests/battery/check.sh
+
+# Install the program: $(DESTDIR)$(PREFIX)/bin/framelaw and the guide under share/doc/framelaw.
+PREFIX ?= /usr/local
+install: framelaw
+	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/doc/framelaw
+	install -m 755 framelaw $(DESTDIR)$(PREFIX)/bin/framelaw
+	install -m 644 README.md LICENSE docs/*.md $(DESTDIR)$(PREFIX)/share/doc/framelaw/
+
+uninstall:
+	rm -f $(DESTDIR)$(PREFIX)/bin/framelaw
+	rm -rf $(DESTDIR)$(PREFIX)/share/doc/framelaw
 
 clean:
 	rm -rf build build-san framelaw
