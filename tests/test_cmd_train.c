@@ -273,6 +273,16 @@ static void test_short_recordings(void **state) {
         assert_int_equal(test_run_capture(args, out, sizeof out), 2);
         if (!strstr(out, cases[i].msg)) fail_msg("%d frames: got '%s'", cases[i].frames, out);
     }
+    /* image frames carry no rate: data.fps must be given */
+    snprintf(cfg, sizeof cfg, "%s/nofps.json", fx->dir);
+    FILE *nf = fopen(cfg, "w");
+    assert_non_null(nf);
+    fprintf(nf, "{\"data\": {\"frames\": \"short1\"}, \"model\": {\"latent\": 1, \"order\": 2}, "
+                "\"output\": \"%s/nofps-run\"}\n", fx->dir);
+    fclose(nf);
+    snprintf(args, sizeof args, "train '%s' --quiet", cfg);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 2);
+    assert_non_null(strstr(out, "data.fps: required for image frames"));
     /* a run whose law loses every term ends normally, with a warning that says what to try */
     char run[600];
     snprintf(run, sizeof run, "%s/empty", fx->dir);

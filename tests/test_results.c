@@ -349,7 +349,7 @@ static void test_reconstruction_strips_for_images(void **state) {
     }
     snprintf(path, sizeof path, "%s/img.json", fx->root);
     FILE *f = fopen(path, "w");
-    fprintf(f, "{\"data\": {\"frames\": \"%s/frames\"}, \"model\": {\"latent\": 2, \"order\": 1, \"encoder\": [8]},"
+    fprintf(f, "{\"data\": {\"frames\": \"%s/frames\", \"fps\": 30}, \"model\": {\"latent\": 2, \"order\": 1, \"encoder\": [8]},"
                " \"train\": {\"epochs\": 4, \"batch\": 16, \"threads\": 1}, \"threshold\": {\"refine_epochs\": 1},"
                " \"output\": \"%s/imgrun\"}", fx->root, fx->root);
     fclose(f);

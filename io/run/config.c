@@ -104,7 +104,8 @@ static const KeyDef keys[] = {
            "frames folder (one sub-folder per recording), or a folder or file of CSV / .npy recordings; "
            "relative to the config file's folder"),
     K_NUM("data.fps", fps, "30", 0, INFINITY, LO_OPEN,
-          "frames (samples) per second of the source; the time step is data.stride / data.fps"),
+          "frames (samples) per second of the source; the time step is data.stride / data.fps; required for "
+          "image frames (they carry no rate)"),
     K_STR("data.gray", gray, "\"bt601\"", "bt601|bt709", "weights that turn colour frames to gray"),
     K_FIXED("data.crop", T_CROP, crop, "[0, 0, 0, 0]", "[x, y, width, height]",
             "crop in source pixels, before resizing; width 0 = no crop"),
@@ -546,6 +547,8 @@ static int given(const Config *c, const char *path) {
         if (!strcmp(keys[i].path, path)) return c->given[i / 8] >> (i % 8) & 1;
     return 0;
 }
+
+int config_given(const Config *c, const char *path) { return given(c, path); }
 
 /* The schedule follows train.epochs unless given: a pass every sixth of the run, the last fifth
  * refines (250 and 300 of the default 1500), so that a short run (--set train.epochs=50) works. */

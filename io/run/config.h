@@ -129,6 +129,10 @@ int config_load_run(Config *c, const char *path, Status *st);
  * against the current directory. On error *c is left unchanged. */
 int config_set(Config *c, const char *assignment, Status *st);
 
+/* 1 when the key was given (by the file or a --set), 0 when it holds its default. A run folder's
+ * config.json gives every key it holds. */
+int config_given(const Config *c, const char *path);
+
 /* Cross-key checks after parsing and overrides (e.g. refine_epochs < epochs, data.frames given). */
 int config_validate(const Config *c, Status *st);
 

@@ -136,6 +136,10 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     if (frame_settings_from_config(c, &s, st) || frame_settings_check(&s, st)) return st->code;
     if (frames_scan(c->frames, &d->scan, st)) return st->code;
     d->have_scan = 1;
+    /* images carry no rate: a silent 30 would scale every coefficient by the camera's true rate / 30 */
+    if (d->scan.kind == REC_IMAGES && !config_given(c, "data.fps"))
+        return status_set(st, ST_INPUT, "data.fps: required for image frames (%s): give the camera's frame rate, "
+                                        "e.g. \"data\": {\"fps\": 60}", c->frames);
     StoreOpenInfo info;
     if (store_open_for(&d->scan, &s, 0, &d->store, &info, st)) return st->code;
     d->have_store = 1;
