@@ -204,6 +204,9 @@ int cmd_frames(int argc, char **argv) {
 
     FrameScan scan;
     if (frames_scan(dir, &scan, &st)) return cli_error(st.code, "%s", st.msg);
+    int fps_given = config != NULL;
+    for (int i = 1; i < argc; i++) fps_given |= !strcmp(argv[i], "--fps");
+    if (!fps_given && scan.rec[0].video) s.fps = scan.rec[0].vinfo.fps; /* a video carries its rate */
     FrameStore fs;
     StoreOpenInfo info;
     if (store_open_for(&scan, &s, rebuild, &fs, &info, &st)) {

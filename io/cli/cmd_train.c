@@ -166,6 +166,10 @@ int cmd_train(int argc, char **argv) {
         free(c);
         return rc ? rc : cli_error(st.code, "%s", st.msg);
     }
+    if (rundata_video_fps(c, &st)) {
+        free(c);
+        return cli_error(st.code, "%s", st.msg);
+    }
     if (config_validate(c, &st)) { /* a check across keys: the file (with its --set overrides) is at fault */
         free(c);
         return cli_error(st.code, "%s: %s", path, st.msg);

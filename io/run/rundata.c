@@ -136,6 +136,13 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     if (frame_settings_from_config(c, &s, st) || frame_settings_check(&s, st)) return st->code;
     if (frames_scan(c->frames, &d->scan, st)) return st->code;
     d->have_scan = 1;
+    /* videos carry their rate: data.fps, when given, must agree with it (0.1%) */
+    for (int r = 0; r < d->scan.n_rec; r++) {
+        const ScanRecording *v = &d->scan.rec[r];
+        if (v->video && fabs(v->vinfo.fps - c->fps) > 1e-3 * v->vinfo.fps)
+            return status_set(st, ST_INPUT, "data.fps %g disagrees with %s (%g frames per second): correct it, or "
+                              "leave it out and the video's rate is used", c->fps, v->files[0].path, v->vinfo.fps);
+    }
     /* images carry no rate: a silent 30 would scale every coefficient by the camera's true rate / 30 */
     if (d->scan.kind == REC_IMAGES && !config_given(c, "data.fps"))
         return status_set(st, ST_INPUT, "data.fps: required for image frames (%s): give the camera's frame rate, "
@@ -169,6 +176,27 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     td->gather = gather;
     td->ctx = d;
     return 0;
+}
+
+int rundata_video_fps(Config *c, Status *st) {
+    if (config_given(c, "data.fps") || !c->frames[0]) return 0;
+    FrameScan scan;
+    if (frames_scan(c->frames, &scan, st)) return st->code; /* the same error comes again at the start */
+    double fps = 0;
+    int rc = 0;
+    for (int r = 0; r < scan.n_rec && !rc; r++) {
+        const ScanRecording *v = &scan.rec[r];
+        if (!v->video) continue;
+        if (fps > 0 && fabs(v->vinfo.fps - fps) > 1e-3 * fps)
+            rc = status_set(st, ST_INPUT, "%s: %g frames per second, but %s has %g: recordings of one run share "
+                            "their rate", v->files[0].path, v->vinfo.fps, scan.rec[0].files[0].path, fps);
+        fps = v->vinfo.fps;
+    }
+    frames_scan_free(&scan);
+    if (rc || fps <= 0) return rc;
+    char set[64];
+    snprintf(set, sizeof set, "data.fps=%.17g", fps);
+    return config_set(c, set, st);
 }
 
 int run_config_load(const char *run_dir, Config *c, Status *st) {

@@ -32,6 +32,10 @@ int rundata_open(RunData *d, const Config *c, Status *st);
 void rundata_close(RunData *d);
 
 /* Read RUN_DIR/config.json. ST_INPUT when the folder or the file is missing ("not a run folder"). */
+/* Videos carry their frame rate: when data.fps is not given and the frames are videos, set it to
+ * theirs (ST_INPUT when the videos disagree). Called before the run's config.json is written. */
+int rundata_video_fps(Config *c, Status *st);
+
 int run_config_load(const char *run_dir, Config *c, Status *st);
 
 #endif
