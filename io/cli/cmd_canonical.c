@@ -8,6 +8,7 @@
 
 #include "io/cli/cli.h"
 #include "io/fs/atomic_file.h"
+#include "io/run/runlock.h"
 #include "io/run/results.h"
 #include "io/run/runcanonical.h"
 
@@ -51,7 +52,12 @@ int cmd_canonical(int argc, char **argv) {
     for (int i = 0; i < n_sets; i++)
         if (config_set(&c, sets[i], &st)) return cli_error(st.code, "%s", st.msg);
     if (config_validate(&c, &st) || cli_run_finished(dir, &c, &st)) return cli_error(st.code, "%s", st.msg);
-    if (loaded_run_open(&r, dir, &st)) return cli_error(st.code, "%s", st.msg);
+    RunLock lock = {-1}; /* it rewrites config.json and the equations: one command at a time */
+    if (run_lock(&lock, dir, "canonical", &st)) return cli_error(st.code, "%s", st.msg);
+    if (loaded_run_open(&r, dir, &st)) {
+        run_unlock(&lock);
+        return cli_error(st.code, "%s", st.msg);
+    }
     r.cfg = c; /* the folder's config with the --set canonical keys */
     int rc = run_canonical_get(&r, quiet, &st);
     if (!rc) {
@@ -68,5 +74,6 @@ int cmd_canonical(int argc, char **argv) {
     if (!rc) rc = results_write_equations(&r, quiet, &st);
     if (rc) cli_error(rc, "%s", st.msg);
     loaded_run_close(&r);
+    run_unlock(&lock);
     return rc;
 }

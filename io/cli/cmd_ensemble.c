@@ -8,6 +8,7 @@
 #include "io/cli/cli.h"
 #include "io/fs/atomic_file.h"
 #include "io/fs/clock.h"
+#include "io/run/runlock.h"
 #include "io/run/results.h"
 #include "io/run/runensemble.h"
 #include "io/run/runlog.h"
@@ -68,7 +69,12 @@ int cmd_ensemble(int argc, char **argv) {
     for (int i = 0; i < n_sets; i++)
         if (config_set(&c, sets[i], &st)) return cli_error(st.code, "%s", st.msg);
     if (config_validate(&c, &st) || cli_run_finished(dir, &c, &st)) return cli_error(st.code, "%s", st.msg);
-    if (loaded_run_open(&r, dir, &st)) return cli_error(st.code, "%s", st.msg);
+    RunLock lock = {-1}; /* it rewrites config.json and the equations: one command at a time */
+    if (run_lock(&lock, dir, "ensemble", &st)) return cli_error(st.code, "%s", st.msg);
+    if (loaded_run_open(&r, dir, &st)) {
+        run_unlock(&lock);
+        return cli_error(st.code, "%s", st.msg);
+    }
     r.cfg = c; /* the folder's config with the --set ensemble keys */
     int rc = run_ensemble_get(&r, quiet, &st);
     if (!rc && !quiet) {
@@ -89,5 +95,6 @@ int cmd_ensemble(int argc, char **argv) {
                 r.ens->fit_seconds, r.ens->band_seconds, dir);
     if (rc) cli_error(rc, "%s", st.msg);
     loaded_run_close(&r);
+    run_unlock(&lock);
     return rc;
 }
