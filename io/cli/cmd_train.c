@@ -63,6 +63,17 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
         rundata_close(&data);
         return cli_error(rc, "%s", st.msg);
     }
+    if ((rc = rundata_memory_check(&data, c, &st))) {
+        rundata_close(&data);
+        return cli_error(rc, "%s", st.msg);
+    }
+    if (data.td.n_in > 16384 && !resume) {
+        MemEstimate me;
+        rundata_memory(&data, c, &me);
+        fprintf(stderr, "framelaw: warning: samples of %d values: a model of %.3g parameters, about %.1f GB of memory "
+                        "and slow epochs; most motions show at 64x64 or less (data.size)\n",
+                data.td.n_in, me.params, me.bytes / 1e9);
+    }
     int threads = c->threads > 0 ? c->threads : (int)sysconf(_SC_NPROCESSORS_ONLN);
     if ((rc = provenance_append(run_dir, resume ? "resume" : "train", argc, argv, FRAMELAW_VERSION, threads, &st))) {
         rundata_close(&data);
