@@ -187,6 +187,27 @@ static void test_numeric(void **state) {
                           "training set: 42 samples", "none for numeric"};
     for (size_t i = 0; i < sizeof want / sizeof want[0]; i++)
         if (!strstr(out, want[i])) fail_msg("'%s' missing from:\n%s", want[i], out);
+    /* a column named time (or t) is the clock: it gives the rate and is no channel (the same rule as
+     * framelaw train); an uneven clock is refused naming the line */
+    snprintf(p, sizeof p, "%s/clocked", g_dir);
+    assert_int_equal(mkdir(p, 0755), 0);
+    for (int r = 0; r < 2; r++) {
+        char fp[700];
+        snprintf(fp, sizeof fp, "%s/c%d.csv", p, r);
+        FILE *f = fopen(fp, "w");
+        fputs("Time,x,v\n", f);
+        for (int i = 0; i < 50; i++) fprintf(f, "%.6f,%g,%g\n", 0.05 * i, sin(0.1 * i), cos(0.1 * i));
+        fclose(f);
+    }
+    assert_int_equal(run("frames clocked", out, sizeof out, err, sizeof err), 0);
+    const char *want2[] = {"channels: 2", "fps 20,", "duration"};
+    for (size_t i = 0; i < sizeof want2 / sizeof want2[0]; i++)
+        if (!strstr(out, want2[i])) fail_msg("'%s' missing from:\n%s", want2[i], out);
+    snprintf(p, sizeof p, "%s/uneven.csv", g_dir);
+    FILE *f = fopen(p, "w");
+    fputs("t,x\n0,1\n0.1,2\n0.2,3\n0.35,4\n0.4,5\n", f);
+    fclose(f);
+    expect_bad("frames uneven.csv", "uneven.csv:5: time step 0.15 differs from the mean step 0.1");
 }
 
 /* --config reads the data.* keys of a run config (docs/config.md); flags override them. */

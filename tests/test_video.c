@@ -79,7 +79,7 @@ static void test_rate(void **state) {
     snprintf(set, sizeof set, "data.frames=%s/videos", tmp);
     Status st;
     assert_int_equal(config_set(&c, set, &st), 0);
-    assert_int_equal(rundata_video_fps(&c, &st), 0);
+    assert_int_equal(rundata_source_fps(&c, &st), 0);
     assert_true(c.fps == 25);
     assert_true(config_given(&c, "data.fps"));
     assert_int_equal(config_set(&c, "data.fps=30", &st), 0);

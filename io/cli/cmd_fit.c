@@ -237,37 +237,6 @@ static int find_column(const Series *ser, const char *path, const char *what, co
 }
 
 /* "file:LINE" for a CSV, "file: row R" for a .npy. */
-static void where(char *buf, size_t n, const char *path, const long *lines, long row) {
-    if (lines && lines[row] > 0) snprintf(buf, n, "%s:%ld", path, lines[row]);
-    else snprintf(buf, n, "%s: row %ld", path, row + 1);
-}
-
-/* Check the time column: increasing, equally spaced. Sets *dt. */
-static int check_time(const Series *ser, int tc, const char *path, const long *lines, double *dt) {
-    long n = ser->rows;
-    const double *x = ser->d;
-    int C = ser->cols;
-    char w[1100];
-    for (long r = 1; r < n; r++)
-        if (!(x[r * C + tc] > x[(r - 1) * C + tc])) {
-            where(w, sizeof w, path, lines, r);
-            return cli_error(2, "%s: time %.9g is not greater than the time before it (%.9g); the time column must increase",
-                             w, x[r * C + tc], x[(r - 1) * C + tc]);
-        }
-    *dt = (x[(n - 1) * C + tc] - x[tc]) / (double)(n - 1);
-    for (long r = 1; r < n; r++) {
-        double step = x[r * C + tc] - x[(r - 1) * C + tc];
-        if (fabs(step - *dt) > FIT_DT_TOL * *dt) {
-            where(w, sizeof w, path, lines, r);
-            return cli_error(2,
-                             "%s: time step %.6g differs from the mean step %.6g by more than %g%%; the derivative "
-                             "stencils need equally spaced samples (resample, or give --rate)",
-                             w, step, *dt, 100 * FIT_DT_TOL);
-        }
-    }
-    return 0;
-}
-
 /* The state columns: every column but the time one, or the --columns list. Returns the count. */
 static int state_columns(const FitSettings *s, const Series *ser, int tc, int *cols) {
     int k = 0, kmax = LIB_MAX_VARS / s->lib.order;
@@ -333,7 +302,10 @@ int cmd_fit(int argc, char **argv) {
         goto done;
     }
     if (tc >= 0) {
-        if ((rc = check_time(&ser, tc, p, ser.lines, &dt))) goto done;
+        if (series_time_step(&ser, tc, p, FIT_DT_TOL, &dt, &st)) {
+            rc = cli_error(st.code, "%s", st.msg);
+            goto done;
+        }
     } else {
         dt = 1.0 / s.rate;
     }

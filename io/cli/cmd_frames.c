@@ -206,7 +206,15 @@ int cmd_frames(int argc, char **argv) {
     if (frames_scan(dir, &scan, &st)) return cli_error(st.code, "%s", st.msg);
     int fps_given = config != NULL;
     for (int i = 1; i < argc; i++) fps_given |= !strcmp(argv[i], "--fps");
-    if (!fps_given && scan.rec[0].video) s.fps = scan.rec[0].vinfo.fps; /* a video carries its rate */
+    if (!fps_given) { /* videos and CSV time columns carry their rate */
+        double rate;
+        char from[4096];
+        if (frames_source_rate(&scan, &rate, from, sizeof from, &st)) {
+            frames_scan_free(&scan);
+            return cli_error(st.code, "%s", st.msg);
+        }
+        if (rate > 0) s.fps = rate;
+    }
     FrameStore fs;
     StoreOpenInfo info;
     if (store_open_for(&scan, &s, rebuild, &fs, &info, &st)) {

@@ -178,7 +178,7 @@ int cmd_train(int argc, char **argv) {
         free(c);
         return rc ? rc : cli_error(st.code, "%s", st.msg);
     }
-    if (rundata_video_fps(c, &st)) {
+    if (rundata_source_fps(c, &st)) {
         free(c);
         return cli_error(st.code, "%s", st.msg);
     }

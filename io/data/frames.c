@@ -6,6 +6,7 @@
 #include <errno.h>
 #include <stdio.h>
 #include <stdlib.h>
+#include <math.h>
 #include <string.h>
 #include <sys/stat.h>
 
@@ -232,6 +233,35 @@ static int add_video(FrameScan *fs, int *cap, const char *path, const struct sta
     return video_probe(path, &r->vinfo, st);
 }
 
+int frames_source_rate(const FrameScan *fs, double *fps, char *from, size_t n, Status *st) {
+    *fps = 0;
+    if (n) from[0] = 0;
+    for (int r = 0; r < fs->n_rec; r++) {
+        const ScanRecording *rec = &fs->rec[r];
+        const char *p = rec->files[0].path;
+        double f = 0;
+        if (rec->video) f = rec->vinfo.fps;
+        else if (rec->kind == REC_NUMERIC && series_is_numeric_path(p)) {
+            Series ser;
+            if (series_read(p, &ser, st)) return st->code;
+            int tc = series_time_column(&ser), rc = 0;
+            double dt = 0;
+            if (tc >= 0 && !(rc = series_time_step(&ser, tc, p, FRAMES_DT_TOL, &dt, st))) f = 1.0 / dt;
+            series_free(&ser);
+            if (rc) return rc;
+        }
+        if (f <= 0) continue;
+        if (*fps > 0 && fabs(f - *fps) > 1e-3 * *fps)
+            return status_set(st, ST_INPUT, "%s: %g samples per second, but %s has %g: recordings of one run share "
+                              "their rate", p, f, from, *fps);
+        if (*fps <= 0) {
+            *fps = f;
+            if (n) snprintf(from, n, "%s", p);
+        }
+    }
+    return 0;
+}
+
 int frames_scan(const char *path, FrameScan *fs, Status *st) {
     memset(fs, 0, sizeof *fs);
     snprintf(fs->root, sizeof fs->root, "%s", path);
@@ -375,6 +405,7 @@ uint64_t frames_digest(const FrameScan *fs, const FrameSettings *s) {
             h = fnv1a64_u64(h, (uint64_t)rec->files[i].mtime_ns);
         }
     }
+    if (fs->kind == REC_NUMERIC) h = fnv_str(h, "time column t|time is the clock"); /* since stores dropped it */
     int64_t v[] = {s->gray, s->crop_x, s->crop_y, s->crop_w, s->crop_h, s->width, s->height,
                    fs->kind == REC_NUMERIC ? 32 : s->bits, s->stride};
     for (size_t i = 0; i < sizeof v / sizeof v[0]; i++) h = fnv1a64_u64(h, (uint64_t)v[i]);

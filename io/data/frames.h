@@ -93,6 +93,14 @@ typedef struct {
     int ignored_dirs;    /* sub-folders that were skipped */
 } FrameScan;
 
+/* Largest relative deviation of a time step from the mean step that counts as equally spaced. */
+#define FRAMES_DT_TOL 0.01
+
+/* The rate the recordings carry: a video's frame rate, or 1 / the step of a CSV time column (a column
+ * named t or time: the clock, never a channel). *fps 0 when none carries one; from receives the file
+ * that gave it. ST_INPUT when recordings disagree (0.1%) or a time column is uneven (naming the line). */
+int frames_source_rate(const FrameScan *fs, double *fps, char *from, size_t n, Status *st);
+
 /* List the recordings under path. ST_INPUT naming the path when it does not exist, holds no
  * recording ("no image files or recordings"), or mixes image and numeric recordings. */
 int frames_scan(const char *path, FrameScan *fs, Status *st);

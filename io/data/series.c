@@ -262,3 +262,42 @@ int npy_write(const char *path, const void *data, long rows, int cols, NpyType t
     }
     return atomic_commit(&af, st);
 }
+
+int series_time_column(const Series *s) {
+    if (!s->names) return -1;
+    for (int c = 0; c < s->cols; c++)
+        if (s->names[c] && (!strcasecmp(s->names[c], "t") || !strcasecmp(s->names[c], "time"))) return c;
+    return -1;
+}
+
+static void row_at(char *buf, size_t n, const char *path, const Series *s, long row) {
+    if (s->lines && s->lines[row] > 0) snprintf(buf, n, "%s:%ld", path, s->lines[row]);
+    else snprintf(buf, n, "%s: row %ld", path, row + 1);
+}
+
+int series_time_step(const Series *s, int tc, const char *path, double tol, double *dt, Status *st) {
+    long n = s->rows;
+    const double *x = s->d;
+    int C = s->cols;
+    char w[1100];
+    if (n < 2) return status_set(st, ST_INPUT, "%s: %ld sample; a time series needs more", path, n);
+    for (long r = 1; r < n; r++)
+        if (!(x[r * C + tc] > x[(r - 1) * C + tc])) {
+            row_at(w, sizeof w, path, s, r);
+            return status_set(st, ST_INPUT,
+                              "%s: time %.9g is not greater than the time before it (%.9g); the time column must "
+                              "increase", w, x[r * C + tc], x[(r - 1) * C + tc]);
+        }
+    *dt = (x[(n - 1) * C + tc] - x[tc]) / (double)(n - 1);
+    for (long r = 1; r < n; r++) {
+        double step = x[r * C + tc] - x[(r - 1) * C + tc];
+        if (fabs(step - *dt) > tol * *dt) {
+            row_at(w, sizeof w, path, s, r);
+            return status_set(st, ST_INPUT,
+                              "%s: time step %.6g differs from the mean step %.6g by more than %g%%; the derivative "
+                              "stencils need equally spaced samples (resample, or give the rate)",
+                              w, step, *dt, 100 * tol);
+        }
+    }
+    return 0;
+}

@@ -41,6 +41,15 @@ int series_read(const char *path, Series *s, Status *st);
 int series_is_numeric_path(const char *path);
 void series_free(Series *s);
 
+/* The time column of a recording: the CSV column whose header names it "t" or "time" (any case),
+ * or -1. framelaw train and frames take it as the clock, not as a channel (framelaw fit names its
+ * own with --time-column). */
+int series_time_column(const Series *s);
+
+/* The time column tc must increase in equal steps (within tol of the mean step); *dt receives the
+ * mean step. ST_INPUT naming the file and line (or row) at fault. */
+int series_time_step(const Series *s, int tc, const char *path, double tol, double *dt, Status *st);
+
 typedef enum { NPY_F64, NPY_F32 } NpyType;
 
 /* Write data (rows, cols), row-major, of the given element type as a 2-D .npy file; cols <= 0

@@ -380,26 +380,34 @@ static int build_numeric(const FrameScan *scan, const FrameSettings *s, const ch
         Series ser;
         const char *fp = scan->rec[r].files[0].path;
         if ((rc = series_read(fp, &ser, st))) break;
+        int tc = series_time_column(&ser); /* the clock, not a channel (frames_source_rate checks it) */
+        double dt;
+        if (tc >= 0 && (rc = series_time_step(&ser, tc, fp, FRAMES_DT_TOL, &dt, st))) {
+            series_free(&ser);
+            break;
+        }
+        int ch = ser.cols - (tc >= 0);
         if (!w) {
-            cols = ser.cols;
+            cols = ch;
             first = fp;
             row = malloc(sizeof(float) * (size_t)cols);
             StoreLayout lay = {STORE_F32, cols, 1, frames_digest(scan, s), cols, 1, 0, {0, 0, 0, 0}, s->stride};
             if (!row) rc = status_set(st, ST_RUNTIME, "%s: out of memory", path);
             else rc = store_writer_open(&w, path, &lay, st);
-        } else if (ser.cols != cols) {
+        } else if (ch != cols) {
             rc = status_set(st, ST_INPUT, "%s has %d channels, but %s has %d: every recording needs the same channels",
-                            fp, ser.cols, first, cols);
+                            fp, ch, first, cols);
         }
         if (!rc) rc = store_writer_recording(w, scan->rec[r].name, ser.rows, st);
         for (long i = 0; !rc && i < ser.rows; i += s->stride) {
-            for (int c = 0; c < cols; c++) {
-                double v = ser.d[i * cols + c];
+            for (int c = 0, o = 0; c < ser.cols; c++) {
+                if (c == tc) continue;
+                double v = ser.d[i * ser.cols + c];
                 if (v > FLT_MAX || v < -FLT_MAX) {
                     rc = status_set(st, ST_INPUT, "%s: row %ld, column %d: %g is beyond float range", fp, i + 1, c + 1, v);
                     break;
                 }
-                row[c] = (float)v;
+                row[o++] = (float)v;
             }
             if (!rc) rc = store_writer_frame(w, row, st);
         }

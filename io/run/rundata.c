@@ -218,22 +218,21 @@ int rundata_memory_check(const RunData *d, const Config *c, Status *st) {
                       e.bytes / 1e9, e.n_in, e.params, e.checkpoint_bytes / 1e9, e.budget / 1e9);
 }
 
-int rundata_video_fps(Config *c, Status *st) {
-    if (config_given(c, "data.fps") || !c->frames[0]) return 0;
+int rundata_source_fps(Config *c, Status *st) {
+    if (!c->frames[0]) return 0;
     FrameScan scan;
-    if (frames_scan(c->frames, &scan, st)) return st->code; /* the same error comes again at the start */
-    double fps = 0;
-    int rc = 0;
-    for (int r = 0; r < scan.n_rec && !rc; r++) {
-        const ScanRecording *v = &scan.rec[r];
-        if (!v->video) continue;
-        if (fps > 0 && fabs(v->vinfo.fps - fps) > 1e-3 * fps)
-            rc = status_set(st, ST_INPUT, "%s: %g frames per second, but %s has %g: recordings of one run share "
-                            "their rate", v->files[0].path, v->vinfo.fps, scan.rec[0].files[0].path, fps);
-        fps = v->vinfo.fps;
-    }
+    if (frames_scan(c->frames, &scan, st)) return 0; /* the same error comes again at the start */
+    double fps;
+    char from[4096];
+    int rc = frames_source_rate(&scan, &fps, from, sizeof from, st);
     frames_scan_free(&scan);
     if (rc || fps <= 0) return rc;
+    if (config_given(c, "data.fps")) {
+        if (fabs(fps - c->fps) > 1e-3 * fps)
+            return status_set(st, ST_INPUT, "data.fps %g disagrees with %s (%g per second): correct it, or leave it "
+                                            "out and the recordings' rate is used", c->fps, from, fps);
+        return 0;
+    }
     char set[64];
     snprintf(set, sizeof set, "data.fps=%.17g", fps);
     return config_set(c, set, st);

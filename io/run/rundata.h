@@ -31,9 +31,10 @@ int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st);
 int rundata_open(RunData *d, const Config *c, Status *st);
 void rundata_close(RunData *d);
 
-/* Videos carry their frame rate: when data.fps is not given and the frames are videos, set it to
- * theirs (ST_INPUT when the videos disagree). Called before the run's config.json is written. */
-int rundata_video_fps(Config *c, Status *st);
+/* Videos and CSV recordings with a time column carry their rate (frames_source_rate): when data.fps
+ * is not given, set it to theirs; when given, it must agree (0.1%). ST_INPUT otherwise. Called before
+ * the run's config.json is written. */
+int rundata_source_fps(Config *c, Status *st);
 
 /* What a run will hold in memory, estimated before training: the model's parameters (values,
  * gradients, two Adam moments and the checkpoint's copy: 6 floats each, the first layer n_in x h1
