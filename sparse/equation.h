@@ -35,6 +35,10 @@
 #define EQ_JSON_FORMAT "framelaw-equations"
 #define EQ_JSON_VERSION 1
 
+/* Significant digits of the coefficients in a run's printed equations: equations.txt and .tex, the
+ * text and latex members of equations.json (its "digits"), the console; fit's --digits default. */
+#define EQ_DIGITS 4
+
 typedef enum { EQ_TEXT, EQ_LATEX } EqStyle;
 
 /* Equation j alone ("dz1/dt = ...", no newline). Like snprintf: writes at most n bytes (always

@@ -46,7 +46,7 @@ static FitSettings fit_defaults(void) {
     s.stencil = STENCIL_SAVGOL;
     s.window = 7;
     s.sg_degree = 3;
-    s.digits = 4;
+    s.digits = EQ_DIGITS;
     s.format = OUT_TEXT;
     return s;
 }

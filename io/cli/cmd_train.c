@@ -36,7 +36,7 @@ static int finish_run(const char *run_dir, int quiet, Status *st) {
     if (!rc) {
         long active = model_active(&r->m);
         printf("learned equations (%ld active terms):\n", active);
-        equation_fprint(stdout, EQ_TEXT, &r->m.lib, r->coef.xi, r->coef.mask, 4);
+        equation_fprint(stdout, EQ_TEXT, &r->m.lib, r->coef.xi, r->coef.mask, EQ_DIGITS);
         if (!active) /* a law of nothing: the latent stood still, or every term fell below the threshold */
             fprintf(stderr, "framelaw: warning: no term is left, so this law says nothing moves: the latent may have "
                             "collapsed to a constant (see its plot in framelaw report); try more recordings or "
