@@ -170,6 +170,7 @@ int cmd_train(int argc, char **argv) {
         free(c);
         return cli_error(st.code, "%s: %s", path, st.msg);
     }
+    cli_note_old_terms(c);
     char ck[CFG_PATH_MAX + 32];
     snprintf(ck, sizeof ck, "%s/checkpoints", c->output);
     if (fs_exists(ck)) {
