@@ -15,7 +15,7 @@ TESTLIBS:= -lcmocka
 
 # Debian packages the build and the test suite need; `make deps` installs the missing ones.
 DEB_BUILD := libopenblas-dev libstb-dev libcjson-dev libcmocka-dev
-DEB_TEST  := python3 python3-numpy chromium
+DEB_TEST  := python3 python3-numpy chromium ffmpeg
 DEB_PKGS  := $(DEB_BUILD) $(DEB_TEST)
 
 # io/ is in sub-folders (io/README.md); io/cli/main.c is the entry point, not library code.

@@ -32,7 +32,7 @@ static const char *FULL =
     "  \"optimizer\": {\"lr\": 3e-4, \"beta1\": 0.8, \"beta2\": 0.99, \"eps\": 1e-7, \"schedule\": \"cosine\",\n"
     "                \"decay_every\": 50, \"decay_factor\": 0.25, \"lr_min\": 1e-5},\n"
     "  \"train\": {\"batch\": 64, \"epochs\": 20000, \"seed\": 9007199254740991, \"threads\": 4,\n"
-    "            \"validate_every\": 5, \"warmup_epochs\": 50, \"warmup_fit\": false},\n"
+    "            \"validate_every\": 5, \"warmup_epochs\": 50, \"warmup_fit\": false, \"memory_budget\": 2.5},\n"
     "  \"threshold\": {\"value\": 0.05, \"measure\": \"coefficient\", \"select\": \"first\", \"every\": 300, \"refine_epochs\": 5000},\n"
     "  \"checkpoint\": {\"every\": 25, \"keep\": 7},\n"
     "  \"forecast\": {\"bound\": 0.2, \"method\": \"rk4\", \"tolerance\": 1e-6},\n"
@@ -356,7 +356,7 @@ static void test_digest(void **state) {
                                        "ensemble.members=7", "ensemble.block=3", "ensemble.block_seconds=2",
                                        "ensemble.library_bagging=true", "ensemble.drop_fraction=0.5",
                                        "ensemble.inclusion=0.9", "ensemble.band_members=5",
-                                       "canonical.tolerance=0.1", "canonical.cond_max=50"};
+                                       "canonical.tolerance=0.1", "canonical.cond_max=50", "train.memory_budget=3"};
     Config s = c;
     for (size_t i = 0; i < sizeof safe / sizeof safe[0]; i++) {
         set_ok(&s, safe[i]);
@@ -384,7 +384,7 @@ static void test_digest(void **state) {
         for (int i = 0; config_key_path(i); i++) found |= !strcmp(config_key_path(i), config_resume_safe_keys[n]);
         if (!found) fail_msg("resume-safe key %s is not in the table", config_resume_safe_keys[n]);
     }
-    assert_int_equal(n, 18);
+    assert_int_equal(n, 19);
 }
 
 /* The bad configs: each with the substring its message must hold. The origin prefixes every one. */

@@ -110,10 +110,13 @@ static int setup_mode(void **state, int latent) {
     long n_train = d.td.n_train;
     int64_t *order = malloc((size_t)n_train * sizeof *order);
     for (long i = 0; i < n_train; i++) order[i] = i;
-    CkptMeta meta = {0};
+    CkptMeta meta = {0}; /* values a real run can have written (ckpt_read checks them) */
     meta.config_digest = config_digest(c);
     meta.epoch = c->epochs;
+    meta.best_val = INFINITY;
+    meta.best_epoch = -1;
     rng_seed(&meta.rng, 1);
+    ps.step = 1;
     snprintf(path, sizeof path, "%s/checkpoints", fx->run);
     assert_int_equal(mkdir(path, 0777), 0);
     snprintf(path, sizeof path, "%s/checkpoints/ckpt-00000010-000000.ckpt", fx->run);
@@ -284,6 +287,9 @@ static void test_forecast_of_blowing_up_model(void **state) {
     CkptMeta meta = {0};
     meta.config_digest = config_digest(c);
     meta.epoch = 11;
+    meta.best_val = INFINITY;
+    meta.best_epoch = -1;
+    rng_seed(&meta.rng, 1);
     snprintf(path, sizeof path, "%s/checkpoints/ckpt-00000011-000000.ckpt", fx->run);
     assert_int_equal(ckpt_write(path, &meta, &ps, m.mask, 4, order, n_train, &st), 0);
     free(order);

@@ -251,17 +251,17 @@ static void test_corrupt_checkpoints_are_refused(void **state) {
     CkptMeta meta;
     long n_mask = (long)m.lib.n_terms * 2;
     int64_t *order = malloc((size_t)(NREC - 1) * NT * sizeof *order);
-    assert_int_equal(ckpt_read(newest, &meta, &ps, m.mask, n_mask, order, (NREC - 1) * NT, &st), ST_INPUT);
+    assert_int_equal(ckpt_read(newest, &meta, &ps, m.mask, n_mask, order, (NREC - 1) * NT, c.batch, &st), ST_INPUT);
     assert_non_null(strstr(st.msg, "CRC mismatch"));
     /* truncated */
     assert_int_equal(truncate(older, 100), 0);
-    assert_int_equal(ckpt_read(older, &meta, &ps, m.mask, n_mask, order, (NREC - 1) * NT, &st), ST_INPUT);
+    assert_int_equal(ckpt_read(older, &meta, &ps, m.mask, n_mask, order, (NREC - 1) * NT, c.batch, &st), ST_INPUT);
     /* the latest loadable one is epoch 2 */
     model_free(&m);
     params_free(&ps);
     assert_int_equal(train_load_latest(dir, &c, NCH, (long)(NREC - 1) * NT, &m, &ps, &st), 0);
     snprintf(newest, sizeof newest, "%s/checkpoints/ckpt-00000002-000000.ckpt", dir);
-    assert_int_equal(ckpt_read(newest, &meta, &ps, m.mask, n_mask, order, (NREC - 1) * NT, &st), 0);
+    assert_int_equal(ckpt_read(newest, &meta, &ps, m.mask, n_mask, order, (NREC - 1) * NT, c.batch, &st), 0);
     assert_int_equal(meta.epoch, 2);
     /* a changed config is refused on resume */
     c.lr = 1e-2;

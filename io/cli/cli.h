@@ -5,6 +5,7 @@
 
 #include "io/run/config.h"
 #include "io/run/results.h"
+#include "io/run/runlock.h"
 
 #define FRAMELAW_VERSION "0.1.0"
 
@@ -62,17 +63,19 @@ int cli_run_finished(const char *dir, const Config *c, Status *st);
 
 #define CLI_MAX_SETS 64
 typedef struct {
-    const char *dir;
+    const char *cmd, *dir;
     int quiet, n_sets;
     const char *sets[CLI_MAX_SETS];
+    RunLock lock;        /* held from cli_open_finished; run_unlock it at the end */
 } RunArgs;
 
 /* RUN_DIR, --quiet and --set PREFIX.KEY=VALUE (only keys of that section, e.g. "ensemble.");
  * argv[0] is the command's name. 0, or the exit status after printing the error. */
 int cli_run_args(int argc, char **argv, const char *prefix, RunArgs *a);
-/* Load the run's config, apply the --set keys, validate, check training finished, open the run with
- * that config. 0, or the exit status after printing the error. */
-int cli_open_finished(const RunArgs *a, Config *c, LoadedRun *r);
+/* Load the run's config, apply the --set keys, validate, check training finished, take the run
+ * folder's lock (these commands rewrite config.json and the equations: one command at a time), open
+ * the run with that config. 0, or the exit status after printing the error (the lock released). */
+int cli_open_finished(RunArgs *a, Config *c, LoadedRun *r);
 /* Store the config with the --set keys in RUN_DIR/config.json (nothing without --set). */
 int cli_store_sets(const RunArgs *a, const Config *c, Status *st);
 

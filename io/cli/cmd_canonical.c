@@ -43,5 +43,6 @@ int cmd_canonical(int argc, char **argv) {
     if (!rc) rc = results_write_equations(&r, quiet, &st);
     if (rc) cli_error(rc, "%s", st.msg);
     loaded_run_close(&r);
+    run_unlock(&a.lock);
     return rc;
 }

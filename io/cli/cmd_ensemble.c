@@ -48,5 +48,6 @@ int cmd_ensemble(int argc, char **argv) {
                 r.ens->fit_seconds, r.ens->band_seconds, dir);
     if (rc) cli_error(rc, "%s", st.msg);
     loaded_run_close(&r);
+    run_unlock(&a.lock);
     return rc;
 }

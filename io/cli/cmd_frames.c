@@ -204,6 +204,9 @@ int cmd_frames(int argc, char **argv) {
 
     FrameScan scan;
     if (frames_scan(dir, &scan, &st)) return cli_error(st.code, "%s", st.msg);
+    int fps_given = config != NULL;
+    for (int i = 1; i < argc; i++) fps_given |= !strcmp(argv[i], "--fps");
+    if (!fps_given && scan.rec[0].video) s.fps = scan.rec[0].vinfo.fps; /* a video carries its rate */
     FrameStore fs;
     StoreOpenInfo info;
     if (store_open_for(&scan, &s, rebuild, &fs, &info, &st)) {
@@ -252,6 +255,10 @@ int cmd_frames(int argc, char **argv) {
            ds.count[SPLIT_VAL], ds.n_rec_split[SPLIT_VAL], ds.n_rec_split[SPLIT_VAL] == 1 ? "" : "s");
     printf("sample width: %ld values (x, x' and x'' are formed at gather time: %ld bytes per sample as float32)\n",
            fs.n, 3 * fs.n * 4);
+    if (fs.n > 16384) /* the encoder's first layer grows with it: n x its width parameters */
+        printf("warning: samples of %ld values make a large model (the first layer alone has %ld x its width "
+               "parameters) and slow training; most motions show at 64x64 or less: set --size (data.size)\n",
+               fs.n, fs.n);
     int rc = 0;
     if (numeric) {
         printf("contact sheet: none for numeric recordings\n");

@@ -1,9 +1,11 @@
 /* io/cli/cmd_results.c: `framelaw export RUN_DIR` and `framelaw forecast RUN_DIR`. */
 #include <stdio.h>
 #include <string.h>
+#include <sys/stat.h>
 
 #include "io/cli/cli.h"
 #include "io/run/results.h"
+#include "io/run/runlock.h"
 
 static int run_dir_arg(int argc, char **argv, const char **dir, int *quiet) {
     *dir = NULL;
@@ -23,10 +25,19 @@ static int with_run(int argc, char **argv, int (*fn)(LoadedRun *, int, Status *)
     if (rc) return rc;
     static LoadedRun r; /* large (the config holds paths): not on the stack */
     Status st;
-    if (loaded_run_open(&r, dir, &st)) return cli_error(st.code, "%s", st.msg);
+    struct stat sb;
+    RunLock lock = {-1};
+    /* a missing folder is left to loaded_run_open, which says "not a run folder" */
+    if (stat(dir, &sb) == 0 && S_ISDIR(sb.st_mode) && run_lock(&lock, dir, argv[0], &st))
+        return cli_error(st.code, "%s", st.msg);
+    if (loaded_run_open(&r, dir, &st)) {
+        run_unlock(&lock);
+        return cli_error(st.code, "%s", st.msg);
+    }
     rc = fn(&r, quiet, &st);
     if (rc) cli_error(rc, "%s", st.msg);
     loaded_run_close(&r);
+    run_unlock(&lock);
     return rc;
 }
 

@@ -15,6 +15,7 @@
 #include "io/run/runcanonical.h"
 #include "io/run/runensemble.h"
 #include "io/run/rundata.h"
+#include "io/run/runlock.h"
 #include "io/run/train.h"
 #include "sparse/coef.h"
 #include "sparse/equation.h"
@@ -62,6 +63,17 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
         rundata_close(&data);
         return cli_error(rc, "%s", st.msg);
     }
+    if ((rc = rundata_memory_check(&data, c, &st))) {
+        rundata_close(&data);
+        return cli_error(rc, "%s", st.msg);
+    }
+    if (data.td.n_in > 16384 && !resume) {
+        MemEstimate me;
+        rundata_memory(&data, c, &me);
+        fprintf(stderr, "framelaw: warning: samples of %d values: a model of %.3g parameters, about %.1f GB of memory "
+                        "and slow epochs; most motions show at 64x64 or less (data.size)\n",
+                data.td.n_in, me.params, me.bytes / 1e9);
+    }
     int threads = c->threads > 0 ? c->threads : (int)sysconf(_SC_NPROCESSORS_ONLN);
     if ((rc = provenance_append(run_dir, resume ? "resume" : "train", argc, argv, FRAMELAW_VERSION, threads, &st))) {
         rundata_close(&data);
@@ -78,21 +90,21 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
         fprintf(stderr, "framelaw: model: latent %d, order %d, %s; batch %d, %ld epochs; log in %s/log.csv\n",
                 c->latent, c->order, c->activation, c->batch, c->epochs, run_dir);
     }
-    struct sigaction sa;
+    struct sigaction sa, old_int, old_term;
     memset(&sa, 0, sizeof sa);
     sa.sa_handler = on_signal;
     sigemptyset(&sa.sa_mask);
-    sigaction(SIGINT, &sa, NULL);
-    sigaction(SIGTERM, &sa, NULL);
+    sigaction(SIGINT, &sa, &old_int);
+    sigaction(SIGTERM, &sa, &old_term);
     TrainOpts o = {c, run_dir, resume, quiet, &stop_flag, 0};
     Model m;
     ParamSet ps;
     TrainResult res;
     rc = train_run(&o, &td, &m, &ps, &res, &st);
-    /* training is over: Ctrl-C now stops at once (export and forecast write atomically) */
-    sa.sa_handler = SIG_DFL;
-    sigaction(SIGINT, &sa, NULL);
-    sigaction(SIGTERM, &sa, NULL);
+    /* training is over: Ctrl-C now stops at once, removing the temporaries of the files being written
+     * (the handler of atomic_cleanup_on_signals) */
+    sigaction(SIGINT, &old_int, NULL);
+    sigaction(SIGTERM, &old_term, NULL);
     if (rc) {
         cli_error(rc, "%s", st.msg);
     } else if (res.interrupted) {
@@ -166,6 +178,10 @@ int cmd_train(int argc, char **argv) {
         free(c);
         return rc ? rc : cli_error(st.code, "%s", st.msg);
     }
+    if (rundata_video_fps(c, &st)) {
+        free(c);
+        return cli_error(st.code, "%s", st.msg);
+    }
     if (config_validate(c, &st)) { /* a check across keys: the file (with its --set overrides) is at fault */
         free(c);
         return cli_error(st.code, "%s: %s", path, st.msg);
@@ -173,17 +189,25 @@ int cmd_train(int argc, char **argv) {
     cli_note_old_terms(c);
     char ck[CFG_PATH_MAX + 32];
     snprintf(ck, sizeof ck, "%s/checkpoints", c->output);
+    /* the folder, then its lock (a train or resume running there is named), then whether it holds a run */
+    RunLock lock = {-1};
+    if (fs_make_dirs(c->output, &st) || run_lock(&lock, c->output, "train", &st)) {
+        free(c);
+        return cli_error(st.code, "%s", st.msg);
+    }
     if (fs_exists(ck)) {
         rc = cli_error(2, "%s: already holds a run; continue it with `framelaw resume %s` or choose another "
                           "output (--set output=...)", c->output, c->output);
+        run_unlock(&lock);
         free(c);
         return rc;
     }
     char cfg_path[CFG_PATH_MAX + 32];
     snprintf(cfg_path, sizeof cfg_path, "%s/config.json", c->output);
     char *json = config_to_json(c);
-    if (fs_make_dirs(c->output, &st) || atomic_write_bytes(cfg_path, json, strlen(json), &st)) {
+    if (atomic_write_bytes(cfg_path, json, strlen(json), &st)) {
         free(json);
+        run_unlock(&lock);
         free(c);
         return cli_error(st.code, "%s", st.msg);
     }
@@ -191,6 +215,7 @@ int cmd_train(int argc, char **argv) {
     char run_dir[CFG_PATH_MAX];
     snprintf(run_dir, sizeof run_dir, "%s", c->output);
     rc = run_training(c, run_dir, 0, quiet, argc, argv);
+    run_unlock(&lock);
     free(c);
     return rc;
 }
@@ -219,18 +244,25 @@ int cmd_resume(int argc, char **argv) {
         free(c);
         return rc ? rc : cli_error(st.code, "%s", st.msg);
     }
+    RunLock lock = {-1};
+    if (run_lock(&lock, dir, "resume", &st)) {
+        free(c);
+        return cli_error(st.code, "%s", st.msg);
+    }
     int sets = 0;
     for (int i = 1; i < argc; i++) sets |= !strncmp(argv[i], "--set", 5);
     if (sets) { /* store the changed safe keys so a later resume sees them */
         char *json = config_to_json(c);
         if (atomic_write_bytes(cfg_path, json, strlen(json), &st)) {
             free(json);
+            run_unlock(&lock);
             free(c);
             return cli_error(st.code, "%s", st.msg);
         }
         free(json);
     }
     rc = run_training(c, dir, 1, quiet, argc, argv);
+    run_unlock(&lock);
     free(c);
     return rc;
 }

@@ -6,6 +6,7 @@
 #include <string.h>
 
 #include "io/cli/cli.h"
+#include "io/fs/atomic_file.h"
 #include "sparse/library.h"
 
 static int cmd_help(int argc, char **argv);
@@ -97,6 +98,8 @@ int main(int argc, char **argv) {
         printf("framelaw %s\n", FRAMELAW_VERSION);
         return 0;
     }
+    /* an interrupted command leaves no temporary file behind (io/fs/atomic_file.h) */
+    atomic_cleanup_on_signals();
     for (int i = 0; i < N_COMMANDS; i++)
         if (!strcmp(argv[1], commands[i].name)) {
             /* --opt=value is --opt value for every command: split at the first '=' */

@@ -26,7 +26,8 @@ int cli_run_finished(const char *dir, const Config *c, Status *st) {
 
 int cli_run_args(int argc, char **argv, const char *prefix, RunArgs *a) {
     memset(a, 0, sizeof *a);
-    const char *cmd = argv[0];
+    a->lock.fd = -1;
+    const char *cmd = a->cmd = argv[0];
     size_t pl = strlen(prefix);
     for (int i = 1; i < argc; i++) {
         if (!strcmp(argv[i], "--quiet")) a->quiet = 1;
@@ -45,13 +46,18 @@ int cli_run_args(int argc, char **argv, const char *prefix, RunArgs *a) {
     return 0;
 }
 
-int cli_open_finished(const RunArgs *a, Config *c, LoadedRun *r) {
+int cli_open_finished(RunArgs *a, Config *c, LoadedRun *r) {
     Status st;
     if (run_config_load(a->dir, c, &st)) return cli_error(st.code, "%s", st.msg);
     for (int i = 0; i < a->n_sets; i++)
         if (config_set(c, a->sets[i], &st)) return cli_error(st.code, "%s", st.msg);
     if (config_validate(c, &st) || cli_run_finished(a->dir, c, &st)) return cli_error(st.code, "%s", st.msg);
-    if (loaded_run_open(r, a->dir, &st)) return cli_error(st.code, "%s", st.msg);
+    RunLock *lock = &a->lock;
+    if (run_lock(lock, a->dir, a->cmd, &st)) return cli_error(st.code, "%s", st.msg);
+    if (loaded_run_open(r, a->dir, &st)) {
+        run_unlock(lock);
+        return cli_error(st.code, "%s", st.msg);
+    }
     r->cfg = *c; /* the folder's config with the --set keys */
     return 0;
 }

@@ -224,15 +224,29 @@ static int add_numeric(FrameScan *fs, int *cap, const char *path, const struct s
     return 0;
 }
 
+static int add_video(FrameScan *fs, int *cap, const char *path, const struct stat *sb, Status *st) {
+    if (add_numeric(fs, cap, path, sb, st)) return st->code; /* one file, as a numeric recording */
+    ScanRecording *r = &fs->rec[fs->n_rec - 1];
+    r->kind = REC_IMAGES;
+    r->video = 1;
+    return video_probe(path, &r->vinfo, st);
+}
+
 int frames_scan(const char *path, FrameScan *fs, Status *st) {
     memset(fs, 0, sizeof *fs);
     snprintf(fs->root, sizeof fs->root, "%s", path);
     int cap = 0;
     struct stat sb;
     if (stat(path, &sb) != 0) return status_set(st, ST_INPUT, "%s: %s", path, strerror(errno));
+    if (S_ISREG(sb.st_mode) && video_is_video_name(path)) {
+        fs->single = 1;
+        fs->kind = REC_IMAGES;
+        if (add_video(fs, &cap, path, &sb, st)) goto fail;
+        return 0;
+    }
     if (S_ISREG(sb.st_mode)) {
         if (!series_is_numeric_path(path))
-            return status_set(st, ST_INPUT, "%s: not a folder, nor a .csv or .npy recording", path);
+            return status_set(st, ST_INPUT, "%s: not a folder, a video, nor a .csv or .npy recording", path);
         fs->single = 1;
         fs->kind = REC_NUMERIC;
         if (add_numeric(fs, &cap, path, &sb, st)) goto fail;
@@ -294,6 +308,9 @@ int frames_scan(const char *path, FrameScan *fs, Status *st) {
                 fs->ignored_dirs += sub_dirs;
                 if (!n_img_rec++) snprintf(first_img, sizeof first_img, "%s", e->d_name);
             }
+        } else if (S_ISREG(sb.st_mode) && video_is_video_name(e->d_name)) {
+            if (add_video(fs, &cap, p, &sb, st)) rc = st->code;
+            else if (!n_img_rec++) snprintf(first_img, sizeof first_img, "%s", e->d_name);
         } else if (S_ISREG(sb.st_mode) && series_is_numeric_path(e->d_name)) {
             if (add_numeric(fs, &cap, p, &sb, st)) rc = st->code;
             else if (!n_num_rec++) snprintf(first_num, sizeof first_num, "%s", e->d_name);

@@ -18,6 +18,7 @@
 #include <stdint.h>
 
 #include "io/data/images.h"
+#include "io/data/video.h"
 #include "nn/core.h"
 #include "sparse/stencil.h"
 
@@ -75,7 +76,9 @@ typedef struct {
 
 typedef struct {
     char name[256];      /* recording name */
-    RecKind kind;
+    RecKind kind;        /* a video file is a recording of images */
+    int video;           /* 1: files[0] is a video file (io/data/video.h), decoded by ffmpeg */
+    VideoInfo vinfo;     /* video: its size and rate from ffprobe */
     int n_files;         /* image files in natural order, or 1 numeric file */
     SourceFile *files;   /* (n_files); owned */
 } ScanRecording;

@@ -274,6 +274,8 @@ int store_writer_finish(StoreWriter *w, FrameStore *fs, Status *st) {
 
 /* ---- building ---------------------------------------------------------------------------- */
 
+static const char *fp_of(const ScanRecording *rec) { return rec->files[0].path; }
+
 static int build_images(const FrameScan *scan, const FrameSettings *s, const char *path, FrameStore *fs,
                         Status *st) {
     StoreWriter *w = NULL;
@@ -283,10 +285,24 @@ static int build_images(const FrameScan *scan, const FrameSettings *s, const cha
     const char *first_path = scan->rec[0].files[0].path;
     for (int r = 0; r < scan->n_rec && !rc; r++) {
         const ScanRecording *rec = &scan->rec[r];
-        for (int i = 0; i < rec->n_files && !rc; i += s->stride) {
-            const char *fp = rec->files[i].path;
+        VideoReader vr = {0};
+        long vframe = 0; /* video: source frames read */
+        if (rec->video && (rc = video_open(&vr, rec->files[0].path, rec->vinfo.width, rec->vinfo.height, st))) break;
+        for (int i = 0; !rc && (rec->video || i < rec->n_files); i += s->stride) {
+            const char *fp = rec->files[rec->video ? 0 : i].path;
             int iw, ih;
-            if ((rc = image_load_gray(fp, s->gray, &img, &iw, &ih, st))) break;
+            if (rec->video) { /* the next kept frame of the video: skip stride - 1 after each */
+                iw = rec->vinfo.width, ih = rec->vinfo.height;
+                if (!img && !(img = malloc(sizeof(float) * (size_t)iw * ih))) {
+                    rc = status_set(st, ST_RUNTIME, "%s: out of memory", fp);
+                    break;
+                }
+                int got = 0;
+                while (vframe % s->stride && (got = video_read_gray(&vr, s->gray, img, st)) == 1) vframe++;
+                if (got >= 0 && (got = video_read_gray(&vr, s->gray, img, st)) == 1) vframe++;
+                if (got < 0) rc = st->code;
+                if (got <= 0) break;
+            } else if ((rc = image_load_gray(fp, s->gray, &img, &iw, &ih, st))) break;
             if (!w) {   /* first frame: sizes, crop check, buffers, writer */
                 sw = iw, sh = ih;
                 if (s->crop_w) {
@@ -316,7 +332,7 @@ static int build_images(const FrameScan *scan, const FrameSettings *s, const cha
                                 ih, first_path, sw, sh);
                 break;
             }
-            if (i == 0 && (rc = store_writer_recording(w, rec->name, rec->n_files, st))) break;
+            if (i == 0 && (rc = store_writer_recording(w, rec->name, rec->video ? 0 : rec->n_files, st))) break;
             const float *src = img;
             if (s->crop_w) {
                 image_crop(img, sw, sh, s->crop_x, s->crop_y, cw, ch, crop);
@@ -329,6 +345,17 @@ static int build_images(const FrameScan *scan, const FrameSettings *s, const cha
             if (s->bits == 16) image_quantise_u16(src, (long)dw * dh, q);
             else image_quantise_u8(src, (long)dw * dh, q);
             rc = store_writer_frame(w, q, st);
+            if (!rec->video) {
+                free(img);
+                img = NULL;
+            }
+        }
+        if (rec->video) {
+            Status cs;
+            int crc = video_close(&vr, &cs);
+            if (!rc && crc) rc = status_set(st, crc, "%s", cs.msg);
+            if (!rc && vframe == 0) rc = status_set(st, ST_INPUT, "%s: ffmpeg decoded no frame", fp_of(rec));
+            if (!rc) w->rec[w->n_rec - 1].source_count = vframe;
             free(img);
             img = NULL;
         }
@@ -397,6 +424,13 @@ int store_open_for(const FrameScan *scan, const FrameSettings *s, int force_rebu
     memset(info, 0, sizeof *info);
     double t0 = clock_seconds();
     frames_store_path(scan, s, info->path, sizeof info->path);
+    { /* the temporaries of builds that were killed (io/fs/atomic_file.h) */
+        char dir[sizeof info->path];
+        snprintf(dir, sizeof dir, "%s", info->path);
+        char *slash = strrchr(dir, '/');
+        if (slash) *slash = 0;
+        atomic_remove_stale(slash ? (dir[0] ? dir : "/") : ".", slash ? slash + 1 : dir);
+    }
     uint64_t digest = frames_digest(scan, s);
     if (force_rebuild) {
         snprintf(info->reason, sizeof info->reason, "rebuild requested");

@@ -1,9 +1,11 @@
 /* io/run/checkpoint.c: the checkpoint file (format in checkpoint.h). */
 #include "io/run/checkpoint.h"
 
+#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 
 #include "io/fs/atomic_file.h"
 #include "io/fs/bytes.h"
@@ -109,38 +111,113 @@ int ckpt_write(const char *path, const CkptMeta *m, const ParamSet *ps, const ui
     return rc;
 }
 
-/* ---- reading --------------------------------------------------------------------------------- */
-
 typedef struct {
     const uint8_t *p;
     uint64_t n;
 } Sec;
 
-static int find_section(const uint8_t *d, size_t size, const char tag[4], Sec *out) {
-    size_t off = 16;
-    size_t end = size - 4;
-    while (off + 16 <= end) {
-        uint64_t len = le_get_u64(d + off + 8);
-        if (len > end - off - 16) return -1;
-        if (!memcmp(d + off, tag, 4)) {
-            out->p = d + off + 16;
-            out->n = len;
-            return 0;
-        }
-        off += 16 + len;
+/* ---- reading ---------------------------------------------------------------------------------
+ * A checkpoint is trusted only when every value in it is one the writer can have written for this
+ * run: a CRC guards against accidents, not against a file from another build, a writer's bug or a
+ * hand edit. Each check names the file, the section and the value (docs/formats.md lists them). */
+
+static const char TAGS[7][5] = {"META", "VIEW", "PVAL", "ADM1", "ADM2", "MASK", "ORDR"};
+enum { S_META, S_VIEW, S_PVAL, S_ADM1, S_ADM2, S_MASK, S_ORDR, N_SECTIONS };
+
+/* A 4-byte tag from the file as text, bytes outside printable ASCII as \xNN. */
+static const char *tag_text(const uint8_t *t, char out[17]) {
+    size_t k = 0;
+    for (int i = 0; i < 4; i++) {
+        if (t[i] >= 0x20 && t[i] < 0x7f && t[i] != '\\') out[k++] = (char)t[i];
+        else k += (size_t)snprintf(out + k, 17 - k, "\\x%02x", t[i]);
+    }
+    out[k] = 0;
+    return out;
+}
+
+/* Every float finite (and >= 0 when nonneg); else the index of the first that is not. */
+static long first_bad_float(const uint8_t *p, size_t n, int nonneg) {
+    for (size_t i = 0; i < n; i++) {
+        float f;
+        memcpy(&f, p + 4 * i, 4);
+        if (!isfinite(f) || (nonneg && f < 0)) return (long)i;
     }
     return -1;
 }
 
+size_t ckpt_size(const ParamSet *ps, long n_mask, long n_order) {
+    return 16 + N_SECTIONS * 16 + sizeof(MetaDisk) + (size_t)ps->n_views * sizeof(ParamView) + 3 * ps->n * sizeof(float) +
+           (size_t)n_mask + (size_t)n_order * sizeof(int64_t) + 4;
+}
+
+/* The META values against the run (n_order samples in batches of `batch`). */
+static int check_meta(const char *path, const MetaDisk *md, long n_order, long batch, Status *st) {
+#define BAD(...) status_set(st, ST_INPUT, __VA_ARGS__)
+    const char *h = "checkpoint section META:";
+    long long nb = n_order > 0 ? (n_order + batch - 1) / batch : 1; /* batches per epoch */
+    if (md->batch < 0 || md->batch >= nb)
+        return BAD("%s: %s batch position %lld is outside the epoch's %lld batches (0..%lld)", path, h,
+                   (long long)md->batch, nb, nb - 1);
+    if (md->epoch < 0 || md->epoch > (INT64_MAX - md->batch) / nb)
+        return BAD("%s: %s epoch %lld is not a number of epochs done", path, h, (long long)md->epoch);
+    int64_t steps = md->epoch * nb + md->batch; /* batches done since the start */
+    if (steps < 1)
+        return BAD("%s: %s epoch 0 batch 0: no training step done, so no checkpoint can have been written", path, h);
+    if (md->adam_step < 1 || md->adam_step > steps)
+        return BAD("%s: %s Adam step count %lld is outside 1..%lld, the batches done by epoch %lld batch %lld", path,
+                   h, (long long)md->adam_step, (long long)steps, (long long)md->epoch, (long long)md->batch);
+    if (!(md->rng[0] | md->rng[1] | md->rng[2] | md->rng[3]))
+        return BAD("%s: %s the random generator's state is all zero (xoshiro256** never reaches it)", path, h);
+    for (int i = 0; i < 5; i++)
+        if (!isfinite(md->acc[i]))
+            return BAD("%s: %s partial loss sum %d is %g, not finite", path, h, i, md->acc[i]);
+    if (md->acc_n < 0 || md->acc_n > n_order)
+        return BAD("%s: %s %lld samples in the partial sums, outside 0..%ld", path, h, (long long)md->acc_n, n_order);
+    if (md->batch > 0) {
+        int64_t want = md->batch * batch < n_order ? md->batch * batch : n_order;
+        if (md->acc_n != want)
+            return BAD("%s: %s %lld samples in the partial sums after %lld batches of %ld, expected %lld", path, h,
+                       (long long)md->acc_n, (long long)md->batch, batch, (long long)want);
+    }
+    if (isinf(md->best_val) && md->best_val > 0) {
+        if (md->best_epoch != -1)
+            return BAD("%s: %s best epoch %lld without a best validation loss (expected -1)", path, h,
+                       (long long)md->best_epoch);
+    } else if (!isfinite(md->best_val) || md->best_val < 0) {
+        return BAD("%s: %s best validation loss %g is not a loss (finite, >= 0, or inf when none)", path, h,
+                   md->best_val);
+    } else if (md->best_epoch < 1 || md->best_epoch > md->epoch) {
+        return BAD("%s: %s best epoch %lld is outside 1..%lld, the epochs done", path, h, (long long)md->best_epoch,
+                   (long long)md->epoch);
+    }
+    if (md->n_thresholds < 0 || md->n_thresholds > md->epoch)
+        return BAD("%s: %s %lld thresholding passes, outside 0..%lld (at most one an epoch)", path, h,
+                   (long long)md->n_thresholds, (long long)md->epoch);
+    if (!isfinite(md->seconds) || md->seconds < 0)
+        return BAD("%s: %s training time %g s is not a duration", path, h, md->seconds);
+    return 0;
+#undef BAD
+}
+
 int ckpt_read(const char *path, CkptMeta *m, ParamSet *ps, uint8_t *mask, long n_mask, int64_t *order,
-              long n_order, Status *st) {
+              long n_order, long batch, Status *st) {
+    NN_CHECK(n_mask >= 0 && n_order >= 0 && batch >= 1, "ckpt_read: n_mask %ld, n_order %ld, batch %ld", n_mask,
+             n_order, batch);
+    const size_t want = ckpt_size(ps, n_mask, n_order);
+    struct stat sb;
+    if (stat(path, &sb) == 0 && S_ISREG(sb.st_mode) && (unsigned long long)sb.st_size > want)
+        return status_set(st, ST_INPUT,
+                          "%s: checkpoint of %lld bytes, this model and data have %zu-byte checkpoints "
+                          "(written for another model or data)", path, (long long)sb.st_size, want);
     char *text;
     size_t size;
-    if (fs_read_file(path, SIZE_MAX, &text, &size, st)) return st->code;
+    if (fs_read_file(path, want, &text, &size, st)) return st->code;
     const uint8_t *d = (const uint8_t *)text;
     int rc = ST_INPUT;
-    Sec meta, view, pval, adm1, adm2, msk, ord;
+    Sec sec[N_SECTIONS];
     MetaDisk md;
+    uint8_t *seen = NULL;
+    char tag[17];
     uint32_t version, crc;
     if (size < 16 + 4 || memcmp(d, MAGIC, 8)) {
         status_set(st, ST_INPUT, "%s: not a framelaw checkpoint (bad magic or too short)", path);
@@ -152,41 +229,131 @@ int ckpt_read(const char *path, CkptMeta *m, ParamSet *ps, uint8_t *mask, long n
                    CKPT_VERSION);
         goto done;
     }
+    if (size != want) {
+        status_set(st, ST_INPUT, "%s: checkpoint of %zu bytes, this model and data have %zu-byte checkpoints "
+                   "(truncated, or written for another model or data)", path, size, want);
+        goto done;
+    }
     crc = le_get_u32(d + size - 4);
+#ifndef FRAMELAW_FUZZ /* the fuzz build skips the CRC so that mutated files reach the checks below */
     if (crc != fs_crc32(0, d, size - 4)) {
         status_set(st, ST_INPUT, "%s: checkpoint is corrupt (CRC mismatch: truncated or damaged)", path);
         goto done;
     }
-    if (find_section(d, size, "META", &meta) || meta.n != sizeof md || find_section(d, size, "VIEW", &view) ||
-        find_section(d, size, "PVAL", &pval) || find_section(d, size, "ADM1", &adm1) ||
-        find_section(d, size, "ADM2", &adm2) || find_section(d, size, "MASK", &msk) ||
-        find_section(d, size, "ORDR", &ord)) {
-        status_set(st, ST_INPUT, "%s: checkpoint is missing a section", path);
+#else
+    (void)crc;
+#endif
+    /* the sections: the seven tags in order, each header's reserved word 0, tiling the file exactly */
+    if (le_get_u32(d + 12) != N_SECTIONS) {
+        status_set(st, ST_INPUT, "%s: checkpoint has %u sections, version %d has %d", path, le_get_u32(d + 12),
+                   CKPT_VERSION, N_SECTIONS);
         goto done;
     }
-    memcpy(&md, meta.p, sizeof md);
-    if (md.n_params != ps->n || md.n_views != (uint64_t)ps->n_views || view.n != md.n_views * sizeof(ParamView) ||
-        pval.n != ps->n * sizeof(float) || adm1.n != pval.n || adm2.n != pval.n || md.n_mask != (uint64_t)n_mask ||
-        msk.n != (uint64_t)n_mask || md.n_order != (uint64_t)n_order || ord.n != (uint64_t)n_order * 8) {
-        status_set(st, ST_INPUT, "%s: checkpoint does not fit this model (parameter or data sizes differ)", path);
-        goto done;
-    }
-    for (int i = 0; i < ps->n_views; i++) {
-        ParamView v;
-        memcpy(&v, view.p + (size_t)i * sizeof v, sizeof v);
-        const ParamView *w = &ps->views[i];
-        if (strncmp(v.name, w->name, PARAM_NAME_MAX) || v.rows != w->rows || v.cols != w->cols || v.off != w->off) {
-            status_set(st, ST_INPUT, "%s: checkpoint tensor %d is %.32s (%d,%d), the model has %s (%d,%d)", path, i,
-                       v.name, v.rows, v.cols, w->name, w->rows, w->cols);
+    {
+        size_t off = 16, end = size - 4;
+        for (int i = 0; i < N_SECTIONS; i++) {
+            if (end - off < 16) {
+                status_set(st, ST_INPUT, "%s: checkpoint ends inside the header of section %s", path, TAGS[i]);
+                goto done;
+            }
+            if (memcmp(d + off, TAGS[i], 4)) {
+                status_set(st, ST_INPUT, "%s: checkpoint section %d is '%s', expected %s", path, i + 1,
+                           tag_text(d + off, tag), TAGS[i]);
+                goto done;
+            }
+            uint64_t len = le_get_u64(d + off + 8);
+            if (le_get_u32(d + off + 4) != 0 || len > end - off - 16) {
+                status_set(st, ST_INPUT, "%s: checkpoint section %s: bad header (reserved word %u, length %llu of "
+                           "%zu bytes left)", path, TAGS[i], le_get_u32(d + off + 4), (unsigned long long)len,
+                           end - off - 16);
+                goto done;
+            }
+            sec[i].p = d + off + 16;
+            sec[i].n = len;
+            off += 16 + len;
+        }
+        if (off != end) {
+            status_set(st, ST_INPUT, "%s: checkpoint has %zu bytes after its last section", path, end - off);
             goto done;
         }
     }
-    memcpy(ps->val, pval.p, pval.n);
-    memcpy(ps->m, adm1.p, adm1.n);
-    memcpy(ps->v, adm2.p, adm2.n);
+    if (sec[S_META].n != sizeof md) {
+        status_set(st, ST_INPUT, "%s: checkpoint section META: %llu bytes, version %d has %zu", path,
+                   (unsigned long long)sec[S_META].n, CKPT_VERSION, sizeof md);
+        goto done;
+    }
+    memcpy(&md, sec[S_META].p, sizeof md);
+    if (md.n_params != ps->n || md.n_views != (uint64_t)ps->n_views ||
+        sec[S_VIEW].n != md.n_views * sizeof(ParamView) || sec[S_PVAL].n != ps->n * sizeof(float) ||
+        sec[S_ADM1].n != sec[S_PVAL].n || sec[S_ADM2].n != sec[S_PVAL].n || md.n_mask != (uint64_t)n_mask ||
+        sec[S_MASK].n != (uint64_t)n_mask || md.n_order != (uint64_t)n_order ||
+        sec[S_ORDR].n != (uint64_t)n_order * 8) {
+        status_set(st, ST_INPUT, "%s: checkpoint does not fit this model (parameter or data sizes differ)", path);
+        goto done;
+    }
+    if (check_meta(path, &md, n_order, batch, st)) goto done;
+    for (int i = 0; i < ps->n_views; i++) {
+        ParamView v;
+        memcpy(&v, sec[S_VIEW].p + (size_t)i * sizeof v, sizeof v);
+        const ParamView *w = &ps->views[i];
+        if (strncmp(v.name, w->name, PARAM_NAME_MAX) || v.rows != w->rows || v.cols != w->cols || v.off != w->off) {
+            char name[4 * PARAM_NAME_MAX + 1];
+            size_t k = 0;
+            for (int j = 0; j < PARAM_NAME_MAX && v.name[j]; j++) {
+                unsigned char c = (unsigned char)v.name[j];
+                if (c >= 0x20 && c < 0x7f && c != '\\') name[k++] = (char)c;
+                else k += (size_t)snprintf(name + k, sizeof name - k, "\\x%02x", c);
+            }
+            name[k] = 0;
+            status_set(st, ST_INPUT, "%s: checkpoint section VIEW: tensor %d is %s (%d,%d), the model has %s (%d,%d)",
+                       path, i, name, v.rows, v.cols, w->name, w->rows, w->cols);
+            goto done;
+        }
+    }
+    static const char *const what[3] = {"parameter value", "Adam first moment", "Adam second moment"};
+    for (int s = S_PVAL; s <= S_ADM2; s++) {
+        long bad = first_bad_float(sec[s].p, ps->n, s == S_ADM2);
+        if (bad >= 0) {
+            float f;
+            memcpy(&f, sec[s].p + 4 * bad, 4);
+            status_set(st, ST_INPUT, "%s: checkpoint section %s: %s %ld is %g, not %s", path, TAGS[s],
+                       what[s - S_PVAL], bad, (double)f, s == S_ADM2 ? "finite and >= 0" : "finite");
+            goto done;
+        }
+    }
+    for (long i = 0; i < n_mask; i++)
+        if (sec[S_MASK].p[i] > 1) {
+            status_set(st, ST_INPUT, "%s: checkpoint section MASK: byte %ld is %u, not 0 or 1", path, i,
+                       sec[S_MASK].p[i]);
+            goto done;
+        }
+    /* ORDR: a permutation of the training samples 0..n_order-1 */
+    seen = calloc((size_t)(n_order > 0 ? n_order : 1), 1);
+    if (!seen) {
+        rc = status_set(st, ST_RUNTIME, "%s: out of memory checking the sample order", path);
+        goto done;
+    }
+    for (long i = 0; i < n_order; i++) {
+        int64_t k = (int64_t)le_get_u64(sec[S_ORDR].p + 8 * i);
+        if (k < 0 || k >= n_order) {
+            status_set(st, ST_INPUT, "%s: checkpoint section ORDR: entry %ld is %lld, not a training sample "
+                       "(0..%ld)", path, i, (long long)k, n_order - 1);
+            goto done;
+        }
+        if (seen[k]) {
+            status_set(st, ST_INPUT, "%s: checkpoint section ORDR: sample %lld appears twice (entry %ld): not a "
+                       "permutation of the training samples", path, (long long)k, i);
+            goto done;
+        }
+        seen[k] = 1;
+    }
+    /* everything checks out: only now is anything modified */
+    memcpy(ps->val, sec[S_PVAL].p, sec[S_PVAL].n);
+    memcpy(ps->m, sec[S_ADM1].p, sec[S_ADM1].n);
+    memcpy(ps->v, sec[S_ADM2].p, sec[S_ADM2].n);
     ps->step = md.adam_step;
-    if (n_mask) memcpy(mask, msk.p, msk.n);
-    if (n_order) memcpy(order, ord.p, ord.n);
+    if (n_mask) memcpy(mask, sec[S_MASK].p, sec[S_MASK].n);
+    if (n_order) memcpy(order, sec[S_ORDR].p, sec[S_ORDR].n);
     m->config_digest = md.digest;
     m->epoch = md.epoch;
     m->batch = md.batch;
@@ -200,6 +367,7 @@ int ckpt_read(const char *path, CkptMeta *m, ParamSet *ps, uint8_t *mask, long n
     rc = 0;
     status_ok(st);
 done:
+    free(seen);
     free(text);
     return rc;
 }

@@ -14,6 +14,7 @@
 #ifndef IO_CHECKPOINT_H
 #define IO_CHECKPOINT_H
 
+#include <stddef.h>
 #include <stdint.h>
 
 #include "nn/core.h"
@@ -40,9 +41,16 @@ int ckpt_write(const char *path, const CkptMeta *meta, const ParamSet *ps, const
                const int64_t *order, long n_order, Status *st);
 
 /* Read into an allocated ParamSet of the same layout (names and shapes must match), mask (n_mask)
- * and order (n_order). A bad magic, version, size, CRC or layout gives ST_INPUT naming the file and
- * the fault; nothing is modified unless the whole file checks out. */
+ * and order (n_order: the training samples) of a run that trains in batches of `batch` samples
+ * (train.batch, at most n_order). A bad magic, version, size, CRC or layout, or any value the writer
+ * cannot have written for this run (docs/formats.md, "What a checkpoint must satisfy": the order a
+ * permutation of 0..n_order-1, the batch position within the epoch, counters consistent with the
+ * epoch, mask bytes 0 or 1, finite parameters and moments, ...) gives ST_INPUT naming the file, the
+ * section and the value; nothing is modified unless the whole file checks out. */
 int ckpt_read(const char *path, CkptMeta *meta, ParamSet *ps, uint8_t *mask, long n_mask, int64_t *order,
-              long n_order, Status *st);
+              long n_order, long batch, Status *st);
+
+/* The exact size in bytes of a checkpoint of this layout. */
+size_t ckpt_size(const ParamSet *ps, long n_mask, long n_order);
 
 #endif

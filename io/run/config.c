@@ -192,6 +192,9 @@ static const KeyDef keys[] = {
           "seed of the random generator (initialisation, shuffling)"),
     K_INT("train.threads", threads, "0", 0, 1024, NULL, "worker threads; 0 = all cores"),
     K_INT("train.validate_every", validate_every, "10", 1, NOMAX, NULL, "epochs between validation passes"),
+    K_NUM("train.memory_budget", mem_budget, "0", 0, INFINITY, 0,
+          "GiB a run may hold in memory, estimated before training (frames too large are refused with the "
+          "figures); 0 = half of the physical memory"),
     K_INT("train.warmup_epochs", warmup_epochs, "0", 0, NOMAX, NULL,
           "first epochs train the autoencoder alone: the decoder takes the encoder's z' (z''), no dz and "
           "no L1 term"),
@@ -263,7 +266,7 @@ const char *const config_resume_safe_keys[] = {
     "train.epochs", "train.threads", "train.validate_every", "checkpoint.every", "checkpoint.keep",
     "output", "forecast.bound", "forecast.method", "forecast.tolerance", "ensemble.members", "ensemble.block",
     "ensemble.block_seconds", "ensemble.library_bagging", "ensemble.drop_fraction", "ensemble.inclusion",
-    "ensemble.band_members", "canonical.tolerance", "canonical.cond_max", NULL,
+    "ensemble.band_members", "canonical.tolerance", "canonical.cond_max", "train.memory_budget", NULL,
 };
 
 void config_safe_keys_text(char *buf, size_t n) {

@@ -73,6 +73,7 @@ typedef struct {
     uint64_t seed;                  /* train.seed                                                   [1] */
     int threads;                    /* train.threads: 0 = all cores                                 [0] */
     int validate_every;             /* train.validate_every: epochs                                [10] */
+    double mem_budget;              /* train.memory_budget: GiB; 0 = half of physical memory        [0] */
     long warmup_epochs;             /* train.warmup_epochs: autoencoder alone first (no dz, no L1)   [0] */
     int warmup_fit;                 /* train.warmup_fit: Xi from thresholded least squares after it [true] */
     /* threshold */

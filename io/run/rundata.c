@@ -8,6 +8,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <unistd.h>
 
 static int gather(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st) {
     RunData *d = ctx;
@@ -136,6 +137,13 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     if (frame_settings_from_config(c, &s, st) || frame_settings_check(&s, st)) return st->code;
     if (frames_scan(c->frames, &d->scan, st)) return st->code;
     d->have_scan = 1;
+    /* videos carry their rate: data.fps, when given, must agree with it (0.1%) */
+    for (int r = 0; r < d->scan.n_rec; r++) {
+        const ScanRecording *v = &d->scan.rec[r];
+        if (v->video && fabs(v->vinfo.fps - c->fps) > 1e-3 * v->vinfo.fps)
+            return status_set(st, ST_INPUT, "data.fps %g disagrees with %s (%g frames per second): correct it, or "
+                              "leave it out and the video's rate is used", c->fps, v->files[0].path, v->vinfo.fps);
+    }
     /* images carry no rate: a silent 30 would scale every coefficient by the camera's true rate / 30 */
     if (d->scan.kind == REC_IMAGES && !config_given(c, "data.fps"))
         return status_set(st, ST_INPUT, "data.fps: required for image frames (%s): give the camera's frame rate, "
@@ -169,6 +177,66 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     td->gather = gather;
     td->ctx = d;
     return 0;
+}
+
+void rundata_memory(const RunData *d, const Config *c, MemEstimate *e) {
+    memset(e, 0, sizeof *e);
+    long n = d->td.n_in;
+    e->n_in = n;
+    /* encoder n -> h1 -> ... -> latent, decoder the reverse (or its own widths) */
+    double p = 0, prev = (double)n;
+    for (int i = 0; i < c->n_encoder; i++) p += prev * c->encoder[i] + c->encoder[i], prev = c->encoder[i];
+    p += prev * c->latent + c->latent;
+    prev = c->latent;
+    int nd = c->n_decoder < 0 ? c->n_encoder : c->n_decoder;
+    for (int i = 0; i < nd; i++) {
+        int w = c->n_decoder < 0 ? c->encoder[c->n_encoder - 1 - i] : c->decoder[i];
+        p += prev * w + w, prev = w;
+    }
+    p += prev * (double)n + (double)n;
+    p += 64.0 * c->latent; /* the law: a few dozen coefficients per equation */
+    e->params = p;
+    long batch = c->batch < d->td.n_train ? c->batch : d->td.n_train;
+    if (batch < 1) batch = 1;
+    e->bytes = 4.0 * 6 * p + 4.0 * (double)batch * (double)n * (2.0 * d->k + 4);
+    e->checkpoint_bytes = 4.0 * 3 * p;
+    if (c->mem_budget > 0) e->budget = c->mem_budget * 1073741824.0;
+    else {
+        long pages = sysconf(_SC_PHYS_PAGES), size = sysconf(_SC_PAGE_SIZE);
+        e->budget = pages > 0 && size > 0 ? 0.5 * (double)pages * (double)size : INFINITY;
+    }
+}
+
+int rundata_memory_check(const RunData *d, const Config *c, Status *st) {
+    MemEstimate e;
+    rundata_memory(d, c, &e);
+    if (e.bytes <= e.budget) return 0;
+    return status_set(st, ST_INPUT,
+                      "the run would need about %.1f GB of memory (samples of %ld values, %.3g parameters, "
+                      "checkpoints of %.1f GB each), above train.memory_budget (%.1f GB): shrink the frames with "
+                      "data.size (e.g. [64, 64]) or data.crop, or raise the budget",
+                      e.bytes / 1e9, e.n_in, e.params, e.checkpoint_bytes / 1e9, e.budget / 1e9);
+}
+
+int rundata_video_fps(Config *c, Status *st) {
+    if (config_given(c, "data.fps") || !c->frames[0]) return 0;
+    FrameScan scan;
+    if (frames_scan(c->frames, &scan, st)) return st->code; /* the same error comes again at the start */
+    double fps = 0;
+    int rc = 0;
+    for (int r = 0; r < scan.n_rec && !rc; r++) {
+        const ScanRecording *v = &scan.rec[r];
+        if (!v->video) continue;
+        if (fps > 0 && fabs(v->vinfo.fps - fps) > 1e-3 * fps)
+            rc = status_set(st, ST_INPUT, "%s: %g frames per second, but %s has %g: recordings of one run share "
+                            "their rate", v->files[0].path, v->vinfo.fps, scan.rec[0].files[0].path, fps);
+        fps = v->vinfo.fps;
+    }
+    frames_scan_free(&scan);
+    if (rc || fps <= 0) return rc;
+    char set[64];
+    snprintf(set, sizeof set, "data.fps=%.17g", fps);
+    return config_set(c, set, st);
 }
 
 int run_config_load(const char *run_dir, Config *c, Status *st) {

@@ -140,6 +140,8 @@ static int load_latest(Run *r, int quiet, int allow_fresh, Status *st) {
     char **names;
     int n = list_checkpoints(r->ckpt_dir, &names);
     long n_mask = (long)r->m->lib.n_terms * r->m->n_latent;
+    long batch = r->cfg->batch < r->ds->n_train ? r->cfg->batch : r->ds->n_train; /* as train_run's B */
+    if (batch < 1) batch = 1;
     if (n == 0 && allow_fresh) { /* stopped before the first checkpoint: the run starts over, same seed */
         if (!quiet) fprintf(stderr, "framelaw: no checkpoint yet in %s; starting the run from the beginning\n", r->ckpt_dir);
         free_names(names, n);
@@ -152,7 +154,13 @@ static int load_latest(Run *r, int quiet, int allow_fresh, Status *st) {
         snprintf(path, sizeof path, "%s/%s", r->ckpt_dir, names[i]);
         CkptMeta meta;
         Status s2;
-        if (ckpt_read(path, &meta, r->ps, r->m->mask, n_mask, r->order, r->ds->n_train, &s2)) {
+        long long name_epoch, name_batch;
+        int named = sscanf(names[i], "ckpt-%lld-%lld.ckpt", &name_epoch, &name_batch) == 2;
+        if (ckpt_read(path, &meta, r->ps, r->m->mask, n_mask, r->order, r->ds->n_train, batch, &s2) ||
+            (named && (name_epoch != meta.epoch || name_batch != meta.batch) &&
+             status_set(&s2, ST_INPUT, "%s: checkpoint section META: epoch %lld batch %lld, but its name says epoch "
+                        "%lld batch %lld", path, (long long)meta.epoch, (long long)meta.batch, name_epoch,
+                        name_batch))) {
             if (!quiet) fprintf(stderr, "framelaw: skipping %s\n", s2.msg);
             rc = status_set(st, ST_INPUT, "%s", s2.msg);
             continue;
