@@ -1738,7 +1738,7 @@ static int canon_term_name(const void *vctx, int t, EqStyle style, char *buf, si
         for (int f = 0; f < term->n_fac && len < n; f++) {
             var_name(k, term->var[f], style, v, sizeof v);
             int vel = term->var[f] >= k;
-            const char *sep = f ? " " : "";
+            const char *sep = !f ? "" : style == EQ_LATEX ? " " : "*";   /* as library.c names them */
             int w;
             if (term->pow[f] == 1) w = snprintf(buf + len, n - len, "%s%s", sep, v);
             else if (style == EQ_LATEX) w = snprintf(buf + len, n - len, "%s%s^{%d}", sep, v, term->pow[f]);
@@ -1754,7 +1754,7 @@ static int canon_term_name(const void *vctx, int t, EqStyle style, char *buf, si
     snprintf(fr, sizeof fr, "%.*g", ctx->digits, term->freq * ctx->c->w[term->var[0] % k]);
     const char *pre = style == EQ_LATEX ? "\\" : "";
     if (!strcmp(fr, "1")) snprintf(buf, n, "%s%s(%s)", pre, fn, v);
-    else snprintf(buf, n, "%s%s(%s %s)", pre, fn, fr, v);
+    else snprintf(buf, n, style == EQ_LATEX ? "%s%s(%s %s)" : "%s%s(%s*%s)", pre, fn, fr, v);
     return 0;
 }
 
@@ -1802,7 +1802,7 @@ static int map_term_name(const void *vctx, int t, EqStyle style, char *buf, size
     return 0;
 }
 
-/* Row i of the map as "u1 = 0.5 z1 - 0.2 z2 + 1.3" (text) or LaTeX. */
+/* Row i of the map as "u1 = 0.5*z1 - 0.2*z2 + 1.3" (text) or LaTeX. */
 static size_t map_line(char *buf, size_t n, EqStyle style, const Canonical *c, int i, int digits) {
     double row[KMAX + 1];
     for (int j = 0; j < c->k; j++) row[j] = c->A[i * c->k + j];

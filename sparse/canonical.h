@@ -109,9 +109,9 @@ void canonical_map_state(const Canonical *c, double *sigma, const double *s, lon
 void canonical_eval(const Canonical *c, const Library *lib, double *theta, const double *sigma, long B);
 
 /* The canonical law as text (one line per equation: "du1/dt = ..."; variables u1, du1/dt) or as a
- * LaTeX aligned block, snprintf-like; a trig term prints its frequency: sin(0.7071 u1). */
+ * LaTeX aligned block, snprintf-like; a trig term prints its frequency: sin(0.7071*u1). */
 size_t canonical_format(char *buf, size_t n, EqStyle style, const Canonical *c, const Library *lib, int digits);
-/* The map as text lines ("u1 = 0.5 z1 - 0.2 z2 + 1.3" and "w1 = 0.71" when trig), snprintf-like. */
+/* The map as text lines ("u1 = 0.5*z1 - 0.2*z2 + 1.3" and "w1 = 0.71" when trig), snprintf-like. */
 size_t canonical_format_map(char *buf, size_t n, const Canonical *c, int digits);
 /* The JSON object of docs/canonical.md (status, note, map A b w cond, errors, variables, terms,
  * equations with coefficients, mask, text and LaTeX). The caller cJSON_Delete's it. */

@@ -38,7 +38,8 @@ static void fmt_magnitude(char *out, size_t n, double v, int digits, EqStyle sty
     else snprintf(out, n, "%s \\times 10^{%d}", t, ex);
 }
 
-/* The right-hand side: " -10 z1 + 10 z2" (terms in order, zero or masked ones left out). */
+/* The right-hand side: " -10*z1 + 10*z2" (LaTeX " -10 z_{1} + 10 z_{2}"; terms in order, zero or
+ * masked ones left out). */
 static void write_rhs(Sb *b, EqStyle style, int n_terms, EqTermNameFn name_fn, const void *ctx, const double *coef,
                       const uint8_t *mask, long stride, int digits) {
     int written = 0;
@@ -53,7 +54,7 @@ static void write_rhs(Sb *b, EqStyle style, int n_terms, EqTermNameFn name_fn, c
         sb_printf(b, "%s", sign);
         if (constant) sb_printf(b, "%s", mag);
         else if (unit) sb_printf(b, "%s", name);
-        else sb_printf(b, "%s %s", mag, name);
+        else sb_printf(b, style == EQ_LATEX ? "%s %s" : "%s*%s", mag, name);
         written++;
     }
     if (!written) sb_printf(b, " 0");
@@ -136,14 +137,28 @@ static char *line_string(EqStyle style, const Library *lib, const double *xi, co
     return s;
 }
 
+/* An include / exclude name as this version writes it ("z1*z2" for a given "z2 z1"). */
+static cJSON *edit_name(const Library *lib, const char *given) {
+    Term t;
+    Status st;
+    char b[LIB_NAME_MAX];
+    if (library_parse_term(lib, given, &t, &st) || library_name_of(lib, &t, NAME_TEXT, b, sizeof b) >= (int)sizeof b)
+        return cJSON_CreateString(given);   /* library_init read it, so this does not happen */
+    return cJSON_CreateString(b);
+}
+
 cJSON *equation_json(const Library *lib, const double *xi, const uint8_t *mask, int digits) {
+    return equation_json_as(lib, xi, mask, digits, EQ_COUNT_LATENT);
+}
+
+cJSON *equation_json_as(const Library *lib, const double *xi, const uint8_t *mask, int digits, EqCountKey count) {
     const LibrarySpec *sp = &lib->spec;
     int k = sp->n_latent;
     cJSON *root = cJSON_CreateObject();
     cJSON_AddStringToObject(root, "format", EQ_JSON_FORMAT);
     cJSON_AddNumberToObject(root, "version", EQ_JSON_VERSION);
     cJSON_AddNumberToObject(root, "order", sp->order);
-    cJSON_AddNumberToObject(root, "n_latent", k);
+    cJSON_AddNumberToObject(root, count == EQ_COUNT_VARIABLES ? "n_variables" : "n_latent", k);
     cJSON_AddNumberToObject(root, "digits", clamp_digits(digits));
 
     cJSON *l = cJSON_AddObjectToObject(root, "library");
@@ -151,11 +166,11 @@ cJSON *equation_json(const Library *lib, const double *xi, const uint8_t *mask, 
     cJSON_AddNumberToObject(l, "degree", sp->degree);
     cJSON_AddBoolToObject(l, "trig", sp->trig != 0);
     cJSON_AddBoolToObject(l, "trig_velocity", sp->trig_velocity != 0);
-    cJSON_AddItemToObject(l, "frequencies", cJSON_CreateIntArray(sp->freq, sp->n_freq));
+    cJSON_AddItemToObject(l, "multipliers", cJSON_CreateIntArray(sp->freq, sp->n_freq));
     cJSON *inc = cJSON_AddArrayToObject(l, "include");
-    for (int i = 0; i < sp->n_include; i++) cJSON_AddItemToArray(inc, cJSON_CreateString(sp->include[i]));
+    for (int i = 0; i < sp->n_include; i++) cJSON_AddItemToArray(inc, edit_name(lib, sp->include[i]));
     cJSON *exc = cJSON_AddArrayToObject(l, "exclude");
-    for (int i = 0; i < sp->n_exclude; i++) cJSON_AddItemToArray(exc, cJSON_CreateString(sp->exclude[i]));
+    for (int i = 0; i < sp->n_exclude; i++) cJSON_AddItemToArray(exc, edit_name(lib, sp->exclude[i]));
 
     cJSON *vars = cJSON_AddArrayToObject(root, "variables");
     for (int i = 0; i < lib->n_vars; i++) {
@@ -243,10 +258,16 @@ static int from_json(const cJSON *root, Library *lib, Coef *coef, Status *st) {
         return status_set(st, ST_INPUT, "equations JSON: \"format\" is not \"%s\"", EQ_JSON_FORMAT);
     int version, order, k;
     if (get_int(root, "version", 1, 1000000, &version, st)) return st->code;
-    if (version != EQ_JSON_VERSION)
-        return status_set(st, ST_INPUT, "equations JSON: version %d, this program reads version %d", version,
-                          EQ_JSON_VERSION);
-    if (get_int(root, "order", 1, 2, &order, st) || get_int(root, "n_latent", 1, LIB_MAX_VARS, &k, st))
+    if (version > EQ_JSON_VERSION)
+        return status_set(st, ST_INPUT, "equations JSON: version %d is newer than this program reads (1..%d)",
+                          version, EQ_JSON_VERSION);
+    /* the number of equations: "n_latent" (a run), or since version 2 "n_variables" (fit) */
+    int has_latent = cJSON_GetObjectItemCaseSensitive(root, "n_latent") != NULL;
+    int has_vars = version >= 2 && cJSON_GetObjectItemCaseSensitive(root, "n_variables") != NULL;
+    if (has_latent && has_vars)
+        return status_set(st, ST_INPUT, "equations JSON: \"n_latent\" and \"n_variables\" given, expected one");
+    if (get_int(root, "order", 1, 2, &order, st) ||
+        get_int(root, has_vars ? "n_variables" : "n_latent", 1, LIB_MAX_VARS, &k, st))
         return st->code;
     const cJSON *l = cJSON_GetObjectItemCaseSensitive(root, "library");
     if (!cJSON_IsObject(l)) return status_set(st, ST_INPUT, "equations JSON: \"library\" must be an object");
@@ -256,15 +277,16 @@ static int from_json(const cJSON *root, Library *lib, Coef *coef, Status *st) {
         get_names(l, "include", sp.include, &sp.n_include, st) ||
         get_names(l, "exclude", sp.exclude, &sp.n_exclude, st))
         return st->code;
-    const cJSON *fr = cJSON_GetObjectItemCaseSensitive(l, "frequencies");
+    const char *mul_key = version >= 2 ? "multipliers" : "frequencies";   /* its name in version 1 */
+    const cJSON *fr = cJSON_GetObjectItemCaseSensitive(l, mul_key);
     if (!cJSON_IsArray(fr) || cJSON_GetArraySize(fr) < 1 || cJSON_GetArraySize(fr) > LIB_MAX_FREQ)
-        return status_set(st, ST_INPUT, "equations JSON: \"library.frequencies\" must hold 1..%d integers",
+        return status_set(st, ST_INPUT, "equations JSON: \"library.%s\" must hold 1..%d integers", mul_key,
                           LIB_MAX_FREQ);
     sp.n_freq = 0;
     const cJSON *it;
     cJSON_ArrayForEach(it, fr) {
         if (!cJSON_IsNumber(it) || it->valuedouble != floor(it->valuedouble) || fabs(it->valuedouble) > 1e6)
-            return status_set(st, ST_INPUT, "equations JSON: \"library.frequencies\" must hold integers");
+            return status_set(st, ST_INPUT, "equations JSON: \"library.%s\" must hold integers", mul_key);
         sp.freq[sp.n_freq++] = (int)it->valuedouble;
     }
     if (library_init(lib, &sp, st)) return st->code;
@@ -277,7 +299,10 @@ static int from_json(const cJSON *root, Library *lib, Coef *coef, Status *st) {
     }
     int t = 0;
     cJSON_ArrayForEach(it, terms) {
-        if (!cJSON_IsString(it) || strcmp(it->valuestring, lib->names[t])) {
+        /* version 1 wrote a product with a space ("z1 z2"): its names are compared as terms */
+        int same = cJSON_IsString(it) &&
+                   (version >= 2 ? !strcmp(it->valuestring, lib->names[t]) : library_find(lib, it->valuestring) == t);
+        if (!same) {
             char want[LIB_NAME_MAX];
             snprintf(want, sizeof want, "%s", lib->names[t]);
             library_free(lib);

@@ -1,8 +1,9 @@
 /* sparse/equation.h: a sparse model written as equations people read, and as JSON.
  *
- * Plain text, one line per latent variable j (n_latent lines, each ending in '\n'):
- *     dz1/dt = -10 z1 + 10 z2                      (first order)
- *     d2z1/dt2 = -0.98 sin(z1) - 0.05 dz1/dt       (second order)
+ * Plain text, one line per latent variable j (n_latent lines, each ending in '\n'), a product
+ * written with '*' so that the right-hand side pastes into a calculator or a script:
+ *     dz1/dt = -10*z1 + 10*z2                      (first order)
+ *     d2z1/dt2 = -0.98*sin(z1) - 0.05*dz1/dt       (second order)
  * LaTeX, an aligned block:
  *     \begin{aligned}
  *     \dot{z}_{1} &= -10 z_{1} + 10 z_{2} \\
@@ -15,7 +16,9 @@
  *
  * JSON (docs/sparse.md has the full format): the library settings, the term names, and per
  * equation the full coefficient and mask vectors (coefficients with full double precision, so the
- * model reloads exactly) beside its text and LaTeX forms at `digits`.
+ * model reloads exactly) beside its text and LaTeX forms at `digits`. Version 2 renamed
+ * library.frequencies to library.multipliers, writes products with '*' and lets fit say
+ * n_variables for n_latent; the reader takes versions 1 and 2.
  *
  * Nothing here opens a file: the functions write to a caller's buffer or FILE*, or return a cJSON
  * tree or string for io/ to store. */
@@ -33,7 +36,11 @@
 #include "sparse/library.h"
 
 #define EQ_JSON_FORMAT "framelaw-equations"
-#define EQ_JSON_VERSION 1
+#define EQ_JSON_VERSION 2
+
+/* Significant digits of the coefficients in a run's printed equations: equations.txt and .tex, the
+ * text and latex members of equations.json (its "digits"), the console; fit's --digits default. */
+#define EQ_DIGITS 4
 
 typedef enum { EQ_TEXT, EQ_LATEX } EqStyle;
 
@@ -63,12 +70,18 @@ int equation_fprint(FILE *f, EqStyle style, const Library *lib, const double *xi
 
 /* The JSON object described in docs/sparse.md (the caller may add members, then cJSON_Delete). */
 cJSON *equation_json(const Library *lib, const double *xi, const uint8_t *mask, int digits);
+/* The name of the number of equations: "n_latent" for a run's latent variables, "n_variables" for
+ * the plain state variables fit reads from a file. */
+typedef enum { EQ_COUNT_LATENT, EQ_COUNT_VARIABLES } EqCountKey;
+/* equation_json with the count under the given name (equation_json: EQ_COUNT_LATENT). */
+cJSON *equation_json_as(const Library *lib, const double *xi, const uint8_t *mask, int digits, EqCountKey count);
 /* The same printed (indented); free() the result. NULL only when memory runs out. */
 char *equation_json_string(const Library *lib, const double *xi, const uint8_t *mask, int digits);
 
-/* Read a model back from its JSON text: builds lib (library_free it) and coef (coef_free it). The
- * term names in the file must match the ones the library settings give. Returns 0 or ST_INPUT
- * with a one-line message naming the member at fault (the caller adds the file name). */
+/* Read a model back from its JSON text, version 1 or 2: builds lib (library_free it) and coef
+ * (coef_free it). The term names in the file must match the ones the library settings give
+ * (version 1: as terms, its names have spaces for products). Returns 0 or ST_INPUT with a one-line
+ * message naming the member at fault (the caller adds the file name). */
 int equation_from_json(const char *text, Library *lib, Coef *coef, Status *st);
 
 #endif

@@ -60,7 +60,7 @@ static int mono_name(const Library *lib, const Term *t, NameStyle style, char *b
         char v[32];
         library_var_name(lib, t->var[f], style, v, sizeof v);
         int vel = t->var[f] >= lib->spec.n_latent;
-        const char *sep = f ? " " : "";
+        const char *sep = !f ? "" : style == NAME_LATEX ? " " : "*";
         char *o = out + len;
         size_t room = sizeof out - len;
         int w;
@@ -88,7 +88,7 @@ static int trig_name(const char *fn, const Library *lib, const Term *t, NameStyl
     library_var_name(lib, t->var[0], style, v, sizeof v);
     const char *pre = style == NAME_LATEX ? "\\" : "";
     if (t->freq == 1) return snprintf(buf, n, "%s%s(%s)", pre, fn, v);
-    return snprintf(buf, n, "%s%s(%d %s)", pre, fn, t->freq, v);
+    return snprintf(buf, n, style == NAME_LATEX ? "%s%s(%d %s)" : "%s%s(%d*%s)", pre, fn, t->freq, v);
 }
 static int sin_name(const Library *lib, const Term *t, NameStyle style, char *buf, size_t n) {
     return trig_name("sin", lib, t, style, buf, n);
@@ -120,7 +120,10 @@ int library_var_name(const Library *lib, int i, NameStyle style, char *buf, size
 }
 
 int library_term_name(const Library *lib, int t, NameStyle style, char *buf, size_t n) {
-    const Term *term = &lib->terms[t];
+    return library_name_of(lib, &lib->terms[t], style, buf, n);
+}
+
+int library_name_of(const Library *lib, const Term *term, NameStyle style, char *buf, size_t n) {
     return term_rows[term->kind].name(lib, term, style, buf, n);
 }
 
@@ -207,6 +210,7 @@ int library_parse_term(const Library *lib, const char *name, Term *out, Status *
             if (k < 1 || k > 100000)
                 return status_set(st, ST_INPUT, "term '%s': the multiplier must be a positive integer", name);
             p = skip_space(p);
+            if (*p == '*') p = skip_space(p + 1);   /* sin(2*z1); the old form sin(2 z1) has none */
         }
         int v = parse_var(lib, name, &p, st);
         if (v < 0) return st->code;
@@ -217,7 +221,7 @@ int library_parse_term(const Library *lib, const char *name, Term *out, Status *
         out->freq = (int)k;
         return 0;
     }
-    /* monomial: factors separated by spaces, each VAR, VAR^p or (VAR)^p */
+    /* monomial: factors separated by '*' (or, the old form, by spaces), each VAR, VAR^p or (VAR)^p */
     int pw[LIB_MAX_VARS] = {0};
     int total = 0;
     while (*p) {
@@ -236,7 +240,7 @@ int library_parse_term(const Library *lib, const char *name, Term *out, Status *
             e = parse_uint(&p);
             if (e < 1) return status_set(st, ST_INPUT, "term '%s': an exponent must be a positive integer", name);
         }
-        if (*p && *p != ' ' && *p != '\t')
+        if (*p && *p != ' ' && *p != '\t' && *p != '*')
             return status_set(st, ST_INPUT, "term '%s': unexpected '%c'", name, *p);
         if (total + e > LIB_MAX_DEGREE)
             return status_set(st, ST_INPUT, "term '%s': total degree above the maximum %d", name,
@@ -244,6 +248,10 @@ int library_parse_term(const Library *lib, const char *name, Term *out, Status *
         pw[v] += (int)e;
         total += (int)e;
         p = skip_space(p);
+        if (*p == '*') {
+            p = skip_space(p + 1);
+            if (!*p) return status_set(st, ST_INPUT, "term '%s': a factor must follow '*'", name);
+        }
     }
     out->kind = TERM_MONO;
     for (int i = 0; i < lib->n_vars; i++)
@@ -258,6 +266,30 @@ int library_find(const Library *lib, const char *name) {
     for (int i = 0; i < lib->n_terms; i++)
         if (term_equal(&lib->terms[i], &t)) return i;
     return -1;
+}
+
+int library_name_old_form(const char *name, char *fixed, size_t n) {
+    int old = 0;
+    size_t len = 0;
+    for (const char *p = name; *p; p++) {
+        char c = *p;
+        if (c == ' ' || c == '\t') {   /* a run of spaces: a product between two factors, or nothing */
+            const char *q = p;
+            while (*q == ' ' || *q == '\t') q++;
+            int product = 0;
+            if (p > name && *q) {
+                char a = p[-1], b = *q;
+                product = (isalnum((unsigned char)a) || a == ')') && (isalnum((unsigned char)b) || b == '(');
+            }
+            old |= product;
+            p = q - 1;
+            if (!product) continue;
+            c = '*';
+        }
+        if (fixed && len + 1 < n) fixed[len++] = c;
+    }
+    if (fixed && n) fixed[len] = 0;
+    return old;
 }
 
 /* ---- building --------------------------------------------------------------------------------- */

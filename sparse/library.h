@@ -8,15 +8,20 @@
  *   1. the constant "1"                                  (when spec.constant)
  *   2. monomials of total degree 1, 2, ..., spec.degree; inside one degree, the sorted variable
  *      index tuples (i1 <= i2 <= ... <= id) in lexicographic order:
- *          z1, z2, z1^2, z1 z2, z2^2, z1^3, z1^2 z2, ...
+ *          z1, z2, z1^2, z1*z2, z2^2, z1^3, z1^2*z2, ...
  *   3. when spec.trig: for each multiplier k in spec.freq (in the given order), for each variable
  *      that takes trig terms (every variable, or only z when spec.trig_velocity is 0):
- *          sin(k zi), cos(k zi)             written sin(zi), cos(zi) when k = 1
+ *          sin(k*zi), cos(k*zi)             written sin(zi), cos(zi) when k = 1
  *   4. spec.include, in the given order (terms already present are not repeated);
  *   then every term named in spec.exclude is removed.
  *
- * Names: "1", "z1", "z1^2", "z1 z2", "z1^2 dz2/dt", "(dz1/dt)^2", "sin(z1)", "cos(2 dz1/dt)".
- * A name given in include / exclude is parsed, so "z2 z1" and "z1 z2" are the same term.
+ * Names: "1", "z1", "z1^2", "z1*z2", "z1^2*dz2/dt", "(dz1/dt)^2", "sin(z1)", "cos(2*dz1/dt)": a
+ * product is written with '*', so a name pastes into a calculator or a script. LaTeX keeps a space
+ * for a product: "z_{1} z_{2}", "\sin(2 z_{1})".
+ * A name given in include / exclude is parsed, so "z2*z1", "z1 * z2" and "z1*z2" are the same term.
+ * The parser also reads the old form with a space for a product ("z1 z2", "sin(2 z1)"), the names
+ * of version-1 equations JSON; library_name_old_form tells a caller when to note that it is
+ * deprecated.
  *
  * Each kind of term is one row of a table with its name, evaluation and gradient (library.c), so
  * the names in exported equations come from the row that computes the term.
@@ -89,8 +94,16 @@ typedef enum { NAME_TEXT, NAME_LATEX } NameStyle;
 int library_var_name(const Library *lib, int i, NameStyle style, char *buf, size_t n);
 /* Name of term t in a style; the text names are also in lib->names. */
 int library_term_name(const Library *lib, int t, NameStyle style, char *buf, size_t n);
-/* Parse a plain-text term name against a library's variables (n_latent, order). 0 or ST_INPUT. */
+/* The same for any term of the library's variables (one library_parse_term gave, say). */
+int library_name_of(const Library *lib, const Term *term, NameStyle style, char *buf, size_t n);
+/* Parse a plain-text term name against a library's variables (n_latent, order). 0 or ST_INPUT.
+ * Products with '*' or (the old form) with spaces. */
 int library_parse_term(const Library *lib, const char *name, Term *out, Status *st);
+/* 1 when a name writes a product with a space instead of '*' ("z1 z2", "sin(2 z1)"): the form
+ * before equations JSON version 2, read for one more release. Spaces next to '*', '(' or ')' are
+ * not products. When fixed is not NULL it gets the name in today's form (n bytes, terminated):
+ * products as '*', other spaces left out. */
+int library_name_old_form(const char *name, char *fixed, size_t n);
 
 /* Plain evaluation in double: theta (B, n_terms) = Theta(s (B, n_vars)). */
 void library_eval(const Library *lib, double *theta, const double *s, long B);

@@ -95,9 +95,23 @@ static void test_found_in_training(void **state) {
     assert_int_equal(n, 2);
     double w = sqrt(-prod);
     if (!(fabs(w - W_OSC) < 0.02 * W_OSC)) fail_msg("canonical frequency %g, expected %g", w, W_OSC);
+    char *eqt = run_file("equations.txt");
+    /* the JSON's texts are equations.txt's lines: the same digits, and "digits" says how many */
+    assert_int_equal(cJSON_GetObjectItem(root, "digits")->valueint, 4);
+    const cJSON *lists[3] = {cJSON_GetObjectItem(root, "equations"), eqs, NULL};
+    for (int l = 0; lists[l]; l++) cJSON_ArrayForEach(eq, lists[l]) {
+        char line[512];
+        snprintf(line, sizeof line, "\n%s\n", cJSON_GetObjectItem(eq, "text")->valuestring);
+        if (!strstr(eqt, line)) fail_msg("equations.txt lacks the line '%s':\n%s", line + 1, eqt);
+    }
+    cJSON *mt;
+    cJSON_ArrayForEach(mt, cJSON_GetObjectItem(map, "text")) {
+        char line[512];
+        snprintf(line, sizeof line, "\n# %s\n", mt->valuestring);
+        if (!strstr(eqt, line)) fail_msg("equations.txt lacks the map line '%s':\n%s", line + 1, eqt);
+    }
     cJSON_Delete(root);
     free(txt);
-    char *eqt = run_file("equations.txt");
     assert_true(!strncmp(eqt, "# canonical law (2 terms", 24));
     assert_non_null(strstr(eqt, "du1/dt = "));
     assert_non_null(strstr(eqt, "# u1 = "));

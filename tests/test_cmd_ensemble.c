@@ -75,7 +75,7 @@ static void test_equations_json(void **state) {
     cJSON *root = cJSON_Parse(txt);
     assert_non_null(root);
     int T = cJSON_GetArraySize(cJSON_GetObjectItem(root, "terms"));
-    assert_int_equal(T, 6); /* 1, z1, z2, z1^2, z1 z2, z2^2 */
+    assert_int_equal(T, 6); /* 1, z1, z2, z1^2, z1*z2, z2^2 */
     cJSON *e = cJSON_GetObjectItem(root, "ensemble");
     assert_non_null(e);
     assert_int_equal(cJSON_GetObjectItem(e, "members")->valueint, 100);

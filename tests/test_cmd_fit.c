@@ -93,11 +93,24 @@ static void test_lorenz_csv(void **state) {
     static char out[65536];
     snprintf(args, sizeof args, "fit '%s'", path);
     assert_int_equal(test_run_capture(args, out, sizeof out), 0);
-    assert_non_null(strstr(out, "\ndz1/dt = -10 z1 + 10 z2\n"));
-    assert_non_null(strstr(out, "\ndz2/dt = 28 z1 - z2 - z1 z3\n"));
-    assert_non_null(strstr(out, "\ndz3/dt = -2.667 z3 + z1 z2\n"));
+    assert_non_null(strstr(out, "\ndz1/dt = -10*z1 + 10*z2\n"));
+    assert_non_null(strstr(out, "\ndz2/dt = 28*z1 - z2 - z1*z3\n"));
+    assert_non_null(strstr(out, "\ndz3/dt = -2.667*z3 + z1*z2\n"));
     assert_non_null(strstr(out, "z1 = x (column 2)"));
     assert_non_null(strstr(out, "7 of 60 coefficients active"));
+    assert_null(strstr(out, "deprecated"));
+
+    /* --exclude by name, with '*' and in the old form with a space (one release more, with a note) */
+    snprintf(args, sizeof args, "fit '%s' --exclude 'z2*z3' --exclude 'z1^3'", path);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
+    assert_non_null(strstr(out, "library: 18 terms"));
+    assert_null(strstr(out, "deprecated"));
+    snprintf(args, sizeof args, "fit '%s' --exclude 'z2 z3' --exclude 'z1^3'", path);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
+    assert_non_null(strstr(out, "library: 18 terms"));
+    assert_non_null(strstr(out, "\ndz2/dt = 28*z1 - z2 - z1*z3\n"));
+    assert_non_null(strstr(out, "framelaw: note: --exclude \"z2 z3\": a space for a product is deprecated"));
+    assert_non_null(strstr(out, "write \"z2*z3\"\n"));
 
     /* JSON output reloads into the same model */
     snprintf(args, sizeof args, "fit '%s' --format json --library-degree 2", path);
@@ -108,9 +121,13 @@ static void test_lorenz_csv(void **state) {
     if (equation_from_json(out, &lib, &c, &st)) fail_msg("%s", st.msg);
     assert_int_equal(lib.n_terms, 10);
     assert_close(c.xi[library_find(&lib, "z1") * 3 + 1], 28.0, 0, 1e-3);
-    assert_close(c.xi[library_find(&lib, "z1 z3") * 3 + 1], -1.0, 0, 1e-3);
+    assert_close(c.xi[library_find(&lib, "z1*z3") * 3 + 1], -1.0, 0, 1e-3);
     assert_int_equal(coef_active(c.mask, 30), 7);
     cJSON *root = cJSON_Parse(out);
+    /* plain state variables, not a latent space: the count is n_variables */
+    assert_int_equal(cJSON_GetObjectItem(root, "n_variables")->valueint, 3);
+    assert_null(cJSON_GetObjectItem(root, "n_latent"));
+    assert_int_equal(cJSON_GetObjectItem(root, "digits")->valueint, 4);
     cJSON *fit = cJSON_GetObjectItem(root, "fit");
     assert_non_null(fit);
     assert_close(cJSON_GetObjectItem(fit, "dt")->valuedouble, dt, 1e-12, 0);
@@ -152,7 +169,7 @@ static void test_pendulum_npy(void **state) {
     snprintf(args, sizeof args, "fit '%s' --rate 100 --order 2 --trig --library-degree 2 --threshold 0.05 --window 9 --degree 4",
              path);
     assert_int_equal(test_run_capture(args, out, sizeof out), 0);
-    if (!strstr(out, "\nd2z1/dt2 = -0.2 dz1/dt - 4.903 sin(z1)\n")) fail_msg("output:\n%s", out);
+    if (!strstr(out, "\nd2z1/dt2 = -0.2*dz1/dt - 4.903*sin(z1)\n")) fail_msg("output:\n%s", out);
     snprintf(args, sizeof args, "fit '%s' --rate=100 --order=2 --multipliers=1 --library-degree=1 --window=9 --degree=4 --format latex",
              path);
     assert_int_equal(test_run_capture(args, out, sizeof out), 0);
@@ -185,8 +202,8 @@ static void test_bad_input(void **state) {
         {"name.csv", "t,x\n0,1\n1,2\n", "--columns speed", "name.csv: state column 'speed' is neither"},
         {"opt.csv", "t,x\n0,1\n1,2\n", "--order 3", "fit: --order '3': expected an integer in 1..2"},
         {"opt2.csv", "t,x\n0,1\n1,2\n", "--smooth", "fit: unknown option '--smooth'"},
-        {"opt3.csv", "t,x\n0,0\n1,1\n2,4\n3,9\n4,16\n5,25\n6,36\n7,49\n8,64\n", "--exclude 'z1 z3'",
-         "fit: library exclude: term 'z1 z3': no variable z3 (the latent size is 1)"},
+        {"opt3.csv", "t,x\n0,0\n1,1\n2,4\n3,9\n4,16\n5,25\n6,36\n7,49\n8,64\n", "--exclude 'z1*z3'",
+         "fit: library exclude: term 'z1*z3': no variable z3 (the latent size is 1)"},
         {"opt4.csv", "t,x\n0,1\n1,2\n", "--rate -5", "fit: --rate '-5'"},
         {"text.txt", "0,1\n", "", "text.txt: not a numeric recording"},
     };

@@ -27,7 +27,7 @@ static const char *FULL =
     "            \"activation\": \"tanh\", \"init\": \"pca\", \"derivatives\": \"frames\",\n"
     "            \"init_epochs\": 50, \"init_frames\": 500},\n"
     "  \"library\": {\"degree\": 2, \"constant\": false, \"trig\": false, \"trig_velocity\": false,\n"
-    "              \"multipliers\": [1, 2, 3], \"include\": [\"z1 z2\"], \"exclude\": [\"z1^2\", \"cos(z2)\"]},\n"
+    "              \"multipliers\": [1, 2, 3], \"include\": [\"z1*z2\"], \"exclude\": [\"z1^2\", \"cos(z2)\"]},\n"
     "  \"loss\": {\"reconstruction\": 0.5, \"dx\": 0.001, \"dz\": 1e-6, \"l1\": 0.1, \"normalize\": false},\n"
     "  \"optimizer\": {\"lr\": 3e-4, \"beta1\": 0.8, \"beta2\": 0.99, \"eps\": 1e-7, \"schedule\": \"cosine\",\n"
     "                \"decay_every\": 50, \"decay_factor\": 0.25, \"lr_min\": 1e-5},\n"
@@ -135,6 +135,8 @@ static void test_round_trip(void **state) {
     assert_int_equal(a.decoder[2], 128);
     assert_int_equal(a.n_lib_exclude, 2);
     assert_string_equal(a.lib_exclude[1], "cos(z2)");
+    const char *key = NULL;
+    assert_null(config_old_term(&a, &key));   /* names with '*': nothing deprecated */
     assert_true(a.seed == 9007199254740991ull);
     assert_int_equal(a.epochs, 20000);
     assert_true(a.eps == 1e-7);
@@ -240,6 +242,19 @@ static void test_set(void **state) {
     assert_non_null(getcwd(cwd, sizeof cwd));
     snprintf(want, sizeof want, "%s/rel/frames", cwd);
     assert_string_equal(c.frames, want);
+    /* term names: '*' for a product; the old form with a space is read and reported as deprecated */
+    const char *key = NULL;
+    set_ok(&c, "library.include=[\"z1*dz1/dt\", \"sin(2*z1)\"]");
+    set_ok(&c, "library.exclude=[\"z1^2\"]");
+    assert_null(config_old_term(&c, &key));
+    set_ok(&c, "library.exclude=[\"z1^2\", \"z1 z2\"]");
+    assert_string_equal(config_old_term(&c, &key), "z1 z2");
+    assert_string_equal(key, "library.exclude");
+    set_ok(&c, "library.include=[\"sin(2 z1)\"]");
+    assert_string_equal(config_old_term(&c, &key), "sin(2 z1)");
+    assert_string_equal(key, "library.include");
+    set_ok(&c, "library.include=[]");
+    set_ok(&c, "library.exclude=[]");
 
     /* failures name the key and leave the config as it was */
     static const struct { const char *set, *msg; } bad[] = {

@@ -199,9 +199,9 @@ static void test_lorenz_inclusion(void **state) {
     truth[library_find(&lib, "z2") * 3 + 0] = SIGMA;
     truth[library_find(&lib, "z1") * 3 + 1] = RHO;
     truth[library_find(&lib, "z2") * 3 + 1] = -1;
-    truth[library_find(&lib, "z1 z3") * 3 + 1] = -1;
+    truth[library_find(&lib, "z1*z3") * 3 + 1] = -1;
     truth[library_find(&lib, "z3") * 3 + 2] = -BETA;
-    truth[library_find(&lib, "z1 z2") * 3 + 2] = 1;
+    truth[library_find(&lib, "z1*z2") * 3 + 2] = 1;
     EnsembleOptions o = ensemble_defaults();
     o.members = 100;
     o.block = 25;

@@ -1,5 +1,6 @@
 /* tests/test_equation.c: equations as text, LaTeX and JSON. The expected strings are the
- * notation of docs/sparse.md (our own format, ordinary mathematical notation: common practice). */
+ * notation of docs/sparse.md (our own format, ordinary mathematical notation with '*' for a product
+ * as in every programming language: common practice). */
 #include "sparse/equation.h"
 #include "tests/testutil.h"
 
@@ -18,8 +19,8 @@ static void lorenz_xi(const Library *lib, double *xi) {
     memset(xi, 0, sizeof(double) * lib->n_terms * 3);
     xi[library_find(lib, "z1") * 3 + 0] = -10, xi[library_find(lib, "z2") * 3 + 0] = 10;
     xi[library_find(lib, "z1") * 3 + 1] = 28, xi[library_find(lib, "z2") * 3 + 1] = -1;
-    xi[library_find(lib, "z1 z3") * 3 + 1] = -1;
-    xi[library_find(lib, "z3") * 3 + 2] = -8.0 / 3, xi[library_find(lib, "z1 z2") * 3 + 2] = 1;
+    xi[library_find(lib, "z1*z3") * 3 + 1] = -1;
+    xi[library_find(lib, "z3") * 3 + 2] = -8.0 / 3, xi[library_find(lib, "z1*z2") * 3 + 2] = 1;
 }
 
 static void test_text_lorenz(void **state) {
@@ -29,13 +30,13 @@ static void test_text_lorenz(void **state) {
     lorenz_xi(&lib, xi);
     char buf[512];
     size_t n = equation_format(buf, sizeof buf, EQ_TEXT, &lib, xi, NULL, 4);
-    const char *want = "dz1/dt = -10 z1 + 10 z2\n"
-                       "dz2/dt = 28 z1 - z2 - z1 z3\n"
-                       "dz3/dt = -2.667 z3 + z1 z2\n";
+    const char *want = "dz1/dt = -10*z1 + 10*z2\n"
+                       "dz2/dt = 28*z1 - z2 - z1*z3\n"
+                       "dz3/dt = -2.667*z3 + z1*z2\n";
     assert_string_equal(buf, want);
     assert_int_equal(n, strlen(want));
     equation_format(buf, sizeof buf, EQ_TEXT, &lib, xi, NULL, 2);
-    assert_non_null(strstr(buf, "dz3/dt = -2.7 z3 + z1 z2\n"));
+    assert_non_null(strstr(buf, "dz3/dt = -2.7*z3 + z1*z2\n"));
     /* snprintf semantics: a short buffer is cut and terminated, the needed length returned */
     char small[10];
     assert_int_equal(equation_format(small, sizeof small, EQ_TEXT, &lib, xi, NULL, 4), strlen(want));
@@ -45,7 +46,7 @@ static void test_text_lorenz(void **state) {
     memset(mask, 1, sizeof mask);
     mask[library_find(&lib, "z2") * 3 + 0] = 0;
     equation_line(buf, sizeof buf, EQ_TEXT, &lib, xi, mask, 0, 4);
-    assert_string_equal(buf, "dz1/dt = -10 z1");
+    assert_string_equal(buf, "dz1/dt = -10*z1");
     library_free(&lib);
 }
 
@@ -58,7 +59,7 @@ static void test_text_pendulum(void **state) {
     xi[library_find(&lib, "dz1/dt")] = -0.05;
     char buf[256];
     equation_format(buf, sizeof buf, EQ_TEXT, &lib, xi, NULL, 4);
-    assert_string_equal(buf, "d2z1/dt2 = -0.05 dz1/dt - 0.98 sin(z1)\n");   /* library order */
+    assert_string_equal(buf, "d2z1/dt2 = -0.05*dz1/dt - 0.98*sin(z1)\n");   /* library order */
     equation_format(buf, sizeof buf, EQ_LATEX, &lib, xi, NULL, 4);
     assert_string_equal(buf, "\\begin{aligned}\n"
                              "\\ddot{z}_{1} &= -0.05 \\dot{z}_{1} - 0.98 \\sin(z_{1})\n"
@@ -71,13 +72,13 @@ static void test_text_pendulum(void **state) {
     xi[library_find(&lib, "z1")] = -1.0;
     xi[library_find(&lib, "cos(z1)")] = 1.5e-5;
     equation_line(buf, sizeof buf, EQ_TEXT, &lib, xi, NULL, 0, 3);
-    assert_string_equal(buf, "d2z1/dt2 = 1 - z1 + 1.5e-05 cos(z1)");
+    assert_string_equal(buf, "d2z1/dt2 = 1 - z1 + 1.5e-05*cos(z1)");
     equation_line(buf, sizeof buf, EQ_LATEX, &lib, xi, NULL, 0, 3);
     assert_string_equal(buf, "\\ddot{z}_{1} &= 1 - z_{1} + 1.5 \\times 10^{-5} \\cos(z_{1})");
     xi[0] = -2;
     xi[library_find(&lib, "z1")] = 0;
     equation_line(buf, sizeof buf, EQ_TEXT, &lib, xi, NULL, 0, 3);
-    assert_string_equal(buf, "d2z1/dt2 = -2 + 1.5e-05 cos(z1)");
+    assert_string_equal(buf, "d2z1/dt2 = -2 + 1.5e-05*cos(z1)");
     free(xi);
     library_free(&lib);
 }
@@ -100,7 +101,7 @@ static void test_latex_lorenz(void **state) {
     rewind(f);
     char line[128];
     assert_non_null(fgets(line, sizeof line, f));
-    assert_string_equal(line, "dz1/dt = -10 z1 + 10 z2\n");
+    assert_string_equal(line, "dz1/dt = -10*z1 + 10*z2\n");
     fclose(f);
     library_free(&lib);
 }
@@ -116,7 +117,7 @@ static void test_json_roundtrip(void **state) {
     sp.n_include = 1;
     strcpy(sp.include[0], "z1^3");
     sp.n_exclude = 1;
-    strcpy(sp.exclude[0], "z1 z2");
+    strcpy(sp.exclude[0], "z2 z1");   /* the old form, written back as "z1*z2" */
     Library lib;
     Status st;
     assert_int_equal(library_init(&lib, &sp, &st), 0);
@@ -130,6 +131,12 @@ static void test_json_roundtrip(void **state) {
     assert_non_null(js);
     assert_non_null(strstr(js, "\"format\":\t\"framelaw-equations\""));
     assert_non_null(strstr(js, "\"lhs\":\t\"d2z1/dt2\""));
+    assert_non_null(strstr(js, "\"version\":\t2,"));
+    assert_non_null(strstr(js, "\"n_latent\":\t2,"));
+    assert_non_null(strstr(js, "\"digits\":\t4,"));
+    assert_non_null(strstr(js, "\"multipliers\":\t[1, 3]"));
+    assert_non_null(strstr(js, "\"exclude\":\t[\"z1*z2\"]"));
+    assert_null(strstr(js, "frequencies"));
     Library l2;
     Coef c;
     if (equation_from_json(js, &l2, &c, &st)) fail_msg("%s", st.msg);
@@ -148,9 +155,11 @@ static void test_json_roundtrip(void **state) {
     const char *bad[][2] = {
         {"{", "not valid JSON"},
         {"{\"format\": \"other\"}", "\"format\""},
-        {"{\"format\": \"framelaw-equations\", \"version\": 2}", "version 2"},
+        {"{\"format\": \"framelaw-equations\", \"version\": 3}", "version 3 is newer"},
+        {"{\"format\": \"framelaw-equations\", \"version\": 2, \"order\": 1, \"n_latent\": 1, \"n_variables\": 1}",
+         "expected one"},
     };
-    for (int i = 0; i < 3; i++) {
+    for (int i = 0; i < 4; i++) {
         assert_int_equal(equation_from_json(bad[i][0], &l2, &c, &st), ST_INPUT);
         if (!strstr(st.msg, bad[i][1])) fail_msg("'%s' lacks '%s'", st.msg, bad[i][1]);
     }
@@ -175,12 +184,95 @@ static void test_json_roundtrip(void **state) {
     library_free(&lib);
 }
 
+/* A version-1 file as the program before version 2 wrote it: "frequencies" for the multipliers and a
+ * space for a product in the term, include and exclude names. It reads, with today's names. */
+static const char V1_JSON[] =
+    "{\"format\": \"framelaw-equations\", \"version\": 1, \"order\": 2, \"n_latent\": 1, \"digits\": 6,\n"
+    " \"library\": {\"constant\": true, \"degree\": 2, \"trig\": true, \"trig_velocity\": false,\n"
+    "             \"frequencies\": [1, 2], \"include\": [\"z1^2 dz1/dt\"], \"exclude\": [\"z1 dz1/dt\"]},\n"
+    " \"variables\": [\"z1\", \"dz1/dt\"],\n"
+    " \"terms\": [\"1\", \"z1\", \"dz1/dt\", \"z1^2\", \"(dz1/dt)^2\", \"sin(z1)\", \"cos(z1)\", \"sin(2 z1)\",\n"
+    "           \"cos(2 z1)\", \"z1^2 dz1/dt\"],\n"
+    " \"equations\": [{\"lhs\": \"d2z1/dt2\", \"coefficients\": [0, 0, -0.05, 0, 0, -0.98, 0, 0.25, 0, 0.5],\n"
+    "                \"mask\": [0, 0, 1, 0, 0, 1, 0, 1, 0, 1], \"active\": 4,\n"
+    "                \"text\": \"d2z1/dt2 = -0.05 dz1/dt - 0.98 sin(z1) + 0.25 sin(2 z1) + 0.5 z1^2 dz1/dt\",\n"
+    "                \"latex\": \"\\\\ddot{z}_{1} = -0.05 \\\\dot{z}_{1}\"}]}\n";
+
+static void test_json_version1(void **state) {
+    (void)state;
+    Library lib;
+    Coef c;
+    Status st;
+    if (equation_from_json(V1_JSON, &lib, &c, &st)) fail_msg("%s", st.msg);
+    static const char *const names[] = {"1",         "z1",        "dz1/dt",   "z1^2",      "(dz1/dt)^2",
+                                        "sin(z1)",   "cos(z1)",   "sin(2*z1)", "cos(2*z1)", "z1^2*dz1/dt"};
+    assert_int_equal(lib.n_terms, 10);
+    for (int t = 0; t < 10; t++) assert_string_equal(lib.names[t], names[t]);
+    assert_int_equal(lib.spec.n_freq, 2);
+    assert_int_equal(lib.spec.freq[1], 2);
+    assert_int_equal(lib.spec.trig_velocity, 0);
+    static const double want[] = {0, 0, -0.05, 0, 0, -0.98, 0, 0.25, 0, 0.5};
+    for (int t = 0; t < 10; t++) {
+        assert_true(c.xi[t] == want[t]);   /* the file's numbers, exactly */
+        assert_int_equal(c.mask[t], want[t] != 0);
+    }
+    /* written again: version 2, today's names and text */
+    char *js = equation_json_string(&lib, c.xi, c.mask, 4);
+    assert_non_null(js);
+    assert_non_null(strstr(js, "\"version\":\t2,"));
+    assert_non_null(strstr(js, "\"multipliers\":\t[1, 2]"));
+    assert_non_null(strstr(js, "\"include\":\t[\"z1^2*dz1/dt\"]"));
+    assert_non_null(strstr(js, "\"exclude\":\t[\"z1*dz1/dt\"]"));
+    assert_non_null(strstr(js, "\"text\":\t\"d2z1/dt2 = -0.05*dz1/dt - 0.98*sin(z1) + 0.25*sin(2*z1) + 0.5*z1^2*dz1/dt\""));
+    free(js);
+    library_free(&lib);
+    coef_free(&c);
+
+    /* each version with its own key for the multipliers, and a wrong version-1 term is still wrong */
+    char *v = strdup(V1_JSON);
+    memcpy(strstr(v, "\"version\": 1"), "\"version\": 2", 12);
+    assert_int_equal(equation_from_json(v, &lib, &c, &st), ST_INPUT);
+    assert_non_null(strstr(st.msg, "\"library.multipliers\""));
+    free(v);
+    v = strdup(V1_JSON);
+    char *at = strstr(strstr(v, "\"terms\""), "sin(2 z1)");
+    at[4] = '3';
+    assert_int_equal(equation_from_json(v, &lib, &c, &st), ST_INPUT);
+    assert_non_null(strstr(st.msg, "term 8 is not \"sin(2*z1)\""));
+    free(v);
+}
+
+/* fit's JSON names the count n_variables (plain state variables, not a latent space); it reads. */
+static void test_json_variables(void **state) {
+    (void)state;
+    Library lib = make(3, 1, 2, 0);
+    double xi[30];
+    lorenz_xi(&lib, xi);
+    cJSON *root = equation_json_as(&lib, xi, NULL, 4, EQ_COUNT_VARIABLES);
+    assert_null(cJSON_GetObjectItem(root, "n_latent"));
+    assert_int_equal(cJSON_GetObjectItem(root, "n_variables")->valueint, 3);
+    char *js = cJSON_Print(root);
+    Library l2;
+    Coef c;
+    Status st;
+    if (equation_from_json(js, &l2, &c, &st)) fail_msg("%s", st.msg);
+    assert_int_equal(c.n_out, 3);
+    for (int i = 0; i < 30; i++) assert_true(c.xi[i] == xi[i]);
+    library_free(&l2);
+    coef_free(&c);
+    free(js);
+    cJSON_Delete(root);
+    library_free(&lib);
+}
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_text_lorenz),
         cmocka_unit_test(test_text_pendulum),
         cmocka_unit_test(test_latex_lorenz),
         cmocka_unit_test(test_json_roundtrip),
+        cmocka_unit_test(test_json_version1),
+        cmocka_unit_test(test_json_variables),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

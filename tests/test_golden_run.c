@@ -2,7 +2,10 @@
  * bytes as the fixtures in tests/reference/golden/, written by the build before io/ moved into
  * sub-folders. A change that is meant to change no behaviour (a move, a de-duplication) must pass it
  * unchanged; a change that is meant to change training results re-records the fixtures and says why
- * in its commit (GOLDEN_WRITE=1 build/tests/test_golden_run records them).
+ * in its commit (GOLDEN_WRITE=1 build/tests/test_golden_run records them). Re-recorded when the
+ * texts in the JSON took the digits of equations.txt (4, was 6), and for the equations JSON version 2
+ * (products written with '*', "multipliers"): every number as before, only "digits", the version,
+ * those names and the texts changed.
  *
  * The runs cover both derivative modes and every start-up: an image run (the lantern demo at 20 px,
  * Isomap start, derivatives in latent space, loss.normalize) and a numeric run (CSV recordings of a

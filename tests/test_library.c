@@ -33,10 +33,10 @@ static void test_order_first(void **state) {
     sp.n_freq = 2;
     sp.freq[1] = 2;
     Library lib = make(sp);
-    static const char *const want[] = {"1",       "z1",      "z2",         "z1^2",       "z1 z2",
-                                       "z2^2",    "z1^3",    "z1^2 z2",    "z1 z2^2",    "z2^3",
-                                       "sin(z1)", "cos(z1)", "sin(z2)",    "cos(z2)",    "sin(2 z1)",
-                                       "cos(2 z1)", "sin(2 z2)", "cos(2 z2)"};
+    static const char *const want[] = {"1",       "z1",      "z2",         "z1^2",       "z1*z2",
+                                       "z2^2",    "z1^3",    "z1^2*z2",    "z1*z2^2",    "z2^3",
+                                       "sin(z1)", "cos(z1)", "sin(z2)",    "cos(z2)",    "sin(2*z1)",
+                                       "cos(2*z1)", "sin(2*z2)", "cos(2*z2)"};
     expect_names(&lib, want, (int)(sizeof want / sizeof *want));
     library_free(&lib);
 }
@@ -47,7 +47,7 @@ static void test_order_second(void **state) {
     LibrarySpec sp = library_spec_default(1, 2);
     sp.trig = 1;
     Library lib = make(sp);
-    static const char *const want[] = {"1",          "z1",      "dz1/dt",  "z1^2",        "z1 dz1/dt",
+    static const char *const want[] = {"1",          "z1",      "dz1/dt",  "z1^2",        "z1*dz1/dt",
                                        "(dz1/dt)^2", "sin(z1)", "cos(z1)", "sin(dz1/dt)", "cos(dz1/dt)"};
     expect_names(&lib, want, 10);
     library_free(&lib);
@@ -77,15 +77,40 @@ static void test_include_exclude(void **state) {
     LibrarySpec sp = library_spec_default(2, 1);
     sp.n_include = 3;
     strcpy(sp.include[0], "z1^3");
-    strcpy(sp.include[1], "sin(3 z2)");
-    strcpy(sp.include[2], "z2 z1");     /* already present: not repeated */
+    strcpy(sp.include[1], "sin(3 * z2)");
+    strcpy(sp.include[2], "z2*z1");     /* already present: not repeated */
     sp.n_exclude = 2;
     strcpy(sp.exclude[0], "1");
-    strcpy(sp.exclude[1], "z2  z1");    /* factor order and spacing do not matter */
+    strcpy(sp.exclude[1], "z2 *  z1");  /* factor order and spacing do not matter */
     Library lib = make(sp);
-    static const char *const want[] = {"z1", "z2", "z1^2", "z2^2", "z1^3", "sin(3 z2)"};
+    static const char *const want[] = {"z1", "z2", "z1^2", "z2^2", "z1^3", "sin(3*z2)"};
     expect_names(&lib, want, 6);
     library_free(&lib);
+
+    /* the old form with a space for a product (before equations JSON version 2) still reads */
+    strcpy(sp.include[1], "sin(3 z2)");
+    strcpy(sp.include[2], "z2 z1");
+    strcpy(sp.exclude[1], "z2  z1");
+    lib = make(sp);
+    expect_names(&lib, want, 6);
+    library_free(&lib);
+}
+
+/* Which names write a product with a space (deprecated), and their spelling with '*'. */
+static void test_old_form(void **state) {
+    (void)state;
+    static const char *const cases[][2] = {
+        {"z1 z2", "z1*z2"},           {"z1^2 dz1/dt", "z1^2*dz1/dt"}, {"(dz1/dt)^2 z1", "(dz1/dt)^2*z1"},
+        {"sin(2 z1)", "sin(2*z1)"},   {"cos(3  dz2/dt)", "cos(3*dz2/dt)"},
+    };
+    char b[LIB_NAME_MAX];
+    for (size_t i = 0; i < sizeof cases / sizeof *cases; i++) {
+        assert_int_equal(library_name_old_form(cases[i][0], b, sizeof b), 1);
+        assert_string_equal(b, cases[i][1]);
+    }
+    static const char *const today[] = {"1", "z1", "z1*z2", "z1 * z2", " z1^2*dz1/dt ", "sin(2*z1)", "sin( z1 )",
+                                        "(dz1/dt)^2"};
+    for (size_t i = 0; i < sizeof today / sizeof *today; i++) assert_int_equal(library_name_old_form(today[i], NULL, 0), 0);
 }
 
 static void expect_error(LibrarySpec sp, const char *fragment) {
@@ -107,6 +132,12 @@ static void test_bad_specs(void **state) {
     expect_error(sp, "no term 'sin(z1)'");
     strcpy(sp.exclude[0], "z1 +");
     expect_error(sp, "term 'z1 +'");
+    strcpy(sp.exclude[0], "z1*");
+    expect_error(sp, "a factor must follow '*'");
+    strcpy(sp.exclude[0], "z1**z2");
+    expect_error(sp, "term 'z1**z2'");
+    strcpy(sp.exclude[0], "*z1");
+    expect_error(sp, "term '*z1'");
     sp = library_spec_default(2, 3);
     expect_error(sp, "order 3");
     sp = library_spec_default(2, 1);
@@ -124,11 +155,11 @@ static void test_latex_names(void **state) {
     sp.freq[0] = 2;
     Library lib = make(sp);
     char b[LIB_NAME_MAX];
-    library_term_name(&lib, library_find(&lib, "z1 dz1/dt"), NAME_LATEX, b, sizeof b);
+    library_term_name(&lib, library_find(&lib, "z1*dz1/dt"), NAME_LATEX, b, sizeof b);
     assert_string_equal(b, "z_{1} \\dot{z}_{1}");
     library_term_name(&lib, library_find(&lib, "(dz1/dt)^2"), NAME_LATEX, b, sizeof b);
     assert_string_equal(b, "\\dot{z}_{1}^{2}");
-    library_term_name(&lib, library_find(&lib, "sin(2 z1)"), NAME_LATEX, b, sizeof b);
+    library_term_name(&lib, library_find(&lib, "sin(2*z1)"), NAME_LATEX, b, sizeof b);
     assert_string_equal(b, "\\sin(2 z_{1})");
     library_free(&lib);
 }
@@ -243,6 +274,7 @@ int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_order_first),   cmocka_unit_test(test_order_second),
         cmocka_unit_test(test_count),         cmocka_unit_test(test_include_exclude),
+        cmocka_unit_test(test_old_form),
         cmocka_unit_test(test_bad_specs),     cmocka_unit_test(test_latex_names),
         cmocka_unit_test(test_values),        cmocka_unit_test(test_grad_double),
         cmocka_unit_test(test_grad_tape),

@@ -96,7 +96,7 @@ static void write_equations(const char *dir) {
         cJSON_AddItemToObject(q, "low", cJSON_CreateDoubleArray(lo, T));
         cJSON_AddItemToObject(q, "high", cJSON_CreateDoubleArray(hi, T));
         cJSON_AddItemToObject(q, "mask", cJSON_CreateDoubleArray(mk, T));
-        cJSON_AddStringToObject(q, "text", j ? "d2z2/dt2 = 0" : "d2z1/dt2 = -0.98 sin(z1)");
+        cJSON_AddStringToObject(q, "text", j ? "d2z2/dt2 = 0" : "d2z1/dt2 = -0.98*sin(z1)");
         cJSON_AddItemToArray(eqs, q);
     }
     char *json = cJSON_Print(tree);
@@ -276,7 +276,7 @@ static void test_full_run(void **state) {
     snprintf(lines, sizeof lines, "%s", eq_text);
     for (char *l = strtok(lines, "\n"); l; l = strtok(NULL, "\n"))
         if (!strstr(html, l)) fail_msg("the page lacks the equation \"%s\"", l);
-    assert_non_null(strstr(html, "d2z1/dt2 = -0.05 dz1/dt - 0.98 sin(z1)"));
+    assert_non_null(strstr(html, "d2z1/dt2 = -0.05*dz1/dt - 0.98*sin(z1)"));
     assert_non_null(strstr(html, "\\ddot{z}_{1} &amp;= "));
     assert_non_null(strstr(html, REPORT_CAUTION));
     assert_non_null(strstr(html, "A learned model is a data-driven approximation"));
@@ -305,7 +305,7 @@ static void test_full_run(void **state) {
     assert_non_null(strstr(html, "[-1.02, -0.9437]"));
     assert_non_null(strstr(html, ">-0.981<"));
     assert_int_equal(count(html, "class=\"bar\""), 2); /* terms no member kept are not listed */
-    assert_non_null(strstr(html, "d2z1/dt2 = -0.98 sin(z1)"));
+    assert_non_null(strstr(html, "d2z1/dt2 = -0.98*sin(z1)"));
     assert_non_null(strstr(html, "z1 band 5%"));
     assert_non_null(strstr(html, "z2 band 95%"));
     assert_non_null(strstr(html, "band wider than the bound"));
@@ -412,9 +412,9 @@ static void test_bad_input(void **state) {
     char *v = strstr(eq, "\"version\":");
     assert_non_null(v);
     char *digit = v + strcspn(v, "0123456789");
-    *digit = '2';
+    *digit = '3';
     test_write_file(p, eq);
-    expect_bad(cmd, "equations.json: format version 2 is newer than this program reads");
+    expect_bad(cmd, "equations.json: format version 3 is newer than this program reads");
     unlink(p);
     free(eq);
     path_of(p, dir, "forecast.json");
@@ -427,6 +427,51 @@ static void test_bad_input(void **state) {
 
     expect_bad("report", "missing RUN_DIR");
     expect_bad("report --colour", "unknown option");
+}
+
+/* An equations.json of format version 1 (before '*': "frequencies" and a space for a product),
+ * written by the earlier program: the report reads it and names its terms as today. */
+static void test_version1_equations(void **state) {
+    (void)state;
+    char dir[1024], cmd[2048], p[1024];
+    static char out[16384];
+    path_of(dir, tmp, "v1");
+    write_full_run(dir);
+    LibrarySpec sp = library_spec_default(2, 2);
+    sp.trig = 1, sp.n_freq = 2, sp.freq[1] = 2;
+    Library lib;
+    Status st;
+    if (library_init(&lib, &sp, &st)) fail_msg("%s", st.msg);
+    double *xi = calloc((size_t)lib.n_terms * 2, sizeof(double));
+    xi[library_find(&lib, "sin(2*z1)") * 2 + 0] = -0.75;
+    xi[library_find(&lib, "z1*dz2/dt") * 2 + 1] = 0.125;
+    char *js = equation_json_string(&lib, xi, NULL, 4);
+    assert_non_null(js);
+    /* version 2 -> 1: the version, the multipliers' old key, a space where '*' is */
+    char *v = strstr(js, "\"version\":\t2");
+    assert_non_null(v);
+    v[11] = '1';
+    char *m = strstr(js, "\"multipliers\"");
+    assert_non_null(m);
+    memcpy(m, "\"frequencies\"", 13);
+    for (char *c = js; *c; c++)
+        if (*c == '*') *c = ' ';
+    assert_non_null(strstr(js, "\"sin(2 z1)\""));
+    path_of(p, dir, "equations.json");
+    test_write_file(p, js);
+    free(js);
+    free(xi);
+    library_free(&lib);
+    snprintf(cmd, sizeof cmd, "report '%s'", dir);
+    if (test_run_capture(cmd, out, sizeof out) != 0) fail_msg("report failed: %s", out);
+    path_of(p, dir, "report.html");
+    char *html = read_all(p, NULL);
+    assert_non_null(html);
+    assert_non_null(strstr(html, "<tr><td>sin(2*z1)</td>"));
+    assert_non_null(strstr(html, "<tr><td>z1*dz2/dt</td>"));
+    assert_non_null(strstr(html, ">-0.75<"));
+    assert_non_null(strstr(html, "2 of the library"));
+    free(html);
 }
 
 /* ---- a real browser ------------------------------------------------------------------------------ */
@@ -519,6 +564,7 @@ int main(void) {
         cmocka_unit_test(test_full_run),
         cmocka_unit_test(test_missing_sections),
         cmocka_unit_test(test_bad_input),
+        cmocka_unit_test(test_version1_equations),
         cmocka_unit_test(test_browser),
     };
     return cmocka_run_group_tests(tests, setup, teardown);

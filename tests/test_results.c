@@ -224,7 +224,7 @@ static void test_export_trajectories(void **state) {
     free(txt);
     snprintf(path, sizeof path, "%s/equations.txt", fx->run);
     txt = test_slurp(path);
-    assert_non_null(strstr(txt, "dz1/dt = 2 z2"));
+    assert_non_null(strstr(txt, "dz1/dt = 2*z2"));
     free(txt);
 }
 
@@ -279,8 +279,8 @@ static void test_forecast_of_blowing_up_model(void **state) {
     assert_int_equal(train_load_latest(fx->run, c, (int)d.ds.n, d.td.n_train, &m, &ps, &st), 0);
     Mat xi = params_val(&ps, m.xi);
     memset(xi.d, 0, 4 * sizeof(float));
-    xi.d[0 * 2 + 0] = 3.0f; /* dz1/dt = 3 z1 */
-    xi.d[1 * 2 + 1] = 3.0f; /* dz2/dt = 3 z2 */
+    xi.d[0 * 2 + 0] = 3.0f; /* dz1/dt = 3*z1 */
+    xi.d[1 * 2 + 1] = 3.0f; /* dz2/dt = 3*z2 */
     long n_train = d.td.n_train;
     int64_t *order = malloc((size_t)n_train * sizeof *order);
     for (long i = 0; i < n_train; i++) order[i] = i;

@@ -189,7 +189,7 @@ static void test_lorenz(void **state_) {
     uint8_t mask[64 * 3];
     Status st;
     assert_int_equal(select_law(&lib, &D, NULL, &o, xi, mask, NULL, &st), 0);
-    const char *terms[7][2] = {{"z1", "0"}, {"z2", "0"}, {"z1", "1"}, {"z2", "1"}, {"z1 z3", "1"}, {"z1 z2", "2"}, {"z3", "2"}};
+    const char *terms[7][2] = {{"z1", "0"}, {"z2", "0"}, {"z1", "1"}, {"z2", "1"}, {"z1*z3", "1"}, {"z1*z2", "2"}, {"z3", "2"}};
     const double want[7] = {-10, 10, 28, -1, -1, 1, -8.0 / 3.0};
     long active = 0;
     for (int i = 0; i < lib.n_terms * 3; i++) active += mask[i];

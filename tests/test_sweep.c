@@ -393,9 +393,9 @@ static void write_equations(const char *dir, const double xi[6]) {
     for (int t = 0; t < 3; t++)
         for (int j = 0; j < 2; j++) act[j] += xi[t * 2 + j] != 0;
     snprintf(text, sizeof text,
-             "{\"format\": \"framelaw-equations\", \"version\": 1, \"order\": 1, \"n_latent\": 2, \"digits\": 4,\n"
+             "{\"format\": \"framelaw-equations\", \"version\": 2, \"order\": 1, \"n_latent\": 2, \"digits\": 4,\n"
              " \"library\": {\"constant\": true, \"degree\": 1, \"trig\": false, \"trig_velocity\": true,\n"
-             "             \"frequencies\": [1], \"include\": [], \"exclude\": []},\n"
+             "             \"multipliers\": [1], \"include\": [], \"exclude\": []},\n"
              " \"variables\": [\"z1\", \"z2\"], \"terms\": [\"1\", \"z1\", \"z2\"],\n"
              " \"equations\": [\n"
              "  {\"lhs\": \"dz1/dt\", \"coefficients\": [%g, %g, %g], \"mask\": [%d, %d, %d], \"active\": %d, \"text\": \"\", \"latex\": \"\"},\n"
@@ -405,7 +405,35 @@ static void write_equations(const char *dir, const double xi[6]) {
     snprintf(p, sizeof p, "%s/equations.json", dir);
     write_text(p, text);
     snprintf(p, sizeof p, "%s/equations.txt", dir);
-    write_text(p, "dz1/dt = 2 z2\ndz2/dt = -2 z1\n");
+    write_text(p, "dz1/dt = 2*z2\ndz2/dt = -2*z1\n");
+}
+
+/* equations.json of a first-order model with 2 latent variables and a degree-2 library (terms 1, z1,
+ * z2, z1^2, z1*z2, z2^2) in format version 1 (before '*': "frequencies", "z1 z2") or 2; xi (6, 2)
+ * row-major (term, equation), zero = inactive. */
+static void write_equations_quadratic(const char *dir, int version, const double xi[12]) {
+    char p[600], text[3000], co[2][200], ma[2][100];
+    int act[2] = {0, 0};
+    for (int j = 0; j < 2; j++) {
+        int c = 0, m = 0;
+        for (int t = 0; t < 6; t++) {
+            c += snprintf(co[j] + c, sizeof co[j] - (size_t)c, "%s%g", t ? ", " : "", xi[t * 2 + j]);
+            m += snprintf(ma[j] + m, sizeof ma[j] - (size_t)m, "%s%d", t ? ", " : "", xi[t * 2 + j] != 0);
+            act[j] += xi[t * 2 + j] != 0;
+        }
+    }
+    snprintf(text, sizeof text,
+             "{\"format\": \"framelaw-equations\", \"version\": %d, \"order\": 1, \"n_latent\": 2, \"digits\": 4,\n"
+             " \"library\": {\"constant\": true, \"degree\": 2, \"trig\": false, \"trig_velocity\": true,\n"
+             "             \"%s\": [1], \"include\": [], \"exclude\": []},\n"
+             " \"variables\": [\"z1\", \"z2\"], \"terms\": [\"1\", \"z1\", \"z2\", \"z1^2\", \"%s\", \"z2^2\"],\n"
+             " \"equations\": [\n"
+             "  {\"lhs\": \"dz1/dt\", \"coefficients\": [%s], \"mask\": [%s], \"active\": %d, \"text\": \"\", \"latex\": \"\"},\n"
+             "  {\"lhs\": \"dz2/dt\", \"coefficients\": [%s], \"mask\": [%s], \"active\": %d, \"text\": \"\", \"latex\": \"\"}]}\n",
+             version, version == 1 ? "frequencies" : "multipliers", version == 1 ? "z1 z2" : "z1*z2", co[0], ma[0],
+             act[0], co[1], ma[1], act[1]);
+    snprintf(p, sizeof p, "%s/equations.json", dir);
+    write_text(p, text);
 }
 
 static void write_forecast(const char *dir, const double *mean_error, int n) {
@@ -578,7 +606,7 @@ static void test_summary_ranking_pareto_groups(void **state) {
     char row[200];
     snprintf(row, sizeof row, "\n1,%s,finished,1,2,40,", sw.members[1].id);
     assert_non_null(strstr(csv, row));
-    assert_non_null(strstr(csv, ",0.05,forecast,4,yes,S2,1,dz1/dt = 2 z2; dz2/dt = -2 z1,"));
+    assert_non_null(strstr(csv, ",0.05,forecast,4,yes,S2,1,dz1/dt = 2*z2; dz2/dt = -2*z1,"));
     snprintf(row, sizeof row, "\n5,%s,finished,0.25,1,40,", sw.members[4].id);
     assert_non_null(strstr(csv, row));
     assert_non_null(strstr(csv, ",,validation,1,,S4,1,"));
@@ -613,6 +641,52 @@ static void test_summary_ranking_pareto_groups(void **state) {
         assert_int_equal(sum.rows[k].member, k);   /* validation 0.01 (i + 1) + 1/40 */
         assert_int_equal(sum.rows[k].pareto, k == 0 || k == 4);   /* (0.035, 2) and (0.075, 1) */
     }
+    sweep_summary_free(&sum);
+    sweep_free(&sw);
+}
+
+/* Members written before the equations JSON version 2 (a space for a product, "frequencies") and
+ * after it are compared by their terms: the same law is one structure and one row of inclusion. */
+static void test_summary_reads_both_versions(void **state) {
+    Fixture *fx = *state;
+    char base[400], f[400];
+    snprintf(base, sizeof base, "%s/base.json", fx->dir);
+    write_base(base, "data", 40);
+    sweep_file(fx, "versions.json", "{\"base\": \"base.json\", \"restarts\": 2, \"output\": \"versions\"}", f, sizeof f);
+    assert_int_equal(chdir(fx->dir), 0);
+    Sweep sw;
+    Status st;
+    assert_int_equal(sweep_load(&sw, f, &st), 0);
+    /* dz1/dt = -z2 + 0.5 z1*z2, dz2/dt = z1 (the same structure, slightly different numbers) */
+    const double a[12] = {0, 0, 0, 1, -1, 0, 0, 0, 0.5, 0, 0, 0}, b[12] = {0, 0, 0, 1.1, -0.9, 0, 0, 0, 0.4, 0, 0, 0};
+    for (int i = 0; i < 2; i++) {
+        assert_int_equal(sweep_member_prepare(&sw, i, MEMBER_NEW, 1, &st), 0);
+        write_log(sw.members[i].dir, 40, 0.01 * (i + 1));
+    }
+    write_equations_quadratic(sw.members[0].dir, 1, a);
+    write_equations_quadratic(sw.members[1].dir, 2, b);
+    SweepSummary sum;
+    assert_int_equal(sweep_summary(&sw, &sum, &st), 0);
+    assert_int_equal(sum.n_rows, 2);
+    for (int k = 0; k < 2; k++) {
+        if (sum.rows[k].structure != 0)
+            fail_msg("member %d: structure %d (%s)", sum.rows[k].member, sum.rows[k].structure,
+                     sum.rows[k].problem ? sum.rows[k].problem : "");
+        assert_int_equal(sum.rows[k].active, 3);
+    }
+    assert_int_equal(sum.n_groups, 1);
+    assert_int_equal(sum.groups[0].count, 2);
+    assert_string_equal(sum.groups[0].key, "dz1/dt: z2, z1*z2 | dz2/dt: z1");
+    int found = 0;
+    for (int q = 0; q < sum.inclusion.n; q++) {
+        const SweepTermStat *t = &sum.inclusion.t[q];
+        assert_null(strstr(t->term, " "));   /* one spelling for every member */
+        if (strcmp(t->lhs, "dz1/dt") || strcmp(t->term, "z1*z2")) continue;
+        found = 1;
+        assert_int_equal(t->offered, 2);
+        assert_int_equal(t->kept, 2);
+    }
+    assert_true(found);
     sweep_summary_free(&sum);
     sweep_free(&sw);
 }
@@ -932,6 +1006,7 @@ int main(void) {
         cmocka_unit_test_setup_teardown(test_member_states, setup, teardown),
         cmocka_unit_test_setup_teardown(test_summary_ranking_pareto_groups, setup, teardown),
         cmocka_unit_test_setup_teardown(test_summary_empty_law_last, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_summary_reads_both_versions, setup, teardown),
         cmocka_unit_test_setup_teardown(test_slurm_script, setup, teardown),
         cmocka_unit_test_setup_teardown(test_local_sweep_two_at_once, setup, teardown),
         cmocka_unit_test_setup_teardown(test_members_start_together_without_store, setup, teardown),

@@ -89,8 +89,8 @@ static void test_lorenz(void **state) {
     double truth[10 * 3] = {0};
 #define TRUE(name, j, v) truth[library_find(&lib, name) * 3 + (j)] = (v)
     TRUE("z1", 0, -SIGMA), TRUE("z2", 0, SIGMA);
-    TRUE("z1", 1, RHO), TRUE("z2", 1, -1.0), TRUE("z1 z3", 1, -1.0);
-    TRUE("z1 z2", 2, 1.0), TRUE("z3", 2, -BETA);
+    TRUE("z1", 1, RHO), TRUE("z2", 1, -1.0), TRUE("z1*z3", 1, -1.0);
+    TRUE("z1*z2", 2, 1.0), TRUE("z3", 2, -BETA);
 #undef TRUE
     /* (a) exact derivatives */
     double *dx = malloc(sizeof(double) * n * 3);

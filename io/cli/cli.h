@@ -17,6 +17,11 @@ typedef struct {
 
 /* Print "framelaw: <message>" to stderr and return code (for `return cli_error(2, ...)`). */
 int cli_error(int code, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
+/* A one-line note on stderr that a term name of key (an option or config key) writes a product with a
+ * space, deprecated, and how to write it now ("z1 z2" -> "z1*z2"). */
+void cli_note_old_term(const char *key, const char *name);
+/* The note for the first such name in a config's library.include / library.exclude, if any. */
+void cli_note_old_terms(const Config *c);
 /* 1 when argv holds --help or -h. */
 int cli_wants_help(int argc, char **argv);
 

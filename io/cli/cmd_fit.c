@@ -46,7 +46,7 @@ static FitSettings fit_defaults(void) {
     s.stencil = STENCIL_SAVGOL;
     s.window = 7;
     s.sg_degree = 3;
-    s.digits = 4;
+    s.digits = EQ_DIGITS;
     s.format = OUT_TEXT;
     return s;
 }
@@ -75,12 +75,12 @@ static void fit_usage(FILE *f) {
     snprintf(b[1], sizeof b[1], "%d", d.lib.degree);
     opt_row(f, "--library-degree N", "highest total degree of the monomials (0..8)", b[1]);
     opt_row(f, "--no-constant", "leave out the constant term", "with");
-    opt_row(f, "--trig", "add sin(k zi) and cos(k zi) of every variable", "off");
+    opt_row(f, "--trig", "add sin(k*zi) and cos(k*zi) of every variable", "off");
     snprintf(b[2], sizeof b[2], "%d", d.lib.freq[0]);
     opt_row(f, "--multipliers K[,K...]", "the multipliers k of sin and cos (implies --trig)", b[2]);
     opt_row(f, "--no-trig-velocity", "order 2: sin and cos of z only, not of dz/dt", "with");
     opt_row(f, "--include TERM", "add a term by name, e.g. \"z1^4\" (repeatable)", "none");
-    opt_row(f, "--exclude TERM", "remove a term by name, e.g. \"z1 z2\" (repeatable)", "none");
+    opt_row(f, "--exclude TERM", "remove a term by name, e.g. \"z1*z2\" (repeatable)", "none");
     snprintf(b[3], sizeof b[3], "%g", d.ls.threshold);
     opt_row(f, "--threshold T", "prune coefficients with |value| < T (data units)", b[3]);
     snprintf(b[4], sizeof b[4], "%g", d.ls.ridge);
@@ -98,7 +98,7 @@ static void fit_usage(FILE *f) {
     opt_row(f, "--format text|latex|json", "output", out_names[d.format]);
     fprintf(f,
             "  --help                       this text\n\n"
-            "Terms are named 1, z1, z1^2, z1 z2, dz1/dt, (dz1/dt)^2, sin(z1), cos(2 z1); docs/fit.md and\n"
+            "Terms are named 1, z1, z1^2, z1*z2, dz1/dt, (dz1/dt)^2, sin(z1), cos(2*z1); docs/fit.md and\n"
             "docs/sparse.md describe the library, the fit and the JSON output.\n\n"
             "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n");
 }
@@ -332,6 +332,11 @@ int cmd_fit(int argc, char **argv) {
         rc = cli_error(st.code, "fit: %s", st.msg);
         goto done;
     }
+    for (int i = 0, noted = 0; i < s.lib.n_include + s.lib.n_exclude && !noted; i++) {   /* one note at most */
+        int inc = i < s.lib.n_include;
+        const char *name = inc ? s.lib.include[i] : s.lib.exclude[i - s.lib.n_include];
+        if ((noted = library_name_old_form(name, NULL, 0))) cli_note_old_term(inc ? "--include" : "--exclude", name);
+    }
     int V = lib.n_vars, T = lib.n_terms;
     state = malloc(sizeof(double) * (size_t)nv * V);        /* (nv, V): z or (z, z') */
     theta = malloc(sizeof(double) * (size_t)nv * T);        /* (nv, T) */
@@ -373,7 +378,7 @@ int cmd_fit(int argc, char **argv) {
     }
 
     if (s.format == OUT_JSON) {
-        cJSON *root = equation_json(&lib, xi, mask, s.digits);
+        cJSON *root = equation_json_as(&lib, xi, mask, s.digits, EQ_COUNT_VARIABLES);
         cJSON *fit = cJSON_AddObjectToObject(root, "fit");
         cJSON_AddNumberToObject(fit, "samples", (double)n);
         cJSON_AddNumberToObject(fit, "samples_fitted", (double)nv);

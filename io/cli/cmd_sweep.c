@@ -412,6 +412,7 @@ int cmd_sweep(int argc, char **argv) {
     Sweep sw;
     Status st;
     if (sweep_load(&sw, file, &st)) return cli_error(st.code, "%s", st.msg);
+    cli_note_old_terms(sw.base);
     int rc = 0;
     MemberState *states = calloc((size_t)sw.n_members, sizeof *states);
     int *queue = calloc((size_t)sw.n_members, sizeof *queue);

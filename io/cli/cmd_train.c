@@ -37,7 +37,7 @@ static int finish_run(const char *run_dir, int quiet, Status *st) {
     if (!rc) {
         long active = model_active(&r->m);
         printf("learned equations (%ld active terms):\n", active);
-        equation_fprint(stdout, EQ_TEXT, &r->m.lib, r->coef.xi, r->coef.mask, 4);
+        equation_fprint(stdout, EQ_TEXT, &r->m.lib, r->coef.xi, r->coef.mask, EQ_DIGITS);
         if (!active) /* a law of nothing: the latent stood still, or every term fell below the threshold */
             fprintf(stderr, "framelaw: warning: no term is left, so this law says nothing moves: the latent may have "
                             "collapsed to a constant (see its plot in framelaw report); try more recordings or "
@@ -186,6 +186,7 @@ int cmd_train(int argc, char **argv) {
         free(c);
         return cli_error(st.code, "%s: %s", path, st.msg);
     }
+    cli_note_old_terms(c);
     char ck[CFG_PATH_MAX + 32];
     snprintf(ck, sizeof ck, "%s/checkpoints", c->output);
     /* the folder, then its lock (a train or resume running there is named), then whether it holds a run */

@@ -7,6 +7,7 @@
 
 #include "io/cli/cli.h"
 #include "io/fs/atomic_file.h"
+#include "sparse/library.h"
 
 static int cmd_help(int argc, char **argv);
 
@@ -36,6 +37,18 @@ int cli_error(int code, const char *fmt, ...) {
     fputc('\n', stderr);
     va_end(ap);
     return code;
+}
+
+void cli_note_old_term(const char *key, const char *name) {
+    char fixed[256];
+    library_name_old_form(name, fixed, sizeof fixed);
+    fprintf(stderr, "framelaw: note: %s \"%s\": a space for a product is deprecated (read until the next release); "
+                    "write \"%s\"\n", key, name, fixed);
+}
+
+void cli_note_old_terms(const Config *c) {
+    const char *key, *name = config_old_term(c, &key);
+    if (name) cli_note_old_term(key, name);
 }
 
 int cli_wants_help(int argc, char **argv) {

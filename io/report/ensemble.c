@@ -88,8 +88,10 @@ int report_section_ensemble(Report *r) {
             listed++;
             const cJSON *name = cJSON_GetArrayItem(terms, t);
             int kept = item_num(mk, t) == 1;
+            char today[LIB_NAME_MAX * 2];   /* a version-1 file's "z1 z2" shown as "z1*z2" */
+            library_name_old_form(cJSON_IsString(name) ? name->valuestring : "?", today, sizeof today);
             fputs("<tr><td>", r->f);
-            page_text(r, cJSON_IsString(name) ? name->valuestring : "?");
+            page_text(r, today);
             fprintf(r->f,
                     "</td><td><span class=\"bar\"><span style=\"width:%.1f%%\"></span></span> %.2f</td>"
                     "<td class=\"n\">%s</td><td class=\"n\">[%s, %s]</td><td>%s</td></tr>\n",

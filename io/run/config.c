@@ -154,13 +154,13 @@ static const KeyDef keys[] = {
     K_INT("library.degree", lib_degree, "3", 0, LIB_MAX_DEGREE, NULL,
           "highest total degree of the polynomial terms"),
     K_BOOL("library.constant", lib_constant, "true", "include the constant term"),
-    K_BOOL("library.trig", lib_trig, "true", "include sin(k z) and cos(k z) terms"),
+    K_BOOL("library.trig", lib_trig, "true", "include sin(k*z) and cos(k*z) terms"),
     K_BOOL("library.trig_velocity", lib_trig_velocity, "true",
            "second order: sin and cos of the velocities dz/dt too"),
     K_INTS("library.multipliers", T_INTS, lib_freq, n_lib_freq, "[1]", 1, 1, 100,
            "the multipliers k of the trigonometric terms"),
     K_STRS("library.include", lib_include, n_lib_include, "[]",
-           "extra terms by name, e.g. \"z1 dz1/dt\", \"sin(2 z1)\""),
+           "extra terms by name, e.g. \"z1*dz1/dt\", \"sin(2*z1)\""),
     K_STRS("library.exclude", lib_exclude, n_lib_exclude, "[]", "terms removed by name, e.g. \"1\""),
     /* loss */
     K_NUM("loss.reconstruction", w_rec, "1", 0, INFINITY, 0, "weight of |x - x_hat|^2"),
@@ -552,6 +552,14 @@ static int given(const Config *c, const char *path) {
 }
 
 int config_given(const Config *c, const char *path) { return given(c, path); }
+
+const char *config_old_term(const Config *c, const char **key) {
+    for (int i = 0; i < c->n_lib_include; i++)
+        if (library_name_old_form(c->lib_include[i], NULL, 0)) return *key = "library.include", c->lib_include[i];
+    for (int i = 0; i < c->n_lib_exclude; i++)
+        if (library_name_old_form(c->lib_exclude[i], NULL, 0)) return *key = "library.exclude", c->lib_exclude[i];
+    return NULL;
+}
 
 /* The schedule follows train.epochs unless given: a pass every sixth of the run, the last fifth
  * refines (250 and 300 of the default 1500), so that a short run (--set train.epochs=50) works. */

@@ -133,6 +133,9 @@ int config_set(Config *c, const char *assignment, Status *st);
 /* 1 when the key was given (by the file or a --set), 0 when it holds its default. A run folder's
  * config.json gives every key it holds. */
 int config_given(const Config *c, const char *path);
+/* The first library.include / library.exclude name that writes a product with a space ("z1 z2",
+ * deprecated: "z1*z2"), with its key in *key; NULL when there is none. */
+const char *config_old_term(const Config *c, const char **key);
 
 /* Cross-key checks after parsing and overrides (e.g. refine_epochs < epochs, data.frames given). */
 int config_validate(const Config *c, Status *st);

@@ -168,12 +168,12 @@ int results_write_equations(LoadedRun *r, int quiet, Status *st) {
     const char *names[2] = {"equations.txt", "equations.tex"};
     char path[CFG_PATH_MAX + 32];
     for (int i = 0; i < 2; i++) {
-        size_t head = run_canonical_format(NULL, 0, styles[i], r, 4);
-        size_t need = head + equation_format(NULL, 0, styles[i], &r->m.lib, r->coef.xi, r->coef.mask, 4) + 2;
+        size_t head = run_canonical_format(NULL, 0, styles[i], r, EQ_DIGITS);
+        size_t need = head + equation_format(NULL, 0, styles[i], &r->m.lib, r->coef.xi, r->coef.mask, EQ_DIGITS) + 2;
         char *buf = malloc(need);
         if (!buf) return status_set(st, ST_RUNTIME, "out of memory");
-        run_canonical_format(buf, need, styles[i], r, 4);
-        equation_format(buf + head, need - head, styles[i], &r->m.lib, r->coef.xi, r->coef.mask, 4);
+        run_canonical_format(buf, need, styles[i], r, EQ_DIGITS);
+        equation_format(buf + head, need - head, styles[i], &r->m.lib, r->coef.xi, r->coef.mask, EQ_DIGITS);
         size_t len = strlen(buf);
         if (len && buf[len - 1] != '\n') buf[len++] = '\n';
         snprintf(path, sizeof path, "%s/%s", r->dir, names[i]);
@@ -181,9 +181,10 @@ int results_write_equations(LoadedRun *r, int quiet, Status *st) {
         free(buf);
         if (rc) return rc;
     }
-    cJSON *tree = equation_json(&r->m.lib, r->coef.xi, r->coef.mask, 6);
-    if (tree) cJSON_AddItemToObject(tree, "ensemble", run_ensemble_json(r, 6));
-    cJSON *canon = tree ? run_canonical_json(r, 6) : NULL;
+    /* the same digits as the text files, so the JSON's "digits" holds for every text in it */
+    cJSON *tree = equation_json(&r->m.lib, r->coef.xi, r->coef.mask, EQ_DIGITS);
+    if (tree) cJSON_AddItemToObject(tree, "ensemble", run_ensemble_json(r, EQ_DIGITS));
+    cJSON *canon = tree ? run_canonical_json(r, EQ_DIGITS) : NULL;
     if (canon) cJSON_AddItemToObject(tree, "canonical", canon);
     char *json = tree ? cJSON_Print(tree) : NULL;
     cJSON_Delete(tree);

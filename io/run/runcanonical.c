@@ -99,12 +99,12 @@ void run_canonical_print(FILE *f, const LoadedRun *r) {
         fprintf(f, "canonical form: %s: %s\n", canon_status_name(c->status), c->note);
         return;
     }
-    size_t need = canonical_format(NULL, 0, EQ_TEXT, c, &r->m.lib, 4) + 1;
-    size_t mneed = canonical_format_map(NULL, 0, c, 4) + 1;
+    size_t need = canonical_format(NULL, 0, EQ_TEXT, c, &r->m.lib, EQ_DIGITS) + 1;
+    size_t mneed = canonical_format_map(NULL, 0, c, EQ_DIGITS) + 1;
     char *law = malloc(need), *map = malloc(mneed);
     if (law && map) {
-        canonical_format(law, need, EQ_TEXT, c, &r->m.lib, 4);
-        canonical_format_map(map, mneed, c, 4);
+        canonical_format(law, need, EQ_TEXT, c, &r->m.lib, EQ_DIGITS);
+        canonical_format_map(map, mneed, c, EQ_DIGITS);
         fprintf(f, "canonical law (%ld active terms), in u = A z + b:\n%s", c->active, law);
         fprintf(f, "where\n%s", map);
     }

@@ -154,7 +154,7 @@ void run_ensemble_print(FILE *f, const LoadedRun *r) {
     }
     fprintf(f, "  (terms never kept are not listed)\nensemble law (terms with inclusion >= %g, refit):\n",
             re->opt.inclusion);
-    equation_fprint(f, EQ_TEXT, lib, e->xi, e->mask, 4);
+    equation_fprint(f, EQ_TEXT, lib, e->xi, e->mask, EQ_DIGITS);
 }
 
 int run_ensemble_bands(LoadedRun *r, const double *y0, const double *t_out, int n_out, double scale,

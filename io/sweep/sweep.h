@@ -150,7 +150,7 @@ typedef struct {
 
 /* Inclusion of one term in one equation across members (io/sweep/inclusion.c). */
 typedef struct {
-    char *lhs, *term;           /* "dz1/dt", "z1 z2" */
+    char *lhs, *term;           /* "dz1/dt", "z1*z2" */
     int offered;                /* members with equations whose library has the term */
     int kept;                   /* ... whose law keeps it (nonzero active coefficient) */
     double ens_sum;             /* sum of their ensembles' inclusion probabilities */
