@@ -90,7 +90,8 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
     ParamSet ps;
     TrainResult res;
     rc = train_run(&o, &td, &m, &ps, &res, &st);
-    /* training is over: Ctrl-C now stops at once (export and forecast write atomically) */
+    /* training is over: Ctrl-C now stops at once, removing the temporaries of the files being written
+     * (the handler of atomic_cleanup_on_signals) */
     sigaction(SIGINT, &old_int, NULL);
     sigaction(SIGTERM, &old_term, NULL);
     if (rc) {

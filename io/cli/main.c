@@ -5,6 +5,7 @@
 #include <string.h>
 
 #include "io/cli/cli.h"
+#include "io/fs/atomic_file.h"
 
 static int cmd_help(int argc, char **argv);
 
@@ -73,6 +74,8 @@ int main(int argc, char **argv) {
         printf("framelaw %s\n", FRAMELAW_VERSION);
         return 0;
     }
+    /* an interrupted command leaves no temporary file behind (io/fs/atomic_file.h) */
+    atomic_cleanup_on_signals();
     for (int i = 0; i < N_COMMANDS; i++)
         if (!strcmp(argv[1], commands[i].name)) return commands[i].run(argc - 1, argv + 1);
     return cli_error(2, "unknown command '%s' (framelaw --help lists the commands)", argv[1]);

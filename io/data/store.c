@@ -397,6 +397,13 @@ int store_open_for(const FrameScan *scan, const FrameSettings *s, int force_rebu
     memset(info, 0, sizeof *info);
     double t0 = clock_seconds();
     frames_store_path(scan, s, info->path, sizeof info->path);
+    { /* the temporaries of builds that were killed (io/fs/atomic_file.h) */
+        char dir[sizeof info->path];
+        snprintf(dir, sizeof dir, "%s", info->path);
+        char *slash = strrchr(dir, '/');
+        if (slash) *slash = 0;
+        atomic_remove_stale(slash ? (dir[0] ? dir : "/") : ".", slash ? slash + 1 : dir);
+    }
     uint64_t digest = frames_digest(scan, s);
     if (force_rebuild) {
         snprintf(info->reason, sizeof info->reason, "rebuild requested");

@@ -1,12 +1,16 @@
 /* io/run/runlock.c: one process per run folder (see runlock.h). */
 #include "io/run/runlock.h"
 
+#include <dirent.h>
 #include <errno.h>
 #include <fcntl.h>
 #include <stdio.h>
 #include <string.h>
 #include <sys/file.h>
+#include <sys/stat.h>
 #include <unistd.h>
+
+#include "io/fs/atomic_file.h"
 
 /* The holder's line, "pid PID host HOST command COMMAND", as a readable phrase. */
 static void holder_text(int fd, char *out, size_t n) {
@@ -59,6 +63,21 @@ int run_lock(RunLock *l, const char *run_dir, const char *command, Status *st) {
         return status_set(st, ST_RUNTIME, "%s: cannot write: %s", path, strerror(e));
     }
     l->fd = fd;
+    /* no one else writes here now: the temporaries of interrupted writers can go */
+    atomic_remove_stale(run_dir, NULL);
+    DIR *d = opendir(run_dir);
+    if (d) {
+        struct dirent *e;
+        while ((e = readdir(d))) {
+            if (e->d_name[0] == '.' && (!e->d_name[1] || (e->d_name[1] == '.' && !e->d_name[2]))) continue;
+            char sub[4400];
+            struct stat sb;
+            if (snprintf(sub, sizeof sub, "%s/%s", run_dir, e->d_name) < (int)sizeof sub && lstat(sub, &sb) == 0 &&
+                S_ISDIR(sb.st_mode))
+                atomic_remove_stale(sub, NULL);
+        }
+        closedir(d);
+    }
     return 0;
 }
 

@@ -5,7 +5,8 @@
  * when the process ends, however it ends: a kill -9 leaves no stale lock). A second command on the
  * same folder gets ST_INPUT naming the holder's pid, host and command, which the holder writes
  * into the lock file. The lock file stays in the folder (removing it would race with a process
- * about to lock it). */
+ * about to lock it). Once the lock is held, the temporaries of interrupted writers in the folder
+ * and its sub-folders are removed (atomic_remove_stale), since no one else writes there now. */
 #ifndef IO_RUNLOCK_H
 #define IO_RUNLOCK_H
 

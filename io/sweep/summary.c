@@ -427,6 +427,7 @@ int sweep_write_summary(const Sweep *sw, SweepSummary *sum_in, Status *st) {
     int fd = -1;
     int rc = fs_make_dirs(sw->output, st);
     if (!rc) rc = sweep_lock(sw->output, ".summary.lock", &fd, st);
+    if (!rc) atomic_remove_stale(sw->output, NULL); /* a killed writer's summary temporaries */
     if (!rc) rc = sweep_summary(sw, sum, st);
     if (rc) { sweep_unlock(fd); return rc; }
     char *csv = sweep_summary_csv(sw, sum), *html = sweep_summary_html(sw, sum), *inc = sweep_inclusion_csv(&sum->inclusion);
