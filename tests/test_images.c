@@ -184,6 +184,25 @@ static void test_truncated(void **state) {
     }
 }
 
+/* A JPEG whose Huffman table declares more than 256 codes (ITU-T T.81 | ISO/IEC 10918-1, 1992,
+ * B.2.4.2: the 16 counts sum to the number of 8-bit values) is refused before stb_image, which
+ * indexes past its table for it (found by tests/fuzz/fuzz_stb.c; the input is kept in
+ * tests/fuzz/regressions/). The good JPEGs above pass the same check. */
+static void test_jpeg_huffman_table(void **state) {
+    (void)state;
+    const char *path = "tests/fuzz/regressions/huffman-257-codes.jpg";
+    float *img = NULL;
+    int w, h;
+    Status st;
+    assert_int_equal(image_load_gray(path, GRAY_BT601, &img, &w, &h, &st), ST_INPUT);
+    assert_null(img);
+    assert_non_null(strstr(st.msg, path));
+    assert_non_null(strstr(st.msg, "Huffman table of"));
+    /* reading the header alone meets the same table (stb_image parses it before the frame header) */
+    assert_int_equal(image_probe(path, &w, &h, &st), ST_INPUT);
+    assert_non_null(strstr(st.msg, "Huffman table of"));
+}
+
 /* Image names by extension (common practice). */
 static void test_names(void **state) {
     (void)state;
@@ -218,6 +237,7 @@ int main(void) {
         cmocka_unit_test(test_gray_weights),    cmocka_unit_test(test_crop),
         cmocka_unit_test(test_resize_area),     cmocka_unit_test(test_quantise),
         cmocka_unit_test(test_truncated),       cmocka_unit_test(test_names),
+        cmocka_unit_test(test_jpeg_huffman_table),
         cmocka_unit_test(test_png_write),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

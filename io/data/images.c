@@ -36,19 +36,77 @@ int image_is_image_name(const char *name) {
     return 0;
 }
 
+static int check_truncation(const char *path, const unsigned char *b, long n, Status *st);
+static long jpeg_start(const unsigned char *b, long n);
+static int check_jpeg_huffman(const char *path, const unsigned char *b, long n, long i, Status *st);
+
 int image_probe(const char *path, int *w, int *h, Status *st) {
-    int c;
-    if (!stbi_info(path, w, h, &c))
-        return status_set(st, ST_INPUT, "%s: cannot read image header (%s)", path, stbi_failure_reason());
-    return 0;
+    /* the file whole, a regular one, through the same checks as a decode: stb_image's header
+     * parsing trips over the same faults (a JPEG's Huffman tables come before its frame header) */
+    char *text;
+    size_t len;
+    if (fs_read_file(path, (size_t)INT_MAX, &text, &len, st)) return st->code;
+    int c, rc = 0;
+    long j = jpeg_start((const unsigned char *)text, (long)len); /* no end-of-image needed for the header */
+    if (j ? check_jpeg_huffman(path, (const unsigned char *)text, (long)len, j, st)
+          : check_truncation(path, (const unsigned char *)text, (long)len, st))
+        rc = st->code;
+    else if (!stbi_info_from_memory((const unsigned char *)text, (int)len, w, h, &c))
+        rc = status_set(st, ST_INPUT, "%s: cannot read image header (%s)", path, stbi_failure_reason());
+    free(text);
+    return rc;
 }
 
 /* Truncation checks that the decoder does not make (see images.h). */
+/* A JPEG's Huffman tables (DHT segments, anywhere among the markers, also between the scans of a
+ * progressive file): each holds at most 256 codes (ITU-T T.81 | ISO/IEC 10918-1, 1992, B.2.4.2:
+ * the 16 counts L1..L16 sum to the number of values, which are 8-bit). Debian's stb_image 2.27
+ * indexes past its 257-entry size table for more (found by tests/fuzz/fuzz_stb.c). */
+static int check_jpeg_huffman(const char *path, const unsigned char *b, long n, long i, Status *st) {
+    while (i + 4 <= n) {
+        if (b[i] != 0xFF) { /* entropy-coded data after a scan header: on to the next marker */
+            i++;
+            continue;
+        }
+        unsigned m = b[i + 1];
+        if (m == 0xFF || m == 0x00 || (m >= 0xD0 && m <= 0xD8) || m == 0x01) { /* fill, stuffing, RSTn, SOI, TEM */
+            i += m == 0xFF ? 1 : 2;
+            continue;
+        }
+        if (m == 0xD9) return 0; /* end of image */
+        long len = (long)b[i + 2] << 8 | b[i + 3];
+        if (len < 2) return 0; /* stb_image reports it */
+        if (m == 0xC4) { /* as stb_image reads it: table after table while the length lasts, 0 past the end */
+            for (long p = i + 4, end = i + 2 + len; p < end;) {
+                int count = 0;
+                for (int k = 1; k <= 16; k++) count += p + k < n ? b[p + k] : 0;
+                if (count > 256)
+                    return status_set(st, ST_INPUT, "%s: corrupt JPEG (a Huffman table of %d codes, at most 256)",
+                                      path, count);
+                p += 17 + count;
+            }
+        }
+        if (i + 2 + len > n) return 0; /* a segment past the end: stb_image reports it */
+        i += 2 + len;
+    }
+    return 0;
+}
+
+/* Where a JPEG's segments begin (after its start-of-image marker, FF D8, which stb_image takes after
+ * any number of FF fill bytes), or 0 when b is not a JPEG to stb_image. */
+static long jpeg_start(const unsigned char *b, long n) {
+    if (n < 2 || b[0] != 0xFF) return 0;
+    long i = 1;
+    while (i < n && b[i] == 0xFF) i++;
+    return i < n && b[i] == 0xD8 ? i + 1 : 0;
+}
+
 static int check_truncation(const char *path, const unsigned char *b, long n, Status *st) {
-    if (n >= 2 && b[0] == 0xFF && b[1] == 0xD8) {   /* JPEG start-of-image */
+    long j = jpeg_start(b, n);
+    if (j) {   /* JPEG */
         long from = n > 1024 ? n - 1024 : 0;
         for (long i = n - 2; i >= from; i--)
-            if (b[i] == 0xFF && b[i + 1] == 0xD9) return 0;
+            if (b[i] == 0xFF && b[i + 1] == 0xD9) return check_jpeg_huffman(path, b, n, j, st);
         return status_set(st, ST_INPUT, "%s: truncated JPEG (no end-of-image marker)", path);
     }
     if (n >= 6 && b[0] == 'B' && b[1] == 'M') {
@@ -132,6 +190,10 @@ int image_load_gray(const char *path, GrayStd g, float **out, int *w, int *h, St
     if (n == 0) {
         free(buf);
         return status_set(st, ST_INPUT, "%s: empty file", path);
+    }
+    if (n > INT_MAX) { /* stb_image takes the length as an int */
+        free(buf);
+        return status_set(st, ST_INPUT, "%s: %ld bytes, more than the 2 GiB an image may have", path, n);
     }
     if (check_truncation(path, buf, n, st)) {
         free(buf);
