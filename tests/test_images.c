@@ -203,6 +203,55 @@ static void test_jpeg_huffman_table(void **state) {
     assert_non_null(strstr(st.msg, "Huffman table of"));
 }
 
+/* Binary PNM headers and samples (Netpbm's pgm(5) and ppm(5): width, height and maxval as ASCII
+ * decimals, maxval 1..65535, then one whitespace byte and the samples, each at most maxval). A
+ * number too large is named as written (it was cut at 2^24 and misread), a sample above maxval is
+ * refused rather than clamped. */
+static void test_pnm_limits(void **state) {
+    (void)state;
+    char dir[256], path[320];
+    assert_non_null(test_tmpdir(dir, sizeof dir));
+    snprintf(path, sizeof path, "%s/frame.pgm", dir);
+    struct {
+        const char *bytes;
+        size_t n;
+        const char *what;
+    } cases[] = {
+        {"P5\n21474836480 1\n255\n\x10", 23, "PNM width 21474836480 is outside 1..16777215"},
+        {"P5\n1 16777216\n255\n\x10", 20, "PNM height 16777216 is outside 1..16777215"},
+        {"P5\n1 1\n65536\n\x10\x10", 15, "PNM maxval 65536 is outside 1..65535"},
+        {"P5\n0 1\n255\n\x10", 12, "PNM width 0 is outside"},
+        {"P5\n2x1\n255\n\x10\x10", 14, "byte 0x78 after the width"},
+        {"P5\n2 1\n100\n\x32\xc8", 14, "PNM sample 1 (row 0, column 1) is 200, above the maxval 100"},
+        {"P6\n1 1\n1000\n\x00\x01\x03\xe9\x00\x00", 19, "PNM sample 1 (row 0, column 0) is 1001, above the maxval 1000"},
+    };
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        FILE *f = fopen(path, "wb");
+        assert_non_null(f);
+        assert_int_equal(fwrite(cases[i].bytes, 1, cases[i].n, f), cases[i].n);
+        fclose(f);
+        float *img = NULL;
+        int w, h;
+        Status st;
+        assert_int_equal(image_load_gray(path, GRAY_BT601, &img, &w, &h, &st), ST_INPUT);
+        assert_null(img);
+        if (!strstr(st.msg, path) || !strstr(st.msg, cases[i].what))
+            fail_msg("case %zu: \"%s\" should name the file and say \"%s\"", i, st.msg, cases[i].what);
+    }
+    /* at the limits: maxval 100 with a sample of 100 is white */
+    FILE *f = fopen(path, "wb");
+    fwrite("P5\n2 1\n100\n\x00\x64", 1, 14, f);
+    fclose(f);
+    float *img = NULL;
+    int w, h;
+    Status st;
+    assert_int_equal(image_load_gray(path, GRAY_BT601, &img, &w, &h, &st), 0);
+    assert_int_equal(w, 2);
+    assert_true(img[0] == 0.0f && img[1] == 1.0f);
+    free(img);
+    test_rmtree(dir);
+}
+
 /* Image names by extension (common practice). */
 static void test_names(void **state) {
     (void)state;
@@ -237,7 +286,7 @@ int main(void) {
         cmocka_unit_test(test_gray_weights),    cmocka_unit_test(test_crop),
         cmocka_unit_test(test_resize_area),     cmocka_unit_test(test_quantise),
         cmocka_unit_test(test_truncated),       cmocka_unit_test(test_names),
-        cmocka_unit_test(test_jpeg_huffman_table),
+        cmocka_unit_test(test_jpeg_huffman_table), cmocka_unit_test(test_pnm_limits),
         cmocka_unit_test(test_png_write),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

@@ -138,18 +138,32 @@ static int load_pnm(const char *path, const unsigned char *b, long n, GrayStd g,
             }
             break;
         }
+        static const char *const what[3] = {"width", "height", "maxval"};
+        static const long most[3] = {(1L << 24) - 1, (1L << 24) - 1, 65535};
         if (pos >= n || b[pos] < '0' || b[pos] > '9') {
-            status_set(st, ST_INPUT, "%s: malformed PNM header", path);
+            status_set(st, ST_INPUT, "%s: malformed PNM header (no %s)", path, what[k]);
             return 1;
         }
+        /* every digit is read: a number too large is named as written, not cut short */
+        long start = pos;
         val[k] = 0;
-        while (pos < n && b[pos] >= '0' && b[pos] <= '9' && val[k] < (1L << 24)) val[k] = val[k] * 10 + (b[pos++] - '0');
+        while (pos < n && b[pos] >= '0' && b[pos] <= '9') {
+            if (val[k] <= most[k]) val[k] = val[k] * 10 + (b[pos] - '0');
+            pos++;
+        }
+        if (val[k] < 1 || val[k] > most[k]) {
+            status_set(st, ST_INPUT, "%s: PNM %s %.*s%s is outside 1..%ld", path, what[k],
+                       pos - start > 40 ? 40 : (int)(pos - start), (const char *)b + start, pos - start > 40 ? "..." : "",
+                       most[k]);
+            return 1;
+        }
+        if (pos < n && !(b[pos] == ' ' || b[pos] == '\t' || b[pos] == '\n' || b[pos] == '\r' || b[pos] == '\v' ||
+                         b[pos] == '\f' || (k < 2 && b[pos] == '#'))) {
+            status_set(st, ST_INPUT, "%s: malformed PNM header (byte 0x%02x after the %s)", path, b[pos], what[k]);
+            return 1;
+        }
     }
     pos++;   /* the single whitespace byte after maxval */
-    if (val[0] <= 0 || val[1] <= 0 || val[0] >= (1L << 24) || val[1] >= (1L << 24) || val[2] <= 0 || val[2] > 65535) {
-        status_set(st, ST_INPUT, "%s: PNM size %ldx%ld or maxval %ld out of range", path, val[0], val[1], val[2]);
-        return 1;
-    }
     int bps = val[2] > 255 ? 2 : 1;
     long np = val[0] * val[1], need = np * c * bps;
     if (pos > n || n - pos < need) {
@@ -170,6 +184,12 @@ static int load_pnm(const char *path, const unsigned char *b, long n, GrayStd g,
         for (int k = 0; k < c; k++) {
             const unsigned char *q = d + (i * c + k) * bps;
             s[k] = bps == 2 ? (double)(q[0] << 8 | q[1]) : (double)q[0];
+            if (s[k] > (double)val[2]) { /* not a PNM sample: refused rather than clamped */
+                free(f);
+                status_set(st, ST_INPUT, "%s: PNM sample %ld (row %ld, column %ld) is %.0f, above the maxval %ld", path,
+                           i * c + k, i / val[0], i % val[0], s[k], val[2]);
+                return 1;
+            }
         }
         double v = c == 3 ? wt[0] * s[0] + wt[1] * s[1] + wt[2] * s[2] : s[0];
         f[i] = (float)(v * unit);
