@@ -201,6 +201,12 @@ static void test_jpeg_huffman_table(void **state) {
     /* reading the header alone meets the same table (stb_image parses it before the frame header) */
     assert_int_equal(image_probe(path, &w, &h, &st), ST_INPUT);
     assert_non_null(strstr(st.msg, "Huffman table of"));
+    /* 340 bytes declaring 2312 x 63737 pixels (found by fuzz_stb: seconds and a gigabyte to decode)
+     * are refused from the header, as is a PNM header past the same limit */
+    path = "tests/fuzz/regressions/jpeg-147-megapixels.jpg";
+    assert_int_equal(image_load_gray(path, GRAY_BT601, &img, &w, &h, &st), ST_INPUT);
+    assert_null(img);
+    assert_non_null(strstr(st.msg, "image of 2312 x 63737 pixels, more than the 33554432 a frame may have"));
 }
 
 /* Binary PNM headers and samples (Netpbm's pgm(5) and ppm(5): width, height and maxval as ASCII
@@ -221,6 +227,7 @@ static void test_pnm_limits(void **state) {
         {"P5\n1 16777216\n255\n\x10", 20, "PNM height 16777216 is outside 1..16777215"},
         {"P5\n1 1\n65536\n\x10\x10", 15, "PNM maxval 65536 is outside 1..65535"},
         {"P5\n0 1\n255\n\x10", 12, "PNM width 0 is outside"},
+        {"P5\n8192 4097\n255\n\x10", 19, "image of 8192 x 4097 pixels, more than the 33554432 a frame may have"},
         {"P5\n2x1\n255\n\x10\x10", 14, "byte 0x78 after the width"},
         {"P5\n2 1\n100\n\x32\xc8", 14, "PNM sample 1 (row 0, column 1) is 200, above the maxval 100"},
         {"P6\n1 1\n1000\n\x00\x01\x03\xe9\x00\x00", 19, "PNM sample 1 (row 0, column 0) is 1001, above the maxval 1000"},

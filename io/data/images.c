@@ -166,6 +166,11 @@ static int load_pnm(const char *path, const unsigned char *b, long n, GrayStd g,
     pos++;   /* the single whitespace byte after maxval */
     int bps = val[2] > 255 ? 2 : 1;
     long np = val[0] * val[1], need = np * c * bps;
+    if (np > IMAGE_MAX_PIXELS) {
+        status_set(st, ST_INPUT, "%s: image of %ld x %ld pixels, more than the %ld a frame may have", path, val[0],
+                   val[1], (long)IMAGE_MAX_PIXELS);
+        return 1;
+    }
     if (pos > n || n - pos < need) {
         status_set(st, ST_INPUT, "%s: truncated PNM (%ld data bytes, %ldx%ld needs %ld)", path,
                    pos > n ? 0 : n - pos, val[0], val[1], need);
@@ -224,6 +229,12 @@ int image_load_gray(const char *path, GrayStd g, float **out, int *w, int *h, St
         return st->code;
     }
     int c, is16 = stbi_is_16_bit_from_memory(buf, (int)n);
+    /* the size from the header first: a file of a few hundred bytes may declare billions of pixels */
+    if (stbi_info_from_memory(buf, (int)n, w, h, &c) && (long)*w * *h > IMAGE_MAX_PIXELS) {
+        free(buf);
+        return status_set(st, ST_INPUT, "%s: image of %d x %d pixels, more than the %ld a frame may have", path, *w,
+                          *h, (long)IMAGE_MAX_PIXELS);
+    }
     void *px = is16 ? (void *)stbi_load_16_from_memory(buf, (int)n, w, h, &c, 0)
                     : (void *)stbi_load_from_memory(buf, (int)n, w, h, &c, 0);
     free(buf);
