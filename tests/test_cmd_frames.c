@@ -137,7 +137,7 @@ static void test_bad_inputs(void **state) {
     char cmd[1400];
     snprintf(cmd, sizeof cmd, "cp tests/reference/images/trunc_gray8.png '%s/frame3.png'", p);
     assert_int_equal(system(cmd), 0);
-    expect_bad("frames trunc", "trunc/frame3.png: cannot decode image");
+    expect_bad("frames trunc", "trunc/frame3.png: truncated or corrupt PNG");
 
     expect_bad("frames trunc --crop 4,2,5,4", "crop 4,2,5,4 lies outside the 8x6 frame of");
     expect_bad("frames trunc --fps 0", "--fps '0': the frame rate must be a positive number");

@@ -188,7 +188,7 @@ static void test_truncated(void **state) {
  * B.2.4.2: the 16 counts sum to the number of 8-bit values) is refused before stb_image, which
  * indexes past its table for it (found by tests/fuzz/fuzz_stb.c; the input is kept in
  * tests/fuzz/regressions/). The good JPEGs above pass the same check. */
-static void test_jpeg_huffman_table(void **state) {
+static void test_fuzz_regressions(void **state) {
     (void)state;
     const char *path = "tests/fuzz/regressions/huffman-257-codes.jpg";
     float *img = NULL;
@@ -207,6 +207,12 @@ static void test_jpeg_huffman_table(void **state) {
     assert_int_equal(image_load_gray(path, GRAY_BT601, &img, &w, &h, &st), ST_INPUT);
     assert_null(img);
     assert_non_null(strstr(st.msg, "image of 2312 x 63737 pixels, more than the 33554432 a frame may have"));
+    /* a PNG of 123 bytes whose IDAT chunk declares 2 GB, which stb_image allocated before reading
+     * (chunk layout: "PNG (Portable Network Graphics) Specification", W3C, 2003, 5.3) */
+    path = "tests/fuzz/regressions/png-idat-2gb.png";
+    assert_int_equal(image_load_gray(path, GRAY_BT601, &img, &w, &h, &st), ST_INPUT);
+    assert_null(img);
+    assert_non_null(strstr(st.msg, "truncated or corrupt PNG (chunk IDAT of 2063597633 bytes, 77 left in the file)"));
 }
 
 /* Binary PNM headers and samples (Netpbm's pgm(5) and ppm(5): width, height and maxval as ASCII
@@ -293,7 +299,7 @@ int main(void) {
         cmocka_unit_test(test_gray_weights),    cmocka_unit_test(test_crop),
         cmocka_unit_test(test_resize_area),     cmocka_unit_test(test_quantise),
         cmocka_unit_test(test_truncated),       cmocka_unit_test(test_names),
-        cmocka_unit_test(test_jpeg_huffman_table), cmocka_unit_test(test_pnm_limits),
+        cmocka_unit_test(test_fuzz_regressions), cmocka_unit_test(test_pnm_limits),
         cmocka_unit_test(test_png_write),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

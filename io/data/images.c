@@ -109,6 +109,31 @@ static int check_truncation(const char *path, const unsigned char *b, long n, St
             if (b[i] == 0xFF && b[i + 1] == 0xD9) return check_jpeg_huffman(path, b, n, j, st);
         return status_set(st, ST_INPUT, "%s: truncated JPEG (no end-of-image marker)", path);
     }
+    static const unsigned char png_sig[8] = {0x89, 'P', 'N', 'G', '\r', '\n', 0x1A, '\n'};
+    if (n >= 8 && !memcmp(b, png_sig, 8)) {
+        /* every chunk within the file: stb_image allocates an IDAT chunk's declared length before it
+         * reads it (a 123-byte file made it ask for 2 GB; found by tests/fuzz/fuzz_stb.c). Chunks:
+         * u32 length (big-endian), 4-byte type, data, u32 CRC ("PNG (Portable Network Graphics)
+         * Specification", W3C Recommendation, 2003, 5.3). */
+        long off = 8;
+        while (off + 12 <= n) {
+            unsigned long len = (unsigned long)b[off] << 24 | (unsigned long)b[off + 1] << 16 |
+                                (unsigned long)b[off + 2] << 8 | b[off + 3];
+            if (len > (unsigned long)(n - off - 12)) {
+                char type[5];
+                for (int k = 0; k < 4; k++) {
+                    unsigned char t = b[off + 4 + k];
+                    type[k] = (t >= 'A' && t <= 'Z') || (t >= 'a' && t <= 'z') ? (char)t : '?';
+                }
+                type[4] = 0;
+                return status_set(st, ST_INPUT, "%s: truncated or corrupt PNG (chunk %s of %lu bytes, %ld left in the file)",
+                                  path, type, len, n - off - 12);
+            }
+            int iend = !memcmp(b + off + 4, "IEND", 4);
+            off += 12 + (long)len;
+            if (iend) break;
+        }
+    }
     if (n >= 6 && b[0] == 'B' && b[1] == 'M') {
         unsigned long declared = b[2] | (unsigned long)b[3] << 8 | (unsigned long)b[4] << 16 |
                                  (unsigned long)b[5] << 24;
