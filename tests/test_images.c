@@ -213,6 +213,11 @@ static void test_fuzz_regressions(void **state) {
     assert_int_equal(image_load_gray(path, GRAY_BT601, &img, &w, &h, &st), ST_INPUT);
     assert_null(img);
     assert_non_null(strstr(st.msg, "truncated or corrupt PNG (chunk IDAT of 2063597633 bytes, 77 left in the file)"));
+    /* a BMP of height 0, which stb_image returns as an image */
+    path = "tests/fuzz/regressions/bmp-height-0.bmp";
+    assert_int_equal(image_load_gray(path, GRAY_BT601, &img, &w, &h, &st), ST_INPUT);
+    assert_null(img);
+    assert_non_null(strstr(st.msg, "pixels: empty"));
 }
 
 /* Binary PNM headers and samples (Netpbm's pgm(5) and ppm(5): width, height and maxval as ASCII

@@ -53,6 +53,8 @@ int image_probe(const char *path, int *w, int *h, Status *st) {
         rc = st->code;
     else if (!stbi_info_from_memory((const unsigned char *)text, (int)len, w, h, &c))
         rc = status_set(st, ST_INPUT, "%s: cannot read image header (%s)", path, stbi_failure_reason());
+    else if (*w < 1 || *h < 1)
+        rc = status_set(st, ST_INPUT, "%s: image of %d x %d pixels: empty", path, *w, *h);
     free(text);
     return rc;
 }
@@ -268,6 +270,10 @@ int image_load_gray(const char *path, GrayStd g, float **out, int *w, int *h, St
         return status_set(st, ST_INPUT, "%s: cannot decode image (%s)", path, why ? why : "unknown error");
     }
     long np = (long)*w * *h;
+    if (*w < 1 || *h < 1) { /* stb_image gives a BMP of height 0 as an image (found by fuzz_stb) */
+        stbi_image_free(px);
+        return status_set(st, ST_INPUT, "%s: image of %d x %d pixels: empty", path, *w, *h);
+    }
     float *f = malloc(sizeof(float) * (size_t)np);   /* (h, w) */
     if (!f) {
         stbi_image_free(px);
