@@ -151,7 +151,7 @@ fuzz-bin:
 	@$(MAKE) --no-print-directory BUILD=build-fuzz CC=clang OPT="$(FUZZ_FLAGS) -fsanitize=fuzzer-no-link" build-fuzz/libframelaw.a
 	@$(MAKE) --no-print-directory $(FUZZ_TARGETS:%=build-fuzz/fuzz/fuzz_%)
 
-build-fuzz/fuzz/fuzz_%: tests/fuzz/fuzz_%.c tests/fuzz/fuzz.h build-fuzz/libframelaw.a
+build-fuzz/fuzz/fuzz_%: tests/fuzz/fuzz_%.c $(wildcard tests/fuzz/*.h) build-fuzz/libframelaw.a
 	@mkdir -p $(dir $@)
 	clang $(CSTD) $(WARN) -I. $(FUZZ_FLAGS) -fsanitize=fuzzer -o $@ $< build-fuzz/libframelaw.a $(LDLIBS)
 
