@@ -29,7 +29,7 @@ LIB_OBJ  := $(LIB_SRC:%.c=$(BUILD)/%.o)
 TEST_BIN := $(TEST_SRC:tests/%.c=$(BUILD)/tests/%)
 BENCH_BIN:= $(BENCH_SRC:tests/%.c=$(BUILD)/tests/%)
 
-.PHONY: all deps test test-bin sanitize bench demo clean check-deps check-slurm check-discovery check-battery check-battery-ci install uninstall
+.PHONY: all deps test test-bin sanitize bench demo clean check-deps check-slurm check-discovery check-battery check-battery-ci install uninstall fuzz fuzz-bin fuzz-seeds
 all: framelaw
 
 framelaw: $(BUILD)/framelaw
@@ -147,5 +147,41 @@ uninstall:
 	rm -f $(DESTDIR)$(PREFIX)/bin/framelaw
 	rm -rf $(DESTDIR)$(PREFIX)/share/doc/framelaw
 
+# Fuzzing (docs/reliability.md): every tests/fuzz/fuzz_*.c is a libFuzzer target, built with Debian's
+# clang, AddressSanitizer and UBSan against a library compiled with -DFRAMELAW_FUZZ (checkpoint and
+# frame store CRCs skipped) into build-fuzz/. `make fuzz` runs each target for FUZZ_SECONDS from its
+# seed corpus tests/fuzz/corpus/<target>/ (new inputs go to build-fuzz/corpus/<target>/, a crash to
+# build-fuzz/crashes/) and fails if any target finds one. Not part of make test; CI runs the short form.
+FUZZ_SECONDS ?= 60
+FUZZ_TARGETS ?= $(patsubst tests/fuzz/fuzz_%.c,%,$(wildcard tests/fuzz/fuzz_*.c))
+FUZZ_FLAGS := -O1 -g -fsanitize=address,undefined -fno-sanitize-recover=undefined -fno-omit-frame-pointer -DFRAMELAW_FUZZ
+DEB_FUZZ := clang
+
+fuzz-bin:
+	@$(MAKE) --no-print-directory deps DEB_PKGS="$(DEB_BUILD) $(DEB_FUZZ)"
+	@$(MAKE) --no-print-directory BUILD=build-fuzz CC=clang OPT="$(FUZZ_FLAGS) -fsanitize=fuzzer-no-link" build-fuzz/libframelaw.a
+	@$(MAKE) --no-print-directory $(FUZZ_TARGETS:%=build-fuzz/fuzz/fuzz_%)
+
+build-fuzz/fuzz/fuzz_%: tests/fuzz/fuzz_%.c $(wildcard tests/fuzz/*.h) build-fuzz/libframelaw.a
+	@mkdir -p $(dir $@)
+	clang $(CSTD) $(WARN) -I. $(FUZZ_FLAGS) -fsanitize=fuzzer -o $@ $< build-fuzz/libframelaw.a $(LDLIBS)
+
+# The binary seeds of our own formats (checkpoint, frame store), written by the real writers.
+fuzz-seeds: $(BUILD)/libframelaw.a
+	@mkdir -p $(BUILD)/tests tests/fuzz/corpus/checkpoint tests/fuzz/corpus/store
+	$(CC) $(CFLAGS) -o $(BUILD)/tests/fuzz_make_seeds tests/fuzz/make_seeds.c $(BUILD)/libframelaw.a $(LDLIBS)
+	$(BUILD)/tests/fuzz_make_seeds tests/fuzz/corpus
+
+fuzz: fuzz-bin
+	@fail=0; mkdir -p build-fuzz/crashes; for t in $(FUZZ_TARGETS); do \
+	  mkdir -p build-fuzz/corpus/$$t; echo "== fuzz_$$t for $(FUZZ_SECONDS) s"; \
+	  UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 build-fuzz/fuzz/fuzz_$$t -max_total_time=$(FUZZ_SECONDS) \
+	    -timeout=10 -rss_limit_mb=2048 -malloc_limit_mb=1024 -max_len=65536 -print_final_stats=1 \
+	    -artifact_prefix=build-fuzz/crashes/$$t- build-fuzz/corpus/$$t tests/fuzz/corpus/$$t \
+	    > build-fuzz/fuzz_$$t.log 2>&1 || { fail=1; echo "fuzz_$$t: FAILED (build-fuzz/fuzz_$$t.log)"; tail -40 build-fuzz/fuzz_$$t.log; }; \
+	  grep -E "^stat::number_of_executed_units|^stat::new_units_added" build-fuzz/fuzz_$$t.log | tr '\n' ' '; echo; \
+	done; \
+	if [ $$fail = 0 ]; then echo "make fuzz: no target crashed"; else echo "make fuzz: FAILED"; fi; exit $$fail
+
 clean:
-	rm -rf build build-san framelaw
+	rm -rf build build-san build-fuzz framelaw

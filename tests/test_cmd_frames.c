@@ -137,7 +137,10 @@ static void test_bad_inputs(void **state) {
     char cmd[1400];
     snprintf(cmd, sizeof cmd, "cp tests/reference/images/trunc_gray8.png '%s/frame3.png'", p);
     assert_int_equal(system(cmd), 0);
-    expect_bad("frames trunc", "trunc/frame3.png: cannot decode image");
+    expect_bad("frames trunc", "trunc/frame3.png: truncated or corrupt PNG");
+    /* raw bytes from the input (an escape sequence, a byte that is not UTF-8) are shown as \xNN, never
+     * sent to the terminal: the message stays one printable line (common practice) */
+    expect_bad("frames 'no\x1b[31mred\xff'", "no\\x1b[31mred\\xff: No such file or directory");
 
     expect_bad("frames trunc --crop 4,2,5,4", "crop 4,2,5,4 lies outside the 8x6 frame of");
     expect_bad("frames trunc --fps 0", "--fps '0': the frame rate must be a positive number");

@@ -201,6 +201,16 @@ static void test_bad_usage(void **state) {
     assert_int_equal(run_cmd("train", cfg, "--quiet", NULL), 2); /* the run folder already holds a run */
     assert_int_equal(run_cmd("resume", run, "--set", "optimizer.lr=0.5"), 2); /* not a resume-safe key */
     assert_int_equal(run_cmd("train", cfg, "--set", "model.order=7"), 2);
+    /* a model wider than the machine's memory is bad input (exit 2) before anything is allocated, not
+     * an out-of-memory exit 1 later; the message names the key */
+    snprintf(run, sizeof run, "%s/wide", fx->dir);
+    snprintf(cfg, sizeof cfg, "%s/wide.json", fx->dir);
+    write_config(cfg, fx->data, run, 12);
+    char args[1400], out[8192];
+    snprintf(args, sizeof args, "train '%s' --quiet --set 'model.encoder=[2147483647]'", cfg);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 2);
+    if (!strstr(out, "the run would need about") || !strstr(out, "or the model (model.encoder)"))
+        fail_msg("output: %s", out);
     assert_int_equal(run_cmd("train", "--help", NULL, NULL), 0);
     assert_int_equal(run_cmd("resume", "--help", NULL, NULL), 0);
 }

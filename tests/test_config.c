@@ -272,6 +272,8 @@ static void test_set(void **state) {
         {"ensemble.inclusion=1.5", "--set: ensemble.inclusion: must be"},
         {"ensemble.drop_fraction=1", "--set: ensemble.drop_fraction: must be"},
         {"ensemble.block=-1", "--set: ensemble.block: must be"},
+        {"optimizer.lr=5.", "--set optimizer.lr: the value is not JSON (RFC 8259): column 3: a number needs digits"},
+        {"model.encoder=[8,01]", "--set model.encoder: the value is not JSON (RFC 8259): column 5: a number may not"},
     };
     for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
         memcpy(&before, &c, sizeof c);
@@ -428,7 +430,18 @@ static const struct {
     /* malformed JSON, with the line */
     {"{\n  \"data\": {\n    \"fps\": 30\n    \"gray\": \"bt601\"\n  }\n}", "run.json: line 4"},
     {"{\n  \"train\": {\"epochs\": 10,}\n}", "run.json: line 2"},
-    {"{\"a\": 1} extra", "run.json: line 1, column 10: malformed JSON near 'extra'"},
+    {"{\"a\": 1} extra", "run.json: line 1, column 10: malformed JSON: text after the JSON value, near 'extra'"},
+    /* what cJSON accepts but RFC 8259 ("The JavaScript Object Notation (JSON) Data Interchange
+     * Format", IETF, 2017) does not: section 6 (numbers), 7 (strings), and the nesting limit */
+    {"{\"train\": {\"epochs\": 01}}", "run.json: line 1, column 23: malformed JSON: a number may not have a leading zero"},
+    {"{\"optimizer\": {\"lr\": 5.}}", "run.json: line 1, column 24: malformed JSON: a number needs digits after its decimal point"},
+    {"{\"optimizer\": {\"lr\": .5}}", "run.json: line 1, column 22: malformed JSON: not a JSON value"},
+    {"{\"optimizer\": {\"lr\": 1e}}", "run.json: line 1, column 24: malformed JSON: a number needs digits in its exponent"},
+    {"{\"output\": \"a\\u0000b\"}", "run.json: line 1, column 15: malformed JSON: \\u0000 in a string"},
+    {"{\"output\": \"a\tb\"}", "run.json: line 1, column 14: malformed JSON: a control character in a string"},
+    {"{\"output\": \"a\\x41\"}", "run.json: line 1, column 15: malformed JSON: an escape other than"},
+    {"{\"output\": \"\xff\"}", "run.json: line 1, column 13: malformed JSON: a byte that is not UTF-8 in a string"},
+    {"{'output': 'x'}", "run.json: line 1, column 2: malformed JSON: a member name (a string in double quotes) expected"},
     {"   \n  ", "run.json: empty"},
     {"[1, 2]", "run.json: the top level must be a JSON object"},
     {"{\"data\": {\"fps\": 30, \"fps\": 25}}", "run.json: data.fps: duplicate key"},
@@ -471,6 +484,33 @@ static void test_bad_configs(void **state) {
         if (rc != ST_INPUT || !strstr(st.msg, BAD[i].msg))
             fail_msg("bad config %zu %s\n  got %d '%s'\n  expected '%s'", i, BAD[i].json, rc, st.msg, BAD[i].msg);
     }
+}
+
+/* Nesting: cJSON stops at 1000 levels and says only "malformed"; the message says why, and where.
+ * 1000 levels are JSON all the same (and then not a config). */
+static void test_nested_too_deep(void **state) {
+    (void)state;
+    enum { D = 1001 };
+    char *text = malloc(2 * D + 16);
+    assert_non_null(text);
+    size_t k = 0;
+    text[k++] = '{', text[k++] = '"', text[k++] = 'a', text[k++] = '"', text[k++] = ':';
+    for (int i = 0; i < D - 1; i++) text[k++] = '[';
+    for (int i = 0; i < D - 1; i++) text[k++] = ']';
+    text[k++] = '}';
+    text[k] = 0;
+    Config c;
+    config_defaults(&c);
+    Status st;
+    /* 1001 levels in all: the object and 1000 arrays */
+    assert_int_equal(config_parse(&c, text, "run.json", NULL, &st), ST_INPUT);
+    assert_non_null(strstr(st.msg, "run.json: line 1, column 1005: malformed JSON: nested too deep (more than 1000 levels"));
+    /* 1000 levels: parsed, then refused for what it says */
+    memmove(text + 6, text + 7, strlen(text + 7) + 1);
+    memmove(text + 6 + (D - 2), text + 7 + (D - 2), strlen(text + 7 + (D - 2)) + 1);
+    assert_int_equal(config_parse(&c, text, "run.json", NULL, &st), ST_INPUT);
+    assert_null(strstr(st.msg, "malformed"));
+    free(text);
 }
 
 /* The choices the config accepts are the names the modules know. */
@@ -589,6 +629,7 @@ int main(void) {
         cmocka_unit_test(test_digest),
         cmocka_unit_test(test_schedule_follows_epochs),
         cmocka_unit_test(test_bad_configs),
+        cmocka_unit_test(test_nested_too_deep),
         cmocka_unit_test(test_choices_match_modules),
         cmocka_unit_test(test_load),
         cmocka_unit_test(test_docs),

@@ -94,6 +94,41 @@ static void test_scan_single(void **state) {
     rm_rf(dir);
 }
 
+/* A FIFO, a link to a device, or a dangling link named like a frame or a recording would leave a gap
+ * or hang a reader: the scan refuses it, naming it (common practice: read only regular files). */
+static void test_scan_refuses_non_regular(void **state) {
+    (void)state;
+    struct {
+        const char *name; /* in a folder of frames (png) or of recordings (csv) */
+        int kind;         /* 0 FIFO, 1 link to /dev/zero, 2 dangling link */
+        const char *what;
+    } cases[] = {
+        {"frame2.png", 0, "named like a frame but not a regular file"},
+        {"frame2.png", 1, "named like a frame but not a regular file"},
+        {"frame2.png", 2, "cannot read"},
+        {"rec2.csv", 0, "named like a recording but not a regular file"},
+        {"rec2.npy", 1, "named like a recording but not a regular file"},
+        {"rec2.csv", 2, "cannot read"},
+    };
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        char dir[256], path[600];
+        assert_non_null(test_tmpdir(dir, sizeof dir));
+        int numeric = strstr(cases[i].name, ".png") == NULL;
+        if (numeric) write_text(dir, "rec1.csv", "1,2\n3,4\n");
+        else write_png(dir, "frame1.png", 4, 3, 0);
+        snprintf(path, sizeof path, "%s/%s", dir, cases[i].name);
+        if (cases[i].kind == 0) assert_int_equal(mkfifo(path, 0644), 0);
+        else assert_int_equal(symlink(cases[i].kind == 1 ? "/dev/zero" : "/nonexistent/frame", path), 0);
+        FrameScan fs;
+        Status st;
+        assert_int_equal(frames_scan(dir, &fs, &st), ST_INPUT);
+        if (!strstr(st.msg, path) || !strstr(st.msg, cases[i].what))
+            fail_msg("case %zu: \"%s\" should name %s and say \"%s\"", i, st.msg, path, cases[i].what);
+        frames_scan_free(&fs);
+        rm_rf(dir);
+    }
+}
+
 /* Several recordings: one sub-folder each, named and ordered naturally; sub-folders without images
  * ignored (issue 3, "Reading"). */
 static void test_scan_multi(void **state) {
@@ -258,6 +293,7 @@ int main(void) {
         cmocka_unit_test(test_natural_sort), cmocka_unit_test(test_scan_single), cmocka_unit_test(test_scan_multi),
         cmocka_unit_test(test_scan_numeric), cmocka_unit_test(test_scan_empty),  cmocka_unit_test(test_digest),
         cmocka_unit_test(test_settings),     cmocka_unit_test(test_from_config),
+        cmocka_unit_test(test_scan_refuses_non_regular),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -184,6 +184,92 @@ static void test_truncated(void **state) {
     }
 }
 
+/* A JPEG whose Huffman table declares more than 256 codes (ITU-T T.81 | ISO/IEC 10918-1, 1992,
+ * B.2.4.2: the 16 counts sum to the number of 8-bit values) is refused before stb_image, which
+ * indexes past its table for it (found by tests/fuzz/fuzz_stb.c; the input is kept in
+ * tests/fuzz/regressions/). The good JPEGs above pass the same check. */
+static void test_fuzz_regressions(void **state) {
+    (void)state;
+    const char *path = "tests/fuzz/regressions/huffman-257-codes.jpg";
+    float *img = NULL;
+    int w, h;
+    Status st;
+    assert_int_equal(image_load_gray(path, GRAY_BT601, &img, &w, &h, &st), ST_INPUT);
+    assert_null(img);
+    assert_non_null(strstr(st.msg, path));
+    assert_non_null(strstr(st.msg, "Huffman table of"));
+    /* reading the header alone meets the same table (stb_image parses it before the frame header) */
+    assert_int_equal(image_probe(path, &w, &h, &st), ST_INPUT);
+    assert_non_null(strstr(st.msg, "Huffman table of"));
+    /* 340 bytes declaring 2312 x 63737 pixels (found by fuzz_stb: seconds and a gigabyte to decode)
+     * are refused from the header, as is a PNM header past the same limit */
+    path = "tests/fuzz/regressions/jpeg-147-megapixels.jpg";
+    assert_int_equal(image_load_gray(path, GRAY_BT601, &img, &w, &h, &st), ST_INPUT);
+    assert_null(img);
+    assert_non_null(strstr(st.msg, "image of 2312 x 63737 pixels, more than the 33554432 a frame may have"));
+    /* a PNG of 123 bytes whose IDAT chunk declares 2 GB, which stb_image allocated before reading
+     * (chunk layout: "PNG (Portable Network Graphics) Specification", W3C, 2003, 5.3) */
+    path = "tests/fuzz/regressions/png-idat-2gb.png";
+    assert_int_equal(image_load_gray(path, GRAY_BT601, &img, &w, &h, &st), ST_INPUT);
+    assert_null(img);
+    assert_non_null(strstr(st.msg, "truncated or corrupt PNG (chunk IDAT of 2063597633 bytes, 77 left in the file)"));
+    /* a BMP of height 0, which stb_image returns as an image */
+    path = "tests/fuzz/regressions/bmp-height-0.bmp";
+    assert_int_equal(image_load_gray(path, GRAY_BT601, &img, &w, &h, &st), ST_INPUT);
+    assert_null(img);
+    assert_non_null(strstr(st.msg, "pixels: empty"));
+}
+
+/* Binary PNM headers and samples (Netpbm's pgm(5) and ppm(5): width, height and maxval as ASCII
+ * decimals, maxval 1..65535, then one whitespace byte and the samples, each at most maxval). A
+ * number too large is named as written (it was cut at 2^24 and misread), a sample above maxval is
+ * refused rather than clamped. */
+static void test_pnm_limits(void **state) {
+    (void)state;
+    char dir[256], path[320];
+    assert_non_null(test_tmpdir(dir, sizeof dir));
+    snprintf(path, sizeof path, "%s/frame.pgm", dir);
+    struct {
+        const char *bytes;
+        size_t n;
+        const char *what;
+    } cases[] = {
+        {"P5\n21474836480 1\n255\n\x10", 23, "PNM width 21474836480 is outside 1..16777215"},
+        {"P5\n1 16777216\n255\n\x10", 20, "PNM height 16777216 is outside 1..16777215"},
+        {"P5\n1 1\n65536\n\x10\x10", 15, "PNM maxval 65536 is outside 1..65535"},
+        {"P5\n0 1\n255\n\x10", 12, "PNM width 0 is outside"},
+        {"P5\n8192 4097\n255\n\x10", 19, "image of 8192 x 4097 pixels, more than the 33554432 a frame may have"},
+        {"P5\n2x1\n255\n\x10\x10", 14, "byte 0x78 after the width"},
+        {"P5\n2 1\n100\n\x32\xc8", 14, "PNM sample 1 (row 0, column 1) is 200, above the maxval 100"},
+        {"P6\n1 1\n1000\n\x00\x01\x03\xe9\x00\x00", 19, "PNM sample 1 (row 0, column 0) is 1001, above the maxval 1000"},
+    };
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        FILE *f = fopen(path, "wb");
+        assert_non_null(f);
+        assert_int_equal(fwrite(cases[i].bytes, 1, cases[i].n, f), cases[i].n);
+        fclose(f);
+        float *img = NULL;
+        int w, h;
+        Status st;
+        assert_int_equal(image_load_gray(path, GRAY_BT601, &img, &w, &h, &st), ST_INPUT);
+        assert_null(img);
+        if (!strstr(st.msg, path) || !strstr(st.msg, cases[i].what))
+            fail_msg("case %zu: \"%s\" should name the file and say \"%s\"", i, st.msg, cases[i].what);
+    }
+    /* at the limits: maxval 100 with a sample of 100 is white */
+    FILE *f = fopen(path, "wb");
+    fwrite("P5\n2 1\n100\n\x00\x64", 1, 14, f);
+    fclose(f);
+    float *img = NULL;
+    int w, h;
+    Status st;
+    assert_int_equal(image_load_gray(path, GRAY_BT601, &img, &w, &h, &st), 0);
+    assert_int_equal(w, 2);
+    assert_true(img[0] == 0.0f && img[1] == 1.0f);
+    free(img);
+    test_rmtree(dir);
+}
+
 /* Image names by extension (common practice). */
 static void test_names(void **state) {
     (void)state;
@@ -218,6 +304,7 @@ int main(void) {
         cmocka_unit_test(test_gray_weights),    cmocka_unit_test(test_crop),
         cmocka_unit_test(test_resize_area),     cmocka_unit_test(test_quantise),
         cmocka_unit_test(test_truncated),       cmocka_unit_test(test_names),
+        cmocka_unit_test(test_fuzz_regressions), cmocka_unit_test(test_pnm_limits),
         cmocka_unit_test(test_png_write),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

@@ -368,6 +368,24 @@ static void test_missing_sections(void **state) {
     if (snprintf(cmd, sizeof cmd, "report '%s' --output '%s'", dir, other) >= (int)sizeof cmd) fail_msg("too long");
     if (test_run_capture(cmd, out, sizeof out) != 0) fail_msg("report --output failed: %s", out);
     assert_int_equal(access(other, R_OK), 0);
+
+    /* a write that fails (here past a file size limit of 2 blocks, as a full disk would) names the
+     * file and the system's reason, exit 1, and leaves neither the page nor its temporary */
+    char full[1024];
+    path_of(full, tmp, "limited.html");
+    if (snprintf(cmd, sizeof cmd, "ulimit -f 2; trap '' XFSZ; '%s' report '%s' --output '%s' 2>&1", test_framelaw(),
+                 dir, full) >= (int)sizeof cmd)
+        fail_msg("too long");
+    FILE *p = popen(cmd, "r");
+    assert_non_null(p);
+    size_t len = fread(out, 1, sizeof out - 1, p);
+    out[len] = 0;
+    int ws = pclose(p);
+    if (!WIFEXITED(ws) || WEXITSTATUS(ws) != 1 || !strstr(out, full) || !strstr(out, "write failed: File too large"))
+        fail_msg("report past a file size limit: status %d, output: %s", ws, out);
+    assert_int_not_equal(access(full, F_OK), 0);
+    snprintf(cmd, sizeof cmd, "ls '%s' | grep -q 'limited.html.tmp-'", tmp);
+    assert_int_not_equal(system(cmd), 0);
 }
 
 /* Exit status 2 and a one-line message naming what is missing or wrong; no page left behind. */

@@ -314,6 +314,7 @@ static void test_bad_sweep_files(void **state) {
         {"{\"base\": \"base.json\", \"base\": \"base.json\"}", {"base: given twice"}},
         {"{\"base\": \"base.json\",\n \"vary\": {\"loss.dx\": [1,]}}", {"line 2", "malformed JSON"}},
         {"[1, 2]", {"top level must be a JSON object"}},
+        {"{\"base\": \"base.json\", \"restarts\": 02}", {"line 1, column 36", "leading zero"}},
         {"{\"base\": \"base.json\", \"output\": \"\"}", {"output: must be a non-empty path"}},
         {"{\"base\": \"base.json\", \"slurm\": {\"cpus\": 2}}", {"slurm.cpus: unknown key"}},
         {"{\"base\": \"base.json\", \"slurm\": {\"cpus_per_task\": 0}}", {"slurm.cpus_per_task"}},

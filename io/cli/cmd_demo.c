@@ -282,11 +282,7 @@ static int write_truth(const char *path, const char *header, const double *rows,
             fprintf(af.f, c ? ",%.17g" : "%.15g", rows[(long)k * cols + c]);
         fputc('\n', af.f);
     }
-    if (ferror(af.f)) {
-        atomic_abort(&af);
-        return status_set(st, ST_RUNTIME, "%s: write error", path);
-    }
-    return atomic_commit(&af, st);
+    return atomic_commit(&af, st); /* names a write error with its cause */
 }
 
 /* demo.json: what was rendered and how, for people and for the discovery checks. */
@@ -338,11 +334,7 @@ static int write_info(const DemoSettings *s, int width, int height, double fps, 
         fprintf(f, "%s\n", k + 1 < s->recordings ? "," : "");
     }
     fprintf(f, "  ]\n}\n");
-    if (ferror(f)) {
-        atomic_abort(&af);
-        return status_set(st, ST_RUNTIME, "%s: write error", path);
-    }
-    return atomic_commit(&af, st);
+    return atomic_commit(&af, st); /* names a write error with its cause */
 }
 
 /* demo.json of a battery scenario. */
@@ -369,11 +361,7 @@ static int write_battery_info(const DemoSettings *s, const BatteryPhysics *p, co
         fprintf(f, "]}%s\n", k + 1 < s->recordings ? "," : "");
     }
     fprintf(f, "  ]\n}\n");
-    if (ferror(f)) {
-        atomic_abort(&af);
-        return status_set(st, ST_RUNTIME, "%s: write error", path);
-    }
-    return atomic_commit(&af, st);
+    return atomic_commit(&af, st); /* names a write error with its cause */
 }
 
 /* Render every recording of a battery scenario (demo/battery.h). */

@@ -29,13 +29,37 @@ static const Command commands[] = {
 };
 enum { N_COMMANDS = sizeof commands / sizeof commands[0] };
 
+/* Bytes of a message that a terminal must not interpret (control characters, bytes that are not
+ * UTF-8: they come from bad input, a file name or a field) are written as \xNN, so that the
+ * message stays one printable line. */
+static void put_escaped(FILE *f, const unsigned char *s) {
+    while (*s) {
+        unsigned c = *s;
+        int len = c < 0x80 ? 1 : c >= 0xC2 && c <= 0xDF ? 2 : c >= 0xE0 && c <= 0xEF ? 3 : c >= 0xF0 && c <= 0xF4 ? 4 : 0;
+        int ok = len > 0;
+        for (int k = 1; ok && k < len; k++) ok = (s[k] & 0xC0) == 0x80;
+        if (ok && len == 3 && ((c == 0xE0 && s[1] < 0xA0) || (c == 0xED && s[1] > 0x9F))) ok = 0; /* overlong, surrogate */
+        if (ok && len == 4 && ((c == 0xF0 && s[1] < 0x90) || (c == 0xF4 && s[1] > 0x8F))) ok = 0;
+        if (ok && len == 1 && (c < 0x20 || c == 0x7F)) ok = 0;
+        if (!ok) {
+            fprintf(f, "\\x%02x", c);
+            s++;
+        } else {
+            fwrite(s, 1, (size_t)len, f);
+            s += len;
+        }
+    }
+}
+
 int cli_error(int code, const char *fmt, ...) {
+    char msg[8192];
     va_list ap;
     va_start(ap, fmt);
-    fputs("framelaw: ", stderr);
-    vfprintf(stderr, fmt, ap);
-    fputc('\n', stderr);
+    vsnprintf(msg, sizeof msg, fmt, ap);
     va_end(ap);
+    fputs("framelaw: ", stderr);
+    put_escaped(stderr, (const unsigned char *)msg);
+    fputc('\n', stderr);
     return code;
 }
 

@@ -171,7 +171,13 @@ static int list_images(const char *dir, SourceFile **out, int *n_img, int *other
             rc = status_set(st, ST_RUNTIME, "%s: out of memory", dir);
             break;
         }
+        int named = image_is_image_name(e->d_name);
         if (stat(p, &sb) != 0) {
+            if (named) { /* a frame that cannot be read would leave a gap in the recording */
+                rc = status_set(st, ST_INPUT, "%s: cannot read: %s", p, strerror(errno));
+                free(p);
+                break;
+            }
             free(p);
             if (other_files) (*other_files)++;
             continue;
@@ -181,7 +187,13 @@ static int list_images(const char *dir, SourceFile **out, int *n_img, int *other
             free(p);
             continue;
         }
-        if (!S_ISREG(sb.st_mode) || !image_is_image_name(e->d_name)) {
+        if (named && !S_ISREG(sb.st_mode)) {
+            rc = status_set(st, ST_INPUT, "%s: named like a frame but not a regular file (a device, pipe or socket, or "
+                            "a link to one): move it out of the folder", p);
+            free(p);
+            break;
+        }
+        if (!S_ISREG(sb.st_mode) || !named) {
             if (other_files) (*other_files)++;
             free(p);
             continue;
@@ -317,7 +329,8 @@ int frames_scan(const char *path, FrameScan *fs, Status *st) {
             break;
         }
         if (stat(p, &sb) != 0) {
-            fs->ignored_files++;
+            if (series_is_numeric_path(e->d_name)) rc = status_set(st, ST_INPUT, "%s: cannot read: %s", p, strerror(errno));
+            else fs->ignored_files++;
         } else if (S_ISDIR(sb.st_mode)) {
             int sub_other = 0, sub_dirs = 0;
             if (list_images(p, &imgs, &n_img, &sub_other, &sub_dirs, st)) rc = st->code;
@@ -341,6 +354,9 @@ int frames_scan(const char *path, FrameScan *fs, Status *st) {
         } else if (S_ISREG(sb.st_mode) && video_is_video_name(e->d_name)) {
             if (add_video(fs, &cap, p, &sb, st)) rc = st->code;
             else if (!n_img_rec++) snprintf(first_img, sizeof first_img, "%s", e->d_name);
+        } else if (series_is_numeric_path(e->d_name) && !S_ISREG(sb.st_mode)) {
+            rc = status_set(st, ST_INPUT, "%s: named like a recording but not a regular file (a device, pipe or "
+                            "socket, or a link to one): move it out of the folder", p);
         } else if (S_ISREG(sb.st_mode) && series_is_numeric_path(e->d_name)) {
             if (add_numeric(fs, &cap, p, &sb, st)) rc = st->code;
             else if (!n_num_rec++) snprintf(first_num, sizeof first_num, "%s", e->d_name);

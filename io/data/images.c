@@ -36,20 +36,105 @@ int image_is_image_name(const char *name) {
     return 0;
 }
 
+static int check_truncation(const char *path, const unsigned char *b, long n, Status *st);
+static long jpeg_start(const unsigned char *b, long n);
+static int check_jpeg_huffman(const char *path, const unsigned char *b, long n, long i, Status *st);
+
 int image_probe(const char *path, int *w, int *h, Status *st) {
-    int c;
-    if (!stbi_info(path, w, h, &c))
-        return status_set(st, ST_INPUT, "%s: cannot read image header (%s)", path, stbi_failure_reason());
-    return 0;
+    /* the file whole, a regular one, through the same checks as a decode: stb_image's header
+     * parsing trips over the same faults (a JPEG's Huffman tables come before its frame header) */
+    char *text;
+    size_t len;
+    if (fs_read_file(path, (size_t)INT_MAX, &text, &len, st)) return st->code;
+    int c, rc = 0;
+    long j = jpeg_start((const unsigned char *)text, (long)len); /* no end-of-image needed for the header */
+    if (j ? check_jpeg_huffman(path, (const unsigned char *)text, (long)len, j, st)
+          : check_truncation(path, (const unsigned char *)text, (long)len, st))
+        rc = st->code;
+    else if (!stbi_info_from_memory((const unsigned char *)text, (int)len, w, h, &c))
+        rc = status_set(st, ST_INPUT, "%s: cannot read image header (%s)", path, stbi_failure_reason());
+    else if (*w < 1 || *h < 1)
+        rc = status_set(st, ST_INPUT, "%s: image of %d x %d pixels: empty", path, *w, *h);
+    free(text);
+    return rc;
 }
 
 /* Truncation checks that the decoder does not make (see images.h). */
+/* A JPEG's Huffman tables (DHT segments, anywhere among the markers, also between the scans of a
+ * progressive file): each holds at most 256 codes (ITU-T T.81 | ISO/IEC 10918-1, 1992, B.2.4.2:
+ * the 16 counts L1..L16 sum to the number of values, which are 8-bit). Debian's stb_image 2.27
+ * indexes past its 257-entry size table for more (found by tests/fuzz/fuzz_stb.c). */
+static int check_jpeg_huffman(const char *path, const unsigned char *b, long n, long i, Status *st) {
+    while (i + 4 <= n) {
+        if (b[i] != 0xFF) { /* entropy-coded data after a scan header: on to the next marker */
+            i++;
+            continue;
+        }
+        unsigned m = b[i + 1];
+        if (m == 0xFF || m == 0x00 || (m >= 0xD0 && m <= 0xD8) || m == 0x01) { /* fill, stuffing, RSTn, SOI, TEM */
+            i += m == 0xFF ? 1 : 2;
+            continue;
+        }
+        if (m == 0xD9) return 0; /* end of image */
+        long len = (long)b[i + 2] << 8 | b[i + 3];
+        if (len < 2) return 0; /* stb_image reports it */
+        if (m == 0xC4) { /* as stb_image reads it: table after table while the length lasts, 0 past the end */
+            for (long p = i + 4, end = i + 2 + len; p < end;) {
+                int count = 0;
+                for (int k = 1; k <= 16; k++) count += p + k < n ? b[p + k] : 0;
+                if (count > 256)
+                    return status_set(st, ST_INPUT, "%s: corrupt JPEG (a Huffman table of %d codes, at most 256)",
+                                      path, count);
+                p += 17 + count;
+            }
+        }
+        if (i + 2 + len > n) return 0; /* a segment past the end: stb_image reports it */
+        i += 2 + len;
+    }
+    return 0;
+}
+
+/* Where a JPEG's segments begin (after its start-of-image marker, FF D8, which stb_image takes after
+ * any number of FF fill bytes), or 0 when b is not a JPEG to stb_image. */
+static long jpeg_start(const unsigned char *b, long n) {
+    if (n < 2 || b[0] != 0xFF) return 0;
+    long i = 1;
+    while (i < n && b[i] == 0xFF) i++;
+    return i < n && b[i] == 0xD8 ? i + 1 : 0;
+}
+
 static int check_truncation(const char *path, const unsigned char *b, long n, Status *st) {
-    if (n >= 2 && b[0] == 0xFF && b[1] == 0xD8) {   /* JPEG start-of-image */
+    long j = jpeg_start(b, n);
+    if (j) {   /* JPEG */
         long from = n > 1024 ? n - 1024 : 0;
         for (long i = n - 2; i >= from; i--)
-            if (b[i] == 0xFF && b[i + 1] == 0xD9) return 0;
+            if (b[i] == 0xFF && b[i + 1] == 0xD9) return check_jpeg_huffman(path, b, n, j, st);
         return status_set(st, ST_INPUT, "%s: truncated JPEG (no end-of-image marker)", path);
+    }
+    static const unsigned char png_sig[8] = {0x89, 'P', 'N', 'G', '\r', '\n', 0x1A, '\n'};
+    if (n >= 8 && !memcmp(b, png_sig, 8)) {
+        /* every chunk within the file: stb_image allocates an IDAT chunk's declared length before it
+         * reads it (a 123-byte file made it ask for 2 GB; found by tests/fuzz/fuzz_stb.c). Chunks:
+         * u32 length (big-endian), 4-byte type, data, u32 CRC ("PNG (Portable Network Graphics)
+         * Specification", W3C Recommendation, 2003, 5.3). */
+        long off = 8;
+        while (off + 12 <= n) {
+            unsigned long len = (unsigned long)b[off] << 24 | (unsigned long)b[off + 1] << 16 |
+                                (unsigned long)b[off + 2] << 8 | b[off + 3];
+            if (len > (unsigned long)(n - off - 12)) {
+                char type[5];
+                for (int k = 0; k < 4; k++) {
+                    unsigned char t = b[off + 4 + k];
+                    type[k] = (t >= 'A' && t <= 'Z') || (t >= 'a' && t <= 'z') ? (char)t : '?';
+                }
+                type[4] = 0;
+                return status_set(st, ST_INPUT, "%s: truncated or corrupt PNG (chunk %s of %lu bytes, %ld left in the file)",
+                                  path, type, len, n - off - 12);
+            }
+            int iend = !memcmp(b + off + 4, "IEND", 4);
+            off += 12 + (long)len;
+            if (iend) break;
+        }
     }
     if (n >= 6 && b[0] == 'B' && b[1] == 'M') {
         unsigned long declared = b[2] | (unsigned long)b[3] << 8 | (unsigned long)b[4] << 16 |
@@ -80,20 +165,39 @@ static int load_pnm(const char *path, const unsigned char *b, long n, GrayStd g,
             }
             break;
         }
+        static const char *const what[3] = {"width", "height", "maxval"};
+        static const long most[3] = {(1L << 24) - 1, (1L << 24) - 1, 65535};
         if (pos >= n || b[pos] < '0' || b[pos] > '9') {
-            status_set(st, ST_INPUT, "%s: malformed PNM header", path);
+            status_set(st, ST_INPUT, "%s: malformed PNM header (no %s)", path, what[k]);
             return 1;
         }
+        /* every digit is read: a number too large is named as written, not cut short */
+        long start = pos;
         val[k] = 0;
-        while (pos < n && b[pos] >= '0' && b[pos] <= '9' && val[k] < (1L << 24)) val[k] = val[k] * 10 + (b[pos++] - '0');
+        while (pos < n && b[pos] >= '0' && b[pos] <= '9') {
+            if (val[k] <= most[k]) val[k] = val[k] * 10 + (b[pos] - '0');
+            pos++;
+        }
+        if (val[k] < 1 || val[k] > most[k]) {
+            status_set(st, ST_INPUT, "%s: PNM %s %.*s%s is outside 1..%ld", path, what[k],
+                       pos - start > 40 ? 40 : (int)(pos - start), (const char *)b + start, pos - start > 40 ? "..." : "",
+                       most[k]);
+            return 1;
+        }
+        if (pos < n && !(b[pos] == ' ' || b[pos] == '\t' || b[pos] == '\n' || b[pos] == '\r' || b[pos] == '\v' ||
+                         b[pos] == '\f' || (k < 2 && b[pos] == '#'))) {
+            status_set(st, ST_INPUT, "%s: malformed PNM header (byte 0x%02x after the %s)", path, b[pos], what[k]);
+            return 1;
+        }
     }
     pos++;   /* the single whitespace byte after maxval */
-    if (val[0] <= 0 || val[1] <= 0 || val[0] >= (1L << 24) || val[1] >= (1L << 24) || val[2] <= 0 || val[2] > 65535) {
-        status_set(st, ST_INPUT, "%s: PNM size %ldx%ld or maxval %ld out of range", path, val[0], val[1], val[2]);
-        return 1;
-    }
     int bps = val[2] > 255 ? 2 : 1;
     long np = val[0] * val[1], need = np * c * bps;
+    if (np > IMAGE_MAX_PIXELS) {
+        status_set(st, ST_INPUT, "%s: image of %ld x %ld pixels, more than the %ld a frame may have", path, val[0],
+                   val[1], (long)IMAGE_MAX_PIXELS);
+        return 1;
+    }
     if (pos > n || n - pos < need) {
         status_set(st, ST_INPUT, "%s: truncated PNM (%ld data bytes, %ldx%ld needs %ld)", path,
                    pos > n ? 0 : n - pos, val[0], val[1], need);
@@ -112,6 +216,12 @@ static int load_pnm(const char *path, const unsigned char *b, long n, GrayStd g,
         for (int k = 0; k < c; k++) {
             const unsigned char *q = d + (i * c + k) * bps;
             s[k] = bps == 2 ? (double)(q[0] << 8 | q[1]) : (double)q[0];
+            if (s[k] > (double)val[2]) { /* not a PNM sample: refused rather than clamped */
+                free(f);
+                status_set(st, ST_INPUT, "%s: PNM sample %ld (row %ld, column %ld) is %.0f, above the maxval %ld", path,
+                           i * c + k, i / val[0], i % val[0], s[k], val[2]);
+                return 1;
+            }
         }
         double v = c == 3 ? wt[0] * s[0] + wt[1] * s[1] + wt[2] * s[2] : s[0];
         f[i] = (float)(v * unit);
@@ -133,6 +243,10 @@ int image_load_gray(const char *path, GrayStd g, float **out, int *w, int *h, St
         free(buf);
         return status_set(st, ST_INPUT, "%s: empty file", path);
     }
+    if (n > INT_MAX) { /* stb_image takes the length as an int */
+        free(buf);
+        return status_set(st, ST_INPUT, "%s: %ld bytes, more than the 2 GiB an image may have", path, n);
+    }
     if (check_truncation(path, buf, n, st)) {
         free(buf);
         return st->code;
@@ -142,6 +256,12 @@ int image_load_gray(const char *path, GrayStd g, float **out, int *w, int *h, St
         return st->code;
     }
     int c, is16 = stbi_is_16_bit_from_memory(buf, (int)n);
+    /* the size from the header first: a file of a few hundred bytes may declare billions of pixels */
+    if (stbi_info_from_memory(buf, (int)n, w, h, &c) && (long)*w * *h > IMAGE_MAX_PIXELS) {
+        free(buf);
+        return status_set(st, ST_INPUT, "%s: image of %d x %d pixels, more than the %ld a frame may have", path, *w,
+                          *h, (long)IMAGE_MAX_PIXELS);
+    }
     void *px = is16 ? (void *)stbi_load_16_from_memory(buf, (int)n, w, h, &c, 0)
                     : (void *)stbi_load_from_memory(buf, (int)n, w, h, &c, 0);
     free(buf);
@@ -150,6 +270,10 @@ int image_load_gray(const char *path, GrayStd g, float **out, int *w, int *h, St
         return status_set(st, ST_INPUT, "%s: cannot decode image (%s)", path, why ? why : "unknown error");
     }
     long np = (long)*w * *h;
+    if (*w < 1 || *h < 1) { /* stb_image gives a BMP of height 0 as an image (found by fuzz_stb) */
+        stbi_image_free(px);
+        return status_set(st, ST_INPUT, "%s: image of %d x %d pixels: empty", path, *w, *h);
+    }
     float *f = malloc(sizeof(float) * (size_t)np);   /* (h, w) */
     if (!f) {
         stbi_image_free(px);

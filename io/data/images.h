@@ -22,6 +22,10 @@
 
 #include "nn/core.h"
 
+/* The most pixels a frame may have: 2^25, above 8K UHD (7680 x 4320 = 33,177,600). A larger image is
+ * refused from its header, before it is decoded (a JPEG of 340 bytes can declare 147 million). */
+#define IMAGE_MAX_PIXELS (1L << 25)
+
 typedef enum { GRAY_BT601, GRAY_BT709, GRAY_COUNT } GrayStd;
 
 extern const char *const gray_std_names[GRAY_COUNT];   /* "bt601", "bt709" */

@@ -181,8 +181,11 @@ int fsync_parent_dir(const char *path, Status *st) {
 
 int atomic_commit(AtomicFile *af, Status *st) {
     if (!af->f) return status_set(st, ST_RUNTIME, "%s: not open for writing", af->path);
-    int bad = ferror(af->f) || fflush(af->f) != 0;
+    /* flush first: it retries the pending bytes, so errno tells why an earlier write failed too
+     * (ENOSPC on a full disk, EFBIG past a file size limit) */
+    int fl = fflush(af->f);
     int e = errno;
+    int bad = fl != 0 || ferror(af->f);
     if (!bad && fsync(fileno(af->f)) != 0) bad = 1, e = errno;
     if (fclose(af->f) != 0 && !bad) bad = 1, e = errno;
     af->f = NULL;

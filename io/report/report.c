@@ -395,8 +395,7 @@ int report_write(const char *run_dir, const char *out_path, ReportSummary *sum, 
     if (!rc) {
         r.f = af.f;
         rc = write_page(&r, &L);
-        if (!rc && ferror(af.f)) rc = status_set(st, ST_RUNTIME, "%s: write error", out);
-        if (rc) atomic_abort(&af);
+        if (rc) atomic_abort(&af); /* a write error is named by atomic_commit, with its cause */
         else rc = atomic_commit(&af, st);
     }
     runlog_free(&L);

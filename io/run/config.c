@@ -25,6 +25,7 @@
 
 #include "io/fs/files.h"
 #include "io/fs/hash.h"
+#include "io/fs/json_check.h"
 #include "nn/mlp.h"
 #include "sparse/ensemble.h"
 #include "sparse/library.h"
@@ -688,6 +689,18 @@ int config_parse(Config *c, const char *json, const char *origin, const char *ba
     const char *p = json;
     while (isspace((unsigned char)*p)) p++;
     if (!*p) return status_set(st, ST_INPUT, "%s%sempty (expected a JSON object)", pre, sep);
+    JsonFault jf; /* RFC 8259 first: cJSON accepts 01, 5. and \u0000, and says only "malformed" */
+    if (json_check(json, strlen(json), &jf)) {
+        char near[32];
+        size_t j = 0;
+        for (const unsigned char *q = (const unsigned char *)json + jf.offset; *q && *q != '\n' && *q != '\r' && j < 20; q++)
+            near[j++] = *q >= 0x20 && *q < 0x7f ? (char)*q : '?';
+        near[j] = 0;
+        if (j)
+            return status_set(st, ST_INPUT, "%s%sline %d, column %d: malformed JSON: %s, near '%s'", pre, sep, jf.line,
+                              jf.col, jf.what, near);
+        return status_set(st, ST_INPUT, "%s%sline %d, column %d: malformed JSON: %s", pre, sep, jf.line, jf.col, jf.what);
+    }
     const char *end = NULL;
     cJSON *root = cJSON_ParseWithOpts(json, &end, 1);
     if (!root) {
@@ -811,6 +824,11 @@ int config_set(Config *c, const char *assignment, Status *st) {
         return status_set(st, ST_INPUT, "--set: %s: unknown key", key);
     }
     cJSON *value = cJSON_ParseWithOpts(eq + 1, NULL, 1);
+    JsonFault jf;
+    if (value && json_check(eq + 1, strlen(eq + 1), &jf)) { /* what cJSON takes but RFC 8259 does not */
+        cJSON_Delete(value);
+        return status_set(st, ST_INPUT, "--set %s: the value is not JSON (RFC 8259): column %d: %s", key, jf.col, jf.what);
+    }
     if (!value) value = cJSON_CreateString(eq + 1);   /* a bare word */
     if (!value) return status_set(st, ST_RUNTIME, "--set: out of memory");
     /* nest it: {"a": {"b": value}} for "a.b" */

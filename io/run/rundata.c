@@ -214,7 +214,7 @@ int rundata_memory_check(const RunData *d, const Config *c, Status *st) {
     return status_set(st, ST_INPUT,
                       "the run would need about %.1f GB of memory (samples of %ld values, %.3g parameters, "
                       "checkpoints of %.1f GB each), above train.memory_budget (%.1f GB): shrink the frames with "
-                      "data.size (e.g. [64, 64]) or data.crop, or raise the budget",
+                      "data.size (e.g. [64, 64]) or data.crop, or the model (model.encoder), or raise the budget",
                       e.bytes / 1e9, e.n_in, e.params, e.checkpoint_bytes / 1e9, e.budget / 1e9);
 }
 

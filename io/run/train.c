@@ -19,6 +19,41 @@
 #include "sparse/select.h"
 #include "sparse/thresh_lsq.h"
 
+/* A model that cannot fit in this machine's memory is bad input (the widths), not a runtime failure
+ * after the data were read: the parameters (values, gradients, two Adam moments: 16 bytes each) and
+ * the activations of a batch (each layer's output for every block, with its gradient and
+ * pre-activation: about 12 bytes per value) against the physical memory. */
+int model_memory_check(const Config *c, int n_in, Status *st) {
+    int enc[CFG_MAX_LIST + 2], dec[CFG_MAX_LIST + 2], ne = 0, nd = 0;
+    enc[ne++] = n_in;
+    for (int i = 0; i < c->n_encoder && i < CFG_MAX_LIST; i++) enc[ne++] = c->encoder[i];
+    enc[ne++] = c->latent;
+    dec[nd++] = c->latent;
+    if (c->n_decoder < 0)
+        for (int i = c->n_encoder - 1; i >= 0 && i < CFG_MAX_LIST; i--) dec[nd++] = c->encoder[i];
+    else
+        for (int i = 0; i < c->n_decoder && i < CFG_MAX_LIST; i++) dec[nd++] = c->decoder[i];
+    dec[nd++] = n_in;
+    double params = 0, widths = 0;
+    for (int i = 0; i + 1 < ne; i++) params += (double)enc[i] * enc[i + 1] + enc[i + 1], widths += enc[i + 1];
+    for (int i = 0; i + 1 < nd; i++) params += (double)dec[i] * dec[i + 1] + dec[i + 1], widths += dec[i + 1];
+    double blocks = c->order + 1, bytes = 16.0 * params + 12.0 * (double)c->batch * blocks * (widths + n_in);
+    long pages = sysconf(_SC_PHYS_PAGES), page = sysconf(_SC_PAGESIZE);
+    double have = pages > 0 && page > 0 ? (double)pages * (double)page : 0;
+    if (have > 0 && bytes > have) {
+        char list[256];
+        size_t k = 0;
+        for (int i = 0; i < c->n_encoder && i < CFG_MAX_LIST && k < sizeof list - 16; i++)
+            k += (size_t)snprintf(list + k, sizeof list - k, "%s%d", i ? ", " : "", c->encoder[i]);
+        list[k] = 0;
+        return status_set(st, ST_INPUT,
+                          "model.encoder [%s]: a model of %.3g parameters on %d values per frame needs about %.3g GB, "
+                          "more than this machine's %.3g GB of memory (narrower layers, or a smaller data.size or "
+                          "train.batch)", list, params, n_in, bytes / 1e9, have / 1e9);
+    }
+    return 0;
+}
+
 int model_spec_from_config(const Config *c, int n_in, ModelSpec *sp, Status *st) {
     memset(sp, 0, sizeof *sp);
     sp->n_in = n_in;
@@ -34,6 +69,7 @@ int model_spec_from_config(const Config *c, int n_in, ModelSpec *sp, Status *st)
         return status_set(st, ST_INPUT, "model.activation: unknown activation '%s'", c->activation);
     if (sp->n_enc + 1 > MLP_MAX_LAYERS || sp->n_dec + 1 > MLP_MAX_LAYERS)
         return status_set(st, ST_INPUT, "model.encoder: at most %d hidden layers", MLP_MAX_LAYERS - 1);
+    if (model_memory_check(c, n_in, st)) return st->code;
     LibrarySpec *l = &sp->lib;
     *l = library_spec_default(c->latent, c->order);
     l->constant = c->lib_constant;

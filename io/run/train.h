@@ -50,7 +50,11 @@ typedef struct {
     char checkpoint[4200];              /* the last checkpoint written */
 } TrainResult;
 
-/* The model the config describes, for n_in inputs. */
+/* ST_INPUT naming model.encoder when the model the config describes, for n_in inputs, would need
+ * more memory than the machine has (parameters with Adam's moments, a batch's activations). */
+int model_memory_check(const Config *c, int n_in, Status *st);
+
+/* The model the config describes, for n_in inputs (checked by model_memory_check). */
 int model_spec_from_config(const Config *c, int n_in, ModelSpec *sp, Status *st);
 
 /* Set up the model (fresh or from the newest valid checkpoint) and run the remaining epochs. On

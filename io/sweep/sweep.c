@@ -15,6 +15,7 @@
 
 #include "io/fs/files.h"
 #include "io/fs/hash.h"
+#include "io/fs/json_check.h"
 #include "io/sweep/common.h"
 
 /* ---- parsing the sweep file -------------------------------------------------------------------- */
@@ -285,6 +286,11 @@ static int load_inner(Sweep *sw, const char *path, Status *st) {
     sw->stem[sl] = 0;
     if (sl > 5 && !strcmp(sw->stem + sl - 5, ".json")) sw->stem[sl - 5] = 0;
 
+    JsonFault jf; /* RFC 8259 first: cJSON accepts 01, 5. and \u0000, and says only "malformed" */
+    if (json_check(text, strlen(text), &jf)) {
+        free(text);
+        return status_set(st, ST_INPUT, "%s: line %d, column %d: malformed JSON: %s", path, jf.line, jf.col, jf.what);
+    }
     const char *end = NULL;
     cJSON *root = cJSON_ParseWithOpts(text, &end, 1);
     if (!root) {
