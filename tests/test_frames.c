@@ -127,6 +127,17 @@ static void test_scan_refuses_non_regular(void **state) {
         frames_scan_free(&fs);
         rm_rf(dir);
     }
+    /* the path given is itself such a file */
+    char dir[256], path[600];
+    assert_non_null(test_tmpdir(dir, sizeof dir));
+    snprintf(path, sizeof path, "%s/rec.npy", dir);
+    assert_int_equal(symlink("/dev/zero", path), 0);
+    FrameScan fs;
+    Status st;
+    assert_int_equal(frames_scan(path, &fs, &st), ST_INPUT);
+    assert_non_null(strstr(st.msg, "not a folder, nor a regular file"));
+    frames_scan_free(&fs);
+    rm_rf(dir);
 }
 
 /* Several recordings: one sub-folder each, named and ordered naturally; sub-folders without images

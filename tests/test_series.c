@@ -2,6 +2,7 @@
 #include "tests/testutil.h"
 
 #include <sys/stat.h>
+#include <time.h>
 #include <unistd.h>
 
 #include "io/data/series.h"
@@ -130,6 +131,20 @@ static void test_npy_bad(void **state) {
     fclose(f);
     assert_int_equal(series_read_npy(path, &s, &st), ST_INPUT);
     assert_non_null(strstr(st.msg, "'<c8' not supported"));
+    /* a good header on a file of 8 GiB (sparse): refused from the header and the file's size, without
+     * reading the file in (it was read whole first) */
+    b[22] = 'f';
+    f = fopen(path, "wb");
+    fwrite(b, 1, (size_t)n, f);
+    fclose(f);
+    assert_int_equal(truncate(path, 8LL << 30), 0);
+    struct timespec t0, t1;
+    clock_gettime(CLOCK_MONOTONIC, &t0);
+    assert_int_equal(series_read_npy(path, &s, &st), ST_INPUT);
+    clock_gettime(CLOCK_MONOTONIC, &t1);
+    assert_non_null(strstr(st.msg, "shape (4, 3) of '<f8' needs 96"));
+    /* reading 8 GiB takes seconds at best; the header alone, milliseconds (1 s: a loaded machine) */
+    assert_true((double)(t1.tv_sec - t0.tv_sec) + 1e-9 * (double)(t1.tv_nsec - t0.tv_nsec) < 1.0);
     free(b);
     unlink(path);
     rmdir(dir);

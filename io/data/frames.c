@@ -294,7 +294,9 @@ int frames_scan(const char *path, FrameScan *fs, Status *st) {
         if (add_numeric(fs, &cap, path, &sb, st)) goto fail;
         return 0;
     }
-    if (!S_ISDIR(sb.st_mode)) return status_set(st, ST_INPUT, "%s: not a folder", path);
+    if (!S_ISDIR(sb.st_mode))
+        return status_set(st, ST_INPUT, "%s: not a folder, nor a regular file (a device, pipe or socket, or a link to one)",
+                          path);
     SourceFile *imgs;
     int n_img, other = 0, dirs = 0;
     if (list_images(path, &imgs, &n_img, &other, &dirs, st)) return st->code;

@@ -8,6 +8,10 @@
 #include <stdlib.h>
 #include <string.h>
 #include <strings.h>
+#include <errno.h>
+#include <fcntl.h>
+#include <sys/stat.h>
+#include <unistd.h>
 
 #include "io/data/csv.h"
 #include "io/fs/atomic_file.h"
@@ -54,6 +58,7 @@ int series_read_csv(const char *path, Series *s, Status *st) {
 /* ---- .npy --------------------------------------------------------------------------------- */
 
 static const unsigned char NPY_MAGIC[6] = {0x93, 'N', 'U', 'M', 'P', 'Y'};
+#define NPY_HEADER_MAX (1 << 20) /* the longest header read: 1 MiB (NumPy writes them under 64 KiB) */
 
 /* A tiny reader for the header's Python dict literal. */
 typedef struct {
@@ -83,15 +88,13 @@ static int lex_string(Lex *l, char *out, size_t n) {
     return 1;
 }
 
-int series_read_npy(const char *path, Series *s, Status *st) {
-    memset(s, 0, sizeof *s);
-    char *buf;
-    size_t len;
-    if (fs_read_file(path, SIZE_MAX, &buf, &len, st)) return st->code;
+/* The .npy in buf[0..len), of a file of `total` bytes (len = total, or only its first bytes when s
+ * is NULL: then the header is checked, and whether the file has the size its shape gives). */
+static int npy_parse(const char *path, const char *buf, size_t len, size_t total, Series *s, Status *st) {
     const unsigned char *u = (const unsigned char *)buf;
     int rc = 0;
     double *d = NULL;
-    if (len < 10 || memcmp(u, NPY_MAGIC, 6)) {
+    if (len < 10 || total < 10 || memcmp(u, NPY_MAGIC, 6)) {
         rc = status_set(st, ST_INPUT, "%s: not a .npy file (bad magic)", path);
         goto done;
     }
@@ -101,7 +104,7 @@ int series_read_npy(const char *path, Series *s, Status *st) {
         hlen = le_get_u16(u + 8);
         hstart = 10;
     } else if ((major == 2 || major == 3) && minor == 0) {
-        if (len < 12) {
+        if (len < 12 || total < 12) {
             rc = status_set(st, ST_INPUT, "%s: truncated .npy header", path);
             goto done;
         }
@@ -112,9 +115,13 @@ int series_read_npy(const char *path, Series *s, Status *st) {
                         path, major, minor);
         goto done;
     }
-    if (hlen > len - hstart) {
+    if (hlen > total - hstart) {
         rc = status_set(st, ST_INPUT, "%s: truncated .npy header (%zu bytes announced, %zu present)", path,
-                        hlen, len - hstart);
+                        hlen, total - hstart);
+        goto done;
+    }
+    if (hlen > len - hstart) {
+        rc = status_set(st, ST_INPUT, "%s: .npy header of %zu bytes, more than the %d read", path, hlen, NPY_HEADER_MAX);
         goto done;
     }
     Lex l = {buf + hstart, buf + hstart + hlen};
@@ -169,17 +176,18 @@ int series_read_npy(const char *path, Series *s, Status *st) {
     }
     if (ndim == 1) shape[1] = 1;
     long rows = shape[0], cols = shape[1];
-    if (rows <= 0 || cols <= 0 || cols > (1L << 24) || rows > (long)(len / (size_t)isz)) {
+    if (rows <= 0 || cols <= 0 || cols > (1L << 24) || rows > (long)(total / (size_t)isz)) {
         rc = status_set(st, ST_INPUT, "%s: .npy shape (%ld, %ld) is empty or larger than the file", path,
                         rows, cols);
         goto done;
     }
-    size_t need = (size_t)rows * (size_t)cols * (size_t)isz, have = len - hstart - hlen;
+    size_t need = (size_t)rows * (size_t)cols * (size_t)isz, have = total - hstart - hlen;
     if (need != have) {
         rc = status_set(st, ST_INPUT, "%s: .npy data is %zu bytes, shape (%ld, %ld) of '%s' needs %zu%s", path,
                         have, rows, cols, descr, need, have < need ? " (truncated)" : "");
         goto done;
     }
+    if (!s) goto done; /* the header and the size check out */
     d = malloc(sizeof(double) * (size_t)rows * (size_t)cols);
     if (!d) {
         rc = status_set(st, ST_RUNTIME, "%s: out of memory", path);
@@ -213,6 +221,39 @@ bad_header:
     rc = status_set(st, ST_INPUT, "%s: malformed .npy header (expected descr, fortran_order, shape)", path);
 done:
     free(d);
+    return rc;
+}
+
+int series_read_npy(const char *path, Series *s, Status *st) {
+    memset(s, 0, sizeof *s);
+    /* the header first, from the file's first bytes: the file is read whole only when its size is the
+     * one its shape gives (a huge file is not read in to be refused) */
+    int fd = open(path, O_RDONLY | O_NONBLOCK | O_CLOEXEC);
+    if (fd < 0) return status_set(st, ST_INPUT, "%s: cannot open: %s", path, strerror(errno));
+    struct stat sb;
+    if (fstat(fd, &sb) != 0 || !S_ISREG(sb.st_mode)) {
+        close(fd);
+        return status_set(st, ST_INPUT, "%s: not a regular file (a device, pipe or socket)", path);
+    }
+    size_t total = (size_t)sb.st_size, want = total < NPY_HEADER_MAX + 12 ? total : NPY_HEADER_MAX + 12, got = 0;
+    char *pre = malloc(want + 1);
+    if (!pre) {
+        close(fd);
+        return status_set(st, ST_RUNTIME, "%s: out of memory", path);
+    }
+    while (got < want) {
+        ssize_t r = pread(fd, pre + got, want - got, (off_t)got);
+        if (r <= 0) break;
+        got += (size_t)r;
+    }
+    close(fd);
+    int rc = npy_parse(path, pre, got, total, NULL, st);
+    free(pre);
+    if (rc) return rc;
+    char *buf;
+    size_t len;
+    if (fs_read_file(path, total, &buf, &len, st)) return st->code;
+    rc = npy_parse(path, buf, len, len, s, st);
     free(buf);
     return rc;
 }
