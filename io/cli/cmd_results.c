@@ -46,7 +46,8 @@ int cmd_export(int argc, char **argv) {
         printf("usage: framelaw export RUN_DIR [--quiet]\n\n"
                "Write what a trained run learned, from its newest checkpoint, into RUN_DIR (docs/formats.md):\n"
                "equations.txt / .tex / .json, trajectories/<recording>.csv and .npy (t, z, z', the model's\n"
-               "z' or z''), reconstructions/<recording>.png (original | decoded | difference) for image data,\n"
+               "z' or z''; then u, u', the canonical law's u' or u'' when a sparser one was found),\n"
+               "reconstructions/<recording>.png (original | decoded | difference) for image data,\n"
                "and region.json (the range of latent states seen in training). `framelaw train` runs it at\n"
                "the end of a run.\n\n  --quiet   no summary line\n");
         return 0;

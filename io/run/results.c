@@ -195,8 +195,39 @@ int results_write_equations(LoadedRun *r, int quiet, Status *st) {
     return rc;
 }
 
-/* Column names of a trajectory: t, z*, dz*, (d2z*), model_dz* or model_d2z*. */
-static int trajectory_cols(const LoadedRun *r) { return 1 + (r->m.order + 2) * r->m.n_latent; }
+/* The canonical law, when a sparser one was found (its coordinates become extra columns). */
+static const Canonical *found_canonical(const LoadedRun *r) {
+    return r->canon && r->canon->c.status == CANON_FOUND ? &r->canon->c : NULL;
+}
+
+/* Columns of a trajectory: t, z*, dz*, (d2z*), model_dz* or model_d2z*; then, with a canonical
+ * law, the same blocks in its coordinates: u*, du*, (d2u*), model_du* or model_d2u*. */
+static int trajectory_cols(const LoadedRun *r) {
+    return 1 + (found_canonical(r) ? 2 : 1) * (r->m.order + 2) * r->m.n_latent;
+}
+
+/* The canonical blocks of a row that holds t, z, z' (, z''): u = A z + b, u' = A z', u'' = A z'',
+ * and the canonical law's prediction of u' (or u''). */
+static void canonical_columns(const LoadedRun *r, const Canonical *c, double *row, double *theta) {
+    int d = r->m.n_latent, order = r->m.order, k = order + 1;
+    const double *z = row + 1;
+    double *u = row + 1 + (k + 1) * d, sigma[LIB_MAX_VARS];
+    canonical_map_state(c, sigma, z, 1); /* u (and u') from z (and z') */
+    for (int j = 0; j < order * d; j++) u[j] = sigma[j];
+    for (int blk = order; blk < k; blk++) /* the highest derivative: no offset */
+        for (int i = 0; i < d; i++) {
+            double acc = 0;
+            for (int j = 0; j < d; j++) acc += c->A[i * d + j] * z[blk * d + j];
+            u[blk * d + i] = acc;
+        }
+    canonical_eval(c, &r->m.lib, theta, sigma, 1);
+    for (int i = 0; i < d; i++) {
+        double acc = 0;
+        for (int t = 0; t < r->m.lib.n_terms; t++)
+            if (c->mask[t * d + i]) acc += theta[t] * c->xi[t * d + i];
+        u[k * d + i] = acc;
+    }
+}
 
 static int write_trajectory(LoadedRun *r, int rec, Status *st) {
     const StoreRec *sr = &r->data.store.rec[rec];
@@ -205,6 +236,7 @@ static int write_trajectory(LoadedRun *r, int rec, Status *st) {
     long n_rows = sr->count - 2L * mh;
     if (n_rows <= 0) return 0;
     int cols = trajectory_cols(r);
+    const Canonical *canon = found_canonical(r);
     double *out = nn_alloc((size_t)n_rows * cols * sizeof(double)); /* (n_rows, cols) */
     float *X = nn_alloc((size_t)x_blocks(r, k) * CHUNK * ds->n * sizeof(float));
     float *z = nn_alloc((size_t)k * CHUNK * d * sizeof(float));
@@ -222,6 +254,7 @@ static int write_trajectory(LoadedRun *r, int rec, Status *st) {
             for (int j = 0; j < order * d; j++) s[j] = row[1 + j];
             model_rhs(r, s, theta, pred);
             for (int j = 0; j < d; j++) row[1 + k * d + j] = pred[j];
+            if (canon) canonical_columns(r, canon, row, theta);
         }
     }
     nn_free(theta);
@@ -241,6 +274,12 @@ static int write_trajectory(LoadedRun *r, int rec, Status *st) {
             for (int blk = 0; blk < k; blk++)
                 for (int j = 0; j < d; j++) fprintf(af.f, ",%s%d", pre[blk], j + 1);
             for (int j = 0; j < d; j++) fprintf(af.f, ",model_%s%d", order == 1 ? "dz" : "d2z", j + 1);
+            if (canon) {
+                const char *upre[3] = {"u", "du", "d2u"};
+                for (int blk = 0; blk < k; blk++)
+                    for (int j = 0; j < d; j++) fprintf(af.f, ",%s%d", upre[blk], j + 1);
+                for (int j = 0; j < d; j++) fprintf(af.f, ",model_%s%d", order == 1 ? "du" : "d2u", j + 1);
+            }
             fputc('\n', af.f);
             for (long i = 0; i < n_rows; i++) {
                 for (int c = 0; c < cols; c++) fprintf(af.f, c ? ",%.12g" : "%.12g", out[i * cols + c]);
