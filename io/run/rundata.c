@@ -180,31 +180,8 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
 }
 
 void rundata_memory(const RunData *d, const Config *c, MemEstimate *e) {
-    memset(e, 0, sizeof *e);
-    long n = d->td.n_in;
-    e->n_in = n;
-    /* encoder n -> h1 -> ... -> latent, decoder the reverse (or its own widths) */
-    double p = 0, prev = (double)n;
-    for (int i = 0; i < c->n_encoder; i++) p += prev * c->encoder[i] + c->encoder[i], prev = c->encoder[i];
-    p += prev * c->latent + c->latent;
-    prev = c->latent;
-    int nd = c->n_decoder < 0 ? c->n_encoder : c->n_decoder;
-    for (int i = 0; i < nd; i++) {
-        int w = c->n_decoder < 0 ? c->encoder[c->n_encoder - 1 - i] : c->decoder[i];
-        p += prev * w + w, prev = w;
-    }
-    p += prev * (double)n + (double)n;
-    p += 64.0 * c->latent; /* the law: a few dozen coefficients per equation */
-    e->params = p;
     long batch = c->batch < d->td.n_train ? c->batch : d->td.n_train;
-    if (batch < 1) batch = 1;
-    e->bytes = 4.0 * 6 * p + 4.0 * (double)batch * (double)n * (2.0 * d->k + 4);
-    e->checkpoint_bytes = 4.0 * 3 * p;
-    if (c->mem_budget > 0) e->budget = c->mem_budget * 1073741824.0;
-    else {
-        long pages = sysconf(_SC_PHYS_PAGES), size = sysconf(_SC_PAGE_SIZE);
-        e->budget = pages > 0 && size > 0 ? 0.5 * (double)pages * (double)size : INFINITY;
-    }
+    model_memory(c, d->td.n_in, d->k, batch, e);
 }
 
 int rundata_memory_check(const RunData *d, const Config *c, Status *st) {

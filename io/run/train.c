@@ -19,39 +19,44 @@
 #include "sparse/select.h"
 #include "sparse/thresh_lsq.h"
 
-/* A model that cannot fit in this machine's memory is bad input (the widths), not a runtime failure
- * after the data were read: the parameters (values, gradients, two Adam moments: 16 bytes each) and
- * the activations of a batch (each layer's output for every block, with its gradient and
- * pre-activation: about 12 bytes per value) against the physical memory. */
-int model_memory_check(const Config *c, int n_in, Status *st) {
-    int enc[CFG_MAX_LIST + 2], dec[CFG_MAX_LIST + 2], ne = 0, nd = 0;
-    enc[ne++] = n_in;
-    for (int i = 0; i < c->n_encoder && i < CFG_MAX_LIST; i++) enc[ne++] = c->encoder[i];
-    enc[ne++] = c->latent;
-    dec[nd++] = c->latent;
-    if (c->n_decoder < 0)
-        for (int i = c->n_encoder - 1; i >= 0 && i < CFG_MAX_LIST; i--) dec[nd++] = c->encoder[i];
-    else
-        for (int i = 0; i < c->n_decoder && i < CFG_MAX_LIST; i++) dec[nd++] = c->decoder[i];
-    dec[nd++] = n_in;
-    double params = 0, widths = 0;
-    for (int i = 0; i + 1 < ne; i++) params += (double)enc[i] * enc[i + 1] + enc[i + 1], widths += enc[i + 1];
-    for (int i = 0; i + 1 < nd; i++) params += (double)dec[i] * dec[i + 1] + dec[i + 1], widths += dec[i + 1];
-    double blocks = c->order + 1, bytes = 16.0 * params + 12.0 * (double)c->batch * blocks * (widths + n_in);
-    long pages = sysconf(_SC_PHYS_PAGES), page = sysconf(_SC_PAGESIZE);
-    double have = pages > 0 && page > 0 ? (double)pages * (double)page : 0;
-    if (have > 0 && bytes > have) {
-        char list[256];
-        size_t k = 0;
-        for (int i = 0; i < c->n_encoder && i < CFG_MAX_LIST && k < sizeof list - 16; i++)
-            k += (size_t)snprintf(list + k, sizeof list - k, "%s%d", i ? ", " : "", c->encoder[i]);
-        list[k] = 0;
-        return status_set(st, ST_INPUT,
-                          "model.encoder [%s]: a model of %.3g parameters on %d values per frame needs about %.3g GB, "
-                          "more than this machine's %.3g GB of memory (narrower layers, or a smaller data.size or "
-                          "train.batch)", list, params, n_in, bytes / 1e9, have / 1e9);
+void model_memory(const Config *c, long n_in, int blocks, long batch, MemEstimate *e) {
+    memset(e, 0, sizeof *e);
+    e->n_in = n_in;
+    /* encoder n -> h1 -> ... -> latent, decoder the reverse (or its own widths) */
+    double p = 0, widths = 0, prev = (double)n_in;
+    for (int i = 0; i < c->n_encoder && i < CFG_MAX_LIST; i++)
+        p += prev * c->encoder[i] + c->encoder[i], prev = c->encoder[i], widths += c->encoder[i];
+    p += prev * c->latent + c->latent;
+    prev = c->latent;
+    int nd = c->n_decoder < 0 ? c->n_encoder : c->n_decoder;
+    for (int i = 0; i < nd && i < CFG_MAX_LIST; i++) {
+        int w = c->n_decoder < 0 ? c->encoder[c->n_encoder - 1 - i] : c->decoder[i];
+        p += prev * w + w, prev = w, widths += w;
     }
-    return 0;
+    p += prev * (double)n_in + (double)n_in;
+    p += 64.0 * c->latent; /* the law: a few dozen coefficients per equation */
+    e->params = p;
+    if (batch < 1) batch = 1;
+    e->bytes = 4.0 * 6 * p + 4.0 * (double)batch * ((double)n_in * (2.0 * blocks + 4) + 3.0 * blocks * widths);
+    e->checkpoint_bytes = 4.0 * 3 * p;
+    long pages = sysconf(_SC_PHYS_PAGES), page = sysconf(_SC_PAGESIZE);
+    e->physical = pages > 0 && page > 0 ? (double)pages * (double)page : INFINITY;
+    e->budget = c->mem_budget > 0 ? c->mem_budget * 1073741824.0 : 0.5 * e->physical;
+}
+
+int model_memory_check(const Config *c, int n_in, Status *st) {
+    MemEstimate e;
+    model_memory(c, n_in, c->order + 1, c->batch, &e);
+    if (e.bytes <= e.physical) return 0;
+    char list[256];
+    size_t k = 0;
+    for (int i = 0; i < c->n_encoder && i < CFG_MAX_LIST && k < sizeof list - 16; i++)
+        k += (size_t)snprintf(list + k, sizeof list - k, "%s%d", i ? ", " : "", c->encoder[i]);
+    list[k] = 0;
+    return status_set(st, ST_INPUT,
+                      "model.encoder [%s]: a model of %.3g parameters on %d values per frame needs about %.3g GB, "
+                      "more than this machine's %.3g GB of memory (narrower layers, or a smaller data.size or "
+                      "train.batch)", list, e.params, n_in, e.bytes / 1e9, e.physical / 1e9);
 }
 
 int model_spec_from_config(const Config *c, int n_in, ModelSpec *sp, Status *st) {
