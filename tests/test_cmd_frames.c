@@ -100,7 +100,7 @@ static void test_summary_and_sheet(void **state) {
     assert_null(strstr(out, "contact sheet"));
 }
 
-/* --help lists every option with its default (STYLE.md: --help shows every option). */
+/* --help lists every option with its default (DEVELOPERS.md: every command has --help listing each option with its default). */
 static void test_help(void **state) {
     (void)state;
     char out[8192], err[4096];

@@ -428,7 +428,7 @@ static int exists(const char *path) {
     return stat(path, &sb) == 0;
 }
 
-/* --help names both scenarios and every option with its default (STYLE.md 13). */
+/* --help names both scenarios and every option with its default (DEVELOPERS.md: every command has --help listing each option with its default). */
 static void test_cmd_help(void **state) {
     (void)state;
     static char out[16384];
@@ -507,8 +507,8 @@ static void test_cmd_files(void **state) {
     test_rmtree(dir);
 }
 
-/* Bad input exits 2 with a one-line message that names the fault (DESIGN.md: exit status 2 for bad
- * usage or bad input): an unknown scenario lists the known ones; a non-empty OUT_DIR is refused
+/* Bad input exits 2 with a one-line message that names the fault (DEVELOPERS.md: exit status 2 for
+ * bad usage or bad input): an unknown scenario lists the known ones; a non-empty OUT_DIR is refused
  * unless --overwrite, which replaces an earlier demo's recordings and leaves other files alone. */
 static void test_cmd_bad_input(void **state) {
     (void)state;

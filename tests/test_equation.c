@@ -50,7 +50,7 @@ static void test_text_lorenz(void **state) {
     library_free(&lib);
 }
 
-/* The example of DESIGN.md and docs/sparse.md, second order. */
+/* The example of docs/sparse.md, second order. */
 static void test_text_pendulum(void **state) {
     (void)state;
     Library lib = make(1, 2, 1, 1);

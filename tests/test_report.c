@@ -1,7 +1,7 @@
 /* tests/test_report.c: `framelaw report RUN_DIR`, run as a user would (the binary from `make test`),
  * on a run folder built by hand: the page holds the equations, the caution, the plots (every <svg>
  * balanced as XML) and the embedded image; missing optional files become notes; bad input is exit
- * status 2 with a one-line message (DESIGN.md: 2 = bad usage or bad input). Then the page is
+ * status 2 with a one-line message (DEVELOPERS.md: 2 = bad usage or bad input). Then the page is
  * rendered by a real browser (headless Chromium, Debian package `chromium`) to a PNG that must not
  * be blank, and its rendered DOM must hold the equations. */
 #include <sys/stat.h>

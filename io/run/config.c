@@ -56,7 +56,7 @@ typedef enum {
     T_COUNT
 } KeyType;
 
-static const char *const type_names[T_COUNT] = {
+static const char *const type_names[] = {
     "number", "integer", "integer", "integer", "bool", "string", "path",
     "integer list", "integer list or null", "string list", "crop", "size",
 };
