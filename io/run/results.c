@@ -39,7 +39,7 @@ void loaded_run_close(LoadedRun *r) {
 int loaded_run_open(LoadedRun *r, const char *run_dir, Status *st) {
     memset(r, 0, sizeof *r);
     snprintf(r->dir, sizeof r->dir, "%s", run_dir);
-    if (run_config_load(run_dir, &r->cfg, st)) return st->code;
+    if (run_config_load(run_dir, &r->cfg, st) || run_frames_reachable(run_dir, &r->cfg, "export", st)) return st->code;
     if (rundata_open(&r->data, &r->cfg, st)) {
         rundata_close(&r->data);
         return st->code;

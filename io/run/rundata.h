@@ -43,6 +43,19 @@ void rundata_memory(const RunData *d, const Config *c, MemEstimate *e);
  * and data.crop. */
 int rundata_memory_check(const RunData *d, const Config *c, Status *st);
 
+/* ST_INPUT when the frames the run's config names are gone, with the command that follows them to a
+ * new place (cmd: "resume", "export"). */
+int run_frames_reachable(const char *run_dir, const Config *c, const char *cmd, Status *st);
+
+/* `--set data.frames=NEW` on a trained run (c: its config with the new value; old: data.frames as
+ * its config.json has it). When NEW is another place, its frames must be the run's: the content
+ * digest of their store (store_content_digest) equals the one provenance.json recorded (or, for a
+ * run that records none, the one of the frames still at the old place). Then data.frames_origin
+ * keeps the place of training (the config digest reads it, so the checkpoints still match),
+ * config.json is rewritten and provenance.json gets a "move" session. ST_INPUT, naming both places,
+ * when the content differs or cannot be checked. */
+int run_frames_move(const char *run_dir, Config *c, const char *old, int argc, char **argv, int quiet, Status *st);
+
 /* Read RUN_DIR/config.json. ST_INPUT when the folder or the file is missing ("not a run folder"). */
 int run_config_load(const char *run_dir, Config *c, Status *st);
 
