@@ -335,6 +335,16 @@ static int child_main(const Workload *w, int threads, const char *store_path, co
     for (int i = 0; i < w->n_hidden; i++) c.encoder[i] = w->hidden[i];
     c.n_decoder = -1;
     snprintf(c.activation, sizeof c.activation, "sigmoid");
+    /* the reference's model and loss: Glorot start, the frames' stencil derivatives carried through
+     * the encoder, unnormalised squared terms, L1 on |Xi|, no selection of the law by forecasts and
+     * no autoencoder-only warm-up (framelaw's defaults now differ in each) */
+    snprintf(c.init, sizeof c.init, "glorot");
+    snprintf(c.derivatives, sizeof c.derivatives, "frames");
+    c.loss_normalize = 0;
+    snprintf(c.threshold_measure, sizeof c.threshold_measure, "coefficient");
+    snprintf(c.threshold_select, sizeof c.threshold_select, "none");
+    snprintf(c.schedule, sizeof c.schedule, "constant");
+    c.warmup_epochs = 0;
     c.lib_degree = w->degree;
     c.lib_constant = 1;
     c.lib_trig = w->trig;
@@ -356,7 +366,7 @@ static int child_main(const Workload *w, int threads, const char *store_path, co
     c.refine_epochs = 0;
     c.ckpt_every = 0;
     c.ckpt_keep = 1;
-    TrainData td = {(int)d.ds.n, d.k, d.ds.count[SPLIT_TRAIN], 0, d.ds.dt, data_gather, &d, NULL};
+    TrainData td = {(int)d.ds.n, d.k, d.ds.count[SPLIT_TRAIN], 0, d.ds.dt, data_gather, &d, NULL, NULL};
     TrainOpts o = {&c, run_dir, 0, 1, NULL, 0};
     Model m;
     ParamSet ps;
