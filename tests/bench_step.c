@@ -1,10 +1,11 @@
 /* tests/bench_step.c: the time of one training step (`make bench`, never part of `make test`).
  *
- * The step: a second-order (k = 3: x, x', x'') 2601-128-64-32-1 encoder and the mirrored
- * 1-32-64-128-2601 decoder, sigmoid hidden layers, linear last layers, batch 1024 (3072 stacked
- * rows); loss mean|x - x_hat|^2 + 0.25 mean|x'' - x_hat''|^2 + 0.1 mean|z'' - c|^2, the decoder's
- * last layer fused with the two reconstruction terms as in sparse/model.c (nn_dense_sq_err: only
- * the x_hat and x_hat'' blocks are computed); forward with tangents, backward, one Adam step.
+ * The step: a second-order (k = 3: x, x', x'') 2304-64-32-1 encoder (48x48 frames, the video
+ * workload V of tests/bench_compare.c) and the mirrored 1-32-64-2304 decoder, sigmoid hidden
+ * layers, linear last layers, batch 256 (768 stacked rows); loss mean|x - x_hat|^2 +
+ * 0.25 mean|x'' - x_hat''|^2 + 0.1 mean|z'' - c|^2, the decoder's last layer fused with the two
+ * reconstruction terms as in sparse/model.c (nn_dense_sq_err: only the x_hat and x_hat'' blocks
+ * are computed); forward with tangents, backward, one Adam step.
  * Reported: median, min and max over repeated steps after a warm-up, at 1 and 2 threads, and the
  * same for the matrix products alone (cblas_sgemm on exactly the step's shapes and transposes), as
  * the ceiling the step can reach.
@@ -22,8 +23,9 @@
 #include "nn/tape.h"
 #include "tests/testutil.h"
 
-enum { B = 1024, K = 3, R = K * B, NX = 2601, NL = 4, WARMUP = 3, RUNS = 21 };
-static const int WE[NL + 1] = {NX, 128, 64, 32, 1}, WD[NL + 1] = {1, 32, 64, 128, NX};
+enum { B = 256, K = 3, R = K * B, NX = 48 * 48, NL = 3, WARMUP = 3, RUNS = 21 };
+static const int WE[NL + 1] = {NX, 64, 32, 1}, WD[NL + 1] = {1, 32, 64, NX};
+_Static_assert(NL == 3, "the printout names four widths per network");
 
 static double now(void) {
     struct timespec ts;
@@ -155,9 +157,9 @@ int main(void) {
     Gemms g;
     gemms_alloc(&g, &r);
 
-    printf("one training step: second-order encoder 2601-128-64-32-1, decoder 1-32-64-128-2601, sigmoid hidden,\n"
+    printf("one training step: second-order encoder %d-%d-%d-%d, decoder %d-%d-%d-%d, sigmoid hidden,\n"
            "linear outputs (the last fused with the loss: x_hat and x_hat'' only), batch %d (%d stacked rows x, x', x''); "
-           "forward with tangents, backward, Adam\n", B, R);
+           "forward with tangents, backward, Adam\n", WE[0], WE[1], WE[2], WE[3], WD[0], WD[1], WD[2], WD[3], B, R);
     printf("BLAS: OpenBLAS, core %s\n", nn_blas_corename());
     printf("analytic count: %.3f GFLOP per step (forward %.3f, backward %.3f; 2 R n_in n_out per product)\n",
            flops * 1e-9, fwd * 1e-9, bwd * 1e-9);

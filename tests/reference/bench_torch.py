@@ -3,9 +3,11 @@
 framelaw's training, written in PyTorch the way a practitioner would, timed per epoch.
 
 Run by the benchmark as a child process, once per setting (thread count, OMP_WAIT_POLICY); it can
-also be run by hand, e.g. from the repository root after `make bench` left its data behind:
-    /usr/bin/python3 tests/reference/bench_torch.py --data FILE.u8 --frames 10260 --n 2601 \
-        --recordings 10 --order 2 --latent 1 --widths 128,64,32 --degree 3 --trig 1 --threads 2
+also be run by hand, e.g. from the repository root on the data that
+`build/tests/bench_compare --only V --keep` leaves behind (it prints the folder, DIR):
+    /usr/bin/python3 tests/reference/bench_torch.py --data DIR/V.u8 --frames 10260 --n 2304 \
+        --recordings 10 --order 2 --latent 1 --widths 64,32 --degree 3 --trig 1 --batch 256 --threads 2
+(the video workload V: 48x48 frames, encoder 2304-64-32-1; the benchmark always passes --batch).
 
 Data: a raw file of uint8 frames, (frames, n) row-major, in equally long recordings. Each batch is
 gathered from the uint8 tensor and converted to float32 with the central-difference stencil, as
@@ -59,7 +61,7 @@ def parse():
     p.add_argument("--degree", type=int, default=3)
     p.add_argument("--trig", type=int, default=0)
     p.add_argument("--fps", type=float, default=30.0)
-    p.add_argument("--batch", type=int, default=1024)
+    p.add_argument("--batch", type=int, default=256, help="samples per step (bench_compare passes its own)")
     p.add_argument("--epochs", type=int, default=5)
     p.add_argument("--warmup", type=int, default=1)
     p.add_argument("--threads", type=int, default=1)
