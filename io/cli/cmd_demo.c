@@ -98,9 +98,14 @@ static int parse_args(int argc, char **argv, DemoSettings *s) {
     s->noise = DEF_NOISE;
     s->seed = DEF_SEED;
     s->overwrite = 0;
+    int operands = 0; /* after "--": SCENARIO and OUT_DIR even when they start with '-' */
     for (int i = 1; i < argc; i++) {
         const char *a = argv[i];
-        if (strncmp(a, "--", 2) || !a[2]) {
+        if (!operands && !strcmp(a, "--")) {
+            operands = 1;
+            continue;
+        }
+        if (operands || strncmp(a, "--", 2)) {
             if (n_pos == 2) return cli_error(2, "demo: unexpected argument '%s' (framelaw demo --help)", a);
             pos[n_pos++] = a;
             continue;

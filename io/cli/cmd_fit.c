@@ -186,9 +186,14 @@ static int apply_option(FitSettings *s, const char *name, const char *val) {
 }
 
 static int parse_args(FitSettings *s, int argc, char **argv) {
+    int operands = 0; /* after "--": FILE even when it starts with '-' */
     for (int i = 1; i < argc; i++) {
         const char *arg = argv[i];
-        if (strncmp(arg, "--", 2)) {
+        if (!operands && !strcmp(arg, "--")) {
+            operands = 1;
+            continue;
+        }
+        if (operands || strncmp(arg, "--", 2)) {
             if (s->path) return cli_error(2, "fit: one FILE expected, got '%s' and '%s'", s->path, arg);
             s->path = arg;
             continue;

@@ -25,7 +25,7 @@ static void frames_usage(FILE *f) {
             "durations, store size and training-set size, and writes a contact sheet PNG (first, middle\n"
             "and last frame of each recording, after preprocessing).\n\n"
             "options (default in brackets; --config reads the data.* keys, flags override them):\n"
-            "  --config FILE          run config whose data.* keys set everything below\n"
+            "  --config FILE          run config whose data.* keys set everything below    [none]\n"
             "  --gray bt601|bt709     luma weights for colour frames                       [%s]\n"
             "  --crop X,Y,W,H         crop rectangle in source pixels                      [none]\n"
             "  --size WxH             frame size after the crop, by area averaging         [keep]\n"
@@ -40,7 +40,7 @@ static void frames_usage(FILE *f) {
             "  --val-last N           else hold out the last N recordings                  [%d]\n"
             "  --store FILE           frame store file               [DIR/.framelaw-store]\n"
             "  --sheet FILE           contact sheet PNG; 'none' skips it   [" SHEET_DEFAULT "]\n"
-            "  --rebuild              rebuild the frame store even when it is current\n"
+            "  --rebuild              rebuild the frame store even when it is current      [off]\n"
             "  --help                 this text\n\n"
             "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n",
             gray_std_names[d.gray], d.bits, d.stride, d.fps, scale_mode_names[d.scale],
@@ -168,10 +168,13 @@ int cmd_frames(int argc, char **argv) {
     int rebuild = 0;
     Status st;
     status_ok(&st);
+    /* "--" ends the options: what follows is DIR even when it starts with '-' */
+    int end = 1;
+    while (end < argc && strcmp(argv[end], "--")) end++;
     /* The config first, so that flags override it wherever they stand. */
-    for (int i = 1; i < argc; i++) {
+    for (int i = 1; i < end; i++) {
         if (!strcmp(argv[i], "--config") || !strncmp(argv[i], "--config=", 9)) {
-            config = argv[i][8] == '=' ? argv[i] + 9 : (i + 1 < argc ? argv[i + 1] : NULL);
+            config = argv[i][8] == '=' ? argv[i] + 9 : (i + 1 < end ? argv[i + 1] : NULL);
             if (!config) return cli_error(2, "--config needs a value (framelaw frames --help)");
         }
     }
@@ -186,11 +189,12 @@ int cmd_frames(int argc, char **argv) {
         if (rc) return cli_error(st.code, "%s", st.msg);
     }
     for (int i = 1; i < argc; i++) {
-        if (!strcmp(argv[i], "--config")) {
+        if (i == end) {
+        } else if (i < end && !strcmp(argv[i], "--config")) {
             i++;
-        } else if (!strncmp(argv[i], "--config=", 9)) {
-        } else if (!strncmp(argv[i], "--", 2)) {
-            int rc = apply_option(&s, argc, argv, &i, &sheet, &rebuild);
+        } else if (i < end && !strncmp(argv[i], "--config=", 9)) {
+        } else if (i < end && !strncmp(argv[i], "--", 2)) {
+            int rc = apply_option(&s, end, argv, &i, &sheet, &rebuild);
             if (rc) return rc;
         } else if (!dir) {
             dir = argv[i];
@@ -205,7 +209,7 @@ int cmd_frames(int argc, char **argv) {
     FrameScan scan;
     if (frames_scan(dir, &scan, &st)) return cli_error(st.code, "%s", st.msg);
     int fps_given = config != NULL;
-    for (int i = 1; i < argc; i++) fps_given |= !strcmp(argv[i], "--fps");
+    for (int i = 1; i < end; i++) fps_given |= !strcmp(argv[i], "--fps");
     if (!fps_given) { /* videos and CSV time columns carry their rate */
         double rate;
         char from[4096];

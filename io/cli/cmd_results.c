@@ -9,9 +9,11 @@
 
 static int run_dir_arg(int argc, char **argv, const char **dir, int *quiet) {
     *dir = NULL;
+    int operands = 0; /* after "--": RUN_DIR even when it starts with '-' */
     for (int i = 1; i < argc; i++) {
-        if (!strcmp(argv[i], "--quiet")) *quiet = 1;
-        else if (argv[i][0] == '-') return cli_error(2, "%s: unknown option (framelaw %s --help)", argv[i], argv[0]);
+        if (!operands && !strcmp(argv[i], "--")) operands = 1;
+        else if (!operands && !strcmp(argv[i], "--quiet")) *quiet = 1;
+        else if (!operands && argv[i][0] == '-') return cli_error(2, "%s: unknown option (framelaw %s --help)", argv[i], argv[0]);
         else if (*dir) return cli_error(2, "%s: one run folder only", argv[i]);
         else *dir = argv[i];
     }
@@ -48,7 +50,11 @@ int cmd_export(int argc, char **argv) {
                "equations.txt / .tex / .json, trajectories/<recording>.csv and .npy (t, z, z', the model's\n"
                "z' or z''), reconstructions/<recording>.png (original | decoded | difference) for image data,\n"
                "and region.json (the range of latent states seen in training). `framelaw train` runs it at\n"
-               "the end of a run.\n\n  --quiet   no summary line\n");
+               "the end of a run.\n\n"
+               "options (default in brackets):\n"
+               "  --quiet   no summary line       [off]\n"
+               "  --help    this text\n\n"
+               "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n");
         return 0;
     }
     return with_run(argc, argv, results_export);
@@ -62,7 +68,11 @@ int cmd_forecast(int argc, char **argv) {
                "forecast.tolerance), decode every step and compare with the real frames. Prints the mean\n"
                "relative error and the time it first exceeds forecast.bound (default 10%%), flags forecasts\n"
                "that leave the training region, and writes forecast.json and forecast/<recording>.csv.\n"
-               "`framelaw train` runs it at the end of a run.\n\n  --quiet   no summary lines\n");
+               "`framelaw train` runs it at the end of a run.\n\n"
+               "options (default in brackets):\n"
+               "  --quiet   no summary lines      [off]\n"
+               "  --help    this text\n\n"
+               "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n");
         return 0;
     }
     return with_run(argc, argv, results_forecast);
