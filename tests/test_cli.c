@@ -5,9 +5,15 @@
  * 10: "The first -- argument that is not an option-argument should be accepted as a delimiter
  * indicating the end of options. Any following arguments should be treated as operands, even if they
  * begin with the '-' character."). */
+#define _XOPEN_SOURCE 700 /* posix_openpt, grantpt, unlockpt, ptsname */
+#include <errno.h>
+#include <fcntl.h>
+#include <sys/ioctl.h>
 #include <sys/stat.h>
+#include <termios.h>
 #include <unistd.h>
 
+#include "io/fs/term.h"
 #include "tests/testutil.h"
 
 static char tmp[256];
@@ -131,10 +137,174 @@ static void test_help_blocks(void **state) {
     assert_true(n >= 12); /* train resume export forecast verify ensemble canonical fit frames demo sweep report */
 }
 
+/* No file whose name starts with ".tmp" or holds ".tmp-" in dir (the atomic writer's temporaries). */
+static void assert_no_temporaries(const char *dir) {
+    char cmd[600], out[4096];
+    snprintf(cmd, sizeof cmd, "find '%s' -name '*.tmp-*'", dir);
+    FILE *p = popen(cmd, "r");
+    assert_non_null(p);
+    size_t n = fread(out, 1, sizeof out - 1, p);
+    out[n] = 0;
+    pclose(p);
+    if (n) fail_msg("temporary files left: %s", out);
+}
+
+/* A run's output (the key `output`, or --set output=...) that names a regular file, or a path under
+ * one, is bad input: exit 2, a message naming the file and the key, no temporary name in it, the
+ * file untouched and no temporary left. */
+static void test_output_is_a_file(void **state) {
+    (void)state;
+    static char out[16384];
+    assert_int_equal(test_run_capture("demo --recordings 2 --frames 20 --size 16 spring fr", out, sizeof out), 0);
+    test_write_file("c.json", "{\"data\": {\"frames\": \"fr\", \"fps\": 25}, \"train\": {\"epochs\": 1}}");
+    test_write_file("afile", "keep me\n");
+    static const char *const args[] = {
+        "train c.json --set output='\"afile\"'",
+        "train c.json --set=output='\"afile\"'",
+        "train c.json --set output='\"afile/run\"'",
+    };
+    for (size_t i = 0; i < sizeof args / sizeof *args; i++) {
+        int rc = test_run_capture(args[i], out, sizeof out);
+        if (rc != 2 || !strstr(out, "afile: cannot create folder: a file of that name is in the way") ||
+            !strstr(out, "output") || strstr(out, ".tmp"))
+            fail_msg("%s: exit %d, '%s'", args[i], rc, out);
+        /* one line */
+        if (strchr(out, '\n') != out + strlen(out) - 1) fail_msg("%s: more than one line: '%s'", args[i], out);
+    }
+    char *kept = test_slurp("afile");
+    assert_string_equal(kept, "keep me\n");
+    free(kept);
+    assert_no_temporaries(tmp);
+}
+
+/* ---- the progress line -------------------------------------------------------------------------- */
+
+/* term_fit cuts at the last two-space separator that fits in width - 1 columns, else at a space,
+ * else hard; a line that fits is kept whole. */
+static void test_term_fit(void **state) {
+    (void)state;
+    char b[128];
+    snprintf(b, sizeof b, "epoch 2/9 train  ETA 3s  loss 9.367e-01  active 3");
+    term_fit(b, 80);
+    assert_string_equal(b, "epoch 2/9 train  ETA 3s  loss 9.367e-01  active 3"); /* 49 columns: kept */
+    term_fit(b, 40);
+    assert_string_equal(b, "epoch 2/9 train  ETA 3s  loss 9.367e-01"); /* 39 columns: fits 40 - 1 */
+    snprintf(b, sizeof b, "epoch 2/9 train  ETA 3s  loss 9.367e-01  active 3");
+    term_fit(b, 39);
+    assert_string_equal(b, "epoch 2/9 train  ETA 3s"); /* "  loss 9.367e-01" would end in column 39 */
+    term_fit(b, 12);
+    assert_string_equal(b, "epoch 2/9"); /* no "  " fits: the last space */
+    snprintf(b, sizeof b, "abcdefghijklmnop");
+    term_fit(b, 6);
+    assert_string_equal(b, "abcde"); /* no space at all: cut hard */
+}
+
+/* A pseudo-terminal (master, slave) of cols columns; fails the test when none can be made. */
+static void open_pty(int cols, int *master, int *slave) {
+    int m = posix_openpt(O_RDWR | O_NOCTTY);
+    if (m < 0 || grantpt(m) || unlockpt(m)) fail_msg("no pseudo-terminal: %s", strerror(errno));
+    int s = open(ptsname(m), O_RDWR | O_NOCTTY);
+    if (s < 0) fail_msg("cannot open %s: %s", ptsname(m), strerror(errno));
+    struct winsize ws = {.ws_row = 24, .ws_col = (unsigned short)cols};
+    if (ioctl(s, TIOCSWINSZ, &ws)) fail_msg("TIOCSWINSZ: %s", strerror(errno));
+    *master = m, *slave = s;
+}
+
+/* term_columns: the terminal's own width first, then $COLUMNS, then 80. */
+static void test_term_columns(void **state) {
+    (void)state;
+    int m, s;
+    open_pty(57, &m, &s);
+    setenv("COLUMNS", "63", 1);
+    assert_int_equal(term_columns(s), 57);   /* a terminal says its width */
+    int fd = open("cols.txt", O_WRONLY | O_CREAT | O_TRUNC, 0644);
+    assert_true(fd >= 0);
+    assert_int_equal(term_columns(fd), 63);  /* a file: $COLUMNS */
+    setenv("COLUMNS", "wide", 1);
+    assert_int_equal(term_columns(fd), 80);
+    unsetenv("COLUMNS");
+    assert_int_equal(term_columns(fd), 80);
+    close(fd), close(s), close(m);
+}
+
+/* framelaw ARGS with stderr (and stdout) on a pseudo-terminal of cols columns, $COLUMNS unset; what
+ * it wrote there, NUL-terminated, in out (n). Returns the exit status. */
+static int run_on_pty(const char *args, int cols, char *out, size_t n) {
+    int m, s;
+    open_pty(cols, &m, &s);
+    char cmd[4096];
+    snprintf(cmd, sizeof cmd, "'%s' %s", test_framelaw(), args);
+    pid_t pid = fork();
+    assert_true(pid >= 0);
+    if (pid == 0) {
+        close(m);
+        setsid();
+        dup2(s, 1), dup2(s, 2);
+        close(s);
+        unsetenv("COLUMNS");
+        execl("/bin/sh", "sh", "-c", cmd, (char *)NULL);
+        _exit(127);
+    }
+    close(s);
+    size_t len = 0;
+    for (;;) { /* until the child's end closes the terminal (EIO) */
+        ssize_t k = read(m, out + len, n - 1 - len);
+        if (k <= 0) break;
+        len += (size_t)k;
+        if (len == n - 1) break;
+    }
+    out[len] = 0;
+    close(m);
+    int status;
+    waitpid(pid, &status, 0);
+    return WIFEXITED(status) ? WEXITSTATUS(status) : -1;
+}
+
+/* Longest row drawn by a progress line starting with prefix: the text between "\r\033[K" (or a line
+ * start) and the next "\r" or "\n"; -1 when there is none. */
+static int widest(const char *out, const char *prefix) {
+    int w = -1;
+    for (const char *p = out; (p = strstr(p, prefix)); p++) {
+        int k = (int)strcspn(p, "\r\n");
+        if (k > w) w = k;
+    }
+    return w;
+}
+
+/* On a terminal of 80 columns the progress lines of train (epochs) and demo stay within 79
+ * columns, so that "\r" redraws them in place (a wider line wraps and leaves a row per update);
+ * on 200 columns the whole line shows; in a log file the line is whole. */
+static void test_progress_fits(void **state) {
+    (void)state;
+    static char out[1 << 17];
+    assert_int_equal(run_on_pty("demo --recordings 3 --frames 40 --size 16 --overwrite spring pfr", 80, out, sizeof out), 0);
+    int w = widest(out, "demo spring: recording");
+    if (w < 0 || w > 79) fail_msg("demo progress %d columns wide:\n%s", w, out);
+    test_write_file("p.json", "{\"data\": {\"frames\": \"pfr\", \"fps\": 25}, \"train\": {\"epochs\": 20}, "
+                              "\"output\": \"prun\"}");
+    assert_int_equal(run_on_pty("train p.json --set output='\"prun80\"'", 80, out, sizeof out), 0);
+    w = widest(out, "epoch ");
+    if (w < 0 || w > 79) fail_msg("train progress %d columns wide on 80:\n%s", w, out);
+    assert_non_null(strstr(out, "epoch 20/20 refine  ETA"));
+    w = widest(out, "framelaw: fitting the autoencoder to the embedding: epoch"); /* model.init isomap */
+    if (w < 0 || w > 79) fail_msg("isomap fitting progress %d columns wide on 80:\n%s", w, out);
+    assert_int_equal(run_on_pty("train p.json --set output='\"prun200\"'", 200, out, sizeof out), 0);
+    w = widest(out, "epoch ");
+    if (w <= 80 || w > 199) fail_msg("train progress %d columns wide on 200:\n%s", w, out);
+    assert_non_null(strstr(out, "  l1 ")); /* the last field */
+    /* not a terminal: whole lines, wider than 80 */
+    assert_int_equal(test_run_capture("train p.json --set output='\"prunlog\"'", out, sizeof out), 0);
+    assert_true(widest(out, "epoch ") > 80);
+}
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_end_of_options),
         cmocka_unit_test(test_help_blocks),
+        cmocka_unit_test(test_output_is_a_file),
+        cmocka_unit_test(test_term_fit),
+        cmocka_unit_test(test_term_columns),
+        cmocka_unit_test(test_progress_fits),
     };
     return cmocka_run_group_tests_name("command-line manners", tests, setup, teardown);
 }

@@ -24,6 +24,7 @@
 #include "io/fs/atomic_file.h"
 #include "io/fs/clock.h"
 #include "io/fs/files.h"
+#include "io/fs/term.h"
 #include "io/cli/cli.h"
 #include "io/data/images.h"
 
@@ -259,10 +260,10 @@ static void progress(Progress *p, const char *what, int rec, int n_rec, int forc
     p->last = t;
     double frac = p->total ? (double)p->done / p->total : 1;
     double eta = frac > 0 ? (t - p->start) * (1 - frac) / frac : 0;
-    fprintf(stderr, "%sdemo %s: recording %d/%d, %ld/%ld frames (%.0f%%), %.0f s elapsed, about %.0f s left%s",
-            p->tty ? "\r\033[K" : "", what, rec, n_rec, p->done, p->total, 100 * frac, t - p->start, eta,
-            p->tty ? "" : "\n");
-    fflush(stderr);
+    char line[200]; /* the fields most wanted first: a narrow terminal cuts the line from the end */
+    snprintf(line, sizeof line, "demo %s: recording %d/%d  %ld/%ld frames (%.0f%%)  about %.0f s left  %.0f s elapsed",
+             what, rec, n_rec, p->done, p->total, 100 * frac, eta, t - p->start);
+    term_progress(stderr, p->tty, line);
 }
 
 /* "rec" and k zero-padded to w digits (w <= 8). */

@@ -201,7 +201,12 @@ int cmd_train(int argc, char **argv) {
     snprintf(ck, sizeof ck, "%s/checkpoints", c->output);
     /* the folder, then its lock (a train or resume running there is named), then whether it holds a run */
     RunLock lock = {-1};
-    if (fs_make_dirs(c->output, &st) || run_lock(&lock, c->output, "train", &st)) {
+    if (fs_make_dirs(c->output, &st)) { /* a file in the way is bad input: name it and the key */
+        free(c);
+        if (st.code == ST_INPUT) return cli_error(2, "output: %s; choose another run folder (--set output=...)", st.msg);
+        return cli_error(st.code, "%s", st.msg);
+    }
+    if (run_lock(&lock, c->output, "train", &st)) {
         free(c);
         return cli_error(st.code, "%s", st.msg);
     }

@@ -10,6 +10,7 @@
 
 #include "io/fs/clock.h"
 #include "io/fs/files.h"
+#include "io/fs/term.h"
 #include "io/run/checkpoint.h"
 #include "io/run/runlog.h"
 #include "nn/adam.h"
@@ -539,7 +540,9 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, const Tr
     }
     var /= (double)n;
     float wdec = (float)(var > 1e-20 ? 1.0 / var : 1.0);
-    if (!quiet) fprintf(stderr, " %d neighbours, %.1f s; fitting the autoencoder to it...", k_used, clock_seconds() - t0);
+    /* on a terminal the progress line below gets a row of its own */
+    if (!quiet) fprintf(stderr, " %d neighbours, %.1f s; fitting the autoencoder to it...%s", k_used, clock_seconds() - t0,
+                        tty ? "\n" : "");
     Tape t;
     tape_init(&t, 64, (size_t)16 << 20);
     long nb = (N + Bmax - 1) / Bmax;
@@ -553,8 +556,10 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, const Tr
         }
         if (tty && e > 0) {
             double per = (clock_seconds() - t_fit) / (double)e;
-            fprintf(stderr, "\r\033[Kframelaw: fitting the autoencoder to the embedding: epoch %ld/%ld, loss %.3g, ETA %.0f s",
-                    e, r->cfg->init_epochs, last, per * (double)(r->cfg->init_epochs - e));
+            char line[160];
+            snprintf(line, sizeof line, "framelaw: fitting the autoencoder to the embedding: epoch %ld/%ld  ETA %.0f s  loss %.3g",
+                     e, r->cfg->init_epochs, per * (double)(r->cfg->init_epochs - e), last);
+            term_progress(stderr, 1, line);
         }
         double acc = 0;
         for (long b = 0; b < nb; b++) {
@@ -789,11 +794,13 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
             double el = t_now - t_start, rate = (double)(done - epoch0) / (el > 0 ? el : 1e-9);
             char eta[32];
             fmt_duration((double)(c->epochs - done) / rate, eta, sizeof eta);
-            char vbuf[32] = "";
-            if (validated) snprintf(vbuf, sizeof vbuf, " val %.3e", val);
-            fprintf(stderr, "%sepoch %ld/%ld %s loss %.3e rec %.3e dx %.3e dz %.3e l1 %.3g active %ld%s  %.2f ep/s  ETA %s%s",
-                    tty ? "\r\033[K" : "", done, c->epochs, refine ? "refine" : warm ? "warmup" : "train", mean[0], mean[1], mean[2],
-                    mean[3], mean[4], active, vbuf, rate, eta, tty ? "" : "\n");
+            char vbuf[32] = "", line[256];
+            if (validated) snprintf(vbuf, sizeof vbuf, "  val %.3e", val);
+            /* the fields most wanted first: a terminal narrower than the line cuts it from the end */
+            snprintf(line, sizeof line, "epoch %ld/%ld %s  ETA %s  loss %.3e%s  active %ld  %.2f ep/s  rec %.3e  dx %.3e"
+                     "  dz %.3e  l1 %.3g", done, c->epochs, refine ? "refine" : warm ? "warmup" : "train", eta, mean[0],
+                     vbuf, active, rate, mean[1], mean[2], mean[3], mean[4]);
+            term_progress(stderr, tty, line);
         }
         if (stopping) { res->interrupted = 1; break; }
     }
