@@ -177,6 +177,42 @@ static void test_output_is_a_file(void **state) {
     assert_no_temporaries(tmp);
 }
 
+/* framelaw ARGS with stdout into out and stderr into err (each NUL-terminated); the exit status. */
+static int run_split(const char *args, char *out, size_t no, char *err, size_t ne) {
+    char cmd[8192], errf[300];
+    snprintf(errf, sizeof errf, "%s/stderr.txt", tmp);
+    snprintf(cmd, sizeof cmd, "'%s' %s 2>'%s'", test_framelaw(), args, errf);
+    FILE *p = popen(cmd, "r");
+    assert_non_null(p);
+    size_t len = fread(out, 1, no - 1, p);
+    out[len] = 0;
+    int status = pclose(p);
+    char *e = test_slurp(errf);
+    snprintf(err, ne, "%s", e ? e : "");
+    free(e);
+    return WIFEXITED(status) ? WEXITSTATUS(status) : -1;
+}
+
+/* export and forecast print their summaries on the same stream, stdout (results on stdout, progress
+ * and notes on stderr: common practice), so that `framelaw export RUN > file` keeps them together. */
+static void test_summaries_on_stdout(void **state) {
+    (void)state;
+    static char out[1 << 16], err[1 << 16];
+    assert_int_equal(test_run_capture("demo --recordings 3 --frames 40 --size 16 --overwrite spring sfr", out, sizeof out), 0);
+    test_write_file("s.json", "{\"data\": {\"frames\": \"sfr\", \"fps\": 25}, \"train\": {\"epochs\": 2}, \"output\": \"srun\"}");
+    assert_int_equal(test_run_capture("train s.json", out, sizeof out), 0);
+    assert_int_equal(run_split("export srun", out, sizeof out, err, sizeof err), 0);
+    if (!strstr(out, "exported 3 recordings to srun") || strstr(err, "exported"))
+        fail_msg("export: stdout '%s', stderr '%s'", out, err);
+    assert_int_equal(run_split("forecast srun", out, sizeof out, err, sizeof err), 0);
+    if (!strstr(out, "forecast rec02: latent error") || strstr(err, "forecast rec"))
+        fail_msg("forecast: stdout '%s', stderr '%s'", out, err);
+    /* --quiet: no summary on either */
+    assert_int_equal(run_split("export srun --quiet", out, sizeof out, err, sizeof err), 0);
+    assert_null(strstr(out, "exported"));
+    assert_null(strstr(err, "exported"));
+}
+
 /* ---- the progress line -------------------------------------------------------------------------- */
 
 /* term_fit cuts at the last two-space separator that fits in width - 1 columns, else at a space,
@@ -302,6 +338,7 @@ int main(void) {
         cmocka_unit_test(test_end_of_options),
         cmocka_unit_test(test_help_blocks),
         cmocka_unit_test(test_output_is_a_file),
+        cmocka_unit_test(test_summaries_on_stdout),
         cmocka_unit_test(test_term_fit),
         cmocka_unit_test(test_term_columns),
         cmocka_unit_test(test_progress_fits),

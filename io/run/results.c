@@ -313,9 +313,11 @@ int results_export(LoadedRun *r, int quiet, Status *st) {
     }
     Region reg;
     if (results_region(r, &reg, st) || region_write(r, &reg, st)) return st->code;
-    if (!quiet)
-        fprintf(stderr, "framelaw: exported %d recordings to %s (equations, trajectories%s, region.json)\n",
-                r->data.store.n_rec, r->dir, images ? ", reconstructions" : "");
+    if (!quiet) { /* a result, on stdout like forecast's (progress and notes go to stderr) */
+        printf("exported %d recordings to %s (equations, trajectories%s, region.json)\n", r->data.store.n_rec, r->dir,
+               images ? ", reconstructions" : "");
+        fflush(stdout);
+    }
     return 0;
 }
 
