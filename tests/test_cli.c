@@ -213,6 +213,112 @@ static void test_summaries_on_stdout(void **state) {
     assert_null(strstr(err, "exported"));
 }
 
+/* `frames DIR` without a config shows what `train` with a config that sets nothing but data.frames
+ * and data.fps would use: the same derivative stencil (data.derivative.method auto, chosen from the
+ * frames) and the same split into training and validation samples. */
+static void test_frames_defaults_are_trains(void **state) {
+    (void)state;
+    static char out[1 << 16];
+    assert_int_equal(test_run_capture("demo --recordings 3 --frames 40 --size 16 --overwrite spring dfr", out, sizeof out), 0);
+    test_write_file("d.json", "{\"data\": {\"frames\": \"dfr\", \"fps\": 25}, \"train\": {\"epochs\": 1}, \"output\": \"drun\"}");
+    assert_int_equal(test_run_capture("train d.json", out, sizeof out), 0);
+    const char *p = strstr(out, "derivatives: Savitzky-Golay window ");
+    const char *q = strstr(out, " training and ");
+    assert_non_null(p);
+    assert_non_null(q);
+    int tw, td;
+    long tn, tv;
+    assert_int_equal(sscanf(p, "derivatives: Savitzky-Golay window %d, degree %d", &tw, &td), 2);
+    while (q > out && q[-1] != ' ') q--;
+    assert_int_equal(sscanf(q, "%ld training and %ld validation samples", &tn, &tv), 2);
+    static const char *const args[] = {"frames dfr --fps 25 --sheet none", "frames --config d.json --sheet none"};
+    for (int k = 0; k < 2; k++) {
+        assert_int_equal(test_run_capture(args[k], out, sizeof out), 0);
+        int fw, fd;
+        long fn, fv;
+        p = strstr(out, "derivatives: savgol stencil over ");
+        q = strstr(out, "training set: ");
+        if (!p || !q) fail_msg("%s: no Savitzky-Golay stencil or no training set:\n%s", args[k], out);
+        assert_int_equal(sscanf(p, "derivatives: savgol stencil over %d frames (degree %d)", &fw, &fd), 2);
+        assert_int_equal(sscanf(q, "training set: %ld samples from %*d recordings; validation: %ld", &fn, &fv), 2);
+        if (fw != tw || fd != td || fn != tn || fv != tv)
+            fail_msg("%s: window %d degree %d, %ld + %ld samples; train: window %d degree %d, %ld + %ld", args[k], fw,
+                     fd, fn, fv, tw, td, tn, tv);
+    }
+    /* a flag still overrides the default */
+    assert_int_equal(test_run_capture("frames dfr --derivative central --sheet none", out, sizeof out), 0);
+    assert_non_null(strstr(out, "derivatives: central stencil over 3 frames"));
+    assert_int_equal(test_run_capture("frames dfr --derivative forward --sheet none", out, sizeof out), 2);
+    assert_non_null(strstr(out, "--derivative 'forward': expected central, savgol or auto"));
+}
+
+/* The bytes of a regular file (malloc'ed, *n of them), or NULL (no file, a folder). */
+static uint8_t *slurp_bytes(const char *path, size_t *n) {
+    struct stat sb;
+    if (stat(path, &sb) || !S_ISREG(sb.st_mode)) return NULL;
+    FILE *f = fopen(path, "rb");
+    if (!f) return NULL;
+    uint8_t *b = malloc((size_t)sb.st_size + 1);
+    *n = b ? fread(b, 1, (size_t)sb.st_size, f) : 0;
+    fclose(f);
+    return b;
+}
+
+/* The chunks of a PNG checked by Python's zlib.crc32 (PNG Specification, Second Edition, W3C
+ * Recommendation 2003, 5.3 chunk layout: length, type, data, CRC-32 of type and data; 11.3.4.3 tEXt:
+ * keyword, NUL, text): prints "ok" and each tEXt chunk as KEY=TEXT, or "bad CRC". */
+static void png_chunks(const char *path, char *out, size_t n) {
+    char cmd[1200];
+    snprintf(cmd, sizeof cmd,
+             "/usr/bin/python3 -c \"import sys,struct,zlib\n"
+             "b=open(sys.argv[1],'rb').read(); assert b[:8]==b'\\x89PNG\\r\\n\\x1a\\n'; i=8; out=['ok']\n"
+             "while i<len(b):\n"
+             "  n,=struct.unpack('>I',b[i:i+4]); t=b[i+4:i+8]; d=b[i+8:i+8+n]; c,=struct.unpack('>I',b[i+8+n:i+12+n])\n"
+             "  if zlib.crc32(t+d)&0xffffffff!=c: out=['bad CRC']; break\n"
+             "  if t==b'tEXt': k,v=d.split(b'\\x00',1); out.append(k.decode()+'='+v.decode())\n"
+             "  i+=12+n\n"
+             "print(' '.join(out))\" '%s'", path);
+    FILE *p = popen(cmd, "r");
+    assert_non_null(p);
+    size_t len = fread(out, 1, n - 1, p);
+    out[len] = 0;
+    pclose(p);
+}
+
+/* The contact sheet never silently replaces a file: it replaces only an earlier contact sheet of
+ * framelaw (a PNG whose Software text says so); a frame, any other file or a folder at that path is
+ * bad input (exit 2, named), left byte for byte as it was. */
+static void test_sheet_never_overwrites(void **state) {
+    (void)state;
+    static char out[1 << 16];
+    assert_int_equal(test_run_capture("demo --recordings 2 --frames 20 --size 16 --overwrite spring cfr", out, sizeof out), 0);
+    assert_int_equal(test_run_capture("frames cfr --fps 25", out, sizeof out), 0);
+    assert_non_null(strstr(out, "contact sheet: contact-sheet.png"));
+    png_chunks("contact-sheet.png", out, sizeof out);
+    if (strcmp(out, "ok Software=framelaw contact sheet\n")) fail_msg("contact-sheet.png chunks: '%s'", out);
+    /* an earlier sheet of ours is replaced */
+    assert_int_equal(test_run_capture("frames cfr --fps 25", out, sizeof out), 0);
+    assert_non_null(strstr(out, "contact sheet: contact-sheet.png"));
+    /* anything else is not */
+    test_write_file("notes.png", "my notes\n");
+    assert_int_equal(mkdir("afolder.png", 0755), 0);
+    static const char *const places[] = {"notes.png", "cfr/rec00/frame000000.png", "afolder.png"};
+    for (size_t i = 0; i < sizeof places / sizeof *places; i++) {
+        char args[300];
+        size_t nb = 0, na = 0;
+        uint8_t *before = slurp_bytes(places[i], &nb);
+        snprintf(args, sizeof args, "frames cfr --fps 25 --sheet %s", places[i]);
+        int rc = test_run_capture(args, out, sizeof out);
+        char want[200];
+        snprintf(want, sizeof want, "%s: exists and is not a contact sheet framelaw wrote", places[i]);
+        if (rc != 2 || !strstr(out, want)) fail_msg("%s: exit %d, '%s'", args, rc, out);
+        uint8_t *after = slurp_bytes(places[i], &na);
+        if (before && (!after || na != nb || memcmp(before, after, nb))) fail_msg("%s was changed", places[i]);
+        free(before), free(after);
+    }
+    assert_no_temporaries(tmp);
+}
+
 /* ---- the progress line -------------------------------------------------------------------------- */
 
 /* term_fit cuts at the last two-space separator that fits in width - 1 columns, else at a space,
@@ -339,6 +445,8 @@ int main(void) {
         cmocka_unit_test(test_help_blocks),
         cmocka_unit_test(test_output_is_a_file),
         cmocka_unit_test(test_summaries_on_stdout),
+        cmocka_unit_test(test_frames_defaults_are_trains),
+        cmocka_unit_test(test_sheet_never_overwrites),
         cmocka_unit_test(test_term_fit),
         cmocka_unit_test(test_term_columns),
         cmocka_unit_test(test_progress_fits),

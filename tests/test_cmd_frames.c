@@ -81,7 +81,9 @@ static void test_summary_and_sheet(void **state) {
     assert_int_equal(mkdir(d, 0755), 0);
     write_frames(a, 11, 16, 12);
     write_frames(b, 7, 16, 12);
-    assert_int_equal(run("frames good --fps 10 --size 8x6 --sheet sheet.png", out, sizeof out, err, sizeof err), 0);
+    /* central differences (3 frames): 9 + 5 samples */
+    assert_int_equal(run("frames good --fps 10 --size 8x6 --derivative central --sheet sheet.png", out, sizeof out, err,
+                         sizeof err), 0);
     const char *want[] = {"2 image recordings", "run1", "run2", "validation", "frame size: 8x6 (source 16x12",
                           "time step: 0.1 s", "built", "training set: 9 samples from 1 recording; validation: 5 samples",
                           "contact sheet: sheet.png", "1.00s"};
@@ -106,7 +108,7 @@ static void test_help(void **state) {
     char out[8192], err[4096];
     assert_int_equal(run("frames --help", out, sizeof out, err, sizeof err), 0);
     const char *opts[] = {"--config", "--gray", "[bt601]", "--crop", "--size", "--bits", "--stride", "--fps", "[30]",
-                          "--scale", "[unit]", "--derivative", "[central]", "--window", "[7]", "--degree", "[3]",
+                          "--scale", "[unit]", "--derivative", "[auto]", "--window", "[7]", "--degree", "[3]",
                           "--val ", "--val-last", "--store", "--sheet", "--rebuild"};
     for (size_t i = 0; i < sizeof opts / sizeof opts[0]; i++)
         if (!strstr(out, opts[i])) fail_msg("'%s' missing from --help", opts[i]);

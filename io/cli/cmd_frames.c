@@ -4,6 +4,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 
 #include "io/cli/cli.h"
 #include "io/run/config.h"
@@ -14,17 +15,43 @@
 #include "io/data/store.h"
 
 #define SHEET_DEFAULT "contact-sheet.png"
+#define SHEET_SOFTWARE "framelaw contact sheet" /* the PNG's Software text: how a sheet of ours is known */
 
+/* The contact sheet replaces only a file that is one: a PNG whose Software text says framelaw wrote
+ * it as a contact sheet (an earlier `framelaw frames`). Anything else at that path (a frame, another
+ * file, a folder, a link) is refused before any work, so that --sheet never silently destroys a
+ * file. 0 when the path is free or holds a sheet of ours; ST_INPUT naming it otherwise. */
+static int sheet_place_free(const char *path, Status *st) {
+    struct stat sb;
+    if (lstat(path, &sb) != 0) {
+        if (errno == ENOENT) return 0;
+        return status_set(st, ST_INPUT, "%s: cannot write the contact sheet there: %s (--sheet FILE, or --sheet none)",
+                          path, strerror(errno));
+    }
+    char sw[64];
+    if (S_ISREG(sb.st_mode) && image_png_text(path, "Software", sw, sizeof sw) && !strcmp(sw, SHEET_SOFTWARE))
+        return 0;
+    return status_set(st, ST_INPUT, "%s: exists and is not a contact sheet framelaw wrote, so it is left as it is; "
+                      "remove it, or name another file with --sheet FILE (or --sheet none)", path);
+}
+
+/* The defaults are train's: those of a config that sets nothing (io/run/config.c). */
 static void frames_usage(FILE *f) {
-    FrameSettings d = frame_settings_default();
+    static Config c;
+    FrameSettings d;
+    Status st;
+    config_defaults(&c);
+    if (frame_settings_from_config(&c, &d, &st)) d = frame_settings_default(); /* cannot happen: the defaults are valid */
     fprintf(f,
             "usage: framelaw frames DIR [--config FILE] [options]\n\n"
             "Inspects a frames folder: one recording (image files directly inside) or several (one\n"
             "sub-folder per recording; .csv and .npy files are numeric recordings). Builds the frame\n"
             "store, or reuses it when it is current, prints the recordings, frame counts, frame size,\n"
             "durations, store size and training-set size, and writes a contact sheet PNG (first, middle\n"
-            "and last frame of each recording, after preprocessing).\n\n"
-            "options (default in brackets; --config reads the data.* keys, flags override them):\n"
+            "and last frame of each recording, after preprocessing). The defaults are train's (those of a\n"
+            "config that sets nothing); --config reads a run config's data.* keys and model.order\n"
+            "instead, and flags override them.\n\n"
+            "options (default in brackets):\n"
             "  --config FILE          run config whose data.* keys set everything below    [none]\n"
             "  --gray bt601|bt709     luma weights for colour frames                       [%s]\n"
             "  --crop X,Y,W,H         crop rectangle in source pixels                      [none]\n"
@@ -33,18 +60,20 @@ static void frames_usage(FILE *f) {
             "  --stride N             keep every N-th frame                                [%d]\n"
             "  --fps F                frames per second of the source; dt = stride / fps   [%g]\n"
             "  --scale unit|standardize  intensities in [0,1], or per-pixel mean 0, sd 1   [%s]\n"
-            "  --derivative central|savgol  derivative stencil                             [%s]\n"
+            "  --derivative central|savgol|auto  derivative stencil; auto: Savitzky-Golay\n"
+            "                         chosen for how fast the frames move (as train)       [%s]\n"
             "  --window N             Savitzky-Golay window (odd)                          [%d]\n"
             "  --degree N             Savitzky-Golay polynomial degree                     [%d]\n"
             "  --val NAME[,NAME...]   validation recordings by name                        [none]\n"
             "  --val-last N           else hold out the last N recordings                  [%d]\n"
             "  --store FILE           frame store file               [DIR/.framelaw-store]\n"
             "  --sheet FILE           contact sheet PNG; 'none' skips it   [" SHEET_DEFAULT "]\n"
+            "                         (replaces a file only if it is a contact sheet framelaw wrote)\n"
             "  --rebuild              rebuild the frame store even when it is current      [off]\n"
             "  --help                 this text\n\n"
             "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n",
-            gray_std_names[d.gray], d.bits, d.stride, d.fps, scale_mode_names[d.scale],
-            stencil_kind_names[d.stencil], d.sg_window, d.sg_degree, d.val_last);
+            gray_std_names[d.gray], d.bits, d.stride, d.fps, scale_mode_names[d.scale], c.derivative, d.sg_window,
+            d.sg_degree, d.val_last);
 }
 
 static int parse_int(const char *opt, const char *v, int lo, int *out) {
@@ -58,7 +87,8 @@ static int parse_int(const char *opt, const char *v, int lo, int *out) {
 }
 
 /* Apply one option to s. *i points at the option; its value is argv[*i + 1] or after '='. */
-static int apply_option(FrameSettings *s, int argc, char **argv, int *i, const char **sheet, int *rebuild) {
+static int apply_option(FrameSettings *s, int argc, char **argv, int *i, const char **sheet, int *rebuild,
+                        int *autod) {
     char name[64];
     const char *arg = argv[*i], *val = NULL, *eq = strchr(arg, '=');
     if (eq) {
@@ -101,8 +131,10 @@ static int apply_option(FrameSettings *s, int argc, char **argv, int *i, const c
         s->scale = scale_mode_from_name(val);
         if (s->scale == SCALE_COUNT) return cli_error(2, "--scale '%s': expected unit or standardize", val);
     } else if (!strcmp(name, "--derivative")) {
-        s->stencil = stencil_kind_from_name(val);
-        if (s->stencil == STENCIL_KIND_COUNT) return cli_error(2, "--derivative '%s': expected central or savgol", val);
+        *autod = !strcmp(val, "auto");
+        if (!*autod) s->stencil = stencil_kind_from_name(val);
+        if (s->stencil == STENCIL_KIND_COUNT)
+            return cli_error(2, "--derivative '%s': expected central, savgol or auto", val);
     } else if (!strcmp(name, "--window")) {
         if (parse_int(name, val, 1, &s->sg_window)) return 2;
     } else if (!strcmp(name, "--degree")) {
@@ -147,7 +179,7 @@ static int write_sheet(const FrameStore *fs, const char *path, Status *st) {
                 }
         }
     }
-    int rc = image_write_png_gray(path, px, (int)W, (int)H, st);
+    int rc = image_write_png_gray_text(path, px, (int)W, (int)H, "Software", SHEET_SOFTWARE, st);
     free(px);
     return rc;
 }
@@ -163,9 +195,9 @@ int cmd_frames(int argc, char **argv) {
         frames_usage(stdout);
         return 0;
     }
-    FrameSettings s = frame_settings_default();
+    FrameSettings s;
     const char *dir = NULL, *config = NULL, *sheet = SHEET_DEFAULT;
-    int rebuild = 0;
+    int rebuild = 0, autod = 0, order = 1;
     Status st;
     status_ok(&st);
     /* "--" ends the options: what follows is DIR even when it starts with '-' */
@@ -179,12 +211,13 @@ int cmd_frames(int argc, char **argv) {
         }
     }
     char cfg_frames[CFG_PATH_MAX] = "";
-    if (config) {
+    { /* without --config, train's defaults: those of a config that sets nothing */
         Config *cfg = malloc(sizeof *cfg);
         if (!cfg) return cli_error(1, "out of memory");
         config_defaults(cfg);
-        int rc = config_load(cfg, config, &st) || frame_settings_from_config(cfg, &s, &st);
+        int rc = (config && config_load(cfg, config, &st)) || frame_settings_from_config(cfg, &s, &st);
         snprintf(cfg_frames, sizeof cfg_frames, "%s", cfg->frames);
+        autod = !strcmp(cfg->derivative, "auto"), order = cfg->order;
         free(cfg);
         if (rc) return cli_error(st.code, "%s", st.msg);
     }
@@ -194,7 +227,7 @@ int cmd_frames(int argc, char **argv) {
             i++;
         } else if (i < end && !strncmp(argv[i], "--config=", 9)) {
         } else if (i < end && !strncmp(argv[i], "--", 2)) {
-            int rc = apply_option(&s, end, argv, &i, &sheet, &rebuild);
+            int rc = apply_option(&s, end, argv, &i, &sheet, &rebuild, &autod);
             if (rc) return rc;
         } else if (!dir) {
             dir = argv[i];
@@ -208,6 +241,10 @@ int cmd_frames(int argc, char **argv) {
 
     FrameScan scan;
     if (frames_scan(dir, &scan, &st)) return cli_error(st.code, "%s", st.msg);
+    if (scan.kind != REC_NUMERIC && strcmp(sheet, "none") && sheet_place_free(sheet, &st)) {
+        frames_scan_free(&scan);
+        return cli_error(st.code, "%s", st.msg);
+    }
     int fps_given = config != NULL;
     for (int i = 1; i < end; i++) fps_given |= !strcmp(argv[i], "--fps");
     if (!fps_given) { /* videos and CSV time columns carry their rate */
@@ -226,7 +263,14 @@ int cmd_frames(int argc, char **argv) {
         return cli_error(st.code, "%s", st.msg);
     }
     Dataset ds;
-    if (dataset_init(&ds, &fs, &s, &st)) {
+    double theta = 0;
+    int drc = dataset_init(&ds, &fs, &s, &st);
+    if (!drc && autod) { /* auto: the stencil from the frames, as train does, then the samples again */
+        drc = rundata_auto_stencil(&ds, &fs, order, &s, &theta, &st);
+        dataset_free(&ds);
+        if (!drc) drc = dataset_init(&ds, &fs, &s, &st);
+    }
+    if (drc) {
         store_close(&fs);
         frames_scan_free(&scan);
         return cli_error(st.code, "%s", st.msg);
@@ -261,6 +305,7 @@ int cmd_frames(int argc, char **argv) {
            info.built ? info.reason : "");
     printf("derivatives: %s stencil over %d frames", stencil_kind_names[ds.sten.kind], 2 * ds.sten.m + 1);
     if (ds.sten.kind == STENCIL_SAVGOL) printf(" (degree %d)", ds.sten.degree);
+    if (autod) printf(", chosen for frames that move at %.3g rad per frame (auto)", theta);
     printf("; %d frame%s lost at each end of a recording\n", ds.sten.m, ds.sten.m == 1 ? "" : "s");
     printf("training set: %ld samples from %d recording%s; validation: %ld samples from %d recording%s\n",
            ds.count[SPLIT_TRAIN], ds.n_rec_split[SPLIT_TRAIN], ds.n_rec_split[SPLIT_TRAIN] == 1 ? "" : "s",

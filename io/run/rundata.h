@@ -27,6 +27,13 @@ typedef struct {
  * key when a name is unknown. */
 int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st);
 
+/* data.derivative.method auto: the Savitzky-Golay stencil for frames that move as the training
+ * recordings of ds do (the rms frequency of their leading principal component scores) and a model of
+ * that order, written into s (stencil, sg_window, sg_degree); *theta the frequency (rad per frame).
+ * The caller makes the dataset again with s. ST_INPUT when a recording is too short for it. */
+int rundata_auto_stencil(const Dataset *ds, const FrameStore *fs, int order, FrameSettings *s, double *theta,
+                         Status *st);
+
 /* Scan data.frames, open (or build) the frame store, split. ST_INPUT naming the fault. */
 int rundata_open(RunData *d, const Config *c, Status *st);
 void rundata_close(RunData *d);
