@@ -34,7 +34,7 @@ static const char *const scenario_about[] = {
     "a convection cell: temperature | vertical velocity panels, 100 fps (docs/convection.md)",
 };
 /* Defaults per scenario. */
-static const int def_size[] = {51, 32};
+static const int def_size[] = {48, 32};
 static const int def_recordings[] = {16, 8};
 static const int def_frames[] = {300, 1000};
 _Static_assert(sizeof scenario_names / sizeof *scenario_names == SC_COUNT && sizeof scenario_about / sizeof *scenario_about == SC_COUNT &&
