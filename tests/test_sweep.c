@@ -727,6 +727,22 @@ static void test_summary_empty_law_last(void **state) {
     assert_non_null(sum.rows[2].problem);
     assert_non_null(strstr(sum.rows[2].problem, "the law has no term"));
     sweep_summary_free(&sum);
+    /* a law with terms whose latent forecast is no better than holding the first state (persistence)
+     * goes last too, with its reason */
+    char p[600];
+    snprintf(p, sizeof p, "%s/forecast.json", sw.members[0].dir);
+    write_text(p, "{\"format\": \"framelaw-forecast\", \"version\": 1, \"bound\": 0.1, \"recordings\": [{\"name\": "
+                  "\"rec0\", \"frames\": 100, \"mean_error\": 0.2, \"latent_mean_error\": 0.5, "
+                  "\"persistence_latent_mean_error\": 0.4, \"beats_persistence\": false, \"stopped\": null}]}\n");
+    assert_int_equal(sweep_summary(&sw, &sum, &st), 0);
+    static const int rank2[3] = {2, 0, 1};
+    for (int k = 0; k < 3; k++)
+        if (sum.rows[k].member != rank2[k]) fail_msg("rank %d: member %d, expected %d", k + 1, sum.rows[k].member, rank2[k]);
+    assert_int_equal(sum.rows[0].pareto, 1);
+    assert_int_equal(sum.rows[1].pareto, 0);
+    assert_non_null(sum.rows[1].problem);
+    assert_non_null(strstr(sum.rows[1].problem, "no better than holding the first state"));
+    sweep_summary_free(&sum);
     sweep_free(&sw);
 }
 

@@ -50,8 +50,10 @@ static char *structure_of(const char *path, long *active, char *why, size_t n_wh
     return key;
 }
 
-/* Mean over recordings of mean_error in forecast.json; NAN when absent or unreadable. */
-static double forecast_error(const char *dir, char *why, size_t n_why) {
+/* Mean over recordings of mean_error in forecast.json; NAN when absent or unreadable. *no_better: the
+ * mean latent error is not below the persistence forecast's (results.md: the trivial law z' = 0). */
+static double forecast_error(const char *dir, char *why, size_t n_why, int *no_better) {
+    *no_better = 0;
     char p[CFG_PATH_MAX + 32];
     snprintf(p, sizeof p, "%s/forecast.json", dir);
     if (!fs_exists(p)) return NAN;
@@ -60,12 +62,17 @@ static double forecast_error(const char *dir, char *why, size_t n_why) {
     cJSON *root = text ? cJSON_Parse(text) : NULL;
     free(text);
     const cJSON *recs = root ? cJSON_GetObjectItemCaseSensitive(root, "recordings") : NULL;
-    double sum = 0;
-    int n = 0;
+    double sum = 0, lat = 0, hold = 0;
+    int n = 0, nl = 0, stopped = 0;
     for (const cJSON *r = cJSON_IsArray(recs) ? recs->child : NULL; r; r = r->next) {
         const cJSON *e = cJSON_GetObjectItemCaseSensitive(r, "mean_error");
         if (cJSON_IsNumber(e) && isfinite(e->valuedouble)) sum += e->valuedouble, n++;
+        const cJSON *l = cJSON_GetObjectItemCaseSensitive(r, "latent_mean_error"),
+                    *h = cJSON_GetObjectItemCaseSensitive(r, "persistence_latent_mean_error");
+        if (cJSON_IsNumber(l) && cJSON_IsNumber(h)) lat += l->valuedouble, hold += h->valuedouble, nl++;
+        stopped |= cJSON_IsString(cJSON_GetObjectItemCaseSensitive(r, "stopped"));
     }
+    *no_better = nl > 0 && (stopped || !(lat < hold));
     if (!root || !cJSON_IsArray(recs)) snprintf(why, n_why, "forecast.json: unreadable or without \"recordings\"");
     else if (!n) snprintf(why, n_why, "forecast.json: no recording with a mean_error");
     cJSON_Delete(root);
@@ -96,13 +103,15 @@ static void add_problem(char *why, size_t n, const char *msg) {
     snprintf(why + l, n - l, "%s%s", l ? "; " : "", msg);
 }
 
-/* A finished member whose law has no term says nothing moves: however small its error, it is no law. */
-static int empty_law(const SweepRow *r) { return r->active == 0 && !strcmp(r->status, "finished"); }
+/* A finished member whose law has no term says nothing moves, and one whose forecasts are no better
+ * than holding the first state explains nothing of the motion: however small their errors, they
+ * are no laws. */
+static int no_law(const SweepRow *r) { return (r->active == 0 || r->no_better) && !strcmp(r->status, "finished"); }
 
 static int row_cmp(const void *pa, const void *pb) {
     const SweepRow *a = pa, *b = pb;
-    int ra = empty_law(a) ? 3 : a->error_from == ERR_FORECAST ? 0 : a->error_from == ERR_VALIDATION ? 1 : 2;
-    int rb = empty_law(b) ? 3 : b->error_from == ERR_FORECAST ? 0 : b->error_from == ERR_VALIDATION ? 1 : 2;
+    int ra = no_law(a) ? 3 : a->error_from == ERR_FORECAST ? 0 : a->error_from == ERR_VALIDATION ? 1 : 2;
+    int rb = no_law(b) ? 3 : b->error_from == ERR_FORECAST ? 0 : b->error_from == ERR_VALIDATION ? 1 : 2;
     if (ra != rb) return ra - rb;
     if (ra < 2 && a->error != b->error) return a->error < b->error ? -1 : 1;
     return a->member - b->member;
@@ -156,7 +165,7 @@ int sweep_summary(const Sweep *sw, SweepSummary *sum, Status *st) {
         r->status = eq && r->log.epoch >= epochs ? "finished" : fs_exists(dir) ? "incomplete" : "not started";
         r->equations = equations_line(dir);
         one[0] = 0;
-        r->error = forecast_error(dir, one, sizeof one);
+        r->error = forecast_error(dir, one, sizeof one, &r->no_better);
         if (one[0]) add_problem(why, sizeof why, one);
         if (isfinite(r->error)) {
             r->error_from = ERR_FORECAST;
@@ -168,9 +177,13 @@ int sweep_summary(const Sweep *sw, SweepSummary *sum, Status *st) {
             r->error = NAN;
             r->error_from = ERR_NONE;
         }
-        if (empty_law(r))
+        if (no_law(r) && r->active == 0)
             add_problem(why, sizeof why, "the law has no term (it says nothing moves), ranked last: lower "
                                          "threshold.value, or train longer before the first threshold pass");
+        else if (no_law(r))
+            add_problem(why, sizeof why, "the law forecasts the held-out recordings no better than holding the "
+                                         "first state (forecast.json), ranked last: lower threshold.value, or "
+                                         "train longer before the first threshold pass");
         if (why[0]) r->problem = sweep_strdup(why);
     }
     free(c);
@@ -180,11 +193,12 @@ int sweep_summary(const Sweep *sw, SweepSummary *sum, Status *st) {
     sum->pareto_from = have_forecast ? ERR_FORECAST : ERR_VALIDATION;
     for (int a = 0; a < n; a++) {
         SweepRow *r = &sum->rows[a];
-        if (r->error_from != sum->pareto_from || r->active <= 0 || strcmp(r->status, "finished")) continue;
+        if (r->error_from != sum->pareto_from || r->active <= 0 || no_law(r) || strcmp(r->status, "finished")) continue;
         int dominated = 0;
         for (int b = 0; b < n && !dominated; b++) {
             const SweepRow *q = &sum->rows[b];
-            if (b == a || q->error_from != sum->pareto_from || q->active <= 0 || strcmp(q->status, "finished")) continue;
+            if (b == a || q->error_from != sum->pareto_from || q->active <= 0 || no_law(q) || strcmp(q->status, "finished"))
+                continue;
             if (q->error <= r->error && q->active <= r->active && (q->error < r->error || q->active < r->active))
                 dominated = 1;
         }

@@ -137,6 +137,7 @@ typedef struct {
     SweepErrorFrom error_from;
     long active;                /* active terms; -1 unknown */
     int pareto;                 /* 1 on the Pareto front of (error, active) */
+    int no_better;              /* its forecasts are no better than holding the first state (forecast.json) */
     int structure;              /* index in groups; -1 without equations.json */
     char *equations;            /* equations.txt on one line ("; " between equations); may be NULL */
     char *problem;              /* a result file that could not be read, with why; may be NULL */
