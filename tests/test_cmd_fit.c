@@ -216,6 +216,11 @@ static void test_pendulum_npy(void **state) {
     assert_non_null(strstr(out, "\\ddot{z}_{1} &= -0.2 \\dot{z}_{1} - 4.903 \\sin(z_{1})"));
     assert_non_null(strstr(out, "framelaw: note: fit --degree is the Savitzky-Golay smoothing degree, now --smooth-degree "
                                 "(--degree is read until the next release; the library's is --library-degree)\n"));
+    snprintf(args, sizeof args, "fit '%s' --rate=100 --order=2 --trig --library-degree=1 --window=9 --degree=3 --smooth-degree=4",
+             path);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
+    assert_non_null(strstr(out, "\nd2z1/dt2 = -0.2*dz1/dt - 4.903*sin(z1)\n"));
+    assert_non_null(strstr(out, "framelaw: note: fit --degree is the Savitzky-Golay smoothing degree"));
 
     /* the same angle in a CSV whose header names it theta: d2theta/dt2, dtheta/dt, sin(theta), and in
      * LaTeX the Greek letter */
@@ -305,6 +310,12 @@ static void test_npy_without_time(void **state) {
     assert_int_equal(test_run_capture(args, out, sizeof out), 2);
     assert_non_null(strstr(out, "cos.npy: no state columns besides the time column (column 1 is the time by default: "
                                 "give --rate HZ when the file holds no time column)\n"));
+    /* a header that names column 1 the time: it is one, no hint */
+    snprintf(path1, sizeof path1, "%s/timeonly.csv", tmp);
+    test_write_file(path1, "time\n0\n1\n2\n");
+    snprintf(args, sizeof args, "fit '%s'", path1);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 2);
+    assert_non_null(strstr(out, "timeonly.csv: no state columns besides the time column\n"));
     /* a time column given: no hint (the user chose it) */
     snprintf(args, sizeof args, "fit '%s' --time-column 1", path);
     assert_int_equal(test_run_capture(args, out, sizeof out), 2);

@@ -187,7 +187,7 @@ static int apply_option(FitSettings *s, const char *name, const char *val) {
         if (s->stencil == STENCIL_KIND_COUNT) return cli_error(2, "fit: --derivative '%s': expected central or savgol", val);
     } else if (!strcmp(name, "--window")) return parse_int(name, val, 3, STENCIL_MAX_LEN, &s->window);
     else if (!strcmp(name, "--smooth-degree") || !strcmp(name, "--degree")) {
-        s->old_degree = !strcmp(name, "--degree");
+        s->old_degree |= !strcmp(name, "--degree");
         return parse_int(name, val, 2, STENCIL_MAX_LEN - 1, &s->sg_degree);
     }
     else if (!strcmp(name, "--digits")) return parse_int(name, val, 1, 17, &s->digits);
@@ -267,8 +267,9 @@ static int state_columns(const FitSettings *s, const Series *ser, int tc, int *c
             }
         if (!k)
             return cli_error(2, "%s: no state columns besides the time column%s", s->path,
-                             s->time_given ? "" : " (column 1 is the time by default: give --rate HZ when the file holds no "
-                                                 "time column)"),
+                             s->time_given || series_time_column(ser) == tc
+                                 ? ""
+                                 : " (column 1 is the time by default: give --rate HZ when the file holds no time column)"),
                    -1;
         return k;
     }
