@@ -210,7 +210,7 @@ static void test_numeric(void **state) {
     FILE *f = fopen(p, "w");
     fputs("t,x\n0,1\n0.1,2\n0.2,3\n0.35,4\n0.4,5\n", f);
     fclose(f);
-    expect_bad("frames uneven.csv", "uneven.csv:5: time step 0.15 differs from the mean step 0.1");
+    expect_bad("frames uneven.csv", "uneven.csv:5 (data row 4): time step 0.15 (from 0.2 to 0.35) differs from the median step 0.1");
 }
 
 /* --config reads the data.* keys of a run config (docs/config.md); flags override them. */
