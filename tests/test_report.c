@@ -544,6 +544,20 @@ static void test_bad_input(void **state) {
     expect_bad(cmd, "equations.json: format version 3 is newer than this program reads");
     unlink(p);
     free(eq);
+    /* a canonical form whose map is short of a number: named, no page */
+    write_equations(dir);
+    eq = read_all(p, NULL);
+    cJSON *tree = cJSON_Parse(eq);
+    free(eq);
+    cJSON *map = cJSON_GetObjectItem(cJSON_GetObjectItem(tree, "canonical"), "map");
+    assert_non_null(map);
+    cJSON_ReplaceItemInObject(map, "w", cJSON_CreateArray());
+    eq = cJSON_Print(tree);
+    cJSON_Delete(tree);
+    test_write_file(p, eq);
+    free(eq);
+    expect_bad(cmd, "equations.json: \"canonical\" needs \"equations\" (2, each with");
+    unlink(p);
     path_of(p, dir, "forecast.json");
     test_write_file(p, "{\"format\": \"framelaw-forecast\", \"version\": 3, \"bound\": 0.1, \"recordings\": []}");
     expect_bad(cmd, "forecast.json: format version 3 is newer");
