@@ -1,15 +1,18 @@
 /* io/sweep/summary.c: the sweep's summary: every member's results read back (log, equations,
  * forecast), ranked, grouped by model structure, with the Pareto front of error against active
- * terms; written as summary.csv and summary.html (io/sweep/sweep.h, docs/sweeps.md). */
+ * terms; written as summary.csv and summary.html, which links each member's report (written here
+ * for a finished member when missing or stale; io/sweep/sweep.h, docs/sweeps.md). */
 #include "io/sweep/sweep.h"
 
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 
 #include "io/fs/atomic_file.h"
 #include "io/fs/files.h"
+#include "io/report/report.h"
 #include "io/sweep/common.h"
 #include "sparse/equation.h"
 
@@ -153,7 +156,10 @@ int sweep_summary(const Sweep *sw, SweepSummary *sum, Status *st) {
         Status ls;
         if (sweep_log_read(dir, &r->log, &ls)) add_problem(why, sizeof why, ls.msg);
         r->active = r->log.active;
-        long epochs = sweep_member_config(sw, i, c, st) ? 0 : c->epochs;
+        int have_cfg = !sweep_member_config(sw, i, c, st);
+        long epochs = have_cfg ? c->epochs : 0;
+        /* with derivatives in latent space the dx term is not used (the log holds 0): left empty */
+        if (have_cfg && !strcmp(c->derivatives, "latent")) r->log.dx = NAN;
         snprintf(p, sizeof p, "%s/equations.json", dir);
         int eq = fs_exists(p);
         if (eq) {
@@ -164,6 +170,8 @@ int sweep_summary(const Sweep *sw, SweepSummary *sum, Status *st) {
         }
         r->status = eq && r->log.epoch >= epochs ? "finished" : fs_exists(dir) ? "incomplete" : "not started";
         r->equations = equations_line(dir);
+        snprintf(p, sizeof p, "%s/report.html", dir);
+        r->report = fs_exists(p);
         one[0] = 0;
         r->error = forecast_error(dir, one, sizeof one, &r->no_better);
         if (one[0]) add_problem(why, sizeof why, one);
@@ -366,7 +374,7 @@ char *sweep_summary_html(const Sweep *sw, const SweepSummary *sum) {
     }
     if (sw->seeds_vary) text_puts(&b, "<th>train.seed</th>");
     text_puts(&b, "<th>epochs</th><th>loss</th><th>validation</th><th>error</th><th>terms</th><th>front</th>"
-                 "<th>structure</th><th>equations</th></tr>\n");
+                 "<th>structure</th><th>equations</th><th>report</th></tr>\n");
     for (int k = 0; k < sum->n_rows; k++) {
         const SweepRow *r = &sum->rows[k];
         const SweepMember *m = &sw->members[r->member];
@@ -400,7 +408,9 @@ char *sweep_summary_html(const Sweep *sw, const SweepSummary *sum) {
             html_text(&b, r->problem);
             text_puts(&b, "</span>");
         }
-        text_puts(&b, "</td></tr>\n");
+        /* the member's folder is <output>/<id>, beside this page */
+        if (r->report) text_printf(&b, "</td><td><a href=\"%s/report.html\">report</a></td></tr>\n", m->id);
+        else text_puts(&b, "</td><td class=\"muted\">not made yet</td></tr>\n");
     }
     text_puts(&b, "</table>\n<h2>Model structures</h2>\n");
     if (!sum->n_groups) {
@@ -435,6 +445,44 @@ char *sweep_summary_html(const Sweep *sw, const SweepSummary *sum) {
     return text_take(&b);
 }
 
+/* Modification time of dir/name in nanoseconds; -1 when it does not exist. */
+static long long mtime_ns(const char *dir, const char *name) {
+    char p[CFG_PATH_MAX + 32];
+    struct stat sb;
+    snprintf(p, sizeof p, "%s/%s", dir, name);
+    if (stat(p, &sb)) return -1;
+    return (long long)sb.st_mtim.tv_sec * 1000000000LL + sb.st_mtim.tv_nsec;
+}
+
+/* A finished member's report, written when missing or older than its results. */
+static void member_report(const Sweep *sw, SweepRow *r) {
+    if (strcmp(r->status, "finished")) return;
+    const char *dir = sw->members[r->member].dir;
+    static const char *const results[] = {"log.csv", "equations.json", "forecast.json"};
+    long long have = mtime_ns(dir, "report.html"), newest = -1;
+    for (int i = 0; i < 3; i++) {
+        long long t = mtime_ns(dir, results[i]);
+        if (t > newest) newest = t;
+    }
+    if (have >= 0 && have >= newest) return;
+    Status st;
+    if (report_write(dir, NULL, NULL, &st)) {
+        char why[1100];
+        snprintf(why, sizeof why, "report: %s", st.msg);
+        if (r->problem) {
+            size_t l = strlen(r->problem) + strlen(why) + 3;
+            char *b = malloc(l);
+            if (b) snprintf(b, l, "%s; %s", r->problem, why);
+            free(r->problem);
+            r->problem = b;
+        } else {
+            r->problem = sweep_strdup(why);
+        }
+        return;
+    }
+    r->report = 1;
+}
+
 int sweep_write_summary(const Sweep *sw, SweepSummary *sum_in, Status *st) {
     SweepSummary own;
     SweepSummary *sum = sum_in ? sum_in : &own;
@@ -444,6 +492,7 @@ int sweep_write_summary(const Sweep *sw, SweepSummary *sum_in, Status *st) {
     if (!rc) atomic_remove_stale(sw->output, NULL); /* a killed writer's summary temporaries */
     if (!rc) rc = sweep_summary(sw, sum, st);
     if (rc) { sweep_unlock(fd); return rc; }
+    for (int k = 0; k < sum->n_rows; k++) member_report(sw, &sum->rows[k]);
     char *csv = sweep_summary_csv(sw, sum), *html = sweep_summary_html(sw, sum), *inc = sweep_inclusion_csv(&sum->inclusion);
     char p[CFG_PATH_MAX + 32];
     if (!csv || !html || !inc) rc = status_set(st, ST_RUNTIME, "out of memory");
