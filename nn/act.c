@@ -48,7 +48,7 @@ static void act_silu(float x, float d[4]) {
     d[3] = 3 * sg[2] + x * sg[3];
 }
 
-const ActInfo act_table[ACT_COUNT] = {
+const ActInfo act_table[] = {
     [ACT_NONE] = {"linear", act_none, act_none},
     [ACT_SIGMOID] = {"sigmoid", act_sigmoid, sigmoid_from_out},
     [ACT_TANH] = {"tanh", act_tanh, tanh_from_out},

@@ -22,7 +22,7 @@ typedef struct {
     ActFromOut from_out;    /* NULL when the derivatives need x */
 } ActInfo;
 
-extern const ActInfo act_table[ACT_COUNT];
+extern const ActInfo act_table[]; /* ACT_COUNT rows */
 
 /* c ? a : b by bit masks, without a branch: compilers then vectorise the loops around it (a select
  * of floats becomes a branch around trapping float operations, which blocks vectorisation). */

@@ -10,7 +10,7 @@
 #include "nn/core.h"
 #include "nn/par.h"
 
-const char *const op_names[OP_COUNT] = {
+const char *const op_names[] = {
     [OP_LEAF] = "leaf",       [OP_MATMUL] = "matmul", [OP_BIAS_ADD] = "bias_add", [OP_ADD] = "add",
     [OP_SUB] = "sub",         [OP_MUL] = "mul",       [OP_SCALE] = "scale",       [OP_MEAN_SQ] = "mean_sq",
     [OP_SUM_ABS] = "sum_abs", [OP_ACT] = "act",       [OP_DENSE_T] = "dense_t",   [OP_ROWS] = "rows",

@@ -39,7 +39,7 @@ typedef enum {
     OP_COUNT
 } OpId;
 
-extern const char *const op_names[OP_COUNT];
+extern const char *const op_names[]; /* OP_COUNT names */
 
 typedef struct Node Node;
 typedef struct Tape Tape;
@@ -105,7 +105,7 @@ Node *nn_rows(Tape *t, Node *a, int r0, int n);
 Node *nn_vstack(Tape *t, Node *a, Node *b);
 Node *nn_hstack(Tape *t, Node *a, Node *b);
 
-/* The fused dense layer with tangents (../DESIGN: one sgemm over the stacked rows):
+/* The fused dense layer with tangents (one sgemm over the stacked rows, docs/nn.md):
  *   h (k*B, n_in), W (n_in, n_out), b (1, n_out)  ->  out (k*B, n_out)
  *   A = h W (one product);  a = A[0:B] + b,  u = A[B:2B],  v = A[2B:3B]
  *   out[0:B]   = s(a)

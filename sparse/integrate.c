@@ -6,9 +6,11 @@
 #include <stdio.h>
 #include <string.h>
 
-const char *const ode_method_names[ODE_METHOD_COUNT] = {"rk4", "dopri5"};
-const char *const ode_stop_names[ODE_STOP_COUNT] = {"done", "non-finite state", "state out of bound",
+const char *const ode_method_names[] = {"rk4", "dopri5"};
+_Static_assert(sizeof ode_method_names / sizeof ode_method_names[0] == ODE_METHOD_COUNT, "one name per method");
+const char *const ode_stop_names[] = {"done", "non-finite state", "state out of bound",
                                                     "step too small", "step limit"};
+_Static_assert(sizeof ode_stop_names / sizeof ode_stop_names[0] == ODE_STOP_COUNT, "one name per stop reason");
 
 OdeMethod ode_method_from_name(const char *name) {
     for (int i = 0; i < ODE_METHOD_COUNT; i++)

@@ -30,7 +30,7 @@
 typedef void (*OdeFn)(double t, const double *y, double *dydt, void *ctx);
 
 typedef enum { ODE_RK4, ODE_DOPRI5, ODE_METHOD_COUNT } OdeMethod;
-extern const char *const ode_method_names[ODE_METHOD_COUNT];    /* "rk4", "dopri5" */
+extern const char *const ode_method_names[];    /* "rk4", "dopri5" */
 OdeMethod ode_method_from_name(const char *name);               /* ODE_METHOD_COUNT if unknown */
 
 typedef struct {
@@ -54,7 +54,7 @@ typedef enum {
     ODE_MAX_STEPS,      /* step limit reached */
     ODE_STOP_COUNT
 } OdeStop;
-extern const char *const ode_stop_names[ODE_STOP_COUNT];
+extern const char *const ode_stop_names[]; /* ODE_STOP_COUNT */
 
 typedef struct {
     OdeStop stop;

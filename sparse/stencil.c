@@ -4,7 +4,8 @@
 #include <math.h>
 #include <string.h>
 
-const char *const stencil_kind_names[STENCIL_KIND_COUNT] = {"central", "savgol"};
+const char *const stencil_kind_names[] = {"central", "savgol"};
+_Static_assert(sizeof stencil_kind_names / sizeof stencil_kind_names[0] == STENCIL_KIND_COUNT, "one name per stencil");
 
 StencilKind stencil_kind_from_name(const char *name) {
     for (int k = 0; k < STENCIL_KIND_COUNT; k++)

@@ -40,7 +40,7 @@
 typedef enum { STENCIL_CENTRAL, STENCIL_SAVGOL, STENCIL_KIND_COUNT } StencilKind;
 
 /* Names used by configs and messages: "central", "savgol". */
-extern const char *const stencil_kind_names[STENCIL_KIND_COUNT];
+extern const char *const stencil_kind_names[]; /* STENCIL_KIND_COUNT */
 /* STENCIL_KIND_COUNT when the name is unknown. */
 StencilKind stencil_kind_from_name(const char *name);
 

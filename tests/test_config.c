@@ -18,7 +18,7 @@
 /* A config that sets every key to a value other than its default. */
 static const char *FULL =
     "{\n"
-    "  \"data\": {\"frames\": \"/data/pendulum\", \"fps\": 59.94, \"gray\": \"bt709\",\n"
+    "  \"data\": {\"frames\": \"/data/pendulum\", \"frames_origin\": \"/lab/pendulum\", \"fps\": 59.94, \"gray\": \"bt709\",\n"
     "            \"crop\": [4, 8, 120, 96], \"size\": [51, 51], \"scale\": \"standardize\",\n"
     "            \"stride\": 2, \"store_bits\": 16,\n"
     "            \"derivative\": {\"method\": \"savgol\", \"window\": 9, \"degree\": 4},\n"
@@ -378,6 +378,12 @@ static void test_digest(void **state) {
         set_ok(&u, unsafe[i]);
         if (config_digest(&u) == h0) fail_msg("%s did not change the digest", unsafe[i]);
     }
+    /* frames that moved: with data.frames_origin at the old place, the digest is the old one */
+    Config mv = c;
+    set_ok(&mv, "data.frames=/mnt/disk/d");
+    assert_true(config_digest(&mv) != h0);
+    set_ok(&mv, "data.frames_origin=/d");
+    assert_true(config_digest(&mv) == h0);
 
     /* the list names real keys, and is NULL-terminated */
     int n = 0;

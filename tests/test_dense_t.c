@@ -226,7 +226,7 @@ static void test_chain_first_order_gradients(void **state) { (void)state; check_
 static void test_chain_second_order_gradients(void **state) { (void)state; check_chain(3); }
 
 /* A whole training step (forward, backward, Adam) allocates nothing from the system once the arena
- * has seen one step (../DESIGN: no allocation inside a training step). */
+ * has seen one step (docs/nn.md, "Matrices and memory": later steps make no system allocation). */
 static void test_training_step_allocates_nothing(void **state) {
     (void)state;
     Chain c;

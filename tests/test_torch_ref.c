@@ -220,7 +220,7 @@ static void test_values_and_gradients(void **state) {
     }
 }
 
-/* The loss before each of 20 Adam steps and after the last follows torch's (STYLE.md item 15). */
+/* The loss before each of 20 Adam steps and after the last follows torch's: the optimizer checked against the reference library over a whole run, not one step. */
 static void test_adam_trajectory(void **state) {
     (void)state;
     for (size_t ci = 0; ci < sizeof CASES / sizeof CASES[0]; ci++) {

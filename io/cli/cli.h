@@ -7,7 +7,7 @@
 #include "io/run/results.h"
 #include "io/run/runlock.h"
 
-#define FRAMELAW_VERSION "0.1.0"
+#include "io/run/provenance.h" /* FRAMELAW_VERSION */
 
 typedef struct {
     const char *name;

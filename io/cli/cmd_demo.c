@@ -29,15 +29,19 @@
 #include "io/data/images.h"
 
 typedef enum { SC_LANTERN, SC_CONVECTION, SC_COUNT } Scenario;
-static const char *const scenario_names[SC_COUNT] = {"lantern", "convection"};
-static const char *const scenario_about[SC_COUNT] = {
+static const char *const scenario_names[] = {"lantern", "convection"};
+static const char *const scenario_about[] = {
     "a lantern swinging on a rigid rod, side-on, 30 fps (docs/lantern.md)",
     "a convection cell: temperature | vertical velocity panels, 100 fps (docs/convection.md)",
 };
 /* Defaults per scenario. */
-static const int def_size[SC_COUNT] = {51, 32};
-static const int def_recordings[SC_COUNT] = {16, 8};
-static const int def_frames[SC_COUNT] = {300, 1000};
+static const int def_size[] = {48, 32};
+static const int def_recordings[] = {16, 8};
+static const int def_frames[] = {300, 1000};
+_Static_assert(sizeof scenario_names / sizeof *scenario_names == SC_COUNT && sizeof scenario_about / sizeof *scenario_about == SC_COUNT &&
+                   sizeof def_size / sizeof *def_size == SC_COUNT && sizeof def_recordings / sizeof *def_recordings == SC_COUNT &&
+                   sizeof def_frames / sizeof *def_frames == SC_COUNT,
+               "one entry per scenario");
 #define DEF_NOISE 0.02
 #define DEF_SEED 1ULL
 

@@ -11,6 +11,7 @@
 #include "io/run/rundata.h"
 #include "io/data/frames.h"
 #include "io/data/gather.h"
+#include "io/data/glyphs.h"
 #include "io/data/images.h"
 #include "io/data/store.h"
 
@@ -48,9 +49,9 @@ static void frames_usage(FILE *f) {
             "sub-folder per recording; .csv and .npy files are numeric recordings). Builds the frame\n"
             "store, or reuses it when it is current, prints the recordings, frame counts, frame size,\n"
             "durations, store size and training-set size, and writes a contact sheet PNG (first, middle\n"
-            "and last frame of each recording, after preprocessing). The defaults are train's (those of a\n"
-            "config that sets nothing); --config reads a run config's data.* keys and model.order\n"
-            "instead, and flags override them.\n\n"
+            "and last frame of each recording, after preprocessing, under the recording's name). The\n"
+            "defaults are train's (those of a config that sets nothing); --config reads a run config's\n"
+            "data.* keys and model.order instead, and flags override them.\n\n"
             "options (default in brackets):\n"
             "  --config FILE          run config whose data.* keys set everything below    [none]\n"
             "  --gray bt601|bt709     luma weights for colour frames                       [%s]\n"
@@ -155,22 +156,29 @@ static int apply_option(FrameSettings *s, int argc, char **argv, int *i, const c
     return 0;
 }
 
-/* Contact sheet: one row per recording, its first, middle and last stored frame, each enlarged by
- * an integer factor to at least 96 pixels on its longer side; 4-pixel white gaps. */
+/* Contact sheet: one row per recording, its name above its first, middle and last stored frame,
+ * each frame enlarged by an integer factor to at least 96 pixels on its longer side; 4-pixel white
+ * gaps. The name is drawn in the built-in font at twice its size (io/data/glyphs.h), shortened in the
+ * middle when it is wider than the row. */
 static int write_sheet(const FrameStore *fs, const char *path, Status *st) {
     int w = fs->width, h = fs->height, longer = w > h ? w : h;
-    int z = longer >= 96 ? 1 : (96 + longer - 1) / longer, gap = 4;
-    long tw = (long)w * z, th = (long)h * z;
-    long W = 3 * tw + 4L * gap, H = (long)fs->n_rec * th + (fs->n_rec + 1L) * gap;
+    int z = longer >= 96 ? 1 : (96 + longer - 1) / longer, gap = 4, ls = 2;
+    long tw = (long)w * z, th = (long)h * z, lh = (long)GLYPH_H * ls + gap;   /* label band above a row */
+    long W = 3 * tw + 4L * gap, H = (long)fs->n_rec * (lh + th) + (fs->n_rec + 1L) * gap;
     if (W * H > 400L * 1000 * 1000) return status_set(st, ST_RUNTIME, "%s: contact sheet would be too large", path);
     uint8_t *px = malloc((size_t)(W * H));   /* (H, W) */
     if (!px) return status_set(st, ST_RUNTIME, "%s: out of memory", path);
     memset(px, 255, (size_t)(W * H));
+    long max_chars = (W - 2L * gap + (GLYPH_ADVANCE - GLYPH_W) * ls) / ((long)GLYPH_ADVANCE * ls);
     for (int r = 0; r < fs->n_rec; r++) {
         long pick[3] = {0, fs->rec[r].count / 2, fs->rec[r].count - 1};
+        long top = gap + r * (lh + th + gap);
+        char label[4 * STORE_NAME_MAX];
+        glyph_fit(label, sizeof label, fs->rec[r].name, max_chars);
+        glyph_draw(px, W, H, gap, top, label, ls, 0);
         for (int c = 0; c < 3; c++) {
             const void *fr = store_frame(fs, fs->rec[r].first + pick[c]);
-            long x0 = gap + c * (tw + gap), y0 = gap + r * (th + gap);
+            long x0 = gap + c * (tw + gap), y0 = top + lh;
             for (long y = 0; y < th; y++)
                 for (long x = 0; x < tw; x++) {
                     long p = (y / z) * w + x / z;

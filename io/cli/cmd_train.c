@@ -75,7 +75,8 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
                 data.td.n_in, me.params, me.bytes / 1e9);
     }
     int threads = c->threads > 0 ? c->threads : (int)sysconf(_SC_NPROCESSORS_ONLN);
-    if ((rc = provenance_append(run_dir, resume ? "resume" : "train", argc, argv, FRAMELAW_VERSION, threads, &st))) {
+    if ((rc = provenance_append(run_dir, resume ? "resume" : "train", argc, argv, threads, c->frames,
+                                store_content_digest(&data.store), &st))) {
         rundata_close(&data);
         return cli_error(rc, "%s", st.msg);
     }
@@ -138,7 +139,7 @@ static int parse_sets(Config *c, int argc, char **argv, int *quiet, const char *
             const char *a = argv[i][5] == '=' ? argv[i] + 6 : (i + 1 < argc ? argv[++i] : NULL);
             if (!a) return cli_error(2, "--set needs KEY.PATH=VALUE");
             if (resume) {
-                int ok = 0;
+                int ok = !strncmp(a, "data.frames=", 12); /* the frames moved: checked by run_frames_move */
                 for (int k = 0; config_resume_safe_keys[k]; k++) {
                     size_t n = strlen(config_resume_safe_keys[k]);
                     if (!strncmp(a, config_resume_safe_keys[k], n) && a[n] == '=') ok = 1;
@@ -146,7 +147,8 @@ static int parse_sets(Config *c, int argc, char **argv, int *quiet, const char *
                 if (!ok) {
                     char keys[512];
                     config_safe_keys_text(keys, sizeof keys);
-                    return cli_error(2, "--set %s: only these keys may change on resume: %s", a, keys);
+                    return cli_error(2, "--set %s: only these keys may change on resume: %s (and data.frames, "
+                                        "to follow frames that moved)", a, keys);
                 }
             }
             if (c && config_set(c, a, &st)) return cli_error(st.code, "%s", st.msg);
@@ -242,7 +244,8 @@ int cmd_resume(int argc, char **argv) {
                "that is truncated or damaged is skipped with a message and the one before it is used.\n"
                "Only these keys may change: train.epochs, train.threads, train.validate_every,\n"
                "checkpoint.every, checkpoint.keep, output, forecast.bound, forecast.method,\n"
-               "forecast.tolerance, ensemble.*, canonical.* (they act after training).\n\n"
+               "forecast.tolerance, ensemble.*, canonical.* (they act after training), and data.frames\n"
+               "when the frames moved: their content is checked against the run's (docs/results.md).\n\n"
                "options (default in brackets):\n"
                "  --set KEY.PATH=VALUE   change one of the keys above (VALUE is JSON; repeatable)  [none]\n"
                "  --quiet                no progress output                                        [off]\n"
@@ -261,12 +264,18 @@ int cmd_resume(int argc, char **argv) {
     Config *c = malloc(sizeof *c);
     if (!c) return cli_error(1, "out of memory");
     Status st;
-    if (run_config_load(dir, c, &st) || (rc = parse_sets(c, argc, argv, &quiet, &dir, 1)) || config_validate(c, &st)) {
+    char old_frames[CFG_PATH_MAX];
+    if (run_config_load(dir, c, &st) || (snprintf(old_frames, sizeof old_frames, "%s", c->frames),
+                                         (rc = parse_sets(c, argc, argv, &quiet, &dir, 1))) ||
+        config_validate(c, &st)) {
         free(c);
         return rc ? rc : cli_error(st.code, "%s", st.msg);
     }
     RunLock lock = {-1};
-    if (run_lock(&lock, dir, "resume", &st)) {
+    int moved = strcmp(c->frames, old_frames) != 0;
+    if (run_lock(&lock, dir, "resume", &st) ||
+        (moved ? run_frames_move(dir, c, old_frames, argc, argv, quiet, &st) : run_frames_reachable(dir, c, "resume", &st))) {
+        run_unlock(&lock);
         free(c);
         return cli_error(st.code, "%s", st.msg);
     }

@@ -93,7 +93,7 @@ typedef struct {
     int ignored_dirs;    /* sub-folders that were skipped */
 } FrameScan;
 
-/* Largest relative deviation of a time step from the mean step that counts as equally spaced. */
+/* Largest relative deviation of a time step from the median step that counts as equally spaced. */
 #define FRAMES_DT_TOL 0.01
 
 /* The rate the recordings carry: a video's frame rate, or 1 / the step of a CSV time column (a column

@@ -33,6 +33,26 @@ void store_close(FrameStore *fs) {
     memset(fs, 0, sizeof *fs);
 }
 
+uint64_t store_content_digest(const FrameStore *fs) {
+    uint64_t h = fnv1a64_u64(FNV1A64_INIT, (uint64_t)fs->elem);
+    h = fnv1a64_u64(h, (uint64_t)fs->width);
+    h = fnv1a64_u64(h, (uint64_t)fs->height);
+    h = fnv1a64_u64(h, (uint64_t)fs->n_rec);
+    for (int r = 0; r < fs->n_rec; r++) {
+        h = fnv1a64_str(h, fs->rec[r].name);
+        h = fnv1a64_u64(h, (uint64_t)fs->rec[r].count);
+    }
+    /* the payload a word at a time (FNV-1a's step on 8 bytes): 8x fewer multiplies than by byte */
+    const unsigned char *p = fs->payload;
+    size_t n = store_payload_bytes(fs), i = 0;
+    for (; i + 8 <= n; i += 8) {
+        uint64_t w;
+        memcpy(&w, p + i, 8);
+        h = (h ^ w) * FNV1A64_PRIME;
+    }
+    return fnv1a64(h, p + i, n - i);
+}
+
 /* Validate the mapped bytes and fill fs. */
 static int store_parse(FrameStore *fs, const unsigned char *b, size_t size, const char *path, Status *st) {
     if (size < STORE_HEADER_BYTES)

@@ -92,6 +92,12 @@ static inline size_t store_payload_bytes(const FrameStore *fs) {
 int store_load(const char *path, FrameStore *fs, Status *st);
 void store_close(FrameStore *fs);
 
+/* What the store holds, independent of where its sources are or when they were written: a 64-bit
+ * digest (FNV-1a, io/fs/hash.h) of the element type, frame size, every recording's name and frame
+ * count, and the payload. Two stores with the same digest hold the same frames (up to a collision,
+ * about 1 in 2^64). Reads the whole payload. */
+uint64_t store_content_digest(const FrameStore *fs);
+
 /* ---- Writing ------------------------------------------------------------------------------ */
 
 typedef struct StoreWriter StoreWriter;

@@ -56,7 +56,7 @@ typedef enum {
     T_COUNT
 } KeyType;
 
-static const char *const type_names[T_COUNT] = {
+static const char *const type_names[] = {
     "number", "integer", "integer", "integer", "bool", "string", "path",
     "integer list", "integer list or null", "string list", "crop", "size",
 };
@@ -104,6 +104,10 @@ static const KeyDef keys[] = {
     K_PATH("data.frames", frames, "(required)",
            "frames folder (one sub-folder per recording), or a folder or file of CSV / .npy recordings; "
            "relative to the config file's folder"),
+    K_PATH("data.frames_origin", frames_origin, "`\"\"`",
+           "set by framelaw when a run's frames moved (resume or export with --set data.frames=NEW, their "
+           "content checked): where data.frames pointed in training; the config digest reads it in place of "
+           "data.frames, so the checkpoints still match (docs/results.md)"),
     K_NUM("data.fps", fps, "30", 0, INFINITY, LO_OPEN,
           "frames (samples) per second of the source; the time step is data.stride / data.fps; required for "
           "image frames (they carry no rate)"),
@@ -958,7 +962,8 @@ static cJSON *config_tree(const Config *c, int skip_safe) {
     cJSON *root = cJSON_CreateObject();
     for (int i = 0; i < N_KEYS; i++) {
         const KeyDef *k = &keys[i];
-        if (skip_safe && (is_resume_safe(k->path) || late_at_compat(c, k))) continue;
+        if (skip_safe && (is_resume_safe(k->path) || late_at_compat(c, k) || !strcmp(k->path, "data.frames_origin")))
+            continue;
         char path[128];
         snprintf(path, sizeof path, "%s", k->path);
         cJSON *cur = root;
@@ -972,7 +977,9 @@ static cJSON *config_tree(const Config *c, int skip_safe) {
             }
             cur = o;
         }
-        cJSON_AddItemToObject(cur, part, key_value(c, k));
+        /* moved frames: the digest is the one of the place they were trained at */
+        int moved = skip_safe && c->frames_origin[0] && !strcmp(k->path, "data.frames");
+        cJSON_AddItemToObject(cur, part, moved ? cJSON_CreateString(c->frames_origin) : key_value(c, k));
     }
     return root;
 }

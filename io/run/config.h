@@ -22,6 +22,7 @@
 typedef struct {
     /* data */
     char frames[CFG_PATH_MAX];      /* data.frames: frames folder, or a folder/file of CSV / .npy recordings */
+    char frames_origin[CFG_PATH_MAX]; /* data.frames_origin: data.frames when trained, once the frames moved */
     double fps;                     /* data.fps: frames (samples) per second; dt = stride / fps     [30] */
     char gray[16];                  /* data.gray: "bt601" | "bt709"                              [bt601] */
     int crop[4];                    /* data.crop: [x, y, width, height] in source pixels; width 0 = none */

@@ -13,8 +13,7 @@
 #include "io/fs/files.h"
 #include "nn/mat.h"
 
-int provenance_append(const char *run_dir, const char *what, int argc, char **argv, const char *version,
-                      int threads, Status *st) {
+int provenance_append(const char *run_dir, const char *what, int argc, char **argv, int threads, const char *frames, uint64_t content, Status *st) {
     char path[4200];
     snprintf(path, sizeof path, "%s/provenance.json", run_dir);
     cJSON *root = NULL;
@@ -39,7 +38,7 @@ int provenance_append(const char *run_dir, const char *what, int argc, char **ar
     }
     cJSON *s = cJSON_CreateObject();
     cJSON_AddStringToObject(s, "command", what);
-    cJSON_AddStringToObject(s, "framelaw", version);
+    cJSON_AddStringToObject(s, "framelaw", FRAMELAW_VERSION);
     cJSON *args = cJSON_AddArrayToObject(s, "argv");
     for (int i = 0; i < argc; i++) cJSON_AddItemToArray(args, cJSON_CreateString(argv[i]));
     char date[32];
@@ -55,6 +54,12 @@ int provenance_append(const char *run_dir, const char *what, int argc, char **ar
     cJSON_AddStringToObject(s, "blas_core", nn_blas_corename() ? nn_blas_corename() : "");
     const char *cfg = nn_blas_config();
     cJSON_AddStringToObject(s, "blas_config", cfg ? cfg : "");
+    if (frames) {
+        cJSON_AddStringToObject(s, "frames", frames);
+        char hex[24];
+        snprintf(hex, sizeof hex, "%016llx", (unsigned long long)content);
+        cJSON_AddStringToObject(s, "frames_content", hex);
+    }
     cJSON_AddItemToArray(cJSON_GetObjectItem(root, "sessions"), s);
     char *json = cJSON_Print(root);
     cJSON_Delete(root);
@@ -62,4 +67,28 @@ int provenance_append(const char *run_dir, const char *what, int argc, char **ar
     int rc = atomic_write_bytes(path, json, strlen(json), st);
     free(json);
     return rc;
+}
+
+int provenance_frames_content(const char *run_dir, uint64_t *content, char *frames, size_t n) {
+    char path[4200];
+    snprintf(path, sizeof path, "%s/provenance.json", run_dir);
+    char *text = NULL;
+    Status rs;
+    if (!fs_exists(path) || fs_read_file(path, 1 << 20, &text, NULL, &rs)) return 0;
+    cJSON *root = cJSON_Parse(text);
+    free(text);
+    int found = 0;
+    cJSON *ses = root ? cJSON_GetObjectItem(root, "sessions") : NULL, *e;
+    cJSON_ArrayForEach(e, ses) { /* the newest session that says */
+        cJSON *c = cJSON_GetObjectItem(e, "frames_content"), *f = cJSON_GetObjectItem(e, "frames");
+        char *end;
+        if (!cJSON_IsString(c) || !cJSON_IsString(f) || strlen(c->valuestring) != 16) continue;
+        unsigned long long v = strtoull(c->valuestring, &end, 16);
+        if (*end) continue;
+        *content = (uint64_t)v;
+        if (frames && n) snprintf(frames, n, "%s", f->valuestring);
+        found = 1;
+    }
+    cJSON_Delete(root);
+    return found;
 }

@@ -39,7 +39,7 @@ void loaded_run_close(LoadedRun *r) {
 int loaded_run_open(LoadedRun *r, const char *run_dir, Status *st) {
     memset(r, 0, sizeof *r);
     snprintf(r->dir, sizeof r->dir, "%s", run_dir);
-    if (run_config_load(run_dir, &r->cfg, st)) return st->code;
+    if (run_config_load(run_dir, &r->cfg, st) || run_frames_reachable(run_dir, &r->cfg, "export", st)) return st->code;
     if (rundata_open(&r->data, &r->cfg, st)) {
         rundata_close(&r->data);
         return st->code;
@@ -195,8 +195,39 @@ int results_write_equations(LoadedRun *r, int quiet, Status *st) {
     return rc;
 }
 
-/* Column names of a trajectory: t, z*, dz*, (d2z*), model_dz* or model_d2z*. */
-static int trajectory_cols(const LoadedRun *r) { return 1 + (r->m.order + 2) * r->m.n_latent; }
+/* The canonical law, when a sparser one was found (its coordinates become extra columns). */
+static const Canonical *found_canonical(const LoadedRun *r) {
+    return r->canon && r->canon->c.status == CANON_FOUND ? &r->canon->c : NULL;
+}
+
+/* Columns of a trajectory: t, z*, dz*, (d2z*), model_dz* or model_d2z*; then, with a canonical
+ * law, the same blocks in its coordinates: u*, du*, (d2u*), model_du* or model_d2u*. */
+static int trajectory_cols(const LoadedRun *r) {
+    return 1 + (found_canonical(r) ? 2 : 1) * (r->m.order + 2) * r->m.n_latent;
+}
+
+/* The canonical blocks of a row that holds t, z, z' (, z''): u = A z + b, u' = A z', u'' = A z'',
+ * and the canonical law's prediction of u' (or u''). */
+static void canonical_columns(const LoadedRun *r, const Canonical *c, double *row, double *theta) {
+    int d = r->m.n_latent, order = r->m.order, k = order + 1;
+    const double *z = row + 1;
+    double *u = row + 1 + (k + 1) * d, sigma[LIB_MAX_VARS];
+    canonical_map_state(c, sigma, z, 1); /* u (and u') from z (and z') */
+    for (int j = 0; j < order * d; j++) u[j] = sigma[j];
+    for (int blk = order; blk < k; blk++) /* the highest derivative: no offset */
+        for (int i = 0; i < d; i++) {
+            double acc = 0;
+            for (int j = 0; j < d; j++) acc += c->A[i * d + j] * z[blk * d + j];
+            u[blk * d + i] = acc;
+        }
+    canonical_eval(c, &r->m.lib, theta, sigma, 1);
+    for (int i = 0; i < d; i++) {
+        double acc = 0;
+        for (int t = 0; t < r->m.lib.n_terms; t++)
+            if (c->mask[t * d + i]) acc += theta[t] * c->xi[t * d + i];
+        u[k * d + i] = acc;
+    }
+}
 
 static int write_trajectory(LoadedRun *r, int rec, Status *st) {
     const StoreRec *sr = &r->data.store.rec[rec];
@@ -205,6 +236,7 @@ static int write_trajectory(LoadedRun *r, int rec, Status *st) {
     long n_rows = sr->count - 2L * mh;
     if (n_rows <= 0) return 0;
     int cols = trajectory_cols(r);
+    const Canonical *canon = found_canonical(r);
     double *out = nn_alloc((size_t)n_rows * cols * sizeof(double)); /* (n_rows, cols) */
     float *X = nn_alloc((size_t)x_blocks(r, k) * CHUNK * ds->n * sizeof(float));
     float *z = nn_alloc((size_t)k * CHUNK * d * sizeof(float));
@@ -222,6 +254,7 @@ static int write_trajectory(LoadedRun *r, int rec, Status *st) {
             for (int j = 0; j < order * d; j++) s[j] = row[1 + j];
             model_rhs(r, s, theta, pred);
             for (int j = 0; j < d; j++) row[1 + k * d + j] = pred[j];
+            if (canon) canonical_columns(r, canon, row, theta);
         }
     }
     nn_free(theta);
@@ -241,6 +274,12 @@ static int write_trajectory(LoadedRun *r, int rec, Status *st) {
             for (int blk = 0; blk < k; blk++)
                 for (int j = 0; j < d; j++) fprintf(af.f, ",%s%d", pre[blk], j + 1);
             for (int j = 0; j < d; j++) fprintf(af.f, ",model_%s%d", order == 1 ? "dz" : "d2z", j + 1);
+            if (canon) {
+                const char *upre[3] = {"u", "du", "d2u"};
+                for (int blk = 0; blk < k; blk++)
+                    for (int j = 0; j < d; j++) fprintf(af.f, ",%s%d", upre[blk], j + 1);
+                for (int j = 0; j < d; j++) fprintf(af.f, ",model_%s%d", order == 1 ? "du" : "d2u", j + 1);
+            }
             fputc('\n', af.f);
             for (long i = 0; i < n_rows; i++) {
                 for (int c = 0; c < cols; c++) fprintf(af.f, c ? ",%.12g" : "%.12g", out[i * cols + c]);
@@ -326,6 +365,8 @@ int results_export(LoadedRun *r, int quiet, Status *st) {
 typedef struct {
     double mean_err, final_err, max_err, exceeds_at, latent_mean, latent_exceeds_at, extrap_from;
     double floor_err;                   /* mean relative error of the decoded encodings: the frames' floor */
+    double hold_mean;                   /* the latent error of holding the first state (persistence) */
+    int beats_hold;                     /* the law's mean latent error is below it, over every frame */
     long frames;
     double duration;
     char stopped[512];
@@ -467,6 +508,18 @@ static int forecast_recording(LoadedRun *r, int rec, const Region *reg, FcResult
     }
     fr->mean_err = cnt ? sum / cnt : NAN;
     fr->latent_mean = cnt ? lsum / cnt : NAN;
+    /* the trivial law z' = 0: the first encoded state held (the persistence forecast) */
+    double hsum = 0;
+    for (long i = 0; i < n_out; i++) {
+        double num = 0;
+        for (int j = 0; j < d; j++) {
+            double e = (double)ze[i * d + j] - ze[j];
+            num += e * e;
+        }
+        hsum += sqrt(num) / (zrms > 0 ? zrms : 1);
+    }
+    fr->hold_mean = hsum / (double)n_out;
+    fr->beats_hold = good == n_out && fr->latent_mean < fr->hold_mean;
     fr->final_err = good == n_out ? err[n_out - 1] : NAN;
     /* forecast/<rec>.csv */
     char stem[300], path[CFG_PATH_MAX + 400];
@@ -540,6 +593,8 @@ int results_forecast(LoadedRun *r, int quiet, Status *st) {
         cJSON_AddItemToObject(o, "reconstruction_floor", num_or_null(fr.floor_err));
         cJSON_AddItemToObject(o, "latent_mean_error", num_or_null(fr.latent_mean));
         cJSON_AddItemToObject(o, "latent_exceeds_bound_at", num_or_null(fr.latent_exceeds_at));
+        cJSON_AddItemToObject(o, "persistence_latent_mean_error", num_or_null(fr.hold_mean));
+        cJSON_AddBoolToObject(o, "beats_persistence", fr.beats_hold);
         cJSON_AddItemToObject(o, "extrapolating_from", num_or_null(fr.extrap_from));
         cJSON_AddItemToObject(o, "stopped", fr.stopped[0] ? cJSON_CreateString(fr.stopped) : cJSON_CreateNull());
         cJSON *band = cJSON_AddObjectToObject(o, "band");
@@ -555,6 +610,12 @@ int results_forecast(LoadedRun *r, int quiet, Status *st) {
                 printf("within %.0f%% for %.3f s of %.2f s", 100 * r->cfg.fc_bound, fr.latent_exceeds_at, fr.duration);
             else printf("within %.0f%% throughout %.2f s", 100 * r->cfg.fc_bound, fr.duration);
             printf(" (mean %.1f%%)\n", 100 * fr.latent_mean);
+            if (fr.beats_hold)
+                printf("  holding the first state instead: mean %.1f%%\n", 100 * fr.hold_mean);
+            else
+                printf("  warning: the law forecasts no better than holding the first state (mean %.1f%%): it does "
+                       "not explain the motion; try a lower threshold.value, more epochs before the first threshold "
+                       "pass, or model.init isomap\n", 100 * fr.hold_mean);
             printf("  frames: mean error %.1f%%, where decoding the encoded frames alone gives %.1f%%\n",
                    100 * fr.mean_err, 100 * fr.floor_err);
             if (isfinite(fr.extrap_from))

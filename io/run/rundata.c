@@ -2,7 +2,10 @@
 #include "io/run/rundata.h"
 
 #include "nn/pca.h"
+#include "io/fs/atomic_file.h"
+#include "io/run/provenance.h"
 
+#include <errno.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -180,31 +183,8 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
 }
 
 void rundata_memory(const RunData *d, const Config *c, MemEstimate *e) {
-    memset(e, 0, sizeof *e);
-    long n = d->td.n_in;
-    e->n_in = n;
-    /* encoder n -> h1 -> ... -> latent, decoder the reverse (or its own widths) */
-    double p = 0, prev = (double)n;
-    for (int i = 0; i < c->n_encoder; i++) p += prev * c->encoder[i] + c->encoder[i], prev = c->encoder[i];
-    p += prev * c->latent + c->latent;
-    prev = c->latent;
-    int nd = c->n_decoder < 0 ? c->n_encoder : c->n_decoder;
-    for (int i = 0; i < nd; i++) {
-        int w = c->n_decoder < 0 ? c->encoder[c->n_encoder - 1 - i] : c->decoder[i];
-        p += prev * w + w, prev = w;
-    }
-    p += prev * (double)n + (double)n;
-    p += 64.0 * c->latent; /* the law: a few dozen coefficients per equation */
-    e->params = p;
     long batch = c->batch < d->td.n_train ? c->batch : d->td.n_train;
-    if (batch < 1) batch = 1;
-    e->bytes = 4.0 * 6 * p + 4.0 * (double)batch * (double)n * (2.0 * d->k + 4);
-    e->checkpoint_bytes = 4.0 * 3 * p;
-    if (c->mem_budget > 0) e->budget = c->mem_budget * 1073741824.0;
-    else {
-        long pages = sysconf(_SC_PHYS_PAGES), size = sysconf(_SC_PAGE_SIZE);
-        e->budget = pages > 0 && size > 0 ? 0.5 * (double)pages * (double)size : INFINITY;
-    }
+    model_memory(c, d->td.n_in, d->k, batch, e);
 }
 
 int rundata_memory_check(const RunData *d, const Config *c, Status *st) {
@@ -245,4 +225,69 @@ int run_config_load(const char *run_dir, Config *c, Status *st) {
     snprintf(path, sizeof path, "%s/config.json", run_dir);
     if (stat(path, &sb) != 0) return status_set(st, ST_INPUT, "%s: missing (not a run folder?)", path);
     return config_load_run(c, path, st);
+}
+
+/* The store content of the frames c names (opened as training would). */
+static int frames_content(const Config *c, uint64_t *content, Status *st) {
+    RunData d;
+    int rc = rundata_open(&d, c, st);
+    if (!rc) *content = store_content_digest(&d.store);
+    rundata_close(&d);
+    return rc;
+}
+
+int run_frames_reachable(const char *run_dir, const Config *c, const char *cmd, Status *st) {
+    struct stat sb;
+    if (!c->frames[0] || stat(c->frames, &sb) == 0) return 0;
+    return status_set(st, ST_INPUT,
+                      "%s: the run's frames are not at %s any more; if they moved, give their new place: framelaw "
+                      "%s %s --set data.frames=NEW (their content is checked against the run's)",
+                      run_dir, c->frames, cmd, run_dir);
+}
+
+int run_frames_move(const char *run_dir, Config *c, const char *old, int argc, char **argv, int quiet, Status *st) {
+    char *abs = realpath(c->frames, NULL);
+    if (!abs)
+        return status_set(st, ST_INPUT, "data.frames %s: %s", c->frames, strerror(errno));
+    int same = !strcmp(abs, old);
+    snprintf(c->frames, sizeof c->frames, "%s", abs);
+    free(abs);
+    if (same) return 0;
+    uint64_t now, then;
+    char where[CFG_PATH_MAX];
+    if (frames_content(c, &now, st)) return st->code;
+    if (!provenance_frames_content(run_dir, &then, where, sizeof where)) {
+        /* a run from before the content was recorded: the old place, when it is still there */
+        struct stat sb;
+        if (stat(old, &sb) != 0)
+            return status_set(st, ST_INPUT,
+                              "%s: the run records no digest of its frames' content (it was trained before framelaw "
+                              "recorded one) and %s is gone, so %s cannot be checked; put the frames back at %s, "
+                              "resume or export once, then move them",
+                              run_dir, old, c->frames, old);
+        Config *o = malloc(sizeof *o);
+        if (!o) return status_set(st, ST_RUNTIME, "out of memory");
+        *o = *c;
+        snprintf(o->frames, sizeof o->frames, "%s", old);
+        int rc = frames_content(o, &then, st);
+        free(o);
+        if (rc) return rc;
+        snprintf(where, sizeof where, "%s", old);
+    }
+    if (now != then)
+        return status_set(st, ST_INPUT,
+                          "data.frames %s: not the frames this run was trained on (their content differs from the "
+                          "frames read at %s); give the folder that holds those frames",
+                          c->frames, where);
+    if (!c->frames_origin[0]) snprintf(c->frames_origin, sizeof c->frames_origin, "%s", old);
+    char path[CFG_PATH_MAX + 32];
+    snprintf(path, sizeof path, "%s/config.json", run_dir);
+    char *json = config_to_json(c);
+    int rc = atomic_write_bytes(path, json, strlen(json), st);
+    free(json);
+    if (!rc) rc = provenance_append(run_dir, "move", argc, argv, 0, c->frames, now, st);
+    if (!rc && !quiet)
+        fprintf(stderr, "framelaw: %s: the frames moved from %s to %s (same content); config.json follows them\n",
+                run_dir, old, c->frames);
+    return rc;
 }

@@ -43,24 +43,25 @@ void rundata_close(RunData *d);
  * the run's config.json is written. */
 int rundata_source_fps(Config *c, Status *st);
 
-/* What a run will hold in memory, estimated before training: the model's parameters (values,
- * gradients, two Adam moments and the checkpoint's copy: 6 floats each, the first layer n_in x h1
- * dominates for frames), a step's buffers (the k stacked blocks of the batch gathered, the decoder's
- * output and their gradients: 4 (2k + 4) bytes per value of a sample), one checkpoint on disk (3
- * floats per parameter). Calibrated on a run of 24 frames of 1920x1080 with the defaults before this
- * release: 17 GB measured, 14.5 GB estimated. */
-typedef struct {
-    long n_in;                  /* values per sample (pixels) */
-    double params;              /* parameters of the autoencoder and the law */
-    double bytes;               /* memory, estimated */
-    double checkpoint_bytes;    /* one checkpoint file */
-    double budget;              /* train.memory_budget in bytes (0 in the key: half of physical memory) */
-} MemEstimate;
-
+/* The memory estimate of the run (io/run/train.h, model_memory) with its data: the samples' width,
+ * the blocks gathered per sample and the batch as training will use them. */
 void rundata_memory(const RunData *d, const Config *c, MemEstimate *e);
 /* ST_INPUT when the estimate exceeds the budget: a message with the figures that proposes data.size
  * and data.crop. */
 int rundata_memory_check(const RunData *d, const Config *c, Status *st);
+
+/* ST_INPUT when the frames the run's config names are gone, with the command that follows them to a
+ * new place (cmd: "resume", "export"). */
+int run_frames_reachable(const char *run_dir, const Config *c, const char *cmd, Status *st);
+
+/* `--set data.frames=NEW` on a trained run (c: its config with the new value; old: data.frames as
+ * its config.json has it). When NEW is another place, its frames must be the run's: the content
+ * digest of their store (store_content_digest) equals the one provenance.json recorded (or, for a
+ * run that records none, the one of the frames still at the old place). Then data.frames_origin
+ * keeps the place of training (the config digest reads it, so the checkpoints still match),
+ * config.json is rewritten and provenance.json gets a "move" session. ST_INPUT, naming both places,
+ * when the content differs or cannot be checked. */
+int run_frames_move(const char *run_dir, Config *c, const char *old, int argc, char **argv, int quiet, Status *st);
 
 /* Read RUN_DIR/config.json. ST_INPUT when the folder or the file is missing ("not a run folder"). */
 int run_config_load(const char *run_dir, Config *c, Status *st);

@@ -33,6 +33,33 @@ typedef struct {
                              * 2m+1 frames around each sample as k = 2m+1 blocks */
 } TrainData;
 
+/* The passes over a whole split (the data's scales, the start-ups, the thresholding and selection
+ * passes, the encoded training set) take its samples in order, in batches gathered into X:
+ *
+ *     TrainBatches it;
+ *     batches_begin(&it, ds, 0, N, N, Bmax);
+ *     while ((rc = batches_next(&it, X, st)) > 0) { ...it.s0, it.B: samples s0 .. s0 + B - 1... }
+ *     batches_end(&it);
+ *
+ * span > N spreads N samples evenly over the first span (sample i of the pass is i * span / N). */
+typedef struct {
+    const TrainData *ds;
+    int split;                          /* 0 training, 1 validation */
+    long N, span, s0, next;
+    int B, Bmax;
+    int64_t *idx;                       /* (Bmax) */
+} TrainBatches;
+
+void batches_begin(TrainBatches *it, const TrainData *ds, int split, long N, long span, int Bmax);
+/* 1: the next batch is in X (it->s0, it->B); 0: no more; < 0: a gather error in st. */
+int batches_next(TrainBatches *it, float *X, Status *st);
+void batches_end(TrainBatches *it);
+
+/* Every training sample encoded, in order: state (N, n_vars): z (and z') as the library takes them;
+ * target (N, d): z' (first order) or z'' (second order). X: a gather buffer for Bmax samples. */
+int train_encode_set(const TrainData *ds, const Model *m, ParamSet *ps, Tape *t, float *X, int Bmax, double *state,
+                     double *target, Status *st);
+
 typedef struct {
     const Config *cfg;
     const char *run_dir;
@@ -50,8 +77,29 @@ typedef struct {
     char checkpoint[4200];              /* the last checkpoint written */
 } TrainResult;
 
+/* What a run will hold in memory, estimated before anything is allocated: the model's parameters
+ * (values, gradients, two Adam moments and the checkpoint's copy: 6 floats each; for frames the first
+ * layer n_in x h1 dominates), a step's buffers (the blocks stacked blocks of the batch gathered, the
+ * decoder's output and their gradients: 4 (2 blocks + 4) bytes per value of a sample; each hidden
+ * layer's output, pre-activation and gradient per block), one checkpoint on disk (3 floats per
+ * parameter). Calibrated on a run of 24 frames of 1920x1080 with the defaults of release 1: 17 GB
+ * measured, 14.5 GB estimated. */
+typedef struct {
+    long n_in;                  /* values per sample (pixels) */
+    double params;              /* parameters of the autoencoder and the law */
+    double bytes;               /* memory, estimated */
+    double checkpoint_bytes;    /* one checkpoint file */
+    double physical;            /* the machine's physical memory (INFINITY when unknown) */
+    double budget;              /* train.memory_budget in bytes (0 in the key: half of physical memory) */
+} MemEstimate;
+
+/* The estimate for the config's model on samples of n_in values, `blocks` stacked blocks per sample
+ * (order + 1, or the stencil's window in latent mode) and batches of `batch` samples. */
+void model_memory(const Config *c, long n_in, int blocks, long batch, MemEstimate *e);
+
 /* ST_INPUT naming model.encoder when the model the config describes, for n_in inputs, would need
- * more memory than the machine has (parameters with Adam's moments, a batch's activations). */
+ * more memory than the machine has (the estimate above with order + 1 blocks). Every model built from
+ * a config passes here; before training, rundata_memory_check holds the run to its budget. */
 int model_memory_check(const Config *c, int n_in, Status *st);
 
 /* The model the config describes, for n_in inputs (checked by model_memory_check). */
