@@ -628,7 +628,7 @@ void frames_store_path(const FrameScan *fs, const FrameSettings *s, char *out, s
     }
     size_t len = strlen(fs->root);
     while (len > 1 && fs->root[len - 1] == '/') len--;
-    if (fs->single && fs->kind == REC_NUMERIC) {
+    if (fs->single && (fs->kind == REC_NUMERIC || fs->rec[0].video)) { /* a file: beside it */
         const char *slash = memchr(fs->root, '/', len) ? strrchr(fs->root, '/') : NULL;
         if (slash) snprintf(out, n, "%.*s/.%s.framelaw-store", (int)(slash - fs->root), fs->root, slash + 1);
         else snprintf(out, n, ".%s.framelaw-store", fs->root);
@@ -653,7 +653,7 @@ int frames_store_cache_path(const FrameScan *fs, const FrameSettings *s, char *o
     h = fnv_settings(h, fs, s);
     ScanRecording tmp; /* the source's name, as a recording of it would be named */
     memset(&tmp, 0, sizeof tmp);
-    set_name(&tmp, fs->root, fs->single && fs->kind == REC_NUMERIC);
+    set_name(&tmp, fs->root, fs->single && (fs->kind == REC_NUMERIC || fs->rec[0].video));
     char stem[65];
     size_t k = 0;
     for (const char *p = tmp.name; *p && k + 1 < sizeof stem; p++)

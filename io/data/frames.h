@@ -137,7 +137,7 @@ int frames_natural_cmp(const char *a, const char *b);
 uint64_t frames_digest(const FrameScan *fs, const FrameSettings *s);
 
 /* The store path: s->store_path when given, else "<dir>/.framelaw-store" for a folder,
- * "<dir>/.<file>.framelaw-store" for a numeric file. */
+ * "<dir>/.<file>.framelaw-store" for a numeric or video file. */
 void frames_store_path(const FrameScan *fs, const FrameSettings *s, char *out, size_t n);
 
 /* Where the store goes when the frames' folder is not writable: $XDG_CACHE_HOME/framelaw (when that
