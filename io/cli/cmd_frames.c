@@ -39,7 +39,7 @@ static void frames_usage(FILE *f) {
             "  --degree N             Savitzky-Golay polynomial degree                     [%d]\n"
             "  --val NAME[,NAME...]   validation recordings by name                        [none]\n"
             "  --val-last N           else hold out the last N recordings                  [%d]\n"
-            "  --store FILE           frame store file               [DIR/.framelaw-store]\n"
+            "  --store FILE           frame store file  [DIR/.framelaw-store; a read-only DIR: the cache]\n"
             "  --sheet FILE           contact sheet PNG; 'none' skips it   [" SHEET_DEFAULT "]\n"
             "  --rebuild              rebuild the frame store even when it is current\n"
             "  --help                 this text\n\n"
@@ -212,6 +212,7 @@ int cmd_frames(int argc, char **argv) {
 
     FrameScan scan;
     if (frames_scan(dir, &scan, &st)) return cli_error(st.code, "%s", st.msg);
+    frames_warn_gaps(&scan, stderr);
     int fps_given = config != NULL;
     for (int i = 1; i < argc; i++) fps_given |= !strcmp(argv[i], "--fps");
     if (!fps_given) { /* videos and CSV time columns carry their rate */
@@ -229,6 +230,7 @@ int cmd_frames(int argc, char **argv) {
         frames_scan_free(&scan);
         return cli_error(st.code, "%s", st.msg);
     }
+    if (info.note[0]) fprintf(stderr, "framelaw: note: %s\n", info.note);
     Dataset ds;
     if (dataset_init(&ds, &fs, &s, &st)) {
         store_close(&fs);
