@@ -67,7 +67,7 @@ static void frames_usage(FILE *f) {
             "  --degree N             Savitzky-Golay polynomial degree (for savgol)        [%d]\n"
             "  --val NAME[,NAME...]   validation recordings by name                        [none]\n"
             "  --val-last N           else hold out the last N recordings                  [%d]\n"
-            "  --store FILE           frame store file               [DIR/.framelaw-store]\n"
+            "  --store FILE           frame store file  [DIR/.framelaw-store; a read-only DIR: the cache]\n"
             "  --sheet FILE           contact sheet PNG; 'none' skips it   [" SHEET_DEFAULT "]\n"
             "                         (replaces a file only if it is a contact sheet framelaw wrote)\n"
             "  --rebuild              rebuild the frame store even when it is current      [off]\n"
@@ -249,6 +249,7 @@ int cmd_frames(int argc, char **argv) {
 
     FrameScan scan;
     if (frames_scan(dir, &scan, &st)) return cli_error(st.code, "%s", st.msg);
+    frames_warn_gaps(&scan, stderr);
     if (scan.kind != REC_NUMERIC && strcmp(sheet, "none") && sheet_place_free(sheet, &st)) {
         frames_scan_free(&scan);
         return cli_error(st.code, "%s", st.msg);
@@ -270,6 +271,7 @@ int cmd_frames(int argc, char **argv) {
         frames_scan_free(&scan);
         return cli_error(st.code, "%s", st.msg);
     }
+    if (info.note[0]) fprintf(stderr, "framelaw: note: %s\n", info.note);
     Dataset ds;
     double theta = 0;
     int drc = dataset_init(&ds, &fs, &s, &st);

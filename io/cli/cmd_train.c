@@ -59,6 +59,8 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
     Status st;
     RunData data;
     int rc = rundata_open(&data, c, &st);
+    if (data.have_scan) frames_warn_gaps(&data.scan, stderr); /* also when the pieces are too short */
+    if (data.store_info.note[0] && !quiet) fprintf(stderr, "framelaw: note: %s\n", data.store_info.note);
     if (rc) {
         rundata_close(&data);
         return cli_error(rc, "%s", st.msg);

@@ -59,6 +59,8 @@ int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st) {
         k += (size_t)n;
     }
     s->val_last = c->val_last;
+    _Static_assert(sizeof s->store_path >= sizeof c->store, "data.store does not fit the frame settings");
+    memcpy(s->store_path, c->store, sizeof c->store);
     return frame_settings_check(s, st);
 }
 
@@ -151,8 +153,7 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     if (d->scan.kind == REC_IMAGES && !config_given(c, "data.fps"))
         return status_set(st, ST_INPUT, "data.fps: required for image frames (%s): give the camera's frame rate, "
                                         "e.g. \"data\": {\"fps\": 60}", c->frames);
-    StoreOpenInfo info;
-    if (store_open_for(&d->scan, &s, 0, &d->store, &info, st)) return st->code;
+    if (store_open_for(&d->scan, &s, 0, &d->store, &d->store_info, st)) return st->code;
     d->have_store = 1;
     if (dataset_init(&d->ds, &d->store, &s, st)) return st->code;
     d->have_ds = 1;

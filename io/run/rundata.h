@@ -19,6 +19,7 @@ typedef struct {
     int *idx;           /* (batch) work for the gather */
     int batch;
     int have_scan, have_store, have_ds;
+    StoreOpenInfo store_info;       /* where the store is; its note when the frames' folder is read-only */
     int auto_window, auto_degree;   /* data.derivative.method auto: the stencil chosen (0: not auto) */
     double auto_theta;              /* and the frames' rms frequency it was chosen for (rad / sample) */
 } RunData;
