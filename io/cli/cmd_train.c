@@ -140,6 +140,9 @@ static int parse_sets(Config *c, int argc, char **argv, int *quiet, const char *
         } else if (!strcmp(argv[i], "--set") || !strncmp(argv[i], "--set=", 6)) {
             const char *a = argv[i][5] == '=' ? argv[i] + 6 : (i + 1 < argc ? argv[++i] : NULL);
             if (!a) return cli_error(2, "--set needs KEY.PATH=VALUE");
+            if (resume && !strncmp(a, "output=", 7))
+                return cli_error(2, "--set %s: a resumed run stays in RUN_DIR; to move a run, move its folder and "
+                                    "resume it there", a);
             if (resume) {
                 int ok = !strncmp(a, "data.frames=", 12); /* the frames moved: checked by run_frames_move */
                 for (int k = 0; config_resume_safe_keys[k]; k++) {
@@ -245,9 +248,10 @@ int cmd_resume(int argc, char **argv) {
                "Continue a run from its newest valid checkpoint, exactly as if it had not stopped. A checkpoint\n"
                "that is truncated or damaged is skipped with a message and the one before it is used.\n"
                "Only these keys may change: train.epochs, train.threads, train.validate_every,\n"
-               "checkpoint.every, checkpoint.keep, output, forecast.bound, forecast.method,\n"
-               "forecast.tolerance, ensemble.*, canonical.* (they act after training), and data.frames\n"
-               "when the frames moved: their content is checked against the run's (docs/results.md).\n\n"
+               "checkpoint.every, checkpoint.keep, forecast.bound, forecast.method, forecast.tolerance,\n"
+               "ensemble.*, canonical.* (they act after training), train.memory_budget, and data.frames\n"
+               "when the frames moved: their content is checked against the run's (docs/results.md).\n"
+               "The run stays in RUN_DIR: a moved run folder resumes where it is.\n\n"
                "options (default in brackets):\n"
                "  --set KEY.PATH=VALUE   change one of the keys above (VALUE is JSON; repeatable)  [none]\n"
                "  --quiet                no progress output                                        [off]\n"
