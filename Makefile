@@ -29,7 +29,7 @@ LIB_OBJ  := $(LIB_SRC:%.c=$(BUILD)/%.o)
 TEST_BIN := $(TEST_SRC:tests/%.c=$(BUILD)/tests/%)
 BENCH_BIN:= $(BENCH_SRC:tests/%.c=$(BUILD)/tests/%)
 
-.PHONY: all deps test test-bin sanitize bench demo clean check-deps check-slurm check-discovery check-battery check-battery-ci install uninstall fuzz fuzz-bin fuzz-seeds
+.PHONY: all deps test test-bin sanitize bench demo clean check-deps check-slurm check-discovery check-battery check-battery-ci check-report-browser install uninstall fuzz fuzz-bin fuzz-seeds
 all: framelaw
 
 framelaw: $(BUILD)/framelaw
@@ -135,6 +135,12 @@ check-battery: deps framelaw
 check-battery-ci: deps framelaw
 	SEEDS=1 SCENARIOS="spring colony pulse" BATTERY_SET="train.threads=1" MIN_PASS=1 \
 	  FRAMELAW=$(CURDIR)/framelaw bash tests/battery/check.sh
+
+# The report of a tiny real run in headless Chromium (tests/browser/check_report.sh, docs/report.md):
+# the DOM must hold the laws as MathML and no LaTeX outside the copy boxes. Installs chromium when
+# missing (root only, like deps); about half a minute when it is installed.
+check-report-browser: framelaw
+	FRAMELAW=$(CURDIR)/framelaw bash tests/browser/check_report.sh
 
 # Install the program: $(DESTDIR)$(PREFIX)/bin/framelaw and the guide under share/doc/framelaw.
 PREFIX ?= /usr/local

@@ -41,10 +41,15 @@ void nn_free(void *p) { free(p); }
 
 int status_set(Status *st, int code, const char *fmt, ...) {
     if (!st) return code;
+    /* Formatted into a copy first: the message may be one of the arguments ("%s: ...", st->msg), which
+     * vsnprintf into st->msg itself would garble (C11 7.21.6.12: copying between overlapping objects is
+     * undefined). */
+    char buf[sizeof st->msg];
     va_list ap;
     va_start(ap, fmt);
-    vsnprintf(st->msg, sizeof st->msg, fmt, ap);
+    vsnprintf(buf, sizeof buf, fmt, ap);
     va_end(ap);
+    memcpy(st->msg, buf, sizeof buf);
     st->code = code;
     return code;
 }

@@ -29,7 +29,8 @@ typedef struct {
     char msg[1024];
 } Status;
 
-/* Set code and message (printf-style); returns code, so `return status_set(st, ST_INPUT, ...)`. */
+/* Set code and message (printf-style); returns code, so `return status_set(st, ST_INPUT, ...)`. The
+ * message may be an argument: status_set(st, st->code, "while reading: %s", st->msg) prefixes it. */
 int status_set(Status *st, int code, const char *fmt, ...) __attribute__((format(printf, 3, 4)));
 static inline void status_ok(Status *st) { st->code = ST_OK; st->msg[0] = 0; }
 

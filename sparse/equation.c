@@ -46,7 +46,7 @@ static void write_rhs(Sb *b, EqStyle style, int n_terms, EqTermNameFn name_fn, c
     for (int t = 0; t < n_terms; t++) {
         double c = coef[(long)t * stride];
         if ((mask && !mask[(long)t * stride]) || c == 0) continue;
-        char mag[96], name[LIB_NAME_MAX * 2];
+        char mag[96], name[LIB_SHOWN_MAX];
         fmt_magnitude(mag, sizeof mag, c, digits, style);
         int constant = name_fn(ctx, t, style, name, sizeof name);
         int unit = !constant && !strcmp(mag, "1");
@@ -68,9 +68,10 @@ static int library_name_fn(const void *ctx, int t, EqStyle style, char *buf, siz
 
 static void write_line(Sb *b, EqStyle style, const Library *lib, const double *xi, const uint8_t *mask,
                        int j, int digits) {
-    int k = lib->spec.n_latent, second = lib->spec.order == 2;
-    if (style == EQ_LATEX) sb_printf(b, "%s{z}_{%d} &=", second ? "\\ddot" : "\\dot", j + 1);
-    else sb_printf(b, second ? "d2z%d/dt2 =" : "dz%d/dt =", j + 1);
+    int k = lib->spec.n_latent;
+    char lhs[LIB_SHOWN_MAX];
+    library_deriv_name(lib, j, lib->spec.order, style == EQ_LATEX ? NAME_LATEX : NAME_TEXT, lhs, sizeof lhs);
+    sb_printf(b, style == EQ_LATEX ? "%s &=" : "%s =", lhs);
     write_rhs(b, style, lib->n_terms, library_name_fn, lib, xi + j, mask ? mask + j : NULL, k, digits);
 }
 
@@ -142,7 +143,7 @@ static cJSON *edit_name(const Library *lib, const char *given) {
     Term t;
     Status st;
     char b[LIB_NAME_MAX];
-    if (library_parse_term(lib, given, &t, &st) || library_name_of(lib, &t, NAME_TEXT, b, sizeof b) >= (int)sizeof b)
+    if (library_parse_term(lib, given, &t, &st) || library_name_of(lib, &t, NAME_KEY, b, sizeof b) >= (int)sizeof b)
         return cJSON_CreateString(given);   /* library_init read it, so this does not happen */
     return cJSON_CreateString(b);
 }
@@ -175,8 +176,12 @@ cJSON *equation_json_as(const Library *lib, const double *xi, const uint8_t *mas
     cJSON *vars = cJSON_AddArrayToObject(root, "variables");
     for (int i = 0; i < lib->n_vars; i++) {
         char v[32];
-        library_var_name(lib, i, NAME_TEXT, v, sizeof v);
+        library_var_name(lib, i, NAME_KEY, v, sizeof v);
         cJSON_AddItemToArray(vars, cJSON_CreateString(v));
+    }
+    if (lib->has_var_names) {   /* the names shown for z1, z2, ... (text, latex and lhs use them) */
+        cJSON *vn = cJSON_AddArrayToObject(root, "variable_names");
+        for (int j = 0; j < k; j++) cJSON_AddItemToArray(vn, cJSON_CreateString(lib->var_names[j]));
     }
     cJSON *terms = cJSON_AddArrayToObject(root, "terms");
     for (int t = 0; t < lib->n_terms; t++) cJSON_AddItemToArray(terms, cJSON_CreateString(lib->names[t]));
@@ -184,8 +189,8 @@ cJSON *equation_json_as(const Library *lib, const double *xi, const uint8_t *mas
     cJSON *eqs = cJSON_AddArrayToObject(root, "equations");
     for (int j = 0; j < k; j++) {
         cJSON *e = cJSON_CreateObject();
-        char lhs[32];
-        snprintf(lhs, sizeof lhs, sp->order == 2 ? "d2z%d/dt2" : "dz%d/dt", j + 1);
+        char lhs[LIB_SHOWN_MAX];
+        library_deriv_name(lib, j, sp->order, NAME_TEXT, lhs, sizeof lhs);
         cJSON_AddStringToObject(e, "lhs", lhs);
         cJSON *co = cJSON_AddArrayToObject(e, "coefficients");
         cJSON *ma = cJSON_AddArrayToObject(e, "mask");
@@ -289,7 +294,26 @@ static int from_json(const cJSON *root, Library *lib, Coef *coef, Status *st) {
             return status_set(st, ST_INPUT, "equations JSON: \"library.%s\" must hold integers", mul_key);
         sp.freq[sp.n_freq++] = (int)it->valuedouble;
     }
-    if (library_init(lib, &sp, st)) return st->code;
+    /* since version 2, optional: the names shown for the variables (fit, from a CSV header) */
+    const cJSON *vn = version >= 2 ? cJSON_GetObjectItemCaseSensitive(root, "variable_names") : NULL;
+    const char *names[LIB_MAX_VARS];
+    if (vn) {
+        int n = 0;
+        const cJSON *v;
+        if (!cJSON_IsArray(vn) || cJSON_GetArraySize(vn) != k)
+            return status_set(st, ST_INPUT, "equations JSON: \"variable_names\" must hold %d names", k);
+        cJSON_ArrayForEach(v, vn) {
+            if (!cJSON_IsString(v))
+                return status_set(st, ST_INPUT, "equations JSON: \"variable_names\" entry %d is not a string", n + 1);
+            names[n++] = v->valuestring;
+        }
+        if (library_var_names_check(names, k, NULL, st)) {
+            char why[sizeof st->msg];
+            memcpy(why, st->msg, sizeof why);
+            return status_set(st, ST_INPUT, "equations JSON: \"variable_names\": %.900s", why);
+        }
+    }
+    if (library_init_named(lib, &sp, vn ? names : NULL, st)) return st->code;
 
     const cJSON *terms = cJSON_GetObjectItemCaseSensitive(root, "terms");
     if (!cJSON_IsArray(terms) || cJSON_GetArraySize(terms) != lib->n_terms) {

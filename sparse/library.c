@@ -54,10 +54,10 @@ static void mono_grad(const Term *t, const double *s, double g, double *ds) {
     }
 }
 static int mono_name(const Library *lib, const Term *t, NameStyle style, char *buf, size_t n) {
-    char out[LIB_MAX_DEGREE * 48] = "";   /* every factor fits in 48 characters */
+    char out[LIB_SHOWN_MAX] = "";   /* every factor fits in LIB_SHOWN_MAX / LIB_MAX_DEGREE characters */
     size_t len = 0;
     for (int f = 0; f < t->n_fac; f++) {
-        char v[32];
+        char v[LIB_SHOWN_MAX / LIB_MAX_DEGREE - 8];
         library_var_name(lib, t->var[f], style, v, sizeof v);
         int vel = t->var[f] >= lib->spec.n_latent;
         const char *sep = !f ? "" : style == NAME_LATEX ? " " : "*";
@@ -84,7 +84,7 @@ static void cos_grad(const Term *t, const double *s, double g, double *ds) {
 }
 static int trig_name(const char *fn, const Library *lib, const Term *t, NameStyle style, char *buf,
                      size_t n) {
-    char v[LIB_NAME_MAX];
+    char v[LIB_SHOWN_MAX / LIB_MAX_DEGREE - 8];
     library_var_name(lib, t->var[0], style, v, sizeof v);
     const char *pre = style == NAME_LATEX ? "\\" : "";
     if (t->freq == 1) return snprintf(buf, n, "%s%s(%s)", pre, fn, v);
@@ -112,11 +112,91 @@ const char *term_kind_name(TermKind k) {
 
 /* ---- names ------------------------------------------------------------------------------------ */
 
+/* LaTeX of a variable name: one letter as it is, a Greek letter's name as the letter, longer names
+ * upright-italic as one word (\mathit{vel}); what follows the first '_' is the subscript, further
+ * '_' written as commas: x_1 -> x_{1}, v_a_b -> v_{a,b}. The base and the subscript go apart so that
+ * a dot or an exponent sits on the base: \dot{x}_{1}. */
+static void latex_parts(const char *name, char *base, size_t nb, char *sub, size_t ns) {
+    static const char *const greek[] = {"alpha", "beta",  "gamma",   "delta", "epsilon", "zeta",  "eta",   "theta",
+                                        "iota",  "kappa", "lambda",  "mu",    "nu",      "xi",    "pi",    "rho",
+                                        "sigma", "tau",   "upsilon", "phi",   "chi",     "psi",   "omega", "Gamma",
+                                        "Delta", "Theta", "Lambda",  "Xi",    "Pi",      "Sigma", "Phi",   "Psi",
+                                        "Omega"};
+    const char *us = strchr(name, '_');
+    int bl = us ? (int)(us - name) : (int)strlen(name);
+    int is_greek = 0;
+    for (size_t g = 0; g < sizeof greek / sizeof *greek && !is_greek; g++)
+        is_greek = (int)strlen(greek[g]) == bl && !strncmp(name, greek[g], (size_t)bl);
+    if (bl == 1) snprintf(base, nb, "%.*s", bl, name);
+    else if (is_greek) snprintf(base, nb, "\\%.*s", bl, name);
+    else snprintf(base, nb, "\\mathit{%.*s}", bl, name);
+    size_t k = 0;
+    for (const char *p = us ? us + 1 : ""; *p && k + 1 < ns; p++) sub[k++] = *p == '_' ? ',' : *p;
+    if (ns) sub[k] = 0;
+}
+
+int library_deriv_name(const Library *lib, int j, int d, NameStyle style, char *buf, size_t n) {
+    int named = lib->has_var_names && style != NAME_KEY && j >= 0 && j < lib->spec.n_latent;
+    if (style == NAME_LATEX) {
+        const char *dot = d == 1 ? "\\dot" : d == 2 ? "\\ddot" : "";
+        if (!named) return d ? snprintf(buf, n, "%s{z}_{%d}", dot, j + 1) : snprintf(buf, n, "z_{%d}", j + 1);
+        char base[LIB_VAR_NAME_MAX + 16], sub[LIB_VAR_NAME_MAX];
+        latex_parts(lib->var_names[j], base, sizeof base, sub, sizeof sub);
+        char tail[LIB_VAR_NAME_MAX + 8] = "";
+        if (sub[0]) snprintf(tail, sizeof tail, "_{%s}", sub);
+        return d ? snprintf(buf, n, "%s{%s}%s", dot, base, tail) : snprintf(buf, n, "%s%s", base, tail);
+    }
+    char v[LIB_VAR_NAME_MAX + 16];
+    if (named) snprintf(v, sizeof v, "%s", lib->var_names[j]);
+    else snprintf(v, sizeof v, "z%d", j + 1);
+    if (d == 1) return snprintf(buf, n, "d%s/dt", v);
+    if (d == 2) return snprintf(buf, n, "d2%s/dt2", v);
+    return snprintf(buf, n, "%s", v);
+}
+
 int library_var_name(const Library *lib, int i, NameStyle style, char *buf, size_t n) {
     int k = lib->spec.n_latent;
-    int vel = i >= k, idx = (vel ? i - k : i) + 1;
-    if (style == NAME_LATEX) return snprintf(buf, n, vel ? "\\dot{z}_{%d}" : "z_{%d}", idx);
-    return snprintf(buf, n, vel ? "dz%d/dt" : "z%d", idx);
+    return i >= k ? library_deriv_name(lib, i - k, 1, style, buf, n) : library_deriv_name(lib, i, 0, style, buf, n);
+}
+
+/* "z<digits>" (dz = 0) or "dz<digits>" (dz = 1): the index, else 0. */
+static long z_index(const char *s, int dz) {
+    if (dz && *s++ != 'd') return 0;
+    if (*s++ != 'z' || !*s) return 0;
+    long v = 0;
+    for (; *s; s++) {
+        if (!isdigit((unsigned char)*s) || v > 100000) return 0;
+        v = v * 10 + (*s - '0');
+    }
+    return v;
+}
+
+int library_var_names_check(const char *const *names, int k, int *bad, Status *st) {
+    static const char *const words[] = {"sin", "cos", "t", "dt"};
+    for (int j = 0; j < k; j++) {
+        const char *a = names[j];
+        if (bad) *bad = j;
+        size_t len = strlen(a);
+        int plain = len > 0 && isalpha((unsigned char)a[0]) && len < LIB_VAR_NAME_MAX;
+        for (size_t c = 0; plain && c < len; c++) plain = isalnum((unsigned char)a[c]) || a[c] == '_';
+        if (!plain)
+            return status_set(st, ST_INPUT,
+                              "'%.40s' is not a plain name (a letter, then letters, digits or _, at most %d)", a,
+                              LIB_VAR_NAME_MAX - 1);
+        for (size_t w = 0; w < sizeof words / sizeof *words; w++)
+            if (!strcmp(a, words[w])) return status_set(st, ST_INPUT, "'%s' is a word of the term names (sin, cos, t, dt)", a);
+        long zi = z_index(a, 0);
+        if ((zi && zi != j + 1) || z_index(a, 1))
+            return status_set(st, ST_INPUT, "'%s' reads as another variable's z name (it names variable %d, z%d)", a,
+                              j + 1, j + 1);
+        for (int i = 0; i < k; i++) {
+            if (i < j && !strcmp(a, names[i])) return status_set(st, ST_INPUT, "'%s' names two variables", a);
+            if (a[0] == 'd' && !strcmp(a + 1, names[i]))
+                return status_set(st, ST_INPUT, "'%s' reads as the derivative of '%s'", a, names[i]);
+        }
+    }
+    if (bad) *bad = -1;
+    return 0;
 }
 
 int library_term_name(const Library *lib, int t, NameStyle style, char *buf, size_t n) {
@@ -144,10 +224,33 @@ static int term_equal(const Term *a, const Term *b) {
 static int parse_var(const Library *lib, const char *name, const char **p, Status *st) {
     const char *q = *p;
     int vel = 0;
+    if (lib->has_var_names) {   /* a whole word that is a name, or d<name>/dt */
+        size_t w = 0;
+        while (isalnum((unsigned char)q[w]) || q[w] == '_') w++;
+        for (int j = 0; j < lib->spec.n_latent; j++) {
+            const char *v = lib->var_names[j];
+            if (strlen(v) == w && !strncmp(q, v, w)) {
+                *p = q + w;
+                return j;
+            }
+            if (q[0] == 'd' && strlen(v) == w - 1 && !strncmp(q + 1, v, w - 1) && !strncmp(q + w, "/dt", 3)) {
+                if (lib->spec.order < 2) {
+                    status_set(st, ST_INPUT, "term '%s': velocities (d%s/dt) exist only in a second-order library",
+                               name, v);
+                    return -1;
+                }
+                *p = q + w + 3;
+                return lib->spec.n_latent + j;
+            }
+        }
+    }
     if (q[0] == 'd' && q[1] == 'z') vel = 1, q += 2;
     else if (q[0] == 'z') q += 1;
     else {
-        status_set(st, ST_INPUT, "term '%s': expected a variable (z1, dz1/dt) at '%s'", name, q);
+        if (lib->has_var_names)
+            status_set(st, ST_INPUT, "term '%s': expected a variable (%s, z1, dz1/dt) at '%s'", name, lib->var_names[0], q);
+        else
+            status_set(st, ST_INPUT, "term '%s': expected a variable (z1, dz1/dt) at '%s'", name, q);
         return -1;
     }
     if (!isdigit((unsigned char)*q)) {
@@ -352,8 +455,21 @@ static int spec_check(const LibrarySpec *s, Status *st) {
 }
 
 int library_init(Library *lib, const LibrarySpec *spec, Status *st) {
+    return library_init_named(lib, spec, NULL, st);
+}
+
+int library_init_named(Library *lib, const LibrarySpec *spec, const char *const *var_names, Status *st) {
     memset(lib, 0, sizeof *lib);
     if (spec_check(spec, st)) return st->code;
+    if (var_names) {
+        if (library_var_names_check(var_names, spec->n_latent, NULL, st)) {
+            char why[sizeof st->msg];
+            memcpy(why, st->msg, sizeof why);
+            return status_set(st, ST_INPUT, "library: variable name %.900s", why);
+        }
+        for (int j = 0; j < spec->n_latent; j++) snprintf(lib->var_names[j], LIB_VAR_NAME_MAX, "%s", var_names[j]);
+        lib->has_var_names = 1;
+    }
     lib->spec = *spec;
     int n = spec->order * spec->n_latent;
     lib->n_vars = n;
@@ -432,7 +548,7 @@ int library_init(Library *lib, const LibrarySpec *spec, Status *st) {
     }
     lib->names = nn_calloc((size_t)nt, sizeof *lib->names);
     for (int i = 0; i < nt; i++) {
-        int w = library_term_name(lib, i, NAME_TEXT, lib->names[i], LIB_NAME_MAX);
+        int w = library_term_name(lib, i, NAME_KEY, lib->names[i], LIB_NAME_MAX);
         if (w >= LIB_NAME_MAX) {
             library_free(lib);
             return status_set(st, ST_INPUT, "library: a term name is longer than %d characters", LIB_NAME_MAX - 1);

@@ -18,7 +18,13 @@
  * Names: "1", "z1", "z1^2", "z1*z2", "z1^2*dz2/dt", "(dz1/dt)^2", "sin(z1)", "cos(2*dz1/dt)": a
  * product is written with '*', so a name pastes into a calculator or a script. LaTeX keeps a space
  * for a product: "z_{1} z_{2}", "\sin(2 z_{1})".
- * A name given in include / exclude is parsed, so "z2*z1", "z1 * z2" and "z1*z2" are the same term.
+ * Variable names: a library may carry a name for each z variable (library_init_named; fit takes them
+ * from a CSV header). Then the names shown (NAME_TEXT, NAME_LATEX) use them: "x", "dx/dt", "v*x",
+ * "sin(x)", "(dx/dt)^2"; LaTeX "x", "\dot{x}", "\mathit{vel}", "x_{1}" for x_1, "\theta" for theta.
+ * NAME_KEY is always the z form: the names in lib->names, in equations JSON "terms" and in
+ * include / exclude, so a file reads back whatever the variables were called.
+ * A name given in include / exclude is parsed, so "z2*z1", "z1 * z2" and "z1*z2" are the same term;
+ * with variable names, "x*v" is that term too.
  * The parser also reads the old form with a space for a product ("z1 z2", "sin(2 z1)"), the names
  * of version-1 equations JSON; library_name_old_form tells a caller when to note that it is
  * deprecated.
@@ -42,6 +48,8 @@
 #define LIB_MAX_EDITS 32      /* names in include / exclude */
 #define LIB_NAME_MAX 96       /* a term name, with its terminating zero */
 #define LIB_MAX_TERMS 10000   /* more is a configuration error, not a model */
+#define LIB_VAR_NAME_MAX 25   /* a variable name (library_var_names_check), with its terminating zero */
+#define LIB_SHOWN_MAX 1024    /* a term name shown with variable names (text or LaTeX), with its zero */
 
 typedef enum { TERM_CONST, TERM_MONO, TERM_SIN, TERM_COS, TERM_KIND_COUNT } TermKind;
 
@@ -78,20 +86,37 @@ typedef struct {
     int n_vars;                         /* order * n_latent */
     int n_terms;
     Term *terms;                        /* (n_terms) */
-    char (*names)[LIB_NAME_MAX];        /* (n_terms) plain-text names */
+    char (*names)[LIB_NAME_MAX];        /* (n_terms) plain-text names, NAME_KEY (z1, dz1/dt) */
+    int has_var_names;                  /* 1: var_names name the z variables in shown names */
+    char var_names[LIB_MAX_VARS][LIB_VAR_NAME_MAX];   /* (n_latent) when has_var_names */
 } Library;
 
 /* Build the terms of a spec. Returns 0, or ST_INPUT with a message naming the bad setting or term. */
 int library_init(Library *lib, const LibrarySpec *spec, Status *st);
+/* The same with a name for each of the spec->n_latent z variables (var_names NULL: z1, z2, ...); the
+ * names must pass library_var_names_check. include / exclude may use them. */
+int library_init_named(Library *lib, const LibrarySpec *spec, const char *const *var_names, Status *st);
+/* Can these k strings name the z variables? Each a plain name (a letter, then letters, digits or '_',
+ * at most LIB_VAR_NAME_MAX - 1 characters), none a word of the term names (sin, cos, t, dt), none
+ * z<i> or dz<i> but z<j+1> for variable j itself, no two the same, none "d" followed by another (dx
+ * would read as the velocity of x). 0, or ST_INPUT with a message that starts with the quoted name
+ * and says why; *bad (when not NULL) gets the index of that name. */
+int library_var_names_check(const char *const *names, int k, int *bad, Status *st);
 void library_free(Library *lib);
 
 /* Index of a term by name (parsed, so spacing and factor order do not matter); -1 when absent. */
 int library_find(const Library *lib, const char *name);
 
-typedef enum { NAME_TEXT, NAME_LATEX } NameStyle;
+/* NAME_TEXT and NAME_LATEX: the names shown, with the variable names when the library has them;
+ * NAME_KEY: plain text with z1, dz1/dt always (the same as NAME_TEXT without variable names). */
+typedef enum { NAME_TEXT, NAME_LATEX, NAME_KEY } NameStyle;
 
-/* Name of variable i (z1, dz1/dt; LaTeX z_{1}, \dot{z}_{1}). Returns the length snprintf would. */
+/* Name of variable i (z1, dz1/dt; LaTeX z_{1}, \dot{z}_{1}; x, dx/dt, \dot{x} with names). Returns
+ * the length snprintf would. */
 int library_var_name(const Library *lib, int i, NameStyle style, char *buf, size_t n);
+/* The d-th time derivative (0, 1 or 2) of z variable j (0..n_latent-1): z1, dz1/dt, d2z1/dt2; LaTeX
+ * z_{1}, \dot{z}_{1}, \ddot{z}_{1}; with names x, dx/dt, d2x/dt2, \ddot{x}. snprintf-like. */
+int library_deriv_name(const Library *lib, int j, int d, NameStyle style, char *buf, size_t n);
 /* Name of term t in a style; the text names are also in lib->names. */
 int library_term_name(const Library *lib, int t, NameStyle style, char *buf, size_t n);
 /* The same for any term of the library's variables (one library_parse_term gave, say). */

@@ -69,6 +69,42 @@ static void expect_bad(const char *args, const char *want) {
     assert_non_null(strstr(err, "framelaw: "));
 }
 
+/* The labels "run1" and "run2" (io/data/glyphs.h): ink only in each row's label band, from the left
+ * gap to at most 4 characters of 12 pixels, none in the 4 white pixels between band and tiles; the
+ * two labels share their first 3 characters pixel for pixel and differ in the last. */
+static void check_labels(const char *sheet, int w) {
+    float *img;
+    int iw, ih;
+    Status st;
+    assert_int_equal(image_load_gray(sheet, GRAY_BT601, &img, &iw, &ih, &st), 0);
+    assert_int_equal(iw, w);
+    long tops[2] = {4, 4 + 18 + 72 + 4};
+    for (int r = 0; r < 2; r++) {
+        long ink = 0, left = w, right = -1;
+        for (long y = tops[r]; y < tops[r] + 18; y++)
+            for (long x = 0; x < w; x++) {
+                if (img[y * w + x] > 0.5f) continue;
+                if (y >= tops[r] + 14) fail_msg("row %d: ink at (%ld, %ld), in the gap under the label", r, x, y);
+                ink++;
+                if (x < left) left = x;
+                if (x > right) right = x;
+            }
+        if (ink < 40) fail_msg("row %d: the label has %ld dark pixels", r, ink);
+        assert_int_equal(left, 4);   /* 'r' has ink in its first column */
+        assert_true(right <= 4 + 4 * 12 - 2 - 1);
+    }
+    long same = 0, differ = 0;
+    for (long y = 0; y < 14; y++)
+        for (long x = 4; x < 4 + 4 * 12; x++) {
+            int a = img[(tops[0] + y) * w + x] < 0.5f, b = img[(tops[1] + y) * w + x] < 0.5f;
+            if (x < 4 + 3 * 12) same += a == b;
+            else differ += a != b;
+        }
+    assert_int_equal(same, 14 * 3 * 12);
+    assert_true(differ > 0);
+    free(img);
+}
+
 /* A good folder: the summary names recordings, counts, size, durations, store and training set;
  * the contact sheet is a PNG of 2 rows x 3 frames; the second run reuses the store (issue 3,
  * item 7). */
@@ -81,7 +117,9 @@ static void test_summary_and_sheet(void **state) {
     assert_int_equal(mkdir(d, 0755), 0);
     write_frames(a, 11, 16, 12);
     write_frames(b, 7, 16, 12);
-    assert_int_equal(run("frames good --fps 10 --size 8x6 --sheet sheet.png", out, sizeof out, err, sizeof err), 0);
+    /* central differences (3 frames): 9 + 5 samples */
+    assert_int_equal(run("frames good --fps 10 --size 8x6 --derivative central --sheet sheet.png", out, sizeof out, err,
+                         sizeof err), 0);
     const char *want[] = {"2 image recordings", "run1", "run2", "validation", "frame size: 8x6 (source 16x12",
                           "time step: 0.1 s", "built", "training set: 9 samples from 1 recording; validation: 5 samples",
                           "contact sheet: sheet.png", "1.00s"};
@@ -92,9 +130,11 @@ static void test_summary_and_sheet(void **state) {
     int w, h;
     Status st;
     assert_int_equal(image_probe(sheet, &w, &h, &st), 0);
-    /* 8x6 tiles enlarged 12x to 96x72; 3 columns, 2 rows, 4-pixel gaps. */
+    /* 8x6 tiles enlarged 12x to 96x72; 3 columns, 2 rows, 4-pixel gaps; above each row its label:
+     * 7-pixel glyphs at twice their size and a gap (18 pixels). */
     assert_int_equal(w, 3 * 96 + 4 * 4);
-    assert_int_equal(h, 2 * 72 + 3 * 4);
+    assert_int_equal(h, 2 * (18 + 72) + 3 * 4);
+    check_labels(sheet, w);
     assert_int_equal(run("frames good --fps 10 --size 8x6 --sheet none", out, sizeof out, err, sizeof err), 0);
     assert_non_null(strstr(out, "reused"));
     assert_null(strstr(out, "contact sheet"));
@@ -106,7 +146,7 @@ static void test_help(void **state) {
     char out[8192], err[4096];
     assert_int_equal(run("frames --help", out, sizeof out, err, sizeof err), 0);
     const char *opts[] = {"--config", "--gray", "[bt601]", "--crop", "--size", "--bits", "--stride", "--fps", "[30]",
-                          "--scale", "[unit]", "--derivative", "[central]", "--window", "[7]", "--degree", "[3]",
+                          "--scale", "[unit]", "--derivative", "[auto]", "--window", "[7]", "--degree", "[3]",
                           "--val ", "--val-last", "--store", "--sheet", "--rebuild"};
     for (size_t i = 0; i < sizeof opts / sizeof opts[0]; i++)
         if (!strstr(out, opts[i])) fail_msg("'%s' missing from --help", opts[i]);
@@ -210,7 +250,7 @@ static void test_numeric(void **state) {
     FILE *f = fopen(p, "w");
     fputs("t,x\n0,1\n0.1,2\n0.2,3\n0.35,4\n0.4,5\n", f);
     fclose(f);
-    expect_bad("frames uneven.csv", "uneven.csv:5: time step 0.15 differs from the mean step 0.1");
+    expect_bad("frames uneven.csv", "uneven.csv:5 (data row 4): time step 0.15 (from 0.2 to 0.35) differs from the median step 0.1");
 }
 
 /* --config reads the data.* keys of a run config (docs/config.md); flags override them. */

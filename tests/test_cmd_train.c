@@ -200,6 +200,7 @@ static void test_bad_usage(void **state) {
     assert_int_equal(run_cmd("train", cfg, "--quiet", NULL), 0);
     assert_int_equal(run_cmd("train", cfg, "--quiet", NULL), 2); /* the run folder already holds a run */
     assert_int_equal(run_cmd("resume", run, "--set", "optimizer.lr=0.5"), 2); /* not a resume-safe key */
+    assert_int_equal(run_cmd("resume", run, "--set", "output=elsewhere"), 2); /* a resumed run stays where it is */
     assert_int_equal(run_cmd("train", cfg, "--set", "model.order=7"), 2);
     /* a model wider than the machine's memory is bad input (exit 2) before anything is allocated, not
      * an out-of-memory exit 1 later; the message names the key */

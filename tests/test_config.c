@@ -20,7 +20,7 @@ static const char *FULL =
     "{\n"
     "  \"data\": {\"frames\": \"/data/pendulum\", \"frames_origin\": \"/lab/pendulum\", \"fps\": 59.94, \"gray\": \"bt709\",\n"
     "            \"crop\": [4, 8, 120, 96], \"size\": [51, 51], \"scale\": \"standardize\",\n"
-    "            \"stride\": 2, \"store_bits\": 16,\n"
+    "            \"stride\": 2, \"store_bits\": 16, \"store\": \"/cache/pendulum.store\",\n"
     "            \"derivative\": {\"method\": \"savgol\", \"window\": 9, \"degree\": 4},\n"
     "            \"validation\": {\"recordings\": [\"run07\", \"run 08\"], \"last\": 0}},\n"
     "  \"model\": {\"latent\": 2, \"order\": 1, \"encoder\": [256, 64], \"decoder\": [32, 64, 128],\n"
@@ -109,6 +109,7 @@ static void test_defaults(void **state) {
     assert_int_equal(c.ckpt_every, 100);
     assert_int_equal(c.ckpt_keep, 3);
     assert_string_equal(c.output, "");
+    assert_string_equal(c.store, ""); /* beside the frames, or the cache when their folder is read-only */
 
     /* the defaults pass validation once data.frames is given */
     Status st;
@@ -358,7 +359,8 @@ static void test_digest(void **state) {
                                        "ensemble.members=7", "ensemble.block=3", "ensemble.block_seconds=2",
                                        "ensemble.library_bagging=true", "ensemble.drop_fraction=0.5",
                                        "ensemble.inclusion=0.9", "ensemble.band_members=5",
-                                       "canonical.tolerance=0.1", "canonical.cond_max=50", "train.memory_budget=3"};
+                                       "canonical.tolerance=0.1", "canonical.cond_max=50", "train.memory_budget=3",
+                                       "data.store=/elsewhere/s.store"};
     Config s = c;
     for (size_t i = 0; i < sizeof safe / sizeof safe[0]; i++) {
         set_ok(&s, safe[i]);
@@ -392,7 +394,7 @@ static void test_digest(void **state) {
         for (int i = 0; config_key_path(i); i++) found |= !strcmp(config_key_path(i), config_resume_safe_keys[n]);
         if (!found) fail_msg("resume-safe key %s is not in the table", config_resume_safe_keys[n]);
     }
-    assert_int_equal(n, 19);
+    assert_int_equal(n, 20);
 }
 
 /* The bad configs: each with the substring its message must hold. The origin prefixes every one. */
@@ -549,9 +551,9 @@ static void test_load(void **state) {
     char *real = realpath(sub, NULL);
     assert_non_null(real);
 
-    /* relative data.frames: against the file's folder (made absolute); output: runs/<stem> */
+    /* relative data.frames and data.store: against the file's folder (made absolute); output: runs/<stem> */
     snprintf(path, sizeof path, "%s/pendulum.json", sub);
-    test_write_file(path, "{\"data\": {\"frames\": \"../frames\"}}\n");
+    test_write_file(path, "{\"data\": {\"frames\": \"../frames\", \"store\": \"stores/p.store\"}}\n");
     Config c;
     config_defaults(&c);
     Status st;
@@ -559,6 +561,8 @@ static void test_load(void **state) {
     char want[CFG_PATH_MAX + 16];
     snprintf(want, sizeof want, "%s/../frames", real);
     assert_string_equal(c.frames, want);
+    snprintf(want, sizeof want, "%s/stores/p.store", real);
+    assert_string_equal(c.store, want);
     assert_string_equal(c.output, "runs/pendulum");
     assert_int_equal(config_validate(&c, &st), 0);
 

@@ -265,6 +265,152 @@ static void test_json_variables(void **state) {
     library_free(&lib);
 }
 
+/* Variables named x, y, z (Lorenz's own letters, J. Atmos. Sci. 1963): the shown equations use them
+ * in text and LaTeX; the JSON keeps the z names as its keys (terms, variables, include / exclude),
+ * records the names in "variable_names" and reads back with them. */
+static void test_named_variables(void **state) {
+    (void)state;
+    static const char *const xyz[] = {"x", "y", "z"};
+    LibrarySpec sp = library_spec_default(3, 1);
+    sp.n_exclude = 1;
+    strcpy(sp.exclude[0], "y^2");   /* by its shown name */
+    Library lib;
+    Status st;
+    if (library_init_named(&lib, &sp, xyz, &st)) fail_msg("%s", st.msg);
+    assert_int_equal(lib.n_terms, 9);
+    assert_int_equal(library_find(&lib, "z2^2"), -1);
+    assert_string_equal(lib.names[6], "z1*z3");   /* the key names do not change */
+    double xi[27];
+    memset(xi, 0, sizeof xi);
+    xi[library_find(&lib, "x") * 3 + 0] = -10, xi[library_find(&lib, "y") * 3 + 0] = 10;
+    xi[library_find(&lib, "x") * 3 + 1] = 28, xi[library_find(&lib, "y") * 3 + 1] = -1;
+    xi[library_find(&lib, "z*x") * 3 + 1] = -1;
+    xi[library_find(&lib, "z3") * 3 + 2] = -8.0 / 3, xi[library_find(&lib, "x*y") * 3 + 2] = 1;
+    char buf[512];
+    equation_format(buf, sizeof buf, EQ_TEXT, &lib, xi, NULL, 4);
+    assert_string_equal(buf, "dx/dt = -10*x + 10*y\n"
+                             "dy/dt = 28*x - y - x*z\n"
+                             "dz/dt = -2.667*z + x*y\n");
+    equation_format(buf, sizeof buf, EQ_LATEX, &lib, xi, NULL, 4);
+    assert_non_null(strstr(buf, "\\dot{y} &= 28 x - y - x z \\\\\n"));
+    char *js = equation_json_string(&lib, xi, NULL, 4);
+    assert_non_null(strstr(js, "\"variable_names\":\t[\"x\", \"y\", \"z\"]"));
+    assert_non_null(strstr(js, "\"variables\":\t[\"z1\", \"z2\", \"z3\"]"));
+    assert_non_null(strstr(js, "\"exclude\":\t[\"z2^2\"]"));
+    assert_non_null(strstr(js, "\"lhs\":\t\"dz/dt\""));
+    assert_non_null(strstr(js, "\"text\":\t\"dz/dt = -2.667*z + x*y\""));
+    Library l2;
+    Coef c;
+    if (equation_from_json(js, &l2, &c, &st)) fail_msg("%s", st.msg);
+    assert_int_equal(l2.has_var_names, 1);
+    assert_string_equal(l2.var_names[1], "y");
+    for (int i = 0; i < 27; i++) assert_true(c.xi[i] == xi[i]);
+    char b2[512];
+    equation_format(b2, sizeof b2, EQ_TEXT, &l2, c.xi, c.mask, 4);
+    assert_string_equal(b2, "dx/dt = -10*x + 10*y\n"
+                            "dy/dt = 28*x - y - x*z\n"
+                            "dz/dt = -2.667*z + x*y\n");
+    library_free(&l2);
+    coef_free(&c);
+    /* bad names in the file: one line naming the member */
+    static const char *const bad[][2] = {
+        {"[\"x\", \"y\"]", "\"variable_names\" must hold 3 names"},
+        {"[\"x\", \"y\", 3]", "\"variable_names\" entry 3 is not a string"},
+        {"[\"x\", \"x\", \"z\"]", "\"variable_names\": 'x' names two variables"},
+        {"[\"x\", \"y\", \"cos\"]", "'cos' is a word of the term names"},
+    };
+    for (size_t i = 0; i < sizeof bad / sizeof *bad; i++) {
+        cJSON *root = cJSON_Parse(js);
+        cJSON_ReplaceItemInObject(root, "variable_names", cJSON_Parse(bad[i][0]));
+        char *t = cJSON_Print(root);
+        assert_int_equal(equation_from_json(t, &l2, &c, &st), ST_INPUT);
+        if (!strstr(st.msg, bad[i][1])) fail_msg("'%s' lacks '%s'", st.msg, bad[i][1]);
+        free(t);
+        cJSON_Delete(root);
+    }
+    free(js);
+    library_free(&lib);
+}
+
+/* Second order with a Greek name and a subscripted one: d2theta/dt2, dtheta/dt, (dtheta/dt)^2; LaTeX
+ * \ddot{\theta}, \dot{x}_{1}, \mathit{vel} (the usual notation: the dot over the variable, the
+ * subscript after it; common practice). */
+static void test_named_second_order(void **state) {
+    (void)state;
+    static const char *const names[] = {"theta", "x_1"};
+    LibrarySpec sp = library_spec_default(2, 2);
+    sp.trig = 1;
+    Library lib;
+    Status st;
+    if (library_init_named(&lib, &sp, names, &st)) fail_msg("%s", st.msg);
+    int T = lib.n_terms;
+    double *xi = calloc((size_t)T * 2, sizeof(double));
+    xi[library_find(&lib, "dtheta/dt") * 2 + 0] = -0.2;
+    xi[library_find(&lib, "sin(theta)") * 2 + 0] = -4.903;
+    xi[library_find(&lib, "(dtheta/dt)^2") * 2 + 0] = 0.5;
+    xi[library_find(&lib, "x_1*dx_1/dt") * 2 + 1] = 2;
+    assert_int_equal(library_find(&lib, "x_1*dx_1/dt"), library_find(&lib, "z2*dz2/dt"));
+    char buf[512];
+    equation_format(buf, sizeof buf, EQ_TEXT, &lib, xi, NULL, 4);
+    assert_string_equal(buf, "d2theta/dt2 = -0.2*dtheta/dt + 0.5*(dtheta/dt)^2 - 4.903*sin(theta)\n"
+                             "d2x_1/dt2 = 2*x_1*dx_1/dt\n");
+    equation_format(buf, sizeof buf, EQ_LATEX, &lib, xi, NULL, 4);
+    assert_string_equal(buf, "\\begin{aligned}\n"
+                             "\\ddot{\\theta} &= -0.2 \\dot{\\theta} + 0.5 \\dot{\\theta}^{2} - 4.903 \\sin(\\theta) \\\\\n"
+                             "\\ddot{x}_{1} &= 2 x_{1} \\dot{x}_{1}\n"
+                             "\\end{aligned}\n");
+    char v[64];
+    static const char *const vel[] = {"vel"};
+    Library l3;
+    LibrarySpec s1 = library_spec_default(1, 1);
+    if (library_init_named(&l3, &s1, vel, &st)) fail_msg("%s", st.msg);
+    library_var_name(&l3, 0, NAME_LATEX, v, sizeof v);
+    assert_string_equal(v, "\\mathit{vel}");
+    library_var_name(&l3, 0, NAME_KEY, v, sizeof v);
+    assert_string_equal(v, "z1");
+    /* a velocity in a first-order library is refused, named as the user wrote it */
+    strcpy(s1.include[0], "dvel/dt");
+    s1.n_include = 1;
+    library_free(&l3);
+    assert_int_equal(library_init_named(&l3, &s1, vel, &st), ST_INPUT);
+    assert_non_null(strstr(st.msg, "velocities (dvel/dt) exist only in a second-order library"));
+    free(xi);
+    library_free(&lib);
+}
+
+/* Which strings can name variables (library.h): each refusal says why and which. */
+static void test_var_names_check(void **state) {
+    (void)state;
+    static const struct {
+        const char *names[3];
+        int k, bad;
+        const char *why;
+    } cases[] = {
+        {{"x", "v", "angle_2"}, 3, -1, NULL},
+        {{"z1", "v"}, 2, -1, NULL},   /* its own z name is harmless */
+        {{"x pos", "v"}, 2, 0, "'x pos' is not a plain name"},
+        {{"x", ""}, 2, 1, "'' is not a plain name"},
+        {{"_x"}, 1, 0, "'_x' is not a plain name"},
+        {{"x", "dt"}, 2, 1, "'dt' is a word of the term names"},
+        {{"t"}, 1, 0, "'t' is a word of the term names"},
+        {{"z2", "z1"}, 2, 0, "'z2' reads as another variable's z name (it names variable 1, z1)"},
+        {{"dz1"}, 1, 0, "'dz1' reads as another variable's z name"},
+        {{"v", "dv"}, 2, 1, "'dv' reads as the derivative of 'v'"},
+        {{"dv", "v"}, 2, 0, "'dv' reads as the derivative of 'v'"},
+        {{"a", "b", "a"}, 3, 2, "'a' names two variables"},
+        {{"abcdefghijklmnopqrstuvwxy"}, 1, 0, "is not a plain name"},   /* 25 characters */
+        {{"abcdefghijklmnopqrstuvwx"}, 1, -1, NULL},                    /* 24 */
+    };
+    for (size_t i = 0; i < sizeof cases / sizeof *cases; i++) {
+        Status st;
+        int bad = 99;
+        int rc = library_var_names_check(cases[i].names, cases[i].k, &bad, &st);
+        assert_int_equal(bad, cases[i].bad);
+        assert_int_equal(rc, cases[i].why ? ST_INPUT : 0);
+        if (cases[i].why && !strstr(st.msg, cases[i].why)) fail_msg("case %zu: '%s' lacks '%s'", i, st.msg, cases[i].why);
+    }
+}
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_text_lorenz),
@@ -273,6 +419,9 @@ int main(void) {
         cmocka_unit_test(test_json_roundtrip),
         cmocka_unit_test(test_json_version1),
         cmocka_unit_test(test_json_variables),
+        cmocka_unit_test(test_named_variables),
+        cmocka_unit_test(test_named_second_order),
+        cmocka_unit_test(test_var_names_check),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

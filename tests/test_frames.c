@@ -66,9 +66,9 @@ static void test_scan_single(void **state) {
     (void)state;
     char dir[256], sub[512];
     assert_non_null(test_tmpdir(dir, sizeof dir));
-    write_png(dir, "frame10.png", 4, 3, 0);
-    write_png(dir, "frame2.png", 4, 3, 1);
-    write_png(dir, "frame1.png", 4, 3, 2);
+    write_png(dir, "frame10.png", 4, 3, 0); /* 8, 9, 10: no gap, and byte order would put 10 first */
+    write_png(dir, "frame9.png", 4, 3, 1);
+    write_png(dir, "frame8.png", 4, 3, 2);
     write_text(dir, "notes.txt", "x");
     write_text(dir, ".hidden.png", "x");
     make_dir(dir, "extra", sub, sizeof sub);
@@ -79,9 +79,10 @@ static void test_scan_single(void **state) {
     assert_true(fs.single);
     assert_int_equal(fs.kind, REC_IMAGES);
     assert_int_equal(fs.rec[0].n_files, 3);
-    assert_non_null(strstr(fs.rec[0].files[0].path, "/frame1.png"));
-    assert_non_null(strstr(fs.rec[0].files[1].path, "/frame2.png"));
+    assert_non_null(strstr(fs.rec[0].files[0].path, "/frame8.png"));
+    assert_non_null(strstr(fs.rec[0].files[1].path, "/frame9.png"));
     assert_non_null(strstr(fs.rec[0].files[2].path, "/frame10.png"));
+    assert_null(fs.gap_notes);
     assert_int_equal(fs.ignored_files, 1);
     assert_int_equal(fs.ignored_dirs, 1);
     const char *base = strrchr(dir, '/') + 1;
@@ -248,6 +249,98 @@ static void test_digest(void **state) {
     rm_rf(dir);
 }
 
+/* Gaps in the numbering (issue 19, item 5; docs/frames.md "Gaps in the numbering"): the step is the
+ * lower median of the steps between consecutive numbers, a step of 1.5 or more of it is a gap, and
+ * names that differ in more than one number, or in text, or steps that are neither are no frame
+ * count (common practice: numbered frame files, as video tools write them, e.g. %06d). */
+static void test_find_gaps(void **state) {
+    (void)state;
+    int cut[8];
+    long long step, v[16];
+    const char *a[] = {"f1.png", "f2.png", "f3.png", "f4.png", "f5.png", "f9.png", "f10.png"};
+    assert_int_equal(frames_find_gaps(a, 7, v, cut, 8, &step), 1);
+    assert_int_equal(cut[0], 5);                 /* f9 starts the second piece */
+    assert_true(step == 1 && v[5] == 9 && v[4] == 5);
+    const char *b[] = {"f1.png", "f2.png", "f3.png", "f4.png"};
+    assert_int_equal(frames_find_gaps(b, 4, v, cut, 8, &step), 0);
+    /* every 10th frame exported: 40-60 missing (the first gap), 90 (the second) */
+    const char *c[] = {"take2_0010.png", "take2_0020.png", "take2_0030.png", "take2_0070.png",
+                       "take2_0080.png", "take2_0100.png"};
+    assert_int_equal(frames_find_gaps(c, 6, v, cut, 8, &step), 2);
+    assert_true(step == 10);
+    assert_int_equal(cut[0], 3);
+    assert_int_equal(cut[1], 5);
+    /* milliseconds at 30 per second: steps of 33 and 34 are regular, 67 misses one frame */
+    const char *d[] = {"t0000.png", "t0033.png", "t0067.png", "t0100.png", "t0133.png", "t0200.png", "t0233.png"};
+    assert_int_equal(frames_find_gaps(d, 7, v, cut, 8, &step), 1);
+    assert_int_equal(cut[0], 5);
+    assert_int_equal(frames_find_gaps(d, 5, v, cut, 8, &step), 0);
+    /* a step of 13 where the step is 10: neither a step nor a gap, so no frame count */
+    const char *e[] = {"f10.png", "f20.png", "f30.png", "f43.png", "f53.png", "f80.png"};
+    assert_int_equal(frames_find_gaps(e, 6, v, cut, 8, &step), 0);
+    /* two numbers vary, the text differs, a number repeats (f2 and f02): nothing detected */
+    const char *f[] = {"s1_f1.png", "s1_f2.png", "s2_f1.png", "s2_f9.png"};
+    assert_int_equal(frames_find_gaps(f, 4, v, cut, 8, &step), 0);
+    const char *g[] = {"a1.png", "b2.png", "a9.png"};
+    assert_int_equal(frames_find_gaps(g, 3, v, cut, 8, &step), 0);
+    const char *h[] = {"f2.png", "f02.png", "f3.png", "f9.png"};
+    assert_int_equal(frames_find_gaps(h, 4, v, cut, 8, &step), 0);
+    /* a number that stays the same (the camera) beside the one that counts */
+    const char *k[] = {"cam2_001.png", "cam2_002.png", "cam2_003.png", "cam2_005.png"};
+    assert_int_equal(frames_find_gaps(k, 4, v, cut, 8, &step), 1);
+    assert_int_equal(cut[0], 3);
+    /* no digits at all, and numbers too long for 64 bits */
+    const char *m[] = {"a.png", "b.png", "c.png"};
+    assert_int_equal(frames_find_gaps(m, 3, v, cut, 8, &step), 0);
+    const char *o[] = {"f1234567890123456789.png", "f1234567890123456790.png", "f1234567890123456799.png"};
+    assert_int_equal(frames_find_gaps(o, 3, v, cut, 8, &step), 0);
+}
+
+/* A recording with gaps is split there: each piece a recording named NAME-partK in its place, the
+ * note names the folder and the missing numbers; a recording without gaps is left alone. */
+static void test_scan_splits_at_gaps(void **state) {
+    (void)state;
+    char dir[256], a[512], b[512];
+    assert_non_null(test_tmpdir(dir, sizeof dir));
+    make_dir(dir, "take01", a, sizeof a);
+    make_dir(dir, "take02", b, sizeof b);
+    static const int nums[] = {1, 2, 3, 4, 8, 9, 10, 12, 13, 14};
+    for (int i = 0; i < 10; i++) {
+        char nm[32];
+        snprintf(nm, sizeof nm, "frame%04d.png", nums[i]);
+        write_png(a, nm, 4, 3, i);
+        snprintf(nm, sizeof nm, "frame%04d.png", i + 1);
+        write_png(b, nm, 4, 3, i);
+    }
+    FrameScan fs;
+    Status st;
+    assert_int_equal(frames_scan(dir, &fs, &st), 0);
+    assert_int_equal(fs.n_rec, 4);
+    assert_int_equal(fs.n_split, 1);
+    static const char *const names[] = {"take01-part1", "take01-part2", "take01-part3", "take02"};
+    static const int counts[] = {4, 3, 3, 10};
+    for (int r = 0; r < 4; r++) {
+        assert_string_equal(fs.rec[r].name, names[r]);
+        assert_int_equal(fs.rec[r].n_files, counts[r]);
+        assert_int_equal(fs.rec[r].piece, r < 3 ? r + 1 : 0);
+    }
+    assert_non_null(strstr(fs.rec[1].files[0].path, "/frame0008.png"));
+    assert_non_null(strstr(fs.rec[2].files[2].path, "/frame0014.png"));
+    assert_non_null(fs.gap_notes);
+    print_message("%s", fs.gap_notes);
+    assert_non_null(strstr(fs.gap_notes, "take01: frame numbers 5-7, 11 missing: split into 3 recordings"));
+    assert_non_null(strstr(fs.gap_notes, "take01-part1 to take01-part3"));
+    assert_null(strstr(fs.gap_notes, "take02"));
+    frames_scan_free(&fs);
+    /* the folder itself as the one recording: pieces named after it */
+    assert_int_equal(frames_scan(a, &fs, &st), 0);
+    assert_true(fs.single);
+    assert_int_equal(fs.n_rec, 3);
+    assert_string_equal(fs.rec[2].name, "take01-part3");
+    frames_scan_free(&fs);
+    rm_rf(dir);
+}
+
 /* Settings checks name the setting (issue 3, bad input: a frame rate that is not positive). */
 static void test_settings(void **state) {
     (void)state;
@@ -302,6 +395,7 @@ static void test_from_config(void **state) {
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_natural_sort), cmocka_unit_test(test_scan_single), cmocka_unit_test(test_scan_multi),
+        cmocka_unit_test(test_find_gaps),    cmocka_unit_test(test_scan_splits_at_gaps),
         cmocka_unit_test(test_scan_numeric), cmocka_unit_test(test_scan_empty),  cmocka_unit_test(test_digest),
         cmocka_unit_test(test_settings),     cmocka_unit_test(test_from_config),
         cmocka_unit_test(test_scan_refuses_non_regular),

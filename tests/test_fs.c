@@ -34,10 +34,10 @@ static void test_make_dirs(void **state) {
     test_write_file(f, "x");
     assert_true(fs_exists(f) && !fs_is_dir(f));
     snprintf(p, sizeof p, "%s/a/file/d", dir);
-    assert_int_equal(fs_make_dirs(p, &st), ST_RUNTIME);
+    assert_int_equal(fs_make_dirs(p, &st), ST_INPUT);   /* a file in the way: the path is at fault */
     assert_non_null(strstr(st.msg, f));
     assert_non_null(strstr(st.msg, "cannot create folder"));
-    assert_int_equal(fs_make_dirs(f, &st), ST_RUNTIME);   /* the file itself: not a folder */
+    assert_int_equal(fs_make_dirs(f, &st), ST_INPUT);   /* the file itself: not a folder */
     assert_non_null(strstr(st.msg, "in the way"));
     char *longp = malloc(5000);
     memset(longp, 'x', 4999);

@@ -96,9 +96,37 @@ static void write_equations(const char *dir) {
         cJSON_AddItemToObject(q, "low", cJSON_CreateDoubleArray(lo, T));
         cJSON_AddItemToObject(q, "high", cJSON_CreateDoubleArray(hi, T));
         cJSON_AddItemToObject(q, "mask", cJSON_CreateDoubleArray(mk, T));
-        cJSON_AddStringToObject(q, "text", j ? "d2z2/dt2 = 0" : "d2z1/dt2 = -0.98*sin(z1)");
+        double co[64] = {0};   /* the ensemble law: sin(z1) refit on all samples */
+        if (j == 0) co[library_find(&lib, "sin(z1)")] = -0.9812;
+        cJSON_AddItemToObject(q, "coefficients", cJSON_CreateDoubleArray(co, T));
+        cJSON_AddStringToObject(q, "text", j ? "d2z2/dt2 = 0" : "d2z1/dt2 = -0.9812*sin(z1)");
+        cJSON_AddStringToObject(q, "latex", j ? "\\ddot{z}_{2} = 0" : "\\ddot{z}_{1} = -0.9812 \\sin(z_{1})");
         cJSON_AddItemToArray(eqs, q);
     }
+    /* the canonical form (docs/canonical.md): u1 = 2 z1 + 0.5, u2 = z2, w = (0.5, 1); the law
+     * d2u1/dt2 = -1.96 sin(0.5 u1), d2u2/dt2 = -2.25 u2 in 2 terms where the learned law has 4 */
+    cJSON *can = cJSON_AddObjectToObject(tree, "canonical");
+    cJSON_AddStringToObject(can, "status", "found");
+    cJSON_AddStringToObject(can, "note", "2 terms instead of 4");
+    cJSON *map = cJSON_AddObjectToObject(can, "map"), *A = cJSON_AddArrayToObject(map, "A");
+    const double a0[2] = {2, 0}, a1[2] = {0, 1}, b0[2] = {0.5, 0}, w0[2] = {0.5, 1};
+    cJSON_AddItemToArray(A, cJSON_CreateDoubleArray(a0, 2));
+    cJSON_AddItemToArray(A, cJSON_CreateDoubleArray(a1, 2));
+    cJSON_AddItemToObject(map, "b", cJSON_CreateDoubleArray(b0, 2));
+    cJSON_AddItemToObject(map, "w", cJSON_CreateDoubleArray(w0, 2));
+    cJSON *ceqs = cJSON_AddArrayToObject(can, "equations");
+    for (int j = 0; j < 2; j++) {
+        double co[64] = {0}, mk[64];
+        for (int t = 0; t < lib.n_terms; t++) mk[t] = 1;
+        co[library_find(&lib, j ? "z2" : "sin(z1)")] = j ? -2.25 : -1.96;
+        cJSON *q = cJSON_CreateObject();
+        cJSON_AddItemToObject(q, "coefficients", cJSON_CreateDoubleArray(co, lib.n_terms));
+        cJSON_AddItemToObject(q, "mask", cJSON_CreateDoubleArray(mk, lib.n_terms));
+        cJSON_AddItemToArray(ceqs, q);
+    }
+    cJSON *fit = cJSON_AddObjectToObject(can, "fit");
+    cJSON_AddNumberToObject(fit, "active", 2);
+    cJSON_AddNumberToObject(fit, "active_learned", 4);
     char *json = cJSON_Print(tree);
     cJSON_Delete(tree);
     char p[1024];
@@ -256,6 +284,64 @@ static void check_svg_balanced(const char *html) {
     assert_int_equal(n_svg, count(html, "</svg>"));
 }
 
+/* The laws as MathML (sparse/mathml.h): the canonical law, its map, the learned law and the
+ * ensemble law, each a <math display="block">; LaTeX only inside the copy boxes (<textarea>). */
+/* needle as a browser serialises it: the character references of the writer as UTF-8 characters
+ * (U+2212 minus, U+2062 invisible times, U+2061 function application); a static buffer. */
+static const char *as_dom(const char *needle, int dom) {
+    static char b[2048];
+    if (!dom) return needle;
+    static const char *const ref[3] = {"&#x2212;", "&#x2062;", "&#x2061;"};
+    static const char *const utf8[3] = {"\xe2\x88\x92", "\xe2\x81\xa2", "\xe2\x81\xa1"};
+    size_t o = 0;
+    for (const char *p = needle; *p && o < sizeof b - 4;) {
+        int hit = -1;
+        for (int i = 0; i < 3; i++)
+            if (!strncmp(p, ref[i], 8)) hit = i;
+        if (hit >= 0) memcpy(b + o, utf8[hit], 3), o += 3, p += 8;
+        else b[o++] = *p++;
+    }
+    b[o] = 0;
+    return b;
+}
+
+static void check_math(const char *html, int dom) {
+    assert_int_equal(count(html, "<math display=\"block\">"), 4);
+    assert_int_equal(count(html, "</math>"), 4);
+    /* the learned law's first equation, the canonical trig argument 0.5 u1, the map's offset, the
+     * ensemble law's coefficient */
+    assert_non_null(strstr(html, as_dom("<mo>&#x2212;</mo><mn>0.05</mn><mo>&#x2062;</mo><mfrac><mrow><mi>d</mi><msub><mi>z"
+                                 "</mi><mn>1</mn></msub></mrow><mrow><mi>d</mi><mi>t</mi></mrow></mfrac><mo>&#x2212;"
+                                 "</mo><mn>0.98</mn><mo>&#x2062;</mo><mi>sin</mi>", dom)));
+    assert_non_null(strstr(html, as_dom("<mn>1.96</mn><mo>&#x2062;</mo><mi>sin</mi><mo>&#x2061;</mo><mrow><mo>(</mo><mn>0.5"
+                                 "</mn><mo>&#x2062;</mo><msub><mi>u</mi><mn>1</mn></msub>", dom)));
+    assert_non_null(strstr(html, "<mo>+</mo><mn>0.5</mn></mrow>"));
+    assert_non_null(strstr(html, as_dom("<mn>0.9812</mn><mo>&#x2062;</mo><mi>sin</mi>", dom)));
+    /* the LaTeX source is in a copy box, and nowhere else: the page without its textareas has no
+     * LaTeX command, no TeX subscript group and no alignment mark */
+    assert_non_null(strstr(html, "\\ddot{z}_{1} &amp;= "));
+    size_t n = strlen(html);
+    char *outside = malloc(n + 1), *o = outside;
+    int boxes = 0;
+    for (const char *p = html; *p;) {
+        const char *t = strstr(p, "<textarea");
+        if (!t) t = p + strlen(p);
+        memcpy(o, p, (size_t)(t - p));
+        o += t - p;
+        if (!*t) break;
+        const char *e = strstr(t, "</textarea>");
+        if (!e) fail_msg("a <textarea> is not closed");
+        p = e + 11;
+        boxes++;
+    }
+    *o = 0;
+    assert_int_equal(boxes, 4);   /* equations.txt, equations.tex, the ensemble law as text and LaTeX */
+    static const char *const tex[] = {"\\", "_{", "^{", "&amp;=", "\\begin", "\\dot", "\\frac", "\\sin"};
+    for (size_t i = 0; i < sizeof tex / sizeof tex[0]; i++)
+        if (strstr(outside, tex[i])) fail_msg("LaTeX \"%s\" outside the copy boxes: ...%.80s", tex[i], strstr(outside, tex[i]));
+    free(outside);
+}
+
 /* The page from the full run folder holds all its parts. */
 static void test_full_run(void **state) {
     (void)state;
@@ -305,11 +391,13 @@ static void test_full_run(void **state) {
     assert_non_null(strstr(html, "[-1.02, -0.9437]"));
     assert_non_null(strstr(html, ">-0.981<"));
     assert_int_equal(count(html, "class=\"bar\""), 2); /* terms no member kept are not listed */
-    assert_non_null(strstr(html, "d2z1/dt2 = -0.98*sin(z1)"));
+    assert_non_null(strstr(html, "d2z1/dt2 = -0.9812*sin(z1)"));
     assert_non_null(strstr(html, "z1 band 5%"));
     assert_non_null(strstr(html, "z2 band 95%"));
     assert_non_null(strstr(html, "band wider than the bound"));
     assert_non_null(strstr(html, ">1.7<"));
+
+    check_math(html, 0);
 
     /* the PNG embedded whole: its base64 text is in the page */
     char png[1024];
@@ -360,6 +448,27 @@ static void test_missing_sections(void **state) {
     assert_non_null(strstr(html, REPORT_CAUTION));
     assert_int_equal(count(html, "<svg"), 2);  /* loss and active terms */
     check_svg_balanced(html);
+    /* model.derivatives latent (the default): the x'' term is not used, so it is not in the legend */
+    assert_null(strstr(html, "x&#39;&#39; term"));
+    assert_non_null(strstr(html, "The x'' term is not shown: with model.derivatives latent"));
+    assert_non_null(strstr(html, "z&#39;&#39; term"));
+    free(html);
+    /* with derivatives from the frames it is */
+    Config *c = malloc(sizeof *c);
+    char cp[1024];
+    path_of(cp, dir, "config.json");
+    Status cst;
+    config_defaults(c);
+    if (config_load_run(c, cp, &cst)) fail_msg("%s", cst.msg);
+    snprintf(c->derivatives, sizeof c->derivatives, "frames");
+    char *cj = config_to_json(c);
+    test_write_file(cp, cj);
+    free(cj);
+    free(c);
+    if (test_run_capture(cmd, out, sizeof out) != 0) fail_msg("report failed: %s", out);
+    html = read_all(page, NULL);
+    assert_non_null(strstr(html, "x&#39;&#39; term"));
+    assert_null(strstr(html, "is not shown: with model.derivatives latent"));
     free(html);
 
     /* --output elsewhere */
@@ -435,6 +544,20 @@ static void test_bad_input(void **state) {
     expect_bad(cmd, "equations.json: format version 3 is newer than this program reads");
     unlink(p);
     free(eq);
+    /* a canonical form whose map is short of a number: named, no page */
+    write_equations(dir);
+    eq = read_all(p, NULL);
+    cJSON *tree = cJSON_Parse(eq);
+    free(eq);
+    cJSON *map = cJSON_GetObjectItem(cJSON_GetObjectItem(tree, "canonical"), "map");
+    assert_non_null(map);
+    cJSON_ReplaceItemInObject(map, "w", cJSON_CreateArray());
+    eq = cJSON_Print(tree);
+    cJSON_Delete(tree);
+    test_write_file(p, eq);
+    free(eq);
+    expect_bad(cmd, "equations.json: \"canonical\" needs \"equations\" (2, each with");
+    unlink(p);
     path_of(p, dir, "forecast.json");
     test_write_file(p, "{\"format\": \"framelaw-forecast\", \"version\": 3, \"bound\": 0.1, \"recordings\": []}");
     expect_bad(cmd, "forecast.json: format version 3 is newer");
@@ -574,6 +697,7 @@ static void test_browser(void **state) {
         if (!strstr(d, l)) fail_msg("the rendered page lacks the equation \"%s\"", l);
     assert_non_null(strstr(d, "validate it independently before it drives a physical system"));
     assert_int_equal(count(d, "<svg"), 8);
+    check_math(d, 1);   /* the browser parsed the MathML as such: the same elements come back */
     free(d);
 }
 

@@ -173,6 +173,15 @@ static void test_forecast_of_exact_model(void **state) {
     assert_true(cJSON_IsNumber(cJSON_GetObjectItem(r2, "extrapolating_from")));
     assert_true(cJSON_GetObjectItem(r2, "mean_error")->valuedouble < 1e-5);
     assert_close(cJSON_GetObjectItem(r1, "duration")->valuedouble, (NT - 1) / 30.0, 1e-12, 0);
+    /* the trivial law z' = 0 (holding the first state): the state moves on a circle of radius A, so
+     * its distance from the start after a time tau is the chord 2 A |sin(w tau / 2)| (common
+     * practice, elementary geometry), and |z| = A is the latent's root mean square: its mean error
+     * over the frames tau = 0, 1/30, .. is the mean of 2 |sin(w tau / 2)|. The exact law beats it. */
+    double chord = 0;
+    for (int i = 0; i < NT - 1; i++) chord += 2 * fabs(sin(W_OSC * (i / 30.0) / 2));
+    chord /= NT - 1;
+    assert_close(cJSON_GetObjectItem(r1, "persistence_latent_mean_error")->valuedouble, chord, 1e-6, 0);
+    assert_true(cJSON_IsTrue(cJSON_GetObjectItem(r1, "beats_persistence")));
     cJSON_Delete(root);
     free(txt);
     /* the CSV has one row per frame after the first stencil sample */
@@ -306,6 +315,7 @@ static void test_forecast_of_blowing_up_model(void **state) {
     assert_non_null(strstr(cJSON_GetObjectItem(r1, "stopped")->valuestring, "bound"));
     double t_exceed = cJSON_GetObjectItem(r1, "exceeds_bound_at")->valuedouble;
     assert_true(t_exceed > 0 && t_exceed < 1.0); /* 10% off within a fraction of a second */
+    assert_true(cJSON_IsFalse(cJSON_GetObjectItem(r1, "beats_persistence"))); /* worse than a law that says nothing */
     cJSON_Delete(root);
     free(txt);
 }

@@ -5,6 +5,7 @@
  * with no frame store yet, Ctrl-C and continuing. The Pareto front follows its common definition
  * (no other point is at least as good in both measures and better in one); the rest is our format. */
 #include <dirent.h>
+#include <fcntl.h>
 #include <signal.h>
 #include <sys/stat.h>
 #include <sys/wait.h>
@@ -29,6 +30,12 @@ static void write_text(const char *path, const char *text) {
 }
 
 static int file_exists(const char *path) { return access(path, F_OK) == 0; }
+
+static int count_of(const char *hay, const char *needle) {
+    int n = 0;
+    for (const char *p = strstr(hay, needle); p; p = strstr(p + 1, needle)) n++;
+    return n;
+}
 
 static int count_lines(const char *text) {
     int n = 0;
@@ -622,7 +629,34 @@ static void test_summary_ranking_pareto_groups(void **state) {
     assert_non_null(strstr(html, sw.members[5].id));
     assert_non_null(strstr(html, "Inclusion of each term across members"));
     assert_non_null(strstr(html, "<span style=\"width:80.0%\"></span></span> 0.80"));
+    /* each finished member's report was written and is linked relative to the page (its folder is
+     * <output>/<id>); the member not started has none yet */
+    struct stat rs0, rs1;
+    for (int i = 0; i < 6; i++) {
+        char link[200];
+        snprintf(link, sizeof link, "<a href=\"%s/report.html\">report</a>", sw.members[i].id);
+        snprintf(p, sizeof p, "%s/%s/report.html", sw.output, sw.members[i].id);
+        if (i < 5) {
+            if (!strstr(html, link)) fail_msg("summary.html lacks %s", link);
+            assert_int_equal(access(p, R_OK), 0);
+        } else {
+            assert_null(strstr(html, link));
+            assert_int_not_equal(access(p, F_OK), 0);
+        }
+    }
+    assert_int_equal(count_of(html, "not made yet"), 1);
     free(html);
+    /* a report newer than the member's results is kept as it is; one older is written again */
+    snprintf(p, sizeof p, "%s/report.html", sw.members[1].dir);
+    assert_int_equal(stat(p, &rs0), 0);
+    assert_int_equal(sweep_write_summary(&sw, NULL, &st), 0);
+    assert_int_equal(stat(p, &rs1), 0);
+    assert_true(rs0.st_mtim.tv_sec == rs1.st_mtim.tv_sec && rs0.st_mtim.tv_nsec == rs1.st_mtim.tv_nsec);
+    struct timespec old[2] = {{1000000, 0}, {1000000, 0}};   /* 1970: older than any result file */
+    assert_int_equal(utimensat(AT_FDCWD, p, old, 0), 0);
+    assert_int_equal(sweep_write_summary(&sw, NULL, &st), 0);
+    assert_int_equal(stat(p, &rs1), 0);
+    assert_true(rs1.st_mtim.tv_sec > 1000000);
     snprintf(p, sizeof p, "%s/inclusion.csv", sw.output);
     char *inc = test_slurp(p);
     assert_non_null(inc);
@@ -726,6 +760,22 @@ static void test_summary_empty_law_last(void **state) {
     assert_int_equal(sum.rows[0].pareto, 1);
     assert_non_null(sum.rows[2].problem);
     assert_non_null(strstr(sum.rows[2].problem, "the law has no term"));
+    sweep_summary_free(&sum);
+    /* a law with terms whose latent forecast is no better than holding the first state (persistence)
+     * goes last too, with its reason */
+    char p[600];
+    snprintf(p, sizeof p, "%s/forecast.json", sw.members[0].dir);
+    write_text(p, "{\"format\": \"framelaw-forecast\", \"version\": 1, \"bound\": 0.1, \"recordings\": [{\"name\": "
+                  "\"rec0\", \"frames\": 100, \"mean_error\": 0.2, \"latent_mean_error\": 0.5, "
+                  "\"persistence_latent_mean_error\": 0.4, \"beats_persistence\": false, \"stopped\": null}]}\n");
+    assert_int_equal(sweep_summary(&sw, &sum, &st), 0);
+    static const int rank2[3] = {2, 0, 1};
+    for (int k = 0; k < 3; k++)
+        if (sum.rows[k].member != rank2[k]) fail_msg("rank %d: member %d, expected %d", k + 1, sum.rows[k].member, rank2[k]);
+    assert_int_equal(sum.rows[0].pareto, 1);
+    assert_int_equal(sum.rows[1].pareto, 0);
+    assert_non_null(sum.rows[1].problem);
+    assert_non_null(strstr(sum.rows[1].problem, "no better than holding the first state"));
     sweep_summary_free(&sum);
     sweep_free(&sw);
 }

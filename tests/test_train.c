@@ -430,6 +430,34 @@ static void test_stop_during_isomap_start(void **state) {
     test_rmtree(dir);
 }
 
+/* An Isomap start that cannot embed says so once (issue 19, item 6: the message was formatted into
+ * itself and read "model.init isomap: model.init isomap: est-neighbour graph..."): 2 training samples
+ * cannot be embedded (Isomap in d dimensions needs at least d + 2 points, nn/isomap.c); a library of
+ * one term keeps the check of samples against terms from stopping the run first. */
+static void test_isomap_failure_message(void **state) {
+    (void)state;
+    char dir[256];
+    assert_non_null(test_tmpdir(dir, sizeof dir));
+    Config c;
+    ring_config(&c, dir, "isomap");
+    c.batch = 2;
+    c.lib_degree = 1;
+    c.lib_constant = 0;
+    TrainData ds = RING_DATA;
+    ds.n_train = 2;
+    TrainOpts opts = {&c, dir, 0, 1, NULL, 0};
+    Model m;
+    ParamSet ps;
+    TrainResult res;
+    Status st;
+    assert_int_not_equal(train_run(&opts, &ds, &m, &ps, &res, &st), 0);
+    print_message("%s\n", st.msg);
+    assert_string_equal(st.msg, "model.init isomap: isomap: 2 samples for 1 dimensions (model.init pca avoids it)");
+    model_free(&m);
+    params_free(&ps);
+    test_rmtree(dir);
+}
+
 /* A non-finite loss stops the run with a message naming the usual remedies, and the checkpoints
  * written before it stay loadable. The data turn to NaN after 25 batches (inside epoch 3). */
 typedef struct {
@@ -483,6 +511,7 @@ int main(void) {
         cmocka_unit_test(test_warmup_then_fit),
         cmocka_unit_test(test_isomap_init_follows_the_curve),
         cmocka_unit_test(test_stop_during_isomap_start),
+        cmocka_unit_test(test_isomap_failure_message),
     };
     return cmocka_run_group_tests_name("training loop", tests, NULL, NULL);
 }

@@ -3,6 +3,7 @@
  * IETF 2021) in 8-bit gray: decoding must give back every frame's bytes, so the frame store built
  * from the videos equals the one built from the PNG frames; the frame rate comes from the file. */
 #include <sys/stat.h>
+#include <unistd.h>
 
 #include "io/data/frames.h"
 #include "io/data/store.h"
@@ -70,6 +71,28 @@ static void test_same_frames_as_png(void **state) {
     frames_scan_free(&sa), frames_scan_free(&sb);
 }
 
+/* One video file as the source: its store lies beside it as .NAME.framelaw-store (it was
+ * "NAME/.framelaw-store", inside the file, which could never be written). */
+static void test_single_video_store(void **state) {
+    (void)state;
+    char path[600], want[700];
+    snprintf(path, sizeof path, "%s/videos/rec01.mkv", tmp);
+    FrameScan scan;
+    Status st;
+    if (frames_scan(path, &scan, &st)) fail_msg("%s", st.msg);
+    FrameSettings s = frame_settings_default();
+    FrameStore fs;
+    StoreOpenInfo info;
+    if (store_open_for(&scan, &s, 0, &fs, &info, &st)) fail_msg("%s", st.msg);
+    snprintf(want, sizeof want, "%s/videos/.rec01.mkv.framelaw-store", tmp);
+    assert_string_equal(info.path, want);
+    assert_int_equal(fs.n_frames, 40);
+    assert_string_equal(fs.rec[0].name, "rec01");
+    store_close(&fs);
+    frames_scan_free(&scan);
+    assert_int_equal(unlink(want), 0);
+}
+
 /* The rate comes from the videos when data.fps is not given; a given rate must agree. */
 static void test_rate(void **state) {
     (void)state;
@@ -116,6 +139,7 @@ static void test_missing_ffmpeg_and_bad_files(void **state) {
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_same_frames_as_png),
+        cmocka_unit_test(test_single_video_store),
         cmocka_unit_test(test_rate),
         cmocka_unit_test(test_missing_ffmpeg_and_bad_files),
     };

@@ -21,9 +21,12 @@ int cmd_canonical(int argc, char **argv) {
                "canonical law and the map, and rewrites equations.txt / .tex / .json (the canonical law first,\n"
                "the learned law after it). `framelaw train` does the same at the end of a run.\n"
                "docs/canonical.md explains how to read it.\n\n"
+               "options (default in brackets):\n"
                "  --set canonical.KEY=VALUE  change a setting (tolerance, cond_max); stored in\n"
-               "                             RUN_DIR/config.json (repeatable)\n"
-               "  --quiet                    no summary lines\n");
+               "                             RUN_DIR/config.json (repeatable)                      [none]\n"
+               "  --quiet                    no summary lines                                      [off]\n"
+               "  --help                     this text\n\n"
+               "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n");
         return 0;
     }
     RunArgs a;

@@ -24,6 +24,7 @@
 #include "io/fs/atomic_file.h"
 #include "io/fs/clock.h"
 #include "io/fs/files.h"
+#include "io/fs/term.h"
 #include "io/cli/cli.h"
 #include "io/data/images.h"
 
@@ -34,7 +35,7 @@ static const char *const scenario_about[] = {
     "a convection cell: temperature | vertical velocity panels, 100 fps (docs/convection.md)",
 };
 /* Defaults per scenario. */
-static const int def_size[] = {51, 32};
+static const int def_size[] = {48, 32};
 static const int def_recordings[] = {16, 8};
 static const int def_frames[] = {300, 1000};
 _Static_assert(sizeof scenario_names / sizeof *scenario_names == SC_COUNT && sizeof scenario_about / sizeof *scenario_about == SC_COUNT &&
@@ -102,9 +103,14 @@ static int parse_args(int argc, char **argv, DemoSettings *s) {
     s->noise = DEF_NOISE;
     s->seed = DEF_SEED;
     s->overwrite = 0;
+    int operands = 0; /* after "--": SCENARIO and OUT_DIR even when they start with '-' */
     for (int i = 1; i < argc; i++) {
         const char *a = argv[i];
-        if (strncmp(a, "--", 2) || !a[2]) {
+        if (!operands && !strcmp(a, "--")) {
+            operands = 1;
+            continue;
+        }
+        if (operands || strncmp(a, "--", 2)) {
             if (n_pos == 2) return cli_error(2, "demo: unexpected argument '%s' (framelaw demo --help)", a);
             pos[n_pos++] = a;
             continue;
@@ -258,10 +264,10 @@ static void progress(Progress *p, const char *what, int rec, int n_rec, int forc
     p->last = t;
     double frac = p->total ? (double)p->done / p->total : 1;
     double eta = frac > 0 ? (t - p->start) * (1 - frac) / frac : 0;
-    fprintf(stderr, "%sdemo %s: recording %d/%d, %ld/%ld frames (%.0f%%), %.0f s elapsed, about %.0f s left%s",
-            p->tty ? "\r\033[K" : "", what, rec, n_rec, p->done, p->total, 100 * frac, t - p->start, eta,
-            p->tty ? "" : "\n");
-    fflush(stderr);
+    char line[200]; /* the fields most wanted first: a narrow terminal cuts the line from the end */
+    snprintf(line, sizeof line, "demo %s: recording %d/%d  %ld/%ld frames (%.0f%%)  about %.0f s left  %.0f s elapsed",
+             what, rec, n_rec, p->done, p->total, 100 * frac, eta, t - p->start);
+    term_progress(stderr, p->tty, line);
 }
 
 /* "rec" and k zero-padded to w digits (w <= 8). */

@@ -20,10 +20,13 @@ int cmd_ensemble(int argc, char **argv) {
                "Rewrites equations.txt / .tex / .json (the ensemble is in the JSON) and the forecasts of the\n"
                "held-out recordings with the members' bands (forecast.json, forecast/). `framelaw train` does\n"
                "the same at the end of a run. docs/ensembles.md explains how to read it.\n\n"
+               "options (default in brackets):\n"
                "  --set ensemble.KEY=VALUE   change an ensemble setting (members, block, block_seconds,\n"
                "                             library_bagging, drop_fraction, inclusion, band_members); stored\n"
-               "                             in RUN_DIR/config.json (repeatable)\n"
-               "  --quiet                    no table, no summary lines\n");
+               "                             in RUN_DIR/config.json (repeatable)                   [none]\n"
+               "  --quiet                    no table, no summary lines                            [off]\n"
+               "  --help                     this text\n\n"
+               "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n");
         return 0;
     }
     RunArgs a;

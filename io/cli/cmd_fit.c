@@ -3,7 +3,8 @@
  * Reads a CSV or .npy series (io/data/series.h), takes the time from a column or a sample rate,
  * estimates the time derivatives with a stencil (sparse/stencil.h), evaluates the candidate library
  * (sparse/library.h) and fits it by sequentially thresholded least squares (sparse/thresh_lsq.h), then
- * prints the equations (sparse/equation.h) as text, LaTeX or JSON. docs/fit.md is the user guide. */
+ * prints the equations (sparse/equation.h) as text, LaTeX or JSON, with the variables named from the
+ * CSV header when its names can be (library_var_names_check). docs/fit.md is the user guide. */
 #include <errno.h>
 #include <math.h>
 #include <stdio.h>
@@ -17,7 +18,7 @@
 #include "sparse/stencil.h"
 #include "sparse/thresh_lsq.h"
 
-/* Largest relative deviation of one time step from the mean step that is still "equally spaced". */
+/* Largest relative deviation of one time step from the median step that is still "equally spaced". */
 #define FIT_DT_TOL 0.01
 
 typedef enum { OUT_TEXT, OUT_LATEX, OUT_JSON, OUT_COUNT } OutFormat;
@@ -32,6 +33,9 @@ typedef struct {
     ThreshLsqOptions ls;
     StencilKind stencil;
     int window, sg_degree;
+    int old_degree;             /* 1: the smoothing degree came as --degree (a note says it is renamed) */
+    int time_given;             /* 1: --time-column or --rate given (else column 1 is the time) */
+    int names_z;                /* 1: --names z, the variables are z1, z2, ... whatever the header says */
     int digits;
     OutFormat format;
 } FitSettings;
@@ -64,12 +68,14 @@ static void fit_usage(FILE *f) {
             "prints it. FILE is a CSV (one row per sample, optional header row) or a .npy array\n"
             "(rows = samples). The time derivatives are estimated with a stencil, the candidate\n"
             "library is evaluated on the samples, and sequentially thresholded least squares keeps\n"
-            "the few terms that explain the derivatives. Variables are named z1, z2, ... in the order\n"
+            "the few terms that explain the derivatives. Variables take the names of their columns in\n"
+            "the CSV header (x, dx/dt, v*x) when those are plain names, else z1, z2, ... in the order\n"
             "of the state columns.\n\n"
             "options (default in brackets):\n");
     opt_row(f, "--time-column N|NAME", "column holding the time: number (1 = first) or name", d.time_col);
     opt_row(f, "--rate HZ", "samples per second; then no column is time", "none");
     opt_row(f, "--columns LIST", "state columns, numbers or names, comma-separated", "all but time");
+    opt_row(f, "--names header|z", "variable names: the header's, or z1, z2, ...", "header");
     snprintf(b[0], sizeof b[0], "%d", d.lib.order);
     opt_row(f, "--order 1|2", "1: dz/dt = f(z); 2: d2z/dt2 = f(z, dz/dt)", b[0]);
     snprintf(b[1], sizeof b[1], "%d", d.lib.degree);
@@ -92,13 +98,14 @@ static void fit_usage(FILE *f) {
     snprintf(b[6], sizeof b[6], "%d", d.window);
     opt_row(f, "--window N", "Savitzky-Golay window (odd)", b[6]);
     snprintf(b[7], sizeof b[7], "%d", d.sg_degree);
-    opt_row(f, "--degree N", "Savitzky-Golay polynomial degree", b[7]);
+    opt_row(f, "--smooth-degree N", "Savitzky-Golay polynomial degree (was --degree)", b[7]);
     snprintf(b[8], sizeof b[8], "%d", d.digits);
     opt_row(f, "--digits N", "significant digits of the printed coefficients (1..17)", b[8]);
     opt_row(f, "--format text|latex|json", "output", out_names[d.format]);
     fprintf(f,
             "  --help                       this text\n\n"
-            "Terms are named 1, z1, z1^2, z1*z2, dz1/dt, (dz1/dt)^2, sin(z1), cos(2*z1); docs/fit.md and\n"
+            "Terms are named 1, z1, z1^2, z1*z2, dz1/dt, (dz1/dt)^2, sin(z1), cos(2*z1) (or with the\n"
+            "variable names: x^2, v*x, sin(x)); --include and --exclude take either; docs/fit.md and\n"
             "docs/sparse.md describe the library, the fit and the JSON output.\n\n"
             "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n");
 }
@@ -148,11 +155,16 @@ static int add_name(char (*dst)[LIB_NAME_MAX], int *n, const char *opt, const ch
 }
 
 static int apply_option(FitSettings *s, const char *name, const char *val) {
-    if (!strcmp(name, "--time-column")) s->time_col = val;
+    if (!strcmp(name, "--time-column")) s->time_col = val, s->time_given = 1;
     else if (!strcmp(name, "--rate")) {
+        s->time_given = 1;
         if (parse_double(name, val, 0, &s->rate)) return 2;
         if (s->rate <= 0) return cli_error(2, "fit: --rate '%s': expected a number > 0", val);
     } else if (!strcmp(name, "--columns")) s->columns = val;
+    else if (!strcmp(name, "--names")) {
+        if (strcmp(val, "header") && strcmp(val, "z")) return cli_error(2, "fit: --names '%s': expected header or z", val);
+        s->names_z = !strcmp(val, "z");
+    }
     else if (!strcmp(name, "--order")) return parse_int(name, val, 1, 2, &s->lib.order);
     else if (!strcmp(name, "--library-degree")) return parse_int(name, val, 0, LIB_MAX_DEGREE, &s->lib.degree);
     else if (!strcmp(name, "--multipliers")) {
@@ -174,7 +186,10 @@ static int apply_option(FitSettings *s, const char *name, const char *val) {
         s->stencil = stencil_kind_from_name(val);
         if (s->stencil == STENCIL_KIND_COUNT) return cli_error(2, "fit: --derivative '%s': expected central or savgol", val);
     } else if (!strcmp(name, "--window")) return parse_int(name, val, 3, STENCIL_MAX_LEN, &s->window);
-    else if (!strcmp(name, "--degree")) return parse_int(name, val, 2, STENCIL_MAX_LEN - 1, &s->sg_degree);
+    else if (!strcmp(name, "--smooth-degree") || !strcmp(name, "--degree")) {
+        s->old_degree |= !strcmp(name, "--degree");
+        return parse_int(name, val, 2, STENCIL_MAX_LEN - 1, &s->sg_degree);
+    }
     else if (!strcmp(name, "--digits")) return parse_int(name, val, 1, 17, &s->digits);
     else if (!strcmp(name, "--format")) {
         int f = 0;
@@ -186,9 +201,14 @@ static int apply_option(FitSettings *s, const char *name, const char *val) {
 }
 
 static int parse_args(FitSettings *s, int argc, char **argv) {
+    int operands = 0; /* after "--": FILE even when it starts with '-' */
     for (int i = 1; i < argc; i++) {
         const char *arg = argv[i];
-        if (strncmp(arg, "--", 2)) {
+        if (!operands && !strcmp(arg, "--")) {
+            operands = 1;
+            continue;
+        }
+        if (operands || strncmp(arg, "--", 2)) {
             if (s->path) return cli_error(2, "fit: one FILE expected, got '%s' and '%s'", s->path, arg);
             s->path = arg;
             continue;
@@ -202,10 +222,11 @@ static int parse_args(FitSettings *s, int argc, char **argv) {
             snprintf(name, sizeof name, "%s", arg);
         }
         if (!val && apply_flag(s, name)) continue;
-        static const char *const valued[] = {"--time-column", "--rate", "--columns", "--order", "--library-degree",
-                                             "--multipliers", "--include", "--exclude", "--threshold", "--ridge",
-                                             "--max-iter", "--derivative", "--window", "--degree", "--digits",
-                                             "--format"};
+        static const char *const valued[] = {"--time-column", "--rate",       "--columns",   "--names",
+                                             "--order",       "--library-degree", "--multipliers", "--include",
+                                             "--exclude",     "--threshold",  "--ridge",     "--max-iter",
+                                             "--derivative",  "--window",     "--smooth-degree", "--degree",
+                                             "--digits",      "--format"};
         int known = 0;
         for (size_t v = 0; v < sizeof valued / sizeof *valued; v++) known |= !strcmp(name, valued[v]);
         if (!known) return cli_error(2, "fit: unknown option '%s' (framelaw fit --help lists them)", name);
@@ -216,6 +237,10 @@ static int parse_args(FitSettings *s, int argc, char **argv) {
         if (apply_option(s, name, val)) return 2;
     }
     if (!s->path) return cli_error(2, "fit: no FILE given (usage: framelaw fit FILE [options])");
+    /* --degree, easily taken for the library's degree, is read for one more release */
+    if (s->old_degree)
+        fprintf(stderr, "framelaw: note: fit --degree is the Savitzky-Golay smoothing degree, now --smooth-degree "
+                        "(--degree is read until the next release; the library's is --library-degree)\n");
     return 0;
 }
 
@@ -236,7 +261,6 @@ static int find_column(const Series *ser, const char *path, const char *what, co
     return -1;
 }
 
-/* "file:LINE" for a CSV, "file: row R" for a .npy. */
 /* The state columns: every column but the time one, or the --columns list. Returns the count. */
 static int state_columns(const FitSettings *s, const Series *ser, int tc, int *cols) {
     int k = 0, kmax = LIB_MAX_VARS / s->lib.order;
@@ -246,7 +270,12 @@ static int state_columns(const FitSettings *s, const Series *ser, int tc, int *c
                 if (k >= kmax) return cli_error(2, "%s: more than %d state columns (choose some with --columns)", s->path, kmax), -1;
                 cols[k++] = c;
             }
-        if (!k) return cli_error(2, "%s: no state columns besides the time column", s->path), -1;
+        if (!k)
+            return cli_error(2, "%s: no state columns besides the time column%s", s->path,
+                             s->time_given || series_time_column(ser) == tc
+                                 ? ""
+                                 : " (column 1 is the time by default: give --rate HZ when the file holds no time column)"),
+                   -1;
         return k;
     }
     char buf[1024];
@@ -303,7 +332,13 @@ int cmd_fit(int argc, char **argv) {
     }
     if (tc >= 0) {
         if (series_time_step(&ser, tc, p, FIT_DT_TOL, &dt, &st)) {
-            rc = cli_error(st.code, "%s", st.msg);
+            /* column 1 taken as the time by default, and no header names it so: the file may hold none */
+            const char *hint = s.time_given || series_time_column(&ser) == tc ? ""
+                               : ser.lines ? "; column 1 is the time by default: name it with --time-column, or give "
+                                             "--rate HZ when the file holds no time column"
+                                           : "; column 1 is the time by default (a .npy names no columns): give "
+                                             "--rate HZ when the file holds no time column";
+            rc = cli_error(st.code, "%s%s", st.msg, hint);
             goto done;
         }
     } else {
@@ -327,8 +362,20 @@ int cmd_fit(int argc, char **argv) {
         for (int j = 0; j < k; j++) x[r * k + j] = ser.d[r * ser.cols + cols[j]];
     stencil_apply_all(&sg, dt, x, n, k, d1, d2);
 
+    /* the variables' names: the header's for the state columns, when they can name variables */
+    const char *names[LIB_MAX_VARS];
+    int named = ser.names && !s.names_z;
+    for (int j = 0; named && j < k; j++) names[j] = ser.names[cols[j]];
+    if (named) {
+        int bad = -1;
+        if (library_var_names_check(names, k, &bad, &st)) {
+            fprintf(stderr, "framelaw: note: %s: column %d: %s; the variables are named z1, z2, ... (--names z says so "
+                            "without this note)\n", p, cols[bad] + 1, st.msg);
+            named = 0;
+        }
+    }
     s.lib.n_latent = k;
-    if (library_init(&lib, &s.lib, &st)) {
+    if (library_init_named(&lib, &s.lib, named ? names : NULL, &st)) {
         rc = cli_error(st.code, "fit: %s", st.msg);
         goto done;
     }
@@ -412,7 +459,8 @@ int cmd_fit(int argc, char **argv) {
     } else {
         printf("# %s: %ld samples, dt = %.6g, %d state variable%s\n", p, n, dt, k, k > 1 ? "s" : "");
         for (int j = 0; j < k; j++) {
-            if (ser.names) printf("#   z%d = %s (column %d)\n", j + 1, ser.names[cols[j]], cols[j] + 1);
+            if (named) printf("#   %s (z%d) = column %d\n", names[j], j + 1, cols[j] + 1);
+            else if (ser.names) printf("#   z%d = %s (column %d)\n", j + 1, ser.names[cols[j]], cols[j] + 1);
             else printf("#   z%d = column %d\n", j + 1, cols[j] + 1);
         }
         printf("# derivatives: %s stencil of %d samples (degree %d), %ld samples fitted\n",

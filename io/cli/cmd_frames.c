@@ -4,28 +4,56 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 
 #include "io/cli/cli.h"
 #include "io/run/config.h"
 #include "io/run/rundata.h"
 #include "io/data/frames.h"
 #include "io/data/gather.h"
+#include "io/data/glyphs.h"
 #include "io/data/images.h"
 #include "io/data/store.h"
 
 #define SHEET_DEFAULT "contact-sheet.png"
+#define SHEET_SOFTWARE "framelaw contact sheet" /* the PNG's Software text: how a sheet of ours is known */
 
+/* The contact sheet replaces only a file that is one: a PNG whose Software text says framelaw wrote
+ * it as a contact sheet (an earlier `framelaw frames`). Anything else at that path (a frame, another
+ * file, a folder, a link) is refused before any work, so that --sheet never silently destroys a
+ * file. 0 when the path is free or holds a sheet of ours; ST_INPUT naming it otherwise. */
+static int sheet_place_free(const char *path, Status *st) {
+    struct stat sb;
+    if (lstat(path, &sb) != 0) {
+        if (errno == ENOENT) return 0;
+        return status_set(st, ST_INPUT, "%s: cannot write the contact sheet there: %s (--sheet FILE, or --sheet none)",
+                          path, strerror(errno));
+    }
+    char sw[64];
+    if (S_ISREG(sb.st_mode) && image_png_text(path, "Software", sw, sizeof sw) && !strcmp(sw, SHEET_SOFTWARE))
+        return 0;
+    return status_set(st, ST_INPUT, "%s: exists and is not a contact sheet framelaw wrote, so it is left as it is; "
+                      "remove it, or name another file with --sheet FILE (or --sheet none)", path);
+}
+
+/* The defaults are train's: those of a config that sets nothing (io/run/config.c). */
 static void frames_usage(FILE *f) {
-    FrameSettings d = frame_settings_default();
+    static Config c;
+    FrameSettings d;
+    Status st;
+    config_defaults(&c);
+    if (frame_settings_from_config(&c, &d, &st)) d = frame_settings_default(); /* cannot happen: the defaults are valid */
     fprintf(f,
             "usage: framelaw frames DIR [--config FILE] [options]\n\n"
             "Inspects a frames folder: one recording (image files directly inside) or several (one\n"
             "sub-folder per recording; .csv and .npy files are numeric recordings). Builds the frame\n"
             "store, or reuses it when it is current, prints the recordings, frame counts, frame size,\n"
             "durations, store size and training-set size, and writes a contact sheet PNG (first, middle\n"
-            "and last frame of each recording, after preprocessing).\n\n"
-            "options (default in brackets; --config reads the data.* keys, flags override them):\n"
-            "  --config FILE          run config whose data.* keys set everything below\n"
+            "and last frame of each recording, after preprocessing, under the recording's name). The\n"
+            "defaults are train's (those of a config that sets nothing); --config reads a run config's\n"
+            "data.* keys and model.order instead, and flags override them.\n\n"
+            "options (default in brackets):\n"
+            "  --config FILE          run config whose data.* keys set everything below    [none]\n"
             "  --gray bt601|bt709     luma weights for colour frames                       [%s]\n"
             "  --crop X,Y,W,H         crop rectangle in source pixels                      [none]\n"
             "  --size WxH             frame size after the crop, by area averaging         [keep]\n"
@@ -33,18 +61,20 @@ static void frames_usage(FILE *f) {
             "  --stride N             keep every N-th frame                                [%d]\n"
             "  --fps F                frames per second of the source; dt = stride / fps   [%g]\n"
             "  --scale unit|standardize  intensities in [0,1], or per-pixel mean 0, sd 1   [%s]\n"
-            "  --derivative central|savgol  derivative stencil                             [%s]\n"
-            "  --window N             Savitzky-Golay window (odd)                          [%d]\n"
-            "  --degree N             Savitzky-Golay polynomial degree                     [%d]\n"
+            "  --derivative central|savgol|auto  derivative stencil; auto: Savitzky-Golay\n"
+            "                         chosen for how fast the frames move (as train)       [%s]\n"
+            "  --window N             Savitzky-Golay window (odd; for savgol)              [%d]\n"
+            "  --degree N             Savitzky-Golay polynomial degree (for savgol)        [%d]\n"
             "  --val NAME[,NAME...]   validation recordings by name                        [none]\n"
             "  --val-last N           else hold out the last N recordings                  [%d]\n"
-            "  --store FILE           frame store file               [DIR/.framelaw-store]\n"
+            "  --store FILE           frame store file  [DIR/.framelaw-store; a read-only DIR: the cache]\n"
             "  --sheet FILE           contact sheet PNG; 'none' skips it   [" SHEET_DEFAULT "]\n"
-            "  --rebuild              rebuild the frame store even when it is current\n"
+            "                         (replaces a file only if it is a contact sheet framelaw wrote)\n"
+            "  --rebuild              rebuild the frame store even when it is current      [off]\n"
             "  --help                 this text\n\n"
             "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n",
-            gray_std_names[d.gray], d.bits, d.stride, d.fps, scale_mode_names[d.scale],
-            stencil_kind_names[d.stencil], d.sg_window, d.sg_degree, d.val_last);
+            gray_std_names[d.gray], d.bits, d.stride, d.fps, scale_mode_names[d.scale], c.derivative, d.sg_window,
+            d.sg_degree, d.val_last);
 }
 
 static int parse_int(const char *opt, const char *v, int lo, int *out) {
@@ -58,7 +88,8 @@ static int parse_int(const char *opt, const char *v, int lo, int *out) {
 }
 
 /* Apply one option to s. *i points at the option; its value is argv[*i + 1] or after '='. */
-static int apply_option(FrameSettings *s, int argc, char **argv, int *i, const char **sheet, int *rebuild) {
+static int apply_option(FrameSettings *s, int argc, char **argv, int *i, const char **sheet, int *rebuild,
+                        int *autod) {
     char name[64];
     const char *arg = argv[*i], *val = NULL, *eq = strchr(arg, '=');
     if (eq) {
@@ -101,8 +132,10 @@ static int apply_option(FrameSettings *s, int argc, char **argv, int *i, const c
         s->scale = scale_mode_from_name(val);
         if (s->scale == SCALE_COUNT) return cli_error(2, "--scale '%s': expected unit or standardize", val);
     } else if (!strcmp(name, "--derivative")) {
-        s->stencil = stencil_kind_from_name(val);
-        if (s->stencil == STENCIL_KIND_COUNT) return cli_error(2, "--derivative '%s': expected central or savgol", val);
+        *autod = !strcmp(val, "auto");
+        if (!*autod) s->stencil = stencil_kind_from_name(val);
+        if (s->stencil == STENCIL_KIND_COUNT)
+            return cli_error(2, "--derivative '%s': expected central, savgol or auto", val);
     } else if (!strcmp(name, "--window")) {
         if (parse_int(name, val, 1, &s->sg_window)) return 2;
     } else if (!strcmp(name, "--degree")) {
@@ -123,22 +156,29 @@ static int apply_option(FrameSettings *s, int argc, char **argv, int *i, const c
     return 0;
 }
 
-/* Contact sheet: one row per recording, its first, middle and last stored frame, each enlarged by
- * an integer factor to at least 96 pixels on its longer side; 4-pixel white gaps. */
+/* Contact sheet: one row per recording, its name above its first, middle and last stored frame,
+ * each frame enlarged by an integer factor to at least 96 pixels on its longer side; 4-pixel white
+ * gaps. The name is drawn in the built-in font at twice its size (io/data/glyphs.h), shortened in the
+ * middle when it is wider than the row. */
 static int write_sheet(const FrameStore *fs, const char *path, Status *st) {
     int w = fs->width, h = fs->height, longer = w > h ? w : h;
-    int z = longer >= 96 ? 1 : (96 + longer - 1) / longer, gap = 4;
-    long tw = (long)w * z, th = (long)h * z;
-    long W = 3 * tw + 4L * gap, H = (long)fs->n_rec * th + (fs->n_rec + 1L) * gap;
+    int z = longer >= 96 ? 1 : (96 + longer - 1) / longer, gap = 4, ls = 2;
+    long tw = (long)w * z, th = (long)h * z, lh = (long)GLYPH_H * ls + gap;   /* label band above a row */
+    long W = 3 * tw + 4L * gap, H = (long)fs->n_rec * (lh + th) + (fs->n_rec + 1L) * gap;
     if (W * H > 400L * 1000 * 1000) return status_set(st, ST_RUNTIME, "%s: contact sheet would be too large", path);
     uint8_t *px = malloc((size_t)(W * H));   /* (H, W) */
     if (!px) return status_set(st, ST_RUNTIME, "%s: out of memory", path);
     memset(px, 255, (size_t)(W * H));
+    long max_chars = (W - 2L * gap + (GLYPH_ADVANCE - GLYPH_W) * ls) / ((long)GLYPH_ADVANCE * ls);
     for (int r = 0; r < fs->n_rec; r++) {
         long pick[3] = {0, fs->rec[r].count / 2, fs->rec[r].count - 1};
+        long top = gap + r * (lh + th + gap);
+        char label[4 * STORE_NAME_MAX];
+        glyph_fit(label, sizeof label, fs->rec[r].name, max_chars);
+        glyph_draw(px, W, H, gap, top, label, ls, 0);
         for (int c = 0; c < 3; c++) {
             const void *fr = store_frame(fs, fs->rec[r].first + pick[c]);
-            long x0 = gap + c * (tw + gap), y0 = gap + r * (th + gap);
+            long x0 = gap + c * (tw + gap), y0 = top + lh;
             for (long y = 0; y < th; y++)
                 for (long x = 0; x < tw; x++) {
                     long p = (y / z) * w + x / z;
@@ -147,7 +187,7 @@ static int write_sheet(const FrameStore *fs, const char *path, Status *st) {
                 }
         }
     }
-    int rc = image_write_png_gray(path, px, (int)W, (int)H, st);
+    int rc = image_write_png_gray_text(path, px, (int)W, (int)H, "Software", SHEET_SOFTWARE, st);
     free(px);
     return rc;
 }
@@ -163,34 +203,39 @@ int cmd_frames(int argc, char **argv) {
         frames_usage(stdout);
         return 0;
     }
-    FrameSettings s = frame_settings_default();
+    FrameSettings s;
     const char *dir = NULL, *config = NULL, *sheet = SHEET_DEFAULT;
-    int rebuild = 0;
+    int rebuild = 0, autod = 0, order = 1;
     Status st;
     status_ok(&st);
+    /* "--" ends the options: what follows is DIR even when it starts with '-' */
+    int end = 1;
+    while (end < argc && strcmp(argv[end], "--")) end++;
     /* The config first, so that flags override it wherever they stand. */
-    for (int i = 1; i < argc; i++) {
+    for (int i = 1; i < end; i++) {
         if (!strcmp(argv[i], "--config") || !strncmp(argv[i], "--config=", 9)) {
-            config = argv[i][8] == '=' ? argv[i] + 9 : (i + 1 < argc ? argv[i + 1] : NULL);
+            config = argv[i][8] == '=' ? argv[i] + 9 : (i + 1 < end ? argv[i + 1] : NULL);
             if (!config) return cli_error(2, "--config needs a value (framelaw frames --help)");
         }
     }
     char cfg_frames[CFG_PATH_MAX] = "";
-    if (config) {
+    { /* without --config, train's defaults: those of a config that sets nothing */
         Config *cfg = malloc(sizeof *cfg);
         if (!cfg) return cli_error(1, "out of memory");
         config_defaults(cfg);
-        int rc = config_load(cfg, config, &st) || frame_settings_from_config(cfg, &s, &st);
+        int rc = (config && config_load(cfg, config, &st)) || frame_settings_from_config(cfg, &s, &st);
         snprintf(cfg_frames, sizeof cfg_frames, "%s", cfg->frames);
+        autod = !strcmp(cfg->derivative, "auto"), order = cfg->order;
         free(cfg);
         if (rc) return cli_error(st.code, "%s", st.msg);
     }
     for (int i = 1; i < argc; i++) {
-        if (!strcmp(argv[i], "--config")) {
+        if (i == end) {
+        } else if (i < end && !strcmp(argv[i], "--config")) {
             i++;
-        } else if (!strncmp(argv[i], "--config=", 9)) {
-        } else if (!strncmp(argv[i], "--", 2)) {
-            int rc = apply_option(&s, argc, argv, &i, &sheet, &rebuild);
+        } else if (i < end && !strncmp(argv[i], "--config=", 9)) {
+        } else if (i < end && !strncmp(argv[i], "--", 2)) {
+            int rc = apply_option(&s, end, argv, &i, &sheet, &rebuild, &autod);
             if (rc) return rc;
         } else if (!dir) {
             dir = argv[i];
@@ -204,8 +249,13 @@ int cmd_frames(int argc, char **argv) {
 
     FrameScan scan;
     if (frames_scan(dir, &scan, &st)) return cli_error(st.code, "%s", st.msg);
+    frames_warn_gaps(&scan, stderr);
+    if (scan.kind != REC_NUMERIC && strcmp(sheet, "none") && sheet_place_free(sheet, &st)) {
+        frames_scan_free(&scan);
+        return cli_error(st.code, "%s", st.msg);
+    }
     int fps_given = config != NULL;
-    for (int i = 1; i < argc; i++) fps_given |= !strcmp(argv[i], "--fps");
+    for (int i = 1; i < end; i++) fps_given |= !strcmp(argv[i], "--fps");
     if (!fps_given) { /* videos and CSV time columns carry their rate */
         double rate;
         char from[4096];
@@ -221,8 +271,16 @@ int cmd_frames(int argc, char **argv) {
         frames_scan_free(&scan);
         return cli_error(st.code, "%s", st.msg);
     }
+    if (info.note[0]) fprintf(stderr, "framelaw: note: %s\n", info.note);
     Dataset ds;
-    if (dataset_init(&ds, &fs, &s, &st)) {
+    double theta = 0;
+    int drc = dataset_init(&ds, &fs, &s, &st);
+    if (!drc && autod) { /* auto: the stencil from the frames, as train does, then the samples again */
+        drc = rundata_auto_stencil(&ds, &fs, order, &s, &theta, &st);
+        dataset_free(&ds);
+        if (!drc) drc = dataset_init(&ds, &fs, &s, &st);
+    }
+    if (drc) {
         store_close(&fs);
         frames_scan_free(&scan);
         return cli_error(st.code, "%s", st.msg);
@@ -257,6 +315,7 @@ int cmd_frames(int argc, char **argv) {
            info.built ? info.reason : "");
     printf("derivatives: %s stencil over %d frames", stencil_kind_names[ds.sten.kind], 2 * ds.sten.m + 1);
     if (ds.sten.kind == STENCIL_SAVGOL) printf(" (degree %d)", ds.sten.degree);
+    if (autod) printf(", chosen for frames that move at %.3g rad per frame (auto)", theta);
     printf("; %d frame%s lost at each end of a recording\n", ds.sten.m, ds.sten.m == 1 ? "" : "s");
     printf("training set: %ld samples from %d recording%s; validation: %ld samples from %d recording%s\n",
            ds.count[SPLIT_TRAIN], ds.n_rec_split[SPLIT_TRAIN], ds.n_rec_split[SPLIT_TRAIN] == 1 ? "" : "s",

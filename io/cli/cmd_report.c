@@ -27,9 +27,15 @@ int cmd_report(int argc, char **argv) {
         return 0;
     }
     const char *dir = NULL, *out = NULL;
+    int operands = 0; /* after "--": RUN_DIR even when it starts with '-' */
     for (int i = 1; i < argc; i++) {
         const char *a = argv[i];
-        if (!strcmp(a, "--output") || !strncmp(a, "--output=", 9)) {
+        if (!operands && !strcmp(a, "--")) {
+            operands = 1;
+        } else if (operands) {
+            if (dir) return cli_error(2, "report: one RUN_DIR only ('%s' and '%s')", dir, a);
+            dir = a;
+        } else if (!strcmp(a, "--output") || !strncmp(a, "--output=", 9)) {
             if (a[8] == '=') out = a + 9;
             else if (i + 1 < argc) out = argv[++i];
             else return cli_error(2, "report: --output needs a file name");

@@ -9,15 +9,17 @@
 
 static int run_dir_arg(int argc, char **argv, const char **dir, int *quiet, const char **frames) {
     *dir = NULL;
+    int operands = 0; /* after "--": RUN_DIR even when it starts with '-' */
     for (int i = 1; i < argc; i++) {
-        if (!strcmp(argv[i], "--quiet")) *quiet = 1;
-        else if (!strcmp(argv[i], "--set") || !strncmp(argv[i], "--set=", 6)) {
+        if (!operands && !strcmp(argv[i], "--")) operands = 1;
+        else if (!operands && !strcmp(argv[i], "--quiet")) *quiet = 1;
+        else if (!operands && (!strcmp(argv[i], "--set") || !strncmp(argv[i], "--set=", 6))) {
             const char *a = argv[i][5] == '=' ? argv[i] + 6 : (i + 1 < argc ? argv[++i] : NULL);
             if (!a || strncmp(a, "data.frames=", 12) || !a[12])
                 return cli_error(2, "--set %s: only data.frames=NEW may be given here, to follow frames that moved "
                                     "(the model is trained)", a ? a : "");
             *frames = a;
-        } else if (argv[i][0] == '-') return cli_error(2, "%s: unknown option (framelaw %s --help)", argv[i], argv[0]);
+        } else if (!operands && argv[i][0] == '-') return cli_error(2, "%s: unknown option (framelaw %s --help)", argv[i], argv[0]);
         else if (*dir) return cli_error(2, "%s: one run folder only", argv[i]);
         else *dir = argv[i];
     }
@@ -67,9 +69,12 @@ int cmd_export(int argc, char **argv) {
                "reconstructions/<recording>.png (original | decoded | difference) for image data,\n"
                "and region.json (the range of latent states seen in training). `framelaw train` runs it at\n"
                "the end of a run.\n\n"
+               "options (default in brackets):\n"
                "  --set data.frames=NEW   the run's frames moved to NEW: checked to be the same frames (their\n"
-               "                          content digest), then config.json follows them\n"
-               "  --quiet                 no summary line\n");
+               "                          content digest), then config.json follows them            [none]\n"
+               "  --quiet                 no summary line                                           [off]\n"
+               "  --help                  this text\n\n"
+               "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n");
         return 0;
     }
     return with_run(argc, argv, results_export);
@@ -84,8 +89,11 @@ int cmd_forecast(int argc, char **argv) {
                "relative error and the time it first exceeds forecast.bound (default 10%%), flags forecasts\n"
                "that leave the training region, and writes forecast.json and forecast/<recording>.csv.\n"
                "`framelaw train` runs it at the end of a run.\n\n"
-               "  --set data.frames=NEW   the run's frames moved to NEW (as for framelaw export)\n"
-               "  --quiet                 no summary lines\n");
+               "options (default in brackets):\n"
+               "  --set data.frames=NEW   the run's frames moved to NEW (as for framelaw export)        [none]\n"
+               "  --quiet                 no summary lines                                          [off]\n"
+               "  --help                  this text\n\n"
+               "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n");
         return 0;
     }
     return with_run(argc, argv, results_forecast);

@@ -360,17 +360,19 @@ static void usage(void) {
            "Train every member of a sweep (a base config, the keys to vary with their values, random restarts;\n"
            "docs/sweeps.md). Each member runs in <output>/<member id>; a finished member is skipped, an\n"
            "interrupted one resumes from its checkpoint. At the end: summary.csv and summary.html.\n\n"
+           "options (default in brackets):\n"
            "  --jobs N        members run at once on this machine                       [1]\n"
            "  --threads T     threads per member                     [max(1, cores / jobs)]\n"
            "  --member [I]    run member I only (grid order, from 0); without I, the index is\n"
-           "                  $SLURM_ARRAY_TASK_ID; threads default to $SLURM_CPUS_PER_TASK\n"
+           "                  $SLURM_ARRAY_TASK_ID; threads default to $SLURM_CPUS_PER_TASK  [off]\n"
            "  --slurm         write <output>/sweep.sbatch (one Slurm job array, one member per task)\n"
-           "                  and print the sbatch command that submits it\n"
-           "  --summary       write and print the summary of the results so far\n"
-           "  --list          list the members: index, id, state, varied values\n\n"
-           "Ctrl-C (or SIGTERM) stops every member with its checkpoint written; run the same command again\n"
-           "to continue. Exit status: 0 every member finished, 1 a member failed or the sweep was stopped,\n"
-           "2 bad usage or a bad sweep file (nothing is started then).\n");
+           "                  and print the sbatch command that submits it              [off]\n"
+           "  --summary       write and print the summary of the results so far         [off]\n"
+           "  --list          list the members: index, id, state, varied values         [off]\n"
+           "  --help          this text\n\n"
+           "exit status: 0 every member finished, 1 a member failed, 2 bad usage or a bad sweep file\n"
+           "(nothing is started then), 130 stopped by Ctrl-C (143 by SIGTERM): every member writes its\n"
+           "checkpoint; run the same command again to continue.\n");
 }
 
 int cmd_sweep(int argc, char **argv) {
@@ -380,11 +382,16 @@ int cmd_sweep(int argc, char **argv) {
     }
     const char *file = NULL, *member_arg = NULL;
     int jobs = 1, threads = 0, mode = 0; /* 0 run, 1 member, 2 slurm, 3 summary, 4 list */
-    int have_jobs = 0;
+    int have_jobs = 0, operands = 0; /* after "--": SWEEP_FILE even when it starts with '-' */
     for (int i = 1; i < argc; i++) {
         const char *a = argv[i];
         long v;
-        if (!strcmp(a, "--jobs") || !strcmp(a, "--threads")) {
+        if (!operands && !strcmp(a, "--")) {
+            operands = 1;
+        } else if (operands) {
+            if (file) return cli_error(2, "%s: one sweep file only", a);
+            file = a;
+        } else if (!strcmp(a, "--jobs") || !strcmp(a, "--threads")) {
             if (i + 1 >= argc || parse_index(argv[i + 1], &v) || v < 1 || v > 4096)
                 return cli_error(2, "%s: needs a number from 1 to 4096", a);
             if (a[2] == 'j') jobs = (int)v, have_jobs = 1;

@@ -59,6 +59,8 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
     Status st;
     RunData data;
     int rc = rundata_open(&data, c, &st);
+    if (data.have_scan) frames_warn_gaps(&data.scan, stderr); /* also when the pieces are too short */
+    if (data.store_info.note[0] && !quiet) fprintf(stderr, "framelaw: note: %s\n", data.store_info.note);
     if (rc) {
         rundata_close(&data);
         return cli_error(rc, "%s", st.msg);
@@ -126,12 +128,21 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
 static int parse_sets(Config *c, int argc, char **argv, int *quiet, const char **pos, int resume) {
     Status st;
     *pos = NULL;
+    int operands = 0; /* after "--": the operand even when it starts with '-' */
     for (int i = 1; i < argc; i++) {
-        if (!strcmp(argv[i], "--quiet")) {
+        if (!operands && !strcmp(argv[i], "--")) {
+            operands = 1;
+        } else if (operands) {
+            if (*pos) return cli_error(2, "%s: one %s only", argv[i], resume ? "run folder" : "config file");
+            *pos = argv[i];
+        } else if (!strcmp(argv[i], "--quiet")) {
             *quiet = 1;
         } else if (!strcmp(argv[i], "--set") || !strncmp(argv[i], "--set=", 6)) {
             const char *a = argv[i][5] == '=' ? argv[i] + 6 : (i + 1 < argc ? argv[++i] : NULL);
             if (!a) return cli_error(2, "--set needs KEY.PATH=VALUE");
+            if (resume && !strncmp(a, "output=", 7))
+                return cli_error(2, "--set %s: a resumed run stays in RUN_DIR; to move a run, move its folder and "
+                                    "resume it there", a);
             if (resume) {
                 int ok = !strncmp(a, "data.frames=", 12); /* the frames moved: checked by run_frames_move */
                 for (int k = 0; config_resume_safe_keys[k]; k++) {
@@ -163,9 +174,13 @@ int cmd_train(int argc, char **argv) {
                "Train the autoencoder and the sparse latent model described by CONFIG (JSON; every key is\n"
                "listed in docs/config.md). Writes the run folder given by `output` (default runs/<config name>):\n"
                "config.json, log.csv, checkpoints/, equations.txt / .tex / .json.\n\n"
-               "  --set KEY.PATH=VALUE   override a config key (VALUE is JSON; repeatable)\n"
-               "  --quiet                no progress output\n\n"
-               "Ctrl-C (or SIGTERM) finishes the current step, writes a checkpoint and says how to resume.\n");
+               "options (default in brackets):\n"
+               "  --set KEY.PATH=VALUE   override a config key (VALUE is JSON; repeatable)       [none]\n"
+               "  --quiet                no progress output                                      [off]\n"
+               "  --help                 this text\n\n"
+               "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input, 130 stopped by Ctrl-C\n"
+               "(143 by SIGTERM): the current step finishes, a checkpoint is written and the message says\n"
+               "how to resume.\n");
         return 0;
     }
     int quiet = 0;
@@ -193,7 +208,12 @@ int cmd_train(int argc, char **argv) {
     snprintf(ck, sizeof ck, "%s/checkpoints", c->output);
     /* the folder, then its lock (a train or resume running there is named), then whether it holds a run */
     RunLock lock = {-1};
-    if (fs_make_dirs(c->output, &st) || run_lock(&lock, c->output, "train", &st)) {
+    if (fs_make_dirs(c->output, &st)) { /* a file in the way is bad input: name it and the key */
+        free(c);
+        if (st.code == ST_INPUT) return cli_error(2, "output: %s; choose another run folder (--set output=...)", st.msg);
+        return cli_error(st.code, "%s", st.msg);
+    }
+    if (run_lock(&lock, c->output, "train", &st)) {
         free(c);
         return cli_error(st.code, "%s", st.msg);
     }
@@ -228,9 +248,16 @@ int cmd_resume(int argc, char **argv) {
                "Continue a run from its newest valid checkpoint, exactly as if it had not stopped. A checkpoint\n"
                "that is truncated or damaged is skipped with a message and the one before it is used.\n"
                "Only these keys may change: train.epochs, train.threads, train.validate_every,\n"
-               "checkpoint.every, checkpoint.keep, output, forecast.bound, forecast.method,\n"
-               "forecast.tolerance, ensemble.*, canonical.* (they act after training), and data.frames\n"
-               "when the frames moved: their content is checked against the run's (docs/results.md).\n");
+               "checkpoint.every, checkpoint.keep, forecast.bound, forecast.method, forecast.tolerance,\n"
+               "ensemble.*, canonical.* (they act after training), train.memory_budget, and data.frames\n"
+               "when the frames moved: their content is checked against the run's (docs/results.md).\n"
+               "The run stays in RUN_DIR: a moved run folder resumes where it is.\n\n"
+               "options (default in brackets):\n"
+               "  --set KEY.PATH=VALUE   change one of the keys above (VALUE is JSON; repeatable)  [none]\n"
+               "  --quiet                no progress output                                        [off]\n"
+               "  --help                 this text\n\n"
+               "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input, 130 stopped by Ctrl-C\n"
+               "(143 by SIGTERM) with a checkpoint written.\n");
         return 0;
     }
     int quiet = 0;
@@ -259,7 +286,7 @@ int cmd_resume(int argc, char **argv) {
         return cli_error(st.code, "%s", st.msg);
     }
     int sets = 0;
-    for (int i = 1; i < argc; i++) sets |= !strncmp(argv[i], "--set", 5);
+    for (int i = 1; i < argc && strcmp(argv[i], "--"); i++) sets |= !strncmp(argv[i], "--set", 5);
     if (sets) { /* store the changed safe keys so a later resume sees them */
         char *json = config_to_json(c);
         if (atomic_write_bytes(cfg_path, json, strlen(json), &st)) {

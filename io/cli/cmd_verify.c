@@ -281,12 +281,22 @@ int cmd_verify(int argc, char **argv) {
                "  colony:     the eigenvalue at the stable fixed point (10%% of -r) and the area there (10%% of K);\n"
                "  pulse:      the period of the cycle reached from inside and from outside it (3%%), and that\n"
                "              both reach the same cycle (5%%). docs/battery.md gives the sources.\n"
-               "Prints one line per check, writes RUN_DIR/verify.json. Exit status 0 when every check\n"
-               "passes, 1 when one fails, 2 for bad input.\n");
+               "Prints one line per check, writes RUN_DIR/verify.json.\n\n"
+               "options (default in brackets):\n"
+               "  --help    this text\n\n"
+               "exit status: 0 every check passes, 1 a check fails or a runtime failure, 2 bad usage or\n"
+               "bad input\n");
         return 0;
     }
-    if (argc != 2 || argv[1][0] == '-') return cli_error(2, "verify: usage: framelaw verify RUN_DIR (--help)");
-    const char *dir = argv[1];
+    const char *dir = NULL;
+    for (int i = 1, operands = 0; i < argc; i++) { /* after "--": RUN_DIR even when it starts with '-' */
+        if (!operands && !strcmp(argv[i], "--")) operands = 1;
+        else if (!operands && argv[i][0] == '-')
+            return cli_error(2, "%s: unknown option (framelaw verify --help)", argv[i]);
+        else if (dir) return cli_error(2, "%s: one run folder only", argv[i]);
+        else dir = argv[i];
+    }
+    if (!dir) return cli_error(2, "verify: missing RUN_DIR (framelaw verify --help)");
     static LoadedRun r;
     Status st;
     if (loaded_run_open(&r, dir, &st)) return cli_error(st.code, "%s", st.msg);

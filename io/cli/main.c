@@ -76,7 +76,7 @@ void cli_note_old_terms(const Config *c) {
 }
 
 int cli_wants_help(int argc, char **argv) {
-    for (int i = 1; i < argc; i++)
+    for (int i = 1; i < argc && strcmp(argv[i], "--"); i++)
         if (!strcmp(argv[i], "--help") || !strcmp(argv[i], "-h")) return 1;
     return 0;
 }
@@ -90,7 +90,8 @@ static void usage(FILE *f) {
             "frames of a moving system.\n\ncommands:\n");
     for (int i = 0; i < N_COMMANDS; i++) fprintf(f, "  %-10s %s\n", commands[i].name, commands[i].summary);
     fprintf(f, "\nexit status: 0 success, 1 runtime failure, 2 bad usage or bad input, 130 stopped by Ctrl-C\n"
-               "(143 by SIGTERM) with its checkpoints written. --opt=value is --opt value everywhere;\n"
+               "(143 by SIGTERM) with its checkpoints written. --opt=value is --opt value everywhere; --\n"
+               "ends the options (what follows is a file or folder even if it starts with -);\n"
                "framelaw help COMMAND shows that command's options.\n");
 }
 
@@ -126,12 +127,14 @@ int main(int argc, char **argv) {
     atomic_cleanup_on_signals();
     for (int i = 0; i < N_COMMANDS; i++)
         if (!strcmp(argv[1], commands[i].name)) {
-            /* --opt=value is --opt value for every command: split at the first '=' */
+            /* --opt=value is --opt value for every command: split at the first '=' (not after "--",
+             * which ends the options: what follows are operands, whatever they start with) */
             char **av = malloc(sizeof *av * (size_t)(2 * argc + 1));
             if (!av) return cli_error(1, "out of memory");
-            int n = 0;
+            int n = 0, operands = 0;
             for (int k = 1; k < argc; k++) {
-                char *eq = argv[k][0] == '-' && argv[k][1] == '-' ? strchr(argv[k], '=') : NULL;
+                if (!strcmp(argv[k], "--")) operands = 1;
+                char *eq = !operands && argv[k][0] == '-' && argv[k][1] == '-' ? strchr(argv[k], '=') : NULL;
                 if (eq && eq > argv[k] + 2) {
                     *eq = 0;
                     av[n++] = argv[k];

@@ -29,8 +29,13 @@ int cli_run_args(int argc, char **argv, const char *prefix, RunArgs *a) {
     a->lock.fd = -1;
     const char *cmd = a->cmd = argv[0];
     size_t pl = strlen(prefix);
+    int operands = 0; /* after "--": RUN_DIR even when it starts with '-' */
     for (int i = 1; i < argc; i++) {
-        if (!strcmp(argv[i], "--quiet")) a->quiet = 1;
+        if (operands) {
+            if (a->dir) return cli_error(2, "%s: one run folder only", argv[i]);
+            a->dir = argv[i];
+        } else if (!strcmp(argv[i], "--")) operands = 1;
+        else if (!strcmp(argv[i], "--quiet")) a->quiet = 1;
         else if (!strcmp(argv[i], "--set") || !strncmp(argv[i], "--set=", 6)) {
             const char *s = argv[i][5] == '=' ? argv[i] + 6 : (i + 1 < argc ? argv[++i] : NULL);
             if (!s) return cli_error(2, "--set needs %sKEY=VALUE", prefix);

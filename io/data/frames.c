@@ -86,6 +86,85 @@ int frames_natural_cmp(const char *a, const char *b) {
     return c < 0 ? -1 : c > 0;
 }
 
+/* ---- gaps in the numbering --------------------------------------------------------------- */
+
+#define GAP_MAX_RUNS 16 /* digit runs per file name considered */
+
+/* The digit runs of a name: their values (a run of more than 18 digits fails), and the name with
+ * each run replaced by '#' as its shape. Returns the number of runs, -1 when not usable. */
+static int name_numbers(const char *s, long long *v, char *shape, size_t n) {
+    int k = 0;
+    size_t o = 0;
+    while (*s) {
+        if (isdigit((unsigned char)*s)) {
+            if (k == GAP_MAX_RUNS) return -1;
+            long long x = 0;
+            int len = 0;
+            for (; isdigit((unsigned char)*s); s++, len++) x = x * 10 + (*s - '0');
+            if (len > 18) return -1;
+            v[k++] = x;
+            if (o + 1 < n) shape[o++] = '#';
+        } else if (o + 1 < n) {
+            shape[o++] = *s++;
+        } else {
+            return -1;
+        }
+    }
+    shape[o] = 0;
+    return k;
+}
+
+static int cmp_ll(const void *a, const void *b) {
+    long long x = *(const long long *)a, y = *(const long long *)b;
+    return x < y ? -1 : x > y;
+}
+
+int frames_find_gaps(const char *const *names, int n, long long *vals, int *cut, int max_cut, long long *step) {
+    *step = 0;
+    if (n < 3) return 0; /* one step: nothing to compare it with */
+    long long v0[GAP_MAX_RUNS], v[GAP_MAX_RUNS];
+    char shape0[256], shape[256];
+    int k0 = name_numbers(names[0], v0, shape0, sizeof shape0), at = -1;
+    if (k0 <= 0) return 0;
+    /* exactly one run may differ in value between the names */
+    for (int i = 1; i < n; i++) {
+        int k = name_numbers(names[i], v, shape, sizeof shape);
+        if (k != k0 || strcmp(shape, shape0)) return 0;
+        for (int j = 0; j < k; j++)
+            if (v[j] != v0[j]) {
+                if (at >= 0 && at != j) return 0;
+                at = j;
+            }
+    }
+    if (at < 0) return 0;
+    long long *num = malloc(2 * (size_t)n * sizeof *num), *d = num + n;
+    if (!num) return -1;
+    for (int i = 0; i < n; i++) {
+        name_numbers(names[i], v, shape, sizeof shape);
+        num[i] = v[at];
+    }
+    for (int i = 0; i + 1 < n; i++) d[i] = num[i + 1] - num[i];
+    qsort(d, (size_t)(n - 1), sizeof *d, cmp_ll);
+    long long s = d[(n - 2) / 2]; /* the lower median of the n - 1 steps */
+    int gaps = 0;
+    if (s > 0) {
+        for (int i = 0; i + 1 < n; i++) {
+            long long di = num[i + 1] - num[i];
+            if (2 * di >= 3 * s) { /* round(di / s) - 1 >= 1 frames missing */
+                if (cut && gaps < max_cut) cut[gaps] = i + 1;
+                gaps++;
+            } else if (!(di >= s - s / 4 && di <= s + s / 4)) { /* neither a gap nor a step: no frame count */
+                gaps = 0;
+                break;
+            }
+        }
+    }
+    if (gaps > 0) *step = s;
+    if (vals) memcpy(vals, num, (size_t)n * sizeof *num);
+    free(num);
+    return gaps;
+}
+
 static int cmp_files(const void *x, const void *y) {
     const SourceFile *a = x, *b = y;
     const char *na = strrchr(a->path, '/'), *nb = strrchr(b->path, '/');
@@ -105,8 +184,15 @@ void frames_scan_free(FrameScan *fs) {
         free(fs->rec[r].files);
     }
     free(fs->rec);
+    free(fs->gap_notes);
     fs->rec = NULL;
+    fs->gap_notes = NULL;
     fs->n_rec = 0;
+}
+
+void frames_warn_gaps(const FrameScan *fs, FILE *f) {
+    for (const char *p = fs->gap_notes, *e; p && (e = strchr(p, '\n')); p = e + 1)
+        fprintf(f, "framelaw: warning: %.*s\n", (int)(e - p), p);
 }
 
 static char *join(const char *dir, const char *name) {
@@ -135,6 +221,98 @@ static int add_rec(FrameScan *fs, int *cap, Status *st) {
     memset(&fs->rec[fs->n_rec], 0, sizeof fs->rec[0]);
     fs->n_rec++;
     return 0;
+}
+
+/* The missing numbers between a and b (step s) as text: "41", "41-44", "40-60 (every 10)", or
+ * "about 3 between 1033 and 1167" when the gap is not a whole number of steps. */
+static int missing_text(char *out, size_t n, long long a, long long b, long long s) {
+    long long d = b - a;
+    if (d % s) return snprintf(out, n, "about %lld between %lld and %lld", (d + s / 2) / s - 1, a, b);
+    if (d == 2 * s) return snprintf(out, n, "%lld", a + s);
+    if (s == 1) return snprintf(out, n, "%lld-%lld", a + 1, b - 1);
+    return snprintf(out, n, "%lld-%lld (every %lld)", a + s, b - s, s);
+}
+
+#define GAP_NOTE_MAX 8 /* gaps listed per recording; the rest counted */
+
+/* Split recording r at the gaps of its numbering into pieces "<name>-part<k>", recordings of their
+ * own placed where r was, and add a line to fs->gap_notes. */
+static int split_gaps(FrameScan *fs, int *cap, int r, Status *st) {
+    ScanRecording *rec = &fs->rec[r];
+    if (rec->kind != REC_IMAGES || rec->video || rec->n_files < 3) return 0;
+    int n = rec->n_files, rc = 0;
+    const char **names = malloc((size_t)n * sizeof *names);
+    long long *vals = malloc((size_t)n * sizeof *vals), step;
+    int *cut = malloc((size_t)n * sizeof *cut);
+    char *line = NULL;
+    if (!names || !vals || !cut) {
+        rc = status_set(st, ST_RUNTIME, "%s: out of memory", fs->root);
+        goto done;
+    }
+    for (int i = 0; i < n; i++) {
+        const char *b = strrchr(rec->files[i].path, '/');
+        names[i] = b ? b + 1 : rec->files[i].path;
+    }
+    int gaps = frames_find_gaps(names, n, vals, cut, n, &step);
+    if (gaps < 0) rc = status_set(st, ST_RUNTIME, "%s: out of memory", fs->root);
+    if (gaps <= 0) goto done;
+    /* the note: "DIR: frame numbers 41-44, 90 missing: split into 3 recordings, NAME-part1 to NAME-part3 (...)" */
+    size_t ln = 4096 + strlen(rec->files[0].path), k = 0;
+    if (!(line = malloc(ln))) {
+        rc = status_set(st, ST_RUNTIME, "%s: out of memory", fs->root);
+        goto done;
+    }
+    const char *p0 = rec->files[0].path, *slash = strrchr(p0, '/');
+    k += (size_t)snprintf(line + k, ln - k, "%.*s: frame number%s ", slash ? (int)(slash - p0) : 1, slash ? p0 : ".",
+                          gaps == 1 && cut[0] > 0 && vals[cut[0]] - vals[cut[0] - 1] == 2 * step ? "" : "s");
+    for (int g = 0; g < gaps && g < GAP_NOTE_MAX; g++) {
+        if (g) k += (size_t)snprintf(line + k, ln - k, ", ");
+        k += (size_t)missing_text(line + k, ln - k, vals[cut[g] - 1], vals[cut[g]], step);
+    }
+    if (gaps > GAP_NOTE_MAX) k += (size_t)snprintf(line + k, ln - k, " and %d more gaps", gaps - GAP_NOTE_MAX);
+    k += (size_t)snprintf(line + k, ln - k, " missing: split into %d recordings, %s-part1 to %s-part%d (a derivative "
+                          "never spans a gap; restore the missing frames to keep one recording)\n", gaps + 1, rec->name, rec->name, gaps + 1);
+    /* the pieces */
+    for (int g = 0; g < gaps; g++)
+        if (add_rec(fs, cap, st)) {
+            rc = st->code;
+            goto done;
+        }
+    rec = &fs->rec[r]; /* add_rec may have moved the array */
+    int tail = fs->n_rec - gaps - (r + 1); /* recordings after r, before the new ones */
+    memmove(&fs->rec[r + 1 + gaps], &fs->rec[r + 1], (size_t)tail * sizeof *fs->rec);
+    ScanRecording whole = *rec;
+    for (int g = 0; g <= gaps; g++) {
+        int a = g ? cut[g - 1] : 0, b = g < gaps ? cut[g] : n;
+        ScanRecording *pc = &fs->rec[r + g];
+        memset(pc, 0, sizeof *pc);
+        pc->kind = REC_IMAGES;
+        pc->piece = g + 1;
+        snprintf(pc->name, sizeof pc->name, "%.*s-part%d", (int)sizeof pc->name - 20, whole.name, g + 1);
+        pc->files = malloc((size_t)(b - a) * sizeof *pc->files);
+        if (!pc->files) { /* the files not yet moved stay with whole: free them there */
+            for (int i = a; i < n; i++) free(whole.files[i].path);
+            for (int h = g + 1; h <= gaps; h++) memset(&fs->rec[r + h], 0, sizeof *fs->rec);
+            free(whole.files);
+            rc = status_set(st, ST_RUNTIME, "%s: out of memory", fs->root);
+            goto done;
+        }
+        memcpy(pc->files, whole.files + a, (size_t)(b - a) * sizeof *pc->files);
+        pc->n_files = b - a;
+    }
+    free(whole.files);
+    size_t old = fs->gap_notes ? strlen(fs->gap_notes) : 0;
+    char *nn = realloc(fs->gap_notes, old + k + 1);
+    if (!nn) {
+        rc = status_set(st, ST_RUNTIME, "%s: out of memory", fs->root);
+        goto done;
+    }
+    memcpy(nn + old, line, k + 1);
+    fs->gap_notes = nn;
+    fs->n_split++;
+done:
+    free(names), free(vals), free(cut), free(line);
+    return rc;
 }
 
 static void set_name(ScanRecording *r, const char *path, int strip_ext) {
@@ -314,6 +492,7 @@ int frames_scan(const char *path, FrameScan *fs, Status *st) {
         fs->rec[0].kind = REC_IMAGES;
         fs->rec[0].files = imgs;
         fs->rec[0].n_files = n_img;
+        if (split_gaps(fs, &cap, 0, st)) goto fail;
         return 0;
     }
     free(imgs);
@@ -381,6 +560,13 @@ int frames_scan(const char *path, FrameScan *fs, Status *st) {
     }
     fs->kind = n_img_rec ? REC_IMAGES : REC_NUMERIC;
     qsort(fs->rec, (size_t)fs->n_rec, sizeof fs->rec[0], cmp_recs);
+    int n_whole = fs->n_rec;
+    for (int r = 0; r < fs->n_rec; r++) { /* in name order, so that the notes are */
+        int before = fs->n_rec;
+        if (split_gaps(fs, &cap, r, st)) goto fail;
+        r += fs->n_rec - before;
+    }
+    if (fs->n_rec != n_whole) qsort(fs->rec, (size_t)fs->n_rec, sizeof fs->rec[0], cmp_recs);
     for (int r = 1; r < fs->n_rec; r++)
         if (!strcmp(fs->rec[r].name, fs->rec[r - 1].name)) {
             status_set(st, ST_INPUT, "%s: two recordings are named '%s' (a sub-folder and a file, or a.csv and a.npy)",
@@ -397,6 +583,14 @@ fail:
 
 /* A string as its length, then its bytes (so that "ab" + "c" and "a" + "bc" differ). */
 static uint64_t fnv_str(uint64_t h, const char *s) { return fnv1a64_str(fnv1a64_u64(h, strlen(s)), s); }
+
+/* The [store] settings, each as a u64. */
+static uint64_t fnv_settings(uint64_t h, const FrameScan *fs, const FrameSettings *s) {
+    int64_t v[] = {s->gray, s->crop_x, s->crop_y, s->crop_w, s->crop_h, s->width, s->height,
+                   fs->kind == REC_NUMERIC ? 32 : s->bits, s->stride};
+    for (size_t i = 0; i < sizeof v / sizeof v[0]; i++) h = fnv1a64_u64(h, (uint64_t)v[i]);
+    return h;
+}
 
 uint64_t frames_digest(const FrameScan *fs, const FrameSettings *s) {
     uint64_t h = FNV1A64_INIT;
@@ -424,10 +618,7 @@ uint64_t frames_digest(const FrameScan *fs, const FrameSettings *s) {
         }
     }
     if (fs->kind == REC_NUMERIC) h = fnv_str(h, "time column t|time is the clock"); /* since stores dropped it */
-    int64_t v[] = {s->gray, s->crop_x, s->crop_y, s->crop_w, s->crop_h, s->width, s->height,
-                   fs->kind == REC_NUMERIC ? 32 : s->bits, s->stride};
-    for (size_t i = 0; i < sizeof v / sizeof v[0]; i++) h = fnv1a64_u64(h, (uint64_t)v[i]);
-    return h;
+    return fnv_settings(h, fs, s);
 }
 
 void frames_store_path(const FrameScan *fs, const FrameSettings *s, char *out, size_t n) {
@@ -437,11 +628,39 @@ void frames_store_path(const FrameScan *fs, const FrameSettings *s, char *out, s
     }
     size_t len = strlen(fs->root);
     while (len > 1 && fs->root[len - 1] == '/') len--;
-    if (fs->single && fs->kind == REC_NUMERIC) {
+    if (fs->single && (fs->kind == REC_NUMERIC || fs->rec[0].video)) { /* a file: beside it */
         const char *slash = memchr(fs->root, '/', len) ? strrchr(fs->root, '/') : NULL;
         if (slash) snprintf(out, n, "%.*s/.%s.framelaw-store", (int)(slash - fs->root), fs->root, slash + 1);
         else snprintf(out, n, ".%s.framelaw-store", fs->root);
         return;
     }
     snprintf(out, n, "%.*s/.framelaw-store", (int)len, fs->root);
+}
+
+int frames_store_cache_path(const FrameScan *fs, const FrameSettings *s, char *out, size_t n, Status *st) {
+    const char *xdg = getenv("XDG_CACHE_HOME"), *home = getenv("HOME");
+    char base[4096];
+    if (xdg && xdg[0] == '/') /* a relative value is to be ignored (XDG Base Directory Specification) */
+        snprintf(base, sizeof base, "%.4000s/framelaw", xdg);
+    else if (home && home[0] == '/')
+        snprintf(base, sizeof base, "%.4000s/.cache/framelaw", home);
+    else
+        return status_set(st, ST_INPUT, "%s: the folder is not writable and there is no cache folder ($XDG_CACHE_HOME "
+                          "and $HOME unset): set data.store (framelaw frames: --store) to a writable place", fs->root);
+    char *abs = realpath(fs->root, NULL);
+    uint64_t h = fnv_str(FNV1A64_INIT, abs ? abs : fs->root);
+    free(abs);
+    h = fnv_settings(h, fs, s);
+    ScanRecording tmp; /* the source's name, as a recording of it would be named */
+    memset(&tmp, 0, sizeof tmp);
+    set_name(&tmp, fs->root, fs->single && (fs->kind == REC_NUMERIC || fs->rec[0].video));
+    char stem[65];
+    size_t k = 0;
+    for (const char *p = tmp.name; *p && k + 1 < sizeof stem; p++)
+        stem[k++] = isalnum((unsigned char)*p) || *p == '-' || *p == '_' || *p == '.' ? *p : '_';
+    stem[k] = 0;
+    if (stem[0] == '.') stem[0] = '_'; /* not a hidden file in the cache */
+    if (snprintf(out, n, "%s/%s-%016llx.framelaw-store", base, stem, (unsigned long long)h) >= (int)n)
+        return status_set(st, ST_INPUT, "%s: the cache path is too long: set data.store (framelaw frames: --store)", base);
+    return 0;
 }

@@ -16,6 +16,7 @@
 #define IO_FRAMES_H
 
 #include <stdint.h>
+#include <stdio.h>
 
 #include "io/data/images.h"
 #include "io/data/video.h"
@@ -81,6 +82,8 @@ typedef struct {
     VideoInfo vinfo;     /* video: its size and rate from ffprobe */
     int n_files;         /* image files in natural order, or 1 numeric file */
     SourceFile *files;   /* (n_files); owned */
+    int piece;           /* 0: a whole recording; k >= 1: piece k of one split at gaps in its numbering,
+                            named "<name>-part<k>" (frames_split_gaps) */
 } ScanRecording;
 
 typedef struct {
@@ -91,9 +94,12 @@ typedef struct {
     ScanRecording *rec;  /* (n_rec), sorted by natural order of names */
     int ignored_files;   /* non-image files that were skipped */
     int ignored_dirs;    /* sub-folders that were skipped */
+    int n_split;         /* recordings split at gaps in their numbering */
+    char *gap_notes;     /* NULL, or one line per split recording (each ending in '\n') naming the
+                            missing numbers and the pieces: the commands print them as warnings; owned */
 } FrameScan;
 
-/* Largest relative deviation of a time step from the mean step that counts as equally spaced. */
+/* Largest relative deviation of a time step from the median step that counts as equally spaced. */
 #define FRAMES_DT_TOL 0.01
 
 /* The rate the recordings carry: a video's frame rate, or 1 / the step of a CSV time column (a column
@@ -102,9 +108,24 @@ typedef struct {
 int frames_source_rate(const FrameScan *fs, double *fps, char *from, size_t n, Status *st);
 
 /* List the recordings under path. ST_INPUT naming the path when it does not exist, holds no
- * recording ("no image files or recordings"), or mixes image and numeric recordings. */
+ * recording ("no image files or recordings"), or mixes image and numeric recordings. A recording of
+ * image files with a gap in its numbering is split there (frames_split_gaps); fs->gap_notes says so. */
 int frames_scan(const char *path, FrameScan *fs, Status *st);
 void frames_scan_free(FrameScan *fs);
+/* Print fs->gap_notes to f, each line as "framelaw: warning: <line>" (nothing when there are none). */
+void frames_warn_gaps(const FrameScan *fs, FILE *f);
+
+/* Gaps in the numbering of a recording of image files (docs/frames.md, "Gaps in the numbering").
+ * The file names must differ in one number only (frame0001.png, frame0002.png, ...; any text before
+ * and after it, other numbers equal); its values v_0 <= v_1 <= ... in natural order have steps
+ * d_i = v_{i+1} - v_i and a step s, the lower median of the d_i. A d_i with 2 d_i >= 3 s is a gap
+ * (round(d_i / s) - 1 frames missing); every other d_i must be regular, |d_i - s| <= s / 4 (integer
+ * division: exact for s < 4, a jitter of a quarter step allowed for timestamps in milliseconds), or
+ * the numbers are not a frame count and nothing is detected. Returns the number of gaps (0 when
+ * none or no numbering; -1 out of memory) and fills cut[] with the index of the first file after each
+ * gap (at most max_cut of them; cut may be NULL), vals (n, may be NULL) with the numbers and *step
+ * with s. names: the files' base names in natural order. */
+int frames_find_gaps(const char *const *names, int n, long long *vals, int *cut, int max_cut, long long *step);
 
 /* Natural order: runs of digits compare by numeric value (frame2 < frame10), everything else byte
  * by byte; names equal in that sense fall back to plain strcmp, so the order is total. */
@@ -115,8 +136,15 @@ int frames_natural_cmp(const char *a, const char *b);
  * the [store] settings. */
 uint64_t frames_digest(const FrameScan *fs, const FrameSettings *s);
 
-/* Default store path: "<dir>/.framelaw-store" for a folder, "<dir>/.<file>.framelaw-store" for a
- * numeric file. */
+/* The store path: s->store_path when given, else "<dir>/.framelaw-store" for a folder,
+ * "<dir>/.<file>.framelaw-store" for a numeric or video file. */
 void frames_store_path(const FrameScan *fs, const FrameSettings *s, char *out, size_t n);
+
+/* Where the store goes when the frames' folder is not writable: $XDG_CACHE_HOME/framelaw (when that
+ * variable is an absolute path, else $HOME/.cache/framelaw) / "<source name>-<16 hex>.framelaw-store",
+ * the hex an FNV-1a 64 of the source's absolute path and the [store] settings: one file per source
+ * and settings, replaced when the frames change, as the store beside them would be. ST_INPUT when
+ * neither variable gives a folder. */
+int frames_store_cache_path(const FrameScan *fs, const FrameSettings *s, char *out, size_t n, Status *st);
 
 #endif

@@ -27,7 +27,16 @@ static double load_value(const void *frame, StoreElem e, long p) {
     }
 }
 
-/* Assign recordings to splits. */
+/* Length of "NAME" when rec is "NAME-part<digits>", a piece of a recording split at gaps in its
+ * numbering (frames_split_gaps in io/data/frames.c), else 0. */
+static size_t piece_base(const char *rec) {
+    const char *e = rec + strlen(rec), *p = e;
+    while (p > rec && p[-1] >= '0' && p[-1] <= '9') p--;
+    if (p == e || (size_t)(p - rec) < 6 || strncmp(p - 5, "-part", 5)) return 0;
+    return (size_t)(p - 5 - rec);
+}
+
+/* Assign recordings to splits. A name held out holds out the pieces of a recording split at gaps. */
 static int split_recordings(Dataset *ds, const FrameStore *fs, const FrameSettings *s, Status *st) {
     for (int r = 0; r < fs->n_rec; r++) ds->rec_split[r] = SPLIT_TRAIN;
     if (s->val_names[0]) {
@@ -39,8 +48,13 @@ static int split_recordings(Dataset *ds, const FrameStore *fs, const FrameSettin
             while (e > tok && e[-1] == ' ') *--e = 0;
             if (!*tok) continue;
             int found = -1;
-            for (int r = 0; r < fs->n_rec; r++)
-                if (!strcmp(fs->rec[r].name, tok)) found = r;
+            for (int r = 0; r < fs->n_rec; r++) {
+                size_t b = piece_base(fs->rec[r].name);
+                if (!strcmp(fs->rec[r].name, tok) || (b && b == strlen(tok) && !strncmp(fs->rec[r].name, tok, b))) {
+                    found = r;
+                    ds->rec_split[r] = SPLIT_VAL;
+                }
+            }
             if (found < 0) {
                 char list[512] = "";
                 size_t k = 0;
@@ -49,7 +63,6 @@ static int split_recordings(Dataset *ds, const FrameStore *fs, const FrameSettin
                 return status_set(st, ST_INPUT, "validation recording '%s' not found (recordings: %s%s)", tok, list,
                                   k >= sizeof list - 80 ? ", ..." : "");
             }
-            ds->rec_split[found] = SPLIT_VAL;
         }
     } else if (s->val_last > 0 && fs->n_rec > s->val_last) {
         for (int r = fs->n_rec - s->val_last; r < fs->n_rec; r++) ds->rec_split[r] = SPLIT_VAL;
@@ -107,9 +120,13 @@ int dataset_init(Dataset *ds, const FrameStore *fs, const FrameSettings *s, Stat
     for (int r = 0; r < fs->n_rec; r++)
         if (fs->rec[r].count < 2L * m + 1)
             return status_set(st, ST_INPUT,
-                              "recording '%s' has %ld frames (after stride %d), the %s stencil needs at least %d: record "
-                              "longer recordings, lower data.stride or narrow data.derivative (central needs 3)",
-                              fs->rec[r].name, fs->rec[r].count, s->stride, stencil_kind_names[ds->sten.kind], 2 * m + 1);
+                              "recording '%s' has %ld frames (after stride %d), the %s stencil needs at least %d: %s",
+                              fs->rec[r].name, fs->rec[r].count, s->stride, stencil_kind_names[ds->sten.kind], 2 * m + 1,
+                              piece_base(fs->rec[r].name)
+                                  ? "it lies between gaps in the numbering of its frames (framelaw frames lists them): "
+                                    "restore the missing frames, or move its frames out of the folder"
+                                  : "record longer recordings, lower data.stride or narrow data.derivative (central "
+                                    "needs 3)");
     ds->gain = malloc(sizeof(float) * (size_t)ds->n);
     ds->offset = malloc(sizeof(float) * (size_t)ds->n);
     ds->rec_split = malloc(sizeof(int) * (size_t)fs->n_rec);

@@ -13,6 +13,7 @@
 
 #include "io/fs/atomic_file.h"
 #include "io/fs/files.h"
+#include "io/fs/hash.h"
 
 const char *const gray_std_names[GRAY_COUNT] = {"bt601", "bt709"};
 
@@ -341,23 +342,94 @@ void image_quantise_u16(const float *src, long n, uint16_t *dst) {
     }
 }
 
+/* PNG layout (PNG Specification, Second Edition, W3C Recommendation 2003, 5.2-5.3): the 8-byte
+ * signature, then chunks of a 4-byte big-endian length, a 4-byte type, the data and a CRC-32 of type
+ * and data. IHDR comes first (13 data bytes), so it ends at byte 33. */
+enum { PNG_IHDR_END = 8 + 4 + 4 + 13 + 4 };
+
 typedef struct {
     FILE *f;
     int ok;
+    long written;               /* bytes of stb's stream seen so far */
+    const uint8_t *chunk;       /* a tEXt chunk to insert after IHDR, or NULL */
+    size_t chunk_len;
 } PngSink;
+
+static void png_put(PngSink *s, const void *p, size_t n) {
+    if (s->ok && n && fwrite(p, 1, n, s->f) != n) s->ok = 0;
+}
 
 static void png_sink(void *ctx, void *data, int size) {
     PngSink *s = ctx;
-    if (s->ok && fwrite(data, 1, (size_t)size, s->f) != (size_t)size) s->ok = 0;
+    const uint8_t *d = data;
+    size_t n = (size_t)size, head = 0;
+    if (s->chunk && s->written < PNG_IHDR_END && s->written + (long)n >= PNG_IHDR_END) {
+        head = (size_t)(PNG_IHDR_END - s->written);
+        png_put(s, d, head);
+        png_put(s, s->chunk, s->chunk_len);
+    }
+    png_put(s, d + head, n - head);
+    s->written += (long)n;
 }
 
-int image_write_png_gray(const char *path, const uint8_t *px, int w, int h, Status *st) {
+static void be32(uint8_t *p, uint32_t v) {
+    p[0] = (uint8_t)(v >> 24), p[1] = (uint8_t)(v >> 16), p[2] = (uint8_t)(v >> 8), p[3] = (uint8_t)v;
+}
+
+static uint32_t get_be32(const uint8_t *p) {
+    return (uint32_t)p[0] << 24 | (uint32_t)p[1] << 16 | (uint32_t)p[2] << 8 | p[3];
+}
+
+int image_write_png_gray_text(const char *path, const uint8_t *px, int w, int h, const char *key, const char *text,
+                              Status *st) {
+    uint8_t chunk[4 + 4 + IMAGE_PNG_TEXT_MAX + 4];
+    size_t kl = key ? strlen(key) : 0, tl = text ? strlen(text) : 0, dl = kl + 1 + tl;
+    if (key && (kl < 1 || kl > 79 || dl > IMAGE_PNG_TEXT_MAX)) /* keywords are 1-79 bytes (11.3.4.3) */
+        return status_set(st, ST_RUNTIME, "%s: PNG text '%s' too long", path, key);
+    if (key) {
+        be32(chunk, (uint32_t)dl);
+        memcpy(chunk + 4, "tEXt", 4);
+        memcpy(chunk + 8, key, kl);
+        chunk[8 + kl] = 0;
+        memcpy(chunk + 9 + kl, text, tl);
+        be32(chunk + 8 + dl, fs_crc32(0, chunk + 4, 4 + dl));
+    }
     AtomicFile af;
     if (atomic_open(&af, path, st)) return st->code;
-    PngSink s = {af.f, 1};
-    if (!stbi_write_png_to_func(png_sink, &s, w, h, 1, px, w) || !s.ok) {
+    PngSink s = {af.f, 1, 0, key ? chunk : NULL, key ? 12 + dl : 0};
+    if (!stbi_write_png_to_func(png_sink, &s, w, h, 1, px, w) || !s.ok || s.written < PNG_IHDR_END) {
         atomic_abort(&af);
         return status_set(st, ST_RUNTIME, "%s: cannot write PNG", path);
     }
     return atomic_commit(&af, st);
+}
+
+int image_write_png_gray(const char *path, const uint8_t *px, int w, int h, Status *st) {
+    return image_write_png_gray_text(path, px, w, h, NULL, NULL, st);
+}
+
+int image_png_text(const char *path, const char *key, char *out, size_t n) {
+    uint8_t b[8192];
+    FILE *f = fopen(path, "rb");
+    if (!f) return 0;
+    size_t len = fread(b, 1, sizeof b, f);
+    fclose(f);
+    static const uint8_t sig[8] = {0x89, 'P', 'N', 'G', '\r', '\n', 0x1A, '\n'};
+    if (len < 8 || memcmp(b, sig, 8)) return 0;
+    size_t kl = strlen(key);
+    for (size_t at = 8; at + 12 <= len;) {
+        uint32_t dl = get_be32(b + at);
+        if (dl > len - at - 12 || !memcmp(b + at + 4, "IDAT", 4)) return 0; /* beyond what was read, or the image */
+        const uint8_t *d = b + at + 8;
+        if (!memcmp(b + at + 4, "tEXt", 4) && dl > kl && !memcmp(d, key, kl) && d[kl] == 0 &&
+            fs_crc32(0, b + at + 4, 4 + dl) == get_be32(d + dl)) {
+            size_t tl = dl - kl - 1;
+            if (tl >= n) return 0;
+            memcpy(out, d + kl + 1, tl);
+            out[tl] = 0;
+            return memchr(out, 0, tl) ? 0 : 1;
+        }
+        at += 12 + dl;
+    }
+    return 0;
 }

@@ -61,4 +61,15 @@ void image_quantise_u16(const float *src, long n, uint16_t *dst);
 /* Write an 8-bit gray image (h, w) as PNG, atomically. ST_RUNTIME on failure. */
 int image_write_png_gray(const char *path, const uint8_t *px, int w, int h, Status *st);
 
+/* The same with a tEXt chunk key = text right after the header (PNG Specification, Second Edition,
+ * 11.3.4.3; e.g. the predefined keyword "Software"), so that image_png_text finds it without reading
+ * the image. key 1-79 bytes, key and text together at most IMAGE_PNG_TEXT_MAX - 1 bytes. */
+#define IMAGE_PNG_TEXT_MAX 256
+int image_write_png_gray_text(const char *path, const uint8_t *px, int w, int h, const char *key, const char *text,
+                              Status *st);
+/* 1 and the text in out (n bytes, NUL-terminated) when the file is a PNG with a tEXt chunk of that
+ * key (CRC valid) before its image data, within its first 8 KiB; 0 otherwise (no such file, not a
+ * PNG, no such chunk, a text longer than n - 1 bytes). */
+int image_png_text(const char *path, const char *key, char *out, size_t n);
+
 #endif

@@ -311,9 +311,15 @@ int series_time_column(const Series *s) {
     return -1;
 }
 
+/* "file:LINE (data row R)" for a CSV, "file: row R" for a .npy (row: 0-based). */
 static void row_at(char *buf, size_t n, const char *path, const Series *s, long row) {
-    if (s->lines && s->lines[row] > 0) snprintf(buf, n, "%s:%ld", path, s->lines[row]);
+    if (s->lines && s->lines[row] > 0) snprintf(buf, n, "%s:%ld (data row %ld)", path, s->lines[row], row + 1);
     else snprintf(buf, n, "%s: row %ld", path, row + 1);
+}
+
+static int cmp_double(const void *a, const void *b) {
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
 }
 
 int series_time_step(const Series *s, int tc, const char *path, double tol, double *dt, Status *st) {
@@ -329,16 +335,30 @@ int series_time_step(const Series *s, int tc, const char *path, double tol, doub
                               "%s: time %.9g is not greater than the time before it (%.9g); the time column must "
                               "increase", w, x[r * C + tc], x[(r - 1) * C + tc]);
         }
-    *dt = (x[(n - 1) * C + tc] - x[tc]) / (double)(n - 1);
+    /* the expected step is the median one: a gap or a jump shifts the mean, so that measured against it
+     * every step could be off and the first would be named; against the median the gap itself is */
+    double *steps = malloc(sizeof(double) * (size_t)(n - 1));   /* (n - 1) */
+    if (!steps) return status_set(st, ST_RUNTIME, "%s: out of memory", path);
+    for (long r = 1; r < n; r++) steps[r - 1] = x[r * C + tc] - x[(r - 1) * C + tc];
+    qsort(steps, (size_t)(n - 1), sizeof *steps, cmp_double);
+    double med = (n - 1) % 2 ? steps[(n - 1) / 2] : 0.5 * (steps[(n - 1) / 2 - 1] + steps[(n - 1) / 2]);
+    free(steps);
+    long first = -1, count = 0;
     for (long r = 1; r < n; r++) {
         double step = x[r * C + tc] - x[(r - 1) * C + tc];
-        if (fabs(step - *dt) > tol * *dt) {
-            row_at(w, sizeof w, path, s, r);
-            return status_set(st, ST_INPUT,
-                              "%s: time step %.6g differs from the mean step %.6g by more than %g%%; the derivative "
-                              "stencils need equally spaced samples (resample, or give the rate)",
-                              w, step, *dt, 100 * tol);
-        }
+        if (fabs(step - med) > tol * med) count++, first = first < 0 ? r : first;
     }
+    if (first > 0) {
+        double step = x[first * C + tc] - x[(first - 1) * C + tc];
+        char more[64] = "";
+        if (count > 1) snprintf(more, sizeof more, " (the first of %ld such steps)", count);
+        row_at(w, sizeof w, path, s, first);
+        return status_set(st, ST_INPUT,
+                          "%s: time step %.6g (from %.9g to %.9g) differs from the median step %.6g by more than "
+                          "%g%%%s; the derivative stencils need equally spaced samples (resample, or give the rate)",
+                          w, step, x[(first - 1) * C + tc], x[first * C + tc], med, 100 * tol,
+                          more);
+    }
+    *dt = (x[(n - 1) * C + tc] - x[tc]) / (double)(n - 1);
     return 0;
 }

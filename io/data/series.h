@@ -46,8 +46,11 @@ void series_free(Series *s);
  * own with --time-column). */
 int series_time_column(const Series *s);
 
-/* The time column tc must increase in equal steps (within tol of the mean step); *dt receives the
- * mean step. ST_INPUT naming the file and line (or row) at fault. */
+/* The time column tc must increase in equal steps: each within tol of the median step (so that a gap
+ * is named where it is, not where the mean it shifts is first missed); *dt receives the mean step.
+ * ST_INPUT naming the file, line and data row (CSV) or the row (.npy) of the first step at fault,
+ * the step found, the times it spans and the median step:
+ *     data.csv:9 (data row 7): time step 0.5 (from 0.6 to 1.1) differs from the median step 0.1 ... */
 int series_time_step(const Series *s, int tc, const char *path, double tol, double *dt, Status *st);
 
 typedef enum { NPY_F64, NPY_F32 } NpyType;

@@ -15,6 +15,7 @@
 #include "io/fs/atomic_file.h"
 #include "io/fs/bytes.h"
 #include "io/fs/clock.h"
+#include "io/fs/files.h"
 #include "io/fs/hash.h"
 #include "io/data/images.h"
 #include "io/data/series.h"
@@ -175,9 +176,10 @@ int store_writer_open(StoreWriter **out, const char *path, const StoreLayout *la
     w->frame_bytes = (size_t)lay->width * (size_t)lay->height * (size_t)store_elem_size(lay->elem);
     if (atomic_open(&w->af, path, st)) {
         free(w);
-        char why[sizeof st->msg]; /* never format a status message into itself */
-        snprintf(why, sizeof why, "%s", st->msg);
-        return status_set(st, ST_RUNTIME, "%s (set the store path to a writable place)", why);
+        /* bad input: the path cannot be written, a value of the user's (status_set formats into a copy: its
+         * message may be an argument) */
+        return status_set(st, ST_INPUT, "%s: set data.store (framelaw frames: --store) to a writable place",
+                          st->msg);
     }
     static const unsigned char zeros[STORE_PAYLOAD_ALIGN];
     if (fwrite(zeros, 1, sizeof zeros, w->af.f) != sizeof zeros) {
@@ -449,19 +451,52 @@ int store_build(const FrameScan *scan, const FrameSettings *s, const char *path,
     return scan->kind == REC_IMAGES ? build_images(scan, s, path, fs, st) : build_numeric(scan, s, path, fs, st);
 }
 
+/* The folder of a file path ("." when it has none), and its last component. */
+static void folder_of(const char *path, char *dir, size_t n) {
+    snprintf(dir, n, "%s", path);
+    char *slash = strrchr(dir, '/');
+    if (!slash) snprintf(dir, n, ".");
+    else if (slash == dir) dir[1] = 0;
+    else *slash = 0;
+}
+
+static const char *base_of(const char *path) {
+    const char *slash = strrchr(path, '/');
+    return slash ? slash + 1 : path;
+}
+
 int store_open_for(const FrameScan *scan, const FrameSettings *s, int force_rebuild, FrameStore *fs,
                    StoreOpenInfo *info, Status *st) {
     memset(info, 0, sizeof *info);
     double t0 = clock_seconds();
     frames_store_path(scan, s, info->path, sizeof info->path);
-    { /* the temporaries of builds that were killed (io/fs/atomic_file.h) */
-        char dir[sizeof info->path];
-        snprintf(dir, sizeof dir, "%s", info->path);
-        char *slash = strrchr(dir, '/');
-        if (slash) *slash = 0;
-        atomic_remove_stale(slash ? (dir[0] ? dir : "/") : ".", slash ? slash + 1 : dir);
-    }
     uint64_t digest = frames_digest(scan, s);
+    char dir[sizeof info->path];
+    folder_of(info->path, dir, sizeof dir);
+    if (!s->store_path[0] && access(dir, W_OK) != 0) {
+        /* a read-only folder of frames: a current store beside them serves; else the cache */
+        int e = errno;
+        Status ls;
+        if (!force_rebuild && store_load(info->path, fs, &ls) == 0) {
+            if (fs->digest == digest) {
+                info->seconds = clock_seconds() - t0;
+                return 0;
+            }
+            store_close(fs);
+        }
+        if (frames_store_cache_path(scan, s, info->path, sizeof info->path, st)) return st->code;
+        info->cached = 1;
+        snprintf(info->note, sizeof info->note, "%.300s is not writable (%s): the frame store is %.500s (set data.store, "
+                 "framelaw frames: --store, to put it elsewhere)", dir, strerror(e), info->path);
+        folder_of(info->path, dir, sizeof dir);
+    }
+    if (access(dir, F_OK) != 0) { /* a folder given by data.store, or the cache, made on first use */
+        Status ms;
+        if (fs_make_dirs(dir, &ms))
+            return status_set(st, ST_INPUT, "%s: cannot make the frame store's folder (%s): set data.store (framelaw "
+                              "frames: --store) to a writable place", info->path, ms.msg);
+    }
+    atomic_remove_stale(dir, base_of(info->path)); /* the temporaries of builds that were killed */
     if (force_rebuild) {
         snprintf(info->reason, sizeof info->reason, "rebuild requested");
     } else if (access(info->path, F_OK) != 0) {
@@ -480,6 +515,9 @@ int store_open_for(const FrameScan *scan, const FrameSettings *s, int force_rebu
         }
     }
     info->built = 1;
+    if (access(dir, W_OK) != 0)
+        return status_set(st, ST_INPUT, "%s: cannot write the frame store there (%s): set data.store (framelaw frames: "
+                          "--store) to a writable place", info->path, strerror(errno));
     int rc = store_build(scan, s, info->path, fs, st);
     info->seconds = clock_seconds() - t0;
     return rc;

@@ -129,6 +129,9 @@ typedef struct {
     char reason[512];    /* why: "no store yet", "sources or settings changed", "invalid store: ..." */
     double seconds;      /* time spent building or loading */
     char path[4096];     /* the store file */
+    int cached;          /* 1: in the cache folder, since the frames' folder is not writable */
+    char note[1024];     /* "" or what the commands print as a note: the frames' folder is not writable,
+                            so the store is in the cache folder (frames_store_cache_path) */
 } StoreOpenInfo;
 
 /* Decode and preprocess every frame of the scan into a new store at path (images: grayscale, crop,
@@ -138,7 +141,10 @@ typedef struct {
 int store_build(const FrameScan *scan, const FrameSettings *s, const char *path, FrameStore *fs, Status *st);
 
 /* Load the store for scan + settings if it is valid and its digest matches, else (or when
- * force_rebuild) build it. */
+ * force_rebuild) build it. Where (docs/frames.md, "The frame store"): s->store_path when given (its
+ * folder is made when missing); else beside the frames (frames_store_path), or, when that folder is
+ * not writable and holds no current store, in the cache folder (frames_store_cache_path; info->note
+ * says so). ST_INPUT naming the path and data.store when the chosen folder cannot be written. */
 int store_open_for(const FrameScan *scan, const FrameSettings *s, int force_rebuild, FrameStore *fs,
                    StoreOpenInfo *info, Status *st);
 

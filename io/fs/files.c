@@ -10,13 +10,14 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
-/* mkdir that accepts an existing folder (and only a folder). */
+/* mkdir that accepts an existing folder (and only a folder). A file in the way is the input's fault
+ * (a path named a file where a folder must be): ST_INPUT. */
 static int make_one(const char *dir, Status *st) {
     if (mkdir(dir, 0777) == 0) return 0;
     int e = errno;
     if (e == EEXIST) {
         if (fs_is_dir(dir)) return 0;
-        return status_set(st, ST_RUNTIME, "%s: cannot create folder: a file of that name is in the way", dir);
+        return status_set(st, ST_INPUT, "%s: cannot create folder: a file of that name is in the way", dir);
     }
     return status_set(st, ST_RUNTIME, "%s: cannot create folder: %s", dir, strerror(e));
 }

@@ -17,9 +17,9 @@
 #include "nn/core.h"
 
 /* Create the folder path and every missing folder above it (mode 0777 before the umask). A folder
- * that exists already is fine. Returns 0, ST_INPUT for a path longer than 4095 bytes, or
- * ST_RUNTIME naming the folder that could not be made (also when a file of that name is in the
- * way). */
+ * that exists already is fine. Returns 0, ST_INPUT for a path longer than 4095 bytes or when a
+ * file (not a folder) of the name of the path or of one of its folders is in the way, naming it, or
+ * ST_RUNTIME naming the folder that could not be made. */
 int fs_make_dirs(const char *path, Status *st);
 
 /* Read the whole of a regular file into a malloc'ed buffer with a NUL after its last byte (*out,

@@ -4,6 +4,7 @@
  * ensemble law keeps it; then the ensemble law. docs/report.md says how to read it. */
 #include <math.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "io/fs/files.h"
@@ -25,38 +26,57 @@ static int arrays_ok(const cJSON *q, int T) {
     return 1;
 }
 
-int report_section_ensemble(Report *r) {
+/* The ensemble law as MathML from its coefficients, and its text and LaTeX in copy boxes. */
+static void ensemble_law(Report *r, const PageEquations *pe, const cJSON *eqs) {
+    int k = pe->lib.spec.n_latent, nt = pe->lib.n_terms;
+    double *xi = malloc(sizeof(double) * (size_t)nt * k);
+    uint8_t *mask = malloc((size_t)nt * k);
+    if (xi && mask && page_law_read(eqs, k, nt, xi, mask))
+        page_math_law(r, &pe->lib, xi, mask, 'z', NULL, pe->digits);
+    else
+        page_note(r, "The ensemble law has no coefficients in equations.json (an older file): its text is in the "
+                     "copy box.");
+    free(xi);
+    free(mask);
+    for (int latex = 0; latex < 2; latex++) {   /* the lines of "text", then of "latex" */
+        char *s = NULL;
+        size_t len = 0;
+        FILE *m = open_memstream(&s, &len);
+        const cJSON *q;
+        if (m) {
+            cJSON_ArrayForEach(q, eqs) {
+                const char *t = page_json_str(q, latex ? "latex" : "text");
+                if (t) fprintf(m, "%s\n", t);
+            }
+            fclose(m);
+        }
+        if (s && *s) page_copy_box(r, latex ? "Copy the ensemble law as LaTeX" : "Copy the ensemble law as text", s);
+        free(s);
+    }
+}
+
+int report_section_ensemble(Report *r, const PageEquations *pe) {
     fputs("<h2 id=\"ensemble\">How sure is each term: the ensemble</h2>\n", r->f);
-    char path[PATH_LEN];
-    page_path(path, r, "equations.json");
-    if (!fs_exists(path)) {
+    if (!pe) {
         page_note(r, "equations.json: not written yet, so no ensemble.");
         return 0;
     }
-    cJSON *root;
-    if (page_json_read(path, &root, r->st) || page_check_version(root, path, EQ_JSON_FORMAT, EQ_JSON_VERSION, r->st)) {
-        cJSON_Delete(root);
-        return r->st->code;
-    }
+    const cJSON *root = pe->root;
+    const char *path = pe->path;
     const cJSON *e = cJSON_GetObjectItemCaseSensitive(root, "ensemble");
     const cJSON *terms = cJSON_GetObjectItemCaseSensitive(root, "terms");
     if (!e) {
         page_note(r, "equations.json has no ensemble (written before ensembles existed): run framelaw ensemble on "
                      "the run folder.");
-        cJSON_Delete(root);
         return 0;
     }
     const cJSON *eqs = cJSON_GetObjectItemCaseSensitive(e, "equations");
     int T = cJSON_GetArraySize(terms);
-    if (!cJSON_IsArray(terms) || !cJSON_IsArray(eqs)) {
-        cJSON_Delete(root);
+    if (!cJSON_IsArray(terms) || !cJSON_IsArray(eqs))
         return status_set(r->st, ST_INPUT, "%s: \"ensemble\" needs \"equations\" (and the file \"terms\")", path);
-    }
     const cJSON *q;
-    cJSON_ArrayForEach(q, eqs) if (!arrays_ok(q, T)) {
-        cJSON_Delete(root);
+    cJSON_ArrayForEach(q, eqs) if (!arrays_ok(q, T))
         return status_set(r->st, ST_INPUT, "%s: an ensemble equation whose arrays do not match the %d terms", path, T);
-    }
     double thr = page_json_num(e, "inclusion_threshold"), block_s = page_json_num(e, "block_seconds");
     char a[32], b[32], c[32], d[32], g[32];
     fprintf(r->f,
@@ -101,13 +121,7 @@ int report_section_ensemble(Report *r) {
         if (!listed) fputs("<tr><td colspan=\"5\" class=\"note\">no fit kept any term</td></tr>\n", r->f);
         fputs("</table>\n", r->f);
     }
-    fputs("<h3>The ensemble law</h3>\n<pre class=\"eq\">", r->f);
-    cJSON_ArrayForEach(q, eqs) {
-        const char *text = page_json_str(q, "text");
-        page_text(r, text ? text : "?");
-        fputc('\n', r->f);
-    }
-    fputs("</pre>\n", r->f);
-    cJSON_Delete(root);
+    fputs("<h3>The ensemble law</h3>\n", r->f);
+    ensemble_law(r, pe, eqs);
     return 0;
 }

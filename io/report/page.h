@@ -1,5 +1,5 @@
 /* io/report/page.h: what the report's files (report.c: the page and its sections on training,
- * recordings.c: the sections on recordings) share; not part of the report's interface
+ * equations.c: the laws, recordings.c: the sections on recordings, ensemble.c) share; not part of the report's interface
  * (io/report/report.h), and included by nothing outside io/report/. */
 #ifndef IO_REPORT_PAGE_H
 #define IO_REPORT_PAGE_H
@@ -12,6 +12,8 @@
 #include "io/report/report.h"
 #include "io/report/svgplot.h"
 #include "io/run/config.h"
+#include "sparse/coef.h"
+#include "sparse/library.h"
 
 #define MAX_RECORDINGS 16           /* recordings plotted per section; the rest are listed */
 #define MAX_IMAGE_BYTES (32u << 20) /* larger PNGs are not embedded */
@@ -58,11 +60,38 @@ int page_check_version(const cJSON *root, const char *path, const char *format, 
 double page_json_num(const cJSON *o, const char *key);      /* NaN when absent or not a number */
 const char *page_json_str(const cJSON *o, const char *key); /* NULL when absent or not a string */
 
+/* equations.json, read once for the sections that show the law (equations.c). */
+typedef struct {
+    char path[PATH_LEN];
+    cJSON *root;            /* the whole file */
+    Library lib;            /* the library it names */
+    Coef co;                /* the learned law: xi, mask (n_terms, k) */
+    int digits;             /* significant digits of its printed coefficients */
+} PageEquations;
+
+/* Read the run's equations.json: -1 when it is missing (nothing to free), 0 when read (free with
+ * page_equations_free), else the status of a malformed file or one of a newer version. */
+int page_equations_read(Report *r, PageEquations *e);
+void page_equations_free(PageEquations *e);
+/* A law as MathML (sparse/mathml.h) in a <div class="math">: see mathml_law. */
+void page_math_law(Report *r, const Library *lib, const double *xi, const uint8_t *mask, char var,
+                   const double *w, int digits);
+/* The equations of a law in equations.json ("equations": k objects, each with "coefficients" and
+ * "mask" of nt numbers) into xi, mask (nt, k); 0 when they are not all there. */
+int page_law_read(const cJSON *eqs, int k, int nt, double *xi, uint8_t *mask);
+/* A copy box: the source of what the page shows (LaTeX, text), selectable in a read-only
+ * <textarea> inside a <details> whose summary is `what`. The only place LaTeX source appears. */
+void page_copy_box(Report *r, const char *what, const char *text);
+
+/* The section on the equations (equations.c): the learned law, the canonical law and its map as
+ * MathML, the text and LaTeX files in copy boxes. e is NULL when equations.json is missing. */
+int report_section_equations(Report *r, const PageEquations *e);
+
 /* The sections on recordings (recordings.c); each returns 0 or the status of a malformed file. */
 int report_section_trajectories(Report *r);
 int report_section_forecast(Report *r);
-/* The ensemble by bagging (ensemble.c). */
-int report_section_ensemble(Report *r);
+/* The ensemble by bagging (ensemble.c); e is NULL when equations.json is missing. */
+int report_section_ensemble(Report *r, const PageEquations *e);
 void report_section_reconstructions(Report *r);
 
 #endif

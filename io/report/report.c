@@ -31,6 +31,11 @@ static const char *const style_sheet =
     "td.off{color:#bbb}.settings{display:flex;flex-wrap:wrap;gap:1em;align-items:flex-start}\n"
     ".settings table{margin:0}.settings caption{font-weight:bold;text-align:left}\n"
     "pre{background:#f5f5f5;padding:.6em .8em;overflow-x:auto;font-size:.95em}\n"
+    ".math{overflow-x:auto;margin:.5em 0}.math math{font-size:1.2em}.math mtd{padding:.3em .2em}\n"
+    ".math mtd:first-child{text-align:right}.math mtd:last-child{text-align:left}\n"
+    "details.copy{margin:.3em 0}details.copy summary{cursor:pointer;color:#1864ab}\n"
+    "details.copy textarea{display:block;width:100%;box-sizing:border-box;font-family:monospace;font-size:.9em;"
+    "margin-top:.3em}\n"
     "figure{margin:.6em 0}svg{max-width:100%;height:auto}figcaption{font-size:.9em;color:#444}\n"
     "img.strip{image-rendering:pixelated;border:1px solid #ccc;background:#808080}\n"
     ".strips{display:flex;flex-wrap:wrap;gap:0 1.5em;align-items:flex-start}\n"
@@ -79,56 +84,21 @@ static void section_summary(Report *r, const RunLog *L) {
     fputs(".</p>\n", r->f);
 }
 
-static void section_equations(Report *r) {
-    fputs("<h2 id=\"equations\">Equations</h2>\n", r->f);
-    static const char *const files[2] = {"equations.txt", "equations.tex"};
-    static const char *const what[2] = {"As text", "As LaTeX"};
-    for (int i = 0; i < 2; i++) {
-        char path[PATH_LEN];
-        page_path(path, r, files[i]);
-        char *s;
-        Status missing;
-        if (fs_read_file(path, MAX_TEXT_BYTES, &s, NULL, &missing)) {
-            page_note(r, "%s: not written yet (training writes it at the end).", files[i]);
-            continue;
-        }
-        fprintf(r->f, "<h3>%s (%s)</h3>\n<pre class=\"eq\">", what[i], files[i]);
-        page_text(r, s);
-        fputs("</pre>\n", r->f);
-        free(s);
-    }
-}
-
-static int section_coefficients(Report *r) {
+static void section_coefficients(Report *r, const PageEquations *e) {
     fputs("<h2 id=\"coefficients\">Coefficients</h2>\n", r->f);
-    char path[PATH_LEN];
-    page_path(path, r, "equations.json");
-    if (!fs_exists(path)) {
+    if (!e) {
         page_note(r, "equations.json: not written yet, so no coefficient table.");
-        return 0;
+        return;
     }
-    cJSON *root;
-    if (page_json_read(path, &root, r->st) || page_check_version(root, path, EQ_JSON_FORMAT, EQ_JSON_VERSION, r->st)) {
-        cJSON_Delete(root);
-        return r->st->code;
-    }
-    char *txt = cJSON_PrintUnformatted(root);
-    Library lib;
-    Coef co;
-    Status es;
-    int bad = !txt || equation_from_json(txt, &lib, &co, &es);
-    free(txt);
-    if (bad) {
-        cJSON_Delete(root);
-        return status_set(r->st, ST_INPUT, "%s: %s", path, txt ? es.msg : "out of memory");
-    }
-    int k = co.n_out, nt = co.n_terms, shown = 0;
-    const cJSON *eqs = cJSON_GetObjectItemCaseSensitive(root, "equations");
+    const Library *lib = &e->lib;
+    const Coef *co = &e->co;
+    int k = co->n_out, nt = co->n_terms, shown = 0;
+    const cJSON *eqs = cJSON_GetObjectItemCaseSensitive(e->root, "equations");
     fputs("<table class=\"coef\"><tr><th>term</th>", r->f);
     for (int j = 0; j < k; j++) {
         const char *lhs = page_json_str(cJSON_GetArrayItem(eqs, j), "lhs");
         char b[64];
-        if (!lhs) snprintf(b, sizeof b, lib.spec.order == 2 ? "d2z%d/dt2" : "dz%d/dt", j + 1), lhs = b;
+        if (!lhs) snprintf(b, sizeof b, lib->spec.order == 2 ? "d2z%d/dt2" : "dz%d/dt", j + 1), lhs = b;
         fputs("<th>", r->f);
         page_text(r, lhs);
         fputs("</th>", r->f);
@@ -136,15 +106,15 @@ static int section_coefficients(Report *r) {
     fputs("</tr>\n", r->f);
     for (int t = 0; t < nt; t++) {
         int any = 0;
-        for (int j = 0; j < k; j++) any |= co.mask[(long)t * k + j] && co.xi[(long)t * k + j] != 0;
+        for (int j = 0; j < k; j++) any |= co->mask[(long)t * k + j] && co->xi[(long)t * k + j] != 0;
         if (!any) continue;
         shown++;
         fputs("<tr><td>", r->f);
-        page_text(r, lib.names[t]);
+        page_text(r, lib->names[t]);
         fputs("</td>", r->f);
         for (int j = 0; j < k; j++) {
-            double v = co.xi[(long)t * k + j];
-            if (co.mask[(long)t * k + j] && v != 0) fprintf(r->f, "<td class=\"n\">%.6g</td>", v);
+            double v = co->xi[(long)t * k + j];
+            if (co->mask[(long)t * k + j] && v != 0) fprintf(r->f, "<td class=\"n\">%.6g</td>", v);
             else fputs("<td class=\"n off\">0</td>", r->f);
         }
         fputs("</tr>\n", r->f);
@@ -152,17 +122,15 @@ static int section_coefficients(Report *r) {
     fputs("<tr><th>active terms</th>", r->f);
     for (int j = 0; j < k; j++) {
         int a = 0;
-        for (int t = 0; t < nt; t++) a += co.mask[(long)t * k + j] && co.xi[(long)t * k + j] != 0;
+        for (int t = 0; t < nt; t++) a += co->mask[(long)t * k + j] && co->xi[(long)t * k + j] != 0;
         fprintf(r->f, "<th class=\"n\">%d</th>", a);
     }
     fputs("</tr></table>\n", r->f);
     fprintf(r->f, "<p>%d of the library's %d candidate terms appear in some equation; the others were pruned "
-                  "from every equation and are not listed. Latent variables z1..z%d are in the units the "
-                  "encoder chose; time in seconds.</p>\n", shown, nt, k);
-    library_free(&lib);
-    coef_free(&co);
-    cJSON_Delete(root);
-    return 0;
+                  "from every equation and are not listed. ", shown, nt);
+    if (k == 1) fputs("The latent variable z1 is", r->f);
+    else fprintf(r->f, "Latent variables z1..z%d are", k);
+    fputs(" in the units the encoder chose; time in seconds.</p>\n", r->f);
 }
 
 static void section_training(Report *r, const RunLog *L) {
@@ -207,7 +175,9 @@ static void section_training(Report *r, const RunLog *L) {
     s[ns++] = (PlotSeries){"loss (weighted total)", ep, d + LOSS, n, NC, plot_color(0), DASH_SOLID};
     if (L->have & RUNLOG_HAVE_RECONSTRUCTION)
         s[ns++] = (PlotSeries){"reconstruction term", ep, d + REC, n, NC, plot_color(1), DASH_SOLID};
-    if (L->have & RUNLOG_HAVE_DX) s[ns++] = (PlotSeries){dname, ep, d + DX, n, NC, plot_color(2), DASH_SOLID};
+    /* with derivatives in latent space the decoder's derivative term is not used (logged as 0) */
+    int dx_used = strcmp(r->cfg->derivatives, "latent") != 0;
+    if ((L->have & RUNLOG_HAVE_DX) && dx_used) s[ns++] = (PlotSeries){dname, ep, d + DX, n, NC, plot_color(2), DASH_SOLID};
     if (L->have & RUNLOG_HAVE_DZ) s[ns++] = (PlotSeries){zname, ep, d + DZ, n, NC, plot_color(4), DASH_SOLID};
     if (nv) s[ns++] = (PlotSeries){"validation loss (no L1)", ve, vv, nv, 1, plot_color(3), DASH_DASHED};
     Plot p = {.title = "Loss over epochs (log scale)", .xlabel = "epoch", .ylabel = "loss (no unit)",
@@ -215,7 +185,11 @@ static void section_training(Report *r, const RunLog *L) {
     page_plot(r, &p);
     fputs("<p>The loss terms are means over the batch and the components, before weighting (docs/training.md); "
           "the total is weighted and includes the L1 term. A thresholding pass that removed no coefficient "
-          "leaves no mark.</p>\n", r->f);
+          "leaves no mark.", r->f);
+    if (!dx_used)
+        fprintf(r->f, " The %s term is not shown: with model.derivatives latent the frames' derivatives are not "
+                      "used.", r->order == 2 ? "x''" : "x'");
+    fputs("</p>\n", r->f);
     PlotSeries a = {"active coefficients", ep, d + ACT, n, NC, plot_color(0), DASH_SOLID};
     Plot q = {.title = "Active coefficients over epochs", .xlabel = "epoch", .ylabel = "active coefficients (count)",
               .y_zero = 1, .height = 260, .series = &a, .n_series = 1, .vlines = marks, .n_vlines = 3};
@@ -346,9 +320,15 @@ static int write_page(Report *r, const RunLog *L) {
           "<a href=\"#reconstructions\">Reconstructions</a><a href=\"#settings\">Settings</a>"
           "<a href=\"#provenance\">Provenance</a></nav>\n", f);
     section_summary(r, L);
-    section_equations(r);
-    if (section_coefficients(r)) return r->st->code;
-    if (report_section_ensemble(r)) return r->st->code;
+    PageEquations eq;
+    int have = page_equations_read(r, &eq);
+    if (have > 0) return have;
+    const PageEquations *e = have ? NULL : &eq;
+    int rc = report_section_equations(r, e);
+    if (!rc) section_coefficients(r, e);
+    if (!rc) rc = report_section_ensemble(r, e);
+    page_equations_free(&eq);
+    if (rc) return rc;
     section_training(r, L);
     if (report_section_trajectories(r)) return r->st->code;
     if (report_section_forecast(r)) return r->st->code;

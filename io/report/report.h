@@ -5,7 +5,8 @@
  * network. It reads the run folder's files (docs/formats.md):
  *
  *   config.json, log.csv                      required: the run's settings and training history
- *   equations.txt / .tex / .json              the equations and the coefficient table
+ *   equations.json / .txt / .tex              the laws as MathML (sparse/mathml.h), their sources in
+ *                                             copy boxes, the coefficient table, the ensemble
  *   trajectories/<rec>.csv, region.json       latent trajectories and the training region
  *   forecast.json, forecast/<rec>.csv         forecast errors, encoded against integrated latents
  *   reconstructions/<rec>.png                 reconstruction strips

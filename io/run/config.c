@@ -120,6 +120,10 @@ static const KeyDef keys[] = {
           "pixel scaling: unit = [0, 1]; standardize = zero mean, unit variance per pixel"),
     K_INT("data.stride", stride, "1", 1, NOMAX, NULL, "keep every n-th frame"),
     K_INT("data.store_bits", store_bits, "8", 8, 16, "8|16", "bits per pixel in the frame store"),
+    K_PATH("data.store", store, "`\"\"`",
+           "frame store file (a cache of the preprocessed frames); relative to the config file's folder; \"\" = "
+           "DIR/.framelaw-store beside the frames, or in $XDG_CACHE_HOME/framelaw (~/.cache/framelaw) when their "
+           "folder is not writable (docs/frames.md)"),
     K_STR("data.derivative.method", derivative, "\"auto\"", "central|savgol|auto",
           "how x' and x'' (or z', z'') are formed from neighbouring frames: central differences, Savitzky-Golay "
           "(window, degree), or auto: the Savitzky-Golay stencil of least noise whose response stays within 2% "
@@ -271,7 +275,7 @@ const char *const config_resume_safe_keys[] = {
     "train.epochs", "train.threads", "train.validate_every", "checkpoint.every", "checkpoint.keep",
     "output", "forecast.bound", "forecast.method", "forecast.tolerance", "ensemble.members", "ensemble.block",
     "ensemble.block_seconds", "ensemble.library_bagging", "ensemble.drop_fraction", "ensemble.inclusion",
-    "ensemble.band_members", "canonical.tolerance", "canonical.cond_max", "train.memory_budget", NULL,
+    "ensemble.band_members", "canonical.tolerance", "canonical.cond_max", "train.memory_budget", "data.store", NULL,
 };
 
 void config_safe_keys_text(char *buf, size_t n) {
@@ -382,7 +386,7 @@ static void key_rule(char *b, size_t n, const KeyDef *k) {
 
 typedef struct {
     const char *origin;     /* prefix of messages, or NULL */
-    const char *base_dir;   /* for a relative data.frames, or NULL */
+    const char *base_dir;   /* for a relative data.frames or data.store, or NULL */
 } Ctx;
 
 static int key_error(Status *st, const Ctx *x, const char *path, const char *fmt, ...)
@@ -607,7 +611,8 @@ static int apply_value(Config *c, const KeyDef *k, const cJSON *v, const char *p
         if (k->choices && !in_choices(s, k->choices)) return rule_error(st, x, path, k);
         char buf[CFG_PATH_MAX];
         int n;
-        if (k->type == T_PATH && !strcmp(k->path, "data.frames") && s[0] && s[0] != '/' && x->base_dir &&
+        if (k->type == T_PATH && (!strcmp(k->path, "data.frames") || !strcmp(k->path, "data.store")) && s[0] &&
+            s[0] != '/' && x->base_dir &&
             x->base_dir[0] && strcmp(x->base_dir, "."))
             n = snprintf(buf, sizeof buf, "%s%s%s", x->base_dir,
                          x->base_dir[strlen(x->base_dir) - 1] == '/' ? "" : "/", s);
@@ -758,7 +763,7 @@ static const struct {
     const char *path, *compat;
 } late_keys[] = {{"model.derivatives", "\"frames\""},       {"model.init_epochs", "200"},
                  {"model.init_frames", "2000"},            {"threshold.measure", "\"coefficient\""},
-                 {"threshold.select", "\"none\""}};
+                 {"threshold.select", "\"none\""},       {"data.store", "\"\""}};
 
 static const char *late_compat(const char *path) {
     for (size_t i = 0; i < sizeof late_keys / sizeof late_keys[0]; i++)

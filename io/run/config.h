@@ -30,6 +30,8 @@ typedef struct {
     char scale[16];                 /* data.scale: "unit" ([0,1]) | "standardize" (per pixel)     [unit] */
     int stride;                     /* data.stride: keep every n-th frame                              [1] */
     int store_bits;                 /* data.store_bits: 8 | 16                                         [8] */
+    char store[CFG_PATH_MAX];       /* data.store: frame store file; "": beside the frames, or the cache when
+                                       their folder is read-only (docs/frames.md)                  [""] */
     char derivative[16];            /* data.derivative.method: "central" | "savgol" | "auto"      [auto] */
     int sg_window, sg_degree;       /* data.derivative.window [7], .degree [3]                          */
     int n_val_names;                /* data.validation.recordings: names of held-out recordings        */

@@ -352,9 +352,11 @@ int results_export(LoadedRun *r, int quiet, Status *st) {
     }
     Region reg;
     if (results_region(r, &reg, st) || region_write(r, &reg, st)) return st->code;
-    if (!quiet)
-        fprintf(stderr, "framelaw: exported %d recordings to %s (equations, trajectories%s, region.json)\n",
-                r->data.store.n_rec, r->dir, images ? ", reconstructions" : "");
+    if (!quiet) { /* a result, on stdout like forecast's (progress and notes go to stderr) */
+        printf("exported %d recordings to %s (equations, trajectories%s, region.json)\n", r->data.store.n_rec, r->dir,
+               images ? ", reconstructions" : "");
+        fflush(stdout);
+    }
     return 0;
 }
 
@@ -363,6 +365,8 @@ int results_export(LoadedRun *r, int quiet, Status *st) {
 typedef struct {
     double mean_err, final_err, max_err, exceeds_at, latent_mean, latent_exceeds_at, extrap_from;
     double floor_err;                   /* mean relative error of the decoded encodings: the frames' floor */
+    double hold_mean;                   /* the latent error of holding the first state (persistence) */
+    int beats_hold;                     /* the law's mean latent error is below it, over every frame */
     long frames;
     double duration;
     char stopped[512];
@@ -504,6 +508,18 @@ static int forecast_recording(LoadedRun *r, int rec, const Region *reg, FcResult
     }
     fr->mean_err = cnt ? sum / cnt : NAN;
     fr->latent_mean = cnt ? lsum / cnt : NAN;
+    /* the trivial law z' = 0: the first encoded state held (the persistence forecast) */
+    double hsum = 0;
+    for (long i = 0; i < n_out; i++) {
+        double num = 0;
+        for (int j = 0; j < d; j++) {
+            double e = (double)ze[i * d + j] - ze[j];
+            num += e * e;
+        }
+        hsum += sqrt(num) / (zrms > 0 ? zrms : 1);
+    }
+    fr->hold_mean = hsum / (double)n_out;
+    fr->beats_hold = good == n_out && fr->latent_mean < fr->hold_mean;
     fr->final_err = good == n_out ? err[n_out - 1] : NAN;
     /* forecast/<rec>.csv */
     char stem[300], path[CFG_PATH_MAX + 400];
@@ -577,6 +593,8 @@ int results_forecast(LoadedRun *r, int quiet, Status *st) {
         cJSON_AddItemToObject(o, "reconstruction_floor", num_or_null(fr.floor_err));
         cJSON_AddItemToObject(o, "latent_mean_error", num_or_null(fr.latent_mean));
         cJSON_AddItemToObject(o, "latent_exceeds_bound_at", num_or_null(fr.latent_exceeds_at));
+        cJSON_AddItemToObject(o, "persistence_latent_mean_error", num_or_null(fr.hold_mean));
+        cJSON_AddBoolToObject(o, "beats_persistence", fr.beats_hold);
         cJSON_AddItemToObject(o, "extrapolating_from", num_or_null(fr.extrap_from));
         cJSON_AddItemToObject(o, "stopped", fr.stopped[0] ? cJSON_CreateString(fr.stopped) : cJSON_CreateNull());
         cJSON *band = cJSON_AddObjectToObject(o, "band");
@@ -592,6 +610,12 @@ int results_forecast(LoadedRun *r, int quiet, Status *st) {
                 printf("within %.0f%% for %.3f s of %.2f s", 100 * r->cfg.fc_bound, fr.latent_exceeds_at, fr.duration);
             else printf("within %.0f%% throughout %.2f s", 100 * r->cfg.fc_bound, fr.duration);
             printf(" (mean %.1f%%)\n", 100 * fr.latent_mean);
+            if (fr.beats_hold)
+                printf("  holding the first state instead: mean %.1f%%\n", 100 * fr.hold_mean);
+            else
+                printf("  warning: the law forecasts no better than holding the first state (mean %.1f%%): it does "
+                       "not explain the motion; try a lower threshold.value, more epochs before the first threshold "
+                       "pass, or model.init isomap\n", 100 * fr.hold_mean);
             printf("  frames: mean error %.1f%%, where decoding the encoded frames alone gives %.1f%%\n",
                    100 * fr.mean_err, 100 * fr.floor_err);
             if (isfinite(fr.extrap_from))

@@ -42,11 +42,13 @@ int results_region(LoadedRun *r, Region *reg, Status *st);
  * yet there; a sparser canonical law opens the text files, the learned law follows it). */
 int results_write_equations(LoadedRun *r, int quiet, Status *st);
 
-/* Write equations, trajectories/, reconstructions/ (image data only) and region.json. */
+/* Write equations, trajectories/, reconstructions/ (image data only) and region.json. Unless quiet, a
+ * summary line on stdout, the stream of results (forecast's lines too); notes go to stderr. */
 int results_export(LoadedRun *r, int quiet, Status *st);
 
 /* Forecast every held-out recording, with the ensemble's bands; writes forecast.json and forecast/.
- * With no held-out recording, writes a forecast.json with an empty list and says so. */
+ * With no held-out recording, writes a forecast.json with an empty list and says so. Unless quiet,
+ * the summary of each recording on stdout. */
 int results_forecast(LoadedRun *r, int quiet, Status *st);
 
 #endif

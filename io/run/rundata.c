@@ -59,6 +59,8 @@ int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st) {
         k += (size_t)n;
     }
     s->val_last = c->val_last;
+    _Static_assert(sizeof s->store_path >= sizeof c->store, "data.store does not fit the frame settings");
+    memcpy(s->store_path, c->store, sizeof c->store);
     return frame_settings_check(s, st);
 }
 
@@ -69,8 +71,8 @@ int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st) {
 #define AUTO_STENCIL_TOL 0.02      /* responses within 2% of exact at that frequency */
 #define AUTO_STENCIL_MAX 13        /* frames per window at most (latent mode encodes each one) */
 
-static int auto_stencil(const Dataset *ds, const FrameStore *fs, int order, FrameSettings *s, double *theta_out,
-                        Status *st) {
+int rundata_auto_stencil(const Dataset *ds, const FrameStore *fs, int order, FrameSettings *s, double *theta_out,
+                         Status *st) {
     long n = ds->n, N = 0;
     int nr = 0;
     for (int r = 0; r < fs->n_rec; r++)
@@ -151,13 +153,12 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     if (d->scan.kind == REC_IMAGES && !config_given(c, "data.fps"))
         return status_set(st, ST_INPUT, "data.fps: required for image frames (%s): give the camera's frame rate, "
                                         "e.g. \"data\": {\"fps\": 60}", c->frames);
-    StoreOpenInfo info;
-    if (store_open_for(&d->scan, &s, 0, &d->store, &info, st)) return st->code;
+    if (store_open_for(&d->scan, &s, 0, &d->store, &d->store_info, st)) return st->code;
     d->have_store = 1;
     if (dataset_init(&d->ds, &d->store, &s, st)) return st->code;
     d->have_ds = 1;
     if (!strcmp(c->derivative, "auto")) { /* the stencil from the data, then the samples again */
-        if (auto_stencil(&d->ds, &d->store, c->order, &s, &d->auto_theta, st)) return st->code;
+        if (rundata_auto_stencil(&d->ds, &d->store, c->order, &s, &d->auto_theta, st)) return st->code;
         dataset_free(&d->ds);
         d->have_ds = 0;
         if (dataset_init(&d->ds, &d->store, &s, st)) return st->code;

@@ -19,6 +19,7 @@ typedef struct {
     int *idx;           /* (batch) work for the gather */
     int batch;
     int have_scan, have_store, have_ds;
+    StoreOpenInfo store_info;       /* where the store is; its note when the frames' folder is read-only */
     int auto_window, auto_degree;   /* data.derivative.method auto: the stencil chosen (0: not auto) */
     double auto_theta;              /* and the frames' rms frequency it was chosen for (rad / sample) */
 } RunData;
@@ -26,6 +27,13 @@ typedef struct {
 /* The data.* keys of a resolved run config as frame settings. ST_INPUT naming the
  * key when a name is unknown. */
 int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st);
+
+/* data.derivative.method auto: the Savitzky-Golay stencil for frames that move as the training
+ * recordings of ds do (the rms frequency of their leading principal component scores) and a model of
+ * that order, written into s (stencil, sg_window, sg_degree); *theta the frequency (rad per frame).
+ * The caller makes the dataset again with s. ST_INPUT when a recording is too short for it. */
+int rundata_auto_stencil(const Dataset *ds, const FrameStore *fs, int order, FrameSettings *s, double *theta,
+                         Status *st);
 
 /* Scan data.frames, open (or build) the frame store, split. ST_INPUT naming the fault. */
 int rundata_open(RunData *d, const Config *c, Status *st);

@@ -10,6 +10,7 @@
 
 #include "io/fs/clock.h"
 #include "io/fs/files.h"
+#include "io/fs/term.h"
 #include "io/run/checkpoint.h"
 #include "io/run/runlog.h"
 #include "nn/adam.h"
@@ -245,26 +246,68 @@ static void fmt_duration(double s, char *buf, size_t n) {
 
 /* ---- validation ------------------------------------------------------------------------------ */
 
+/* ---- passes over a split --------------------------------------------------------------------- */
+
+void batches_begin(TrainBatches *it, const TrainData *ds, int split, long N, long span, int Bmax) {
+    memset(it, 0, sizeof *it);
+    it->ds = ds, it->split = split, it->N = N, it->span = span < N ? N : span, it->Bmax = Bmax;
+    it->idx = nn_alloc((size_t)(Bmax > 0 ? Bmax : 1) * sizeof *it->idx);
+}
+
+int batches_next(TrainBatches *it, float *X, Status *st) {
+    if (it->next >= it->N) return 0;
+    it->s0 = it->next;
+    it->B = (int)(it->N - it->s0 < it->Bmax ? it->N - it->s0 : it->Bmax);
+    for (int i = 0; i < it->B; i++) it->idx[i] = (int64_t)((it->s0 + i) * it->span / it->N);
+    it->next += it->B;
+    int rc = it->ds->gather(it->ds->ctx, it->split, it->idx, it->B, X, st);
+    return rc ? -rc : 1;
+}
+
+void batches_end(TrainBatches *it) {
+    nn_free(it->idx);
+    it->idx = NULL;
+}
+
+int train_encode_set(const TrainData *ds, const Model *m, ParamSet *ps, Tape *t, float *X, int Bmax, double *state,
+                     double *target, Status *st) {
+    int d = m->n_latent, k = m->order + 1, nv = m->lib.n_vars;
+    float *z = nn_alloc((size_t)k * Bmax * d * sizeof *z); /* (k B, d) */
+    TrainBatches it;
+    int rc;
+    batches_begin(&it, ds, 0, ds->n_train, ds->n_train, Bmax);
+    while ((rc = batches_next(&it, X, st)) > 0) {
+        tape_reset(t);
+        model_encode(t, m, ps, X, it.B, k, z);
+        for (int b = 0; b < it.B; b++) {
+            long s = it.s0 + b;
+            for (int j = 0; j < nv; j++) state[s * nv + j] = z[((long)(j / d) * it.B + b) * d + j % d];
+            for (int j = 0; j < d; j++) target[s * d + j] = z[((long)(k - 1) * it.B + b) * d + j];
+        }
+    }
+    batches_end(&it);
+    nn_free(z);
+    return rc < 0 ? -rc : 0;
+}
+
 static int validate(Run *r, Tape *t, float *X, int Bmax, double *out, Status *st) {
     const TrainData *ds = r->ds;
     r->m->dz_relative = r->cfg->loss_normalize;
     LossWeights w = {(float)(r->cfg->w_rec * r->rec_norm), (float)(r->cfg->w_dx * r->dx_norm), (float)r->cfg->w_dz,
                      0.0f};
     double sum = 0;
-    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
-    if (!idx) return status_set(st, ST_RUNTIME, "out of memory");
-    for (long s = 0; s < ds->n_val; s += Bmax) {
-        int B = (int)(ds->n_val - s < Bmax ? ds->n_val - s : Bmax);
-        for (int i = 0; i < B; i++) idx[i] = s + i;
-        if (ds->gather(ds->ctx, 1, idx, B, X, st)) { free(idx); return st->code; }
+    TrainBatches it;
+    int rc;
+    batches_begin(&it, ds, 1, ds->n_val, ds->n_val, Bmax);
+    while ((rc = batches_next(&it, X, st)) > 0) {
         tape_reset(t);
         LossParts p;
-        model_loss(t, r->m, r->ps, X, B, &w, &p);
-        sum += p.total * B;
+        model_loss(t, r->m, r->ps, X, it.B, &w, &p);
+        sum += p.total * it.B;
     }
-    free(idx);
+    batches_end(&it);
     *out = ds->n_val ? sum / (double)ds->n_val : NAN;
-    return 0;
+    return rc < 0 ? -rc : 0;
 }
 
 /* ---- the data's scale, for loss.normalize ----------------------------------------------------- */
@@ -277,17 +320,12 @@ static int data_scales(Run *r, const TrainData *ds, int Bmax, float *X, Status *
     if (!r->cfg->loss_normalize) return 0;
     long n = ds->n_in, total = ds->n_train;
     int k = ds->k;
-    double *sum = calloc((size_t)n, sizeof *sum), *sq = calloc((size_t)n, sizeof *sq), dms = 0;
-    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
-    if (!sum || !sq || !idx) {
-        free(sum), free(sq), free(idx);
-        return status_set(st, ST_RUNTIME, "out of memory");
-    }
-    int rc = 0;
-    for (long s0 = 0; s0 < total && !rc; s0 += Bmax) {
-        int B = (int)(total - s0 < Bmax ? total - s0 : Bmax);
-        for (int i = 0; i < B; i++) idx[i] = s0 + i;
-        if ((rc = ds->gather(ds->ctx, 0, idx, B, X, st))) break;
+    double *sum = nn_calloc((size_t)n, sizeof *sum), *sq = nn_calloc((size_t)n, sizeof *sq), dms = 0;
+    TrainBatches it;
+    int rc;
+    batches_begin(&it, ds, 0, total, total, Bmax);
+    while ((rc = batches_next(&it, X, st)) > 0) {
+        int B = it.B;
         for (int b = 0; b < B; b++) {
             const float *x = X + (long)b * n, *dd = X + ((long)(k - 1) * B + b) * n;
             for (long p = 0; p < n; p++) {
@@ -297,6 +335,8 @@ static int data_scales(Run *r, const TrainData *ds, int Bmax, float *X, Status *
             }
         }
     }
+    batches_end(&it);
+    rc = rc < 0 ? -rc : 0;
     if (!rc) {
         double var = 0;
         for (long p = 0; p < n; p++) {
@@ -309,7 +349,7 @@ static int data_scales(Run *r, const TrainData *ds, int Bmax, float *X, Status *
         /* with derivatives in latent space the blocks are frames and loss.dx is not used */
         r->dx_norm = ds->sten || !(dms > 1e-20) ? 1.0 : 1.0 / dms;
     }
-    free(sum), free(sq), free(idx);
+    nn_free(sum), nn_free(sq);
     return rc;
 }
 
@@ -318,50 +358,33 @@ static int data_scales(Run *r, const TrainData *ds, int Bmax, float *X, Status *
 static int threshold_contribution(Run *r, const TrainData *ds, Tape *t, float *X, int Bmax, Status *st) {
     Model *m = r->m;
     int T = m->lib.n_terms, d = m->n_latent;
-    double *theta2 = calloc((size_t)T + d, sizeof *theta2), *scale = malloc((size_t)T * d * sizeof *scale);
-    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
-    int rc = 0;
-    if (!theta2 || !scale || !idx) rc = status_set(st, ST_RUNTIME, "out of memory");
-    for (long s0 = 0; !rc && s0 < ds->n_train; s0 += Bmax) {
-        int B = (int)(ds->n_train - s0 < Bmax ? ds->n_train - s0 : Bmax);
-        for (int i = 0; i < B; i++) idx[i] = s0 + i;
-        if ((rc = ds->gather(ds->ctx, 0, idx, B, X, st))) break;
-        model_accumulate_scales(t, m, r->ps, X, B, theta2, theta2 + T);
-    }
+    double *theta2 = nn_calloc((size_t)T + d, sizeof *theta2), *scale = nn_alloc((size_t)T * d * sizeof *scale);
+    TrainBatches it;
+    int rc;
+    batches_begin(&it, ds, 0, ds->n_train, ds->n_train, Bmax);
+    while ((rc = batches_next(&it, X, st)) > 0) model_accumulate_scales(t, m, r->ps, X, it.B, theta2, theta2 + T);
+    batches_end(&it);
     if (!rc) {
         model_term_scales(m, theta2, theta2 + T, scale);
         model_threshold_scaled(m, r->ps, scale, r->cfg->threshold);
     }
-    free(theta2), free(scale), free(idx);
-    return rc;
+    nn_free(theta2), nn_free(scale);
+    return rc < 0 ? -rc : 0;
 }
 
 /* ---- threshold.select: the first pass selects the law by forecasts ------------------------------ */
 
 static int select_pass(Run *r, const TrainData *ds, Tape *t, float *X, int Bmax, int quiet, Status *st) {
     Model *m = r->m;
-    int d = m->n_latent, k = m->order + 1, nv = m->lib.n_vars, T = m->lib.n_terms;
+    int d = m->n_latent, nv = m->lib.n_vars, T = m->lib.n_terms;
     long N = ds->n_train;
     if (!ds->sample_frame) return status_set(st, ST_RUNTIME, "threshold.select: the data gives no sample times");
-    double *state = malloc((size_t)N * nv * sizeof *state), *target = malloc((size_t)N * d * sizeof *target);
-    long *rs = malloc((size_t)(N + 1) * sizeof *rs);
-    float *z = malloc((size_t)k * Bmax * d * sizeof *z);
-    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
-    double *xi = malloc((size_t)T * d * sizeof *xi);
-    uint8_t *mask = malloc((size_t)T * d);
+    double *state = nn_alloc((size_t)N * nv * sizeof *state), *target = nn_alloc((size_t)N * d * sizeof *target);
+    long *rs = nn_alloc((size_t)(N + 1) * sizeof *rs);
+    double *xi = nn_alloc((size_t)T * d * sizeof *xi);
+    uint8_t *mask = nn_alloc((size_t)T * d);
     int rc = 0, nr = 0;
-    if (!state || !target || !rs || !z || !idx || !xi || !mask) { rc = status_set(st, ST_RUNTIME, "out of memory"); goto done; }
-    for (long s0 = 0; s0 < N; s0 += Bmax) {
-        int B = (int)(N - s0 < Bmax ? N - s0 : Bmax);
-        for (int i = 0; i < B; i++) idx[i] = s0 + i;
-        if ((rc = ds->gather(ds->ctx, 0, idx, B, X, st))) goto done;
-        tape_reset(t);
-        model_encode(t, m, r->ps, X, B, k, z);
-        for (int b = 0; b < B; b++) {
-            for (int j = 0; j < nv; j++) state[(s0 + b) * nv + j] = z[((long)(j / d) * B + b) * d + j % d];
-            for (int j = 0; j < d; j++) target[(s0 + b) * d + j] = z[((long)(k - 1) * B + b) * d + j];
-        }
-    }
+    if ((rc = train_encode_set(ds, m, r->ps, t, X, Bmax, state, target, st))) goto done;
     for (long i = 0; i < N; i++)
         if (i == 0 || ds->sample_frame[i] != ds->sample_frame[i - 1] + 1) rs[nr++] = i;
     rs[nr] = N;
@@ -386,7 +409,7 @@ static int select_pass(Run *r, const TrainData *ds, Tape *t, float *X, int Bmax,
     }
     select_path_free(&path);
 done:
-    free(state), free(target), free(rs), free(z), free(idx), free(xi), free(mask);
+    nn_free(state), nn_free(target), nn_free(rs), nn_free(xi), nn_free(mask);
     return rc;
 }
 
@@ -398,31 +421,15 @@ done:
  * latents) leaves Xi as it was and says so. */
 static int warmup_fit(Run *r, const TrainData *ds, Tape *t, float *X, int Bmax, int quiet, Status *st) {
     Model *m = r->m;
-    int d = m->n_latent, k = m->order + 1, nv = m->lib.n_vars, T = m->lib.n_terms;
+    int d = m->n_latent, nv = m->lib.n_vars, T = m->lib.n_terms;
     long N = ds->n_train;
-    double *theta = malloc((size_t)N * T * sizeof *theta), *target = malloc((size_t)N * d * sizeof *target);
-    double *xi = malloc((size_t)T * d * sizeof *xi);
-    uint8_t *mask = malloc((size_t)T * d);
-    float *z = malloc((size_t)k * Bmax * d * sizeof *z);
-    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
-    int rc = 0;
-    if (!theta || !target || !xi || !mask || !z || !idx) {
-        rc = status_set(st, ST_RUNTIME, "out of memory");
-        goto done;
-    }
-    for (long s0 = 0; s0 < N; s0 += Bmax) {
-        int B = (int)(N - s0 < Bmax ? N - s0 : Bmax);
-        for (int i = 0; i < B; i++) idx[i] = s0 + i;
-        if ((rc = ds->gather(ds->ctx, 0, idx, B, X, st))) goto done;
-        tape_reset(t);
-        model_encode(t, m, r->ps, X, B, k, z);
-        for (int b = 0; b < B; b++) {
-            double sv[LIB_MAX_VARS];
-            for (int j = 0; j < nv; j++) sv[j] = z[((long)(j / d) * B + b) * d + j % d];
-            library_eval(&m->lib, theta + (s0 + b) * T, sv, 1);
-            for (int j = 0; j < d; j++) target[(s0 + b) * d + j] = z[((long)(k - 1) * B + b) * d + j];
-        }
-    }
+    double *theta = nn_alloc((size_t)N * T * sizeof *theta), *target = nn_alloc((size_t)N * d * sizeof *target);
+    double *state = nn_alloc((size_t)N * nv * sizeof *state);
+    double *xi = nn_alloc((size_t)T * d * sizeof *xi);
+    uint8_t *mask = nn_alloc((size_t)T * d);
+    int rc = train_encode_set(ds, m, r->ps, t, X, Bmax, state, target, st);
+    if (rc) goto done;
+    library_eval(&m->lib, theta, state, N);
     ThreshLsqOptions opt = thresh_lsq_defaults();
     opt.threshold = r->cfg->threshold;
     Status s2;
@@ -433,7 +440,7 @@ static int warmup_fit(Run *r, const TrainData *ds, Tape *t, float *X, int Bmax, 
     float *w = params_val(r->ps, m->xi).d;
     for (long i = 0; i < (long)T * d; i++) w[i] = m->mask[i] ? (float)xi[i] : 0.0f;
 done:
-    free(theta), free(target), free(xi), free(mask), free(z), free(idx);
+    nn_free(theta), nn_free(target), nn_free(state), nn_free(xi), nn_free(mask);
     return rc;
 }
 
@@ -449,22 +456,15 @@ static int pca_init(Run *r, const TrainData *ds, float *X, int Bmax, Status *st)
     if (h > n) h = n;
     Pca p;
     pca_begin(&p, n);
-    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
-    if (!idx) {
+    TrainBatches it;
+    int got;
+    batches_begin(&it, ds, 0, ds->n_train, ds->n_train, Bmax);
+    while ((got = batches_next(&it, X, st)) > 0) pca_add(&p, X, it.B); /* the primal rows only */
+    batches_end(&it);
+    if (got < 0) {
         pca_free(&p);
-        return status_set(st, ST_RUNTIME, "out of memory");
+        return -got;
     }
-    for (long s0 = 0; s0 < ds->n_train; s0 += Bmax) {
-        int B = (int)(ds->n_train - s0 < Bmax ? ds->n_train - s0 : Bmax);
-        for (int i = 0; i < B; i++) idx[i] = s0 + i;
-        if (ds->gather(ds->ctx, 0, idx, B, X, st)) {
-            free(idx);
-            pca_free(&p);
-            return st->code;
-        }
-        pca_add(&p, X, B); /* the primal rows only */
-    }
-    free(idx);
     double *mean = malloc((size_t)n * sizeof *mean), *vecs = malloc((size_t)h * n * sizeof *vecs);
     double *vals = malloc((size_t)h * sizeof *vals);
     int rc = !mean || !vecs || !vals ? status_set(st, ST_RUNTIME, "out of memory") : pca_finish(&p, h, mean, vecs, vals, st);
@@ -509,21 +509,23 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, const Tr
     int d = m->n_latent;
     float *F = malloc((size_t)N * n * sizeof *F), *Yf = malloc((size_t)N * d * sizeof *Yf);
     double *Y = malloc((size_t)N * d * sizeof *Y);
-    int64_t *idx = malloc((size_t)Bmax * sizeof *idx);
     int rc = 0, k_used = 0, bridges = 0;
     double t0 = clock_seconds();
-    if (!F || !Yf || !Y || !idx) {
+    if (!F || !Yf || !Y) {
         rc = status_set(st, ST_RUNTIME, "out of memory");
         goto done;
     }
-    for (long s0 = 0; s0 < N; s0 += Bmax) {
-        int B = (int)(N - s0 < Bmax ? N - s0 : Bmax);
-        for (int i = 0; i < B; i++) idx[i] = (int64_t)((s0 + i) * ds->n_train / N);
-        if ((rc = ds->gather(ds->ctx, 0, idx, B, X, st))) goto done;
-        /* the first block: the samples' frames, or with derivatives in latent space the first frame of
-         * each sample's window (a training frame all the same) */
-        memcpy(F + s0 * n, X, (size_t)B * n * sizeof *F);
+    TrainBatches it;
+    batches_begin(&it, ds, 0, N, ds->n_train, Bmax); /* N frames spread evenly over the training set */
+    /* the first block: the samples' frames, or with derivatives in latent space the first frame of each
+     * sample's window (a training frame all the same) */
+    while ((rc = batches_next(&it, X, st)) > 0) memcpy(F + it.s0 * n, X, (size_t)it.B * n * sizeof *F);
+    batches_end(&it);
+    if (rc < 0) {
+        rc = -rc;
+        goto done;
     }
+    rc = 0;
     if (!quiet) fprintf(stderr, "framelaw: isomap of %ld frames in %d dimension%s...", N, d, d > 1 ? "s" : "");
     if ((rc = isomap_embed(F, N, n, d, 0, Y, &k_used, &bridges, st))) {
         if (!quiet) fprintf(stderr, "\n");
@@ -544,7 +546,9 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, const Tr
     }
     var /= (double)n;
     float wdec = (float)(var > 1e-20 ? 1.0 / var : 1.0);
-    if (!quiet) fprintf(stderr, " %d neighbours, %.1f s; fitting the autoencoder to it...", k_used, clock_seconds() - t0);
+    /* on a terminal the progress line below gets a row of its own */
+    if (!quiet) fprintf(stderr, " %d neighbours, %.1f s; fitting the autoencoder to it...%s", k_used, clock_seconds() - t0,
+                        tty ? "\n" : "");
     Tape t;
     tape_init(&t, 64, (size_t)16 << 20);
     long nb = (N + Bmax - 1) / Bmax;
@@ -558,8 +562,10 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, const Tr
         }
         if (tty && e > 0) {
             double per = (clock_seconds() - t_fit) / (double)e;
-            fprintf(stderr, "\r\033[Kframelaw: fitting the autoencoder to the embedding: epoch %ld/%ld, loss %.3g, ETA %.0f s",
-                    e, r->cfg->init_epochs, last, per * (double)(r->cfg->init_epochs - e));
+            char line[160];
+            snprintf(line, sizeof line, "framelaw: fitting the autoencoder to the embedding: epoch %ld/%ld  ETA %.0f s  loss %.3g",
+                     e, r->cfg->init_epochs, per * (double)(r->cfg->init_epochs - e), last);
+            term_progress(stderr, 1, line);
         }
         double acc = 0;
         for (long b = 0; b < nb; b++) {
@@ -585,7 +591,7 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, const Tr
     ps->step = 0;
     if (!quiet) fprintf(stderr, " loss %.3g, %.1f s\n", last, clock_seconds() - t0);
 done:
-    free(F), free(Yf), free(Y), free(idx);
+    free(F), free(Yf), free(Y);
     return rc;
 }
 
@@ -794,11 +800,13 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
             double el = t_now - t_start, rate = (double)(done - epoch0) / (el > 0 ? el : 1e-9);
             char eta[32];
             fmt_duration((double)(c->epochs - done) / rate, eta, sizeof eta);
-            char vbuf[32] = "";
-            if (validated) snprintf(vbuf, sizeof vbuf, " val %.3e", val);
-            fprintf(stderr, "%sepoch %ld/%ld %s loss %.3e rec %.3e dx %.3e dz %.3e l1 %.3g active %ld%s  %.2f ep/s  ETA %s%s",
-                    tty ? "\r\033[K" : "", done, c->epochs, refine ? "refine" : warm ? "warmup" : "train", mean[0], mean[1], mean[2],
-                    mean[3], mean[4], active, vbuf, rate, eta, tty ? "" : "\n");
+            char vbuf[32] = "", line[256];
+            if (validated) snprintf(vbuf, sizeof vbuf, "  val %.3e", val);
+            /* the fields most wanted first: a terminal narrower than the line cuts it from the end */
+            snprintf(line, sizeof line, "epoch %ld/%ld %s  ETA %s  loss %.3e%s  active %ld  %.2f ep/s  rec %.3e  dx %.3e"
+                     "  dz %.3e  l1 %.3g", done, c->epochs, refine ? "refine" : warm ? "warmup" : "train", eta, mean[0],
+                     vbuf, active, rate, mean[1], mean[2], mean[3], mean[4]);
+            term_progress(stderr, tty, line);
         }
         if (stopping) { res->interrupted = 1; break; }
     }

@@ -33,6 +33,33 @@ typedef struct {
                              * 2m+1 frames around each sample as k = 2m+1 blocks */
 } TrainData;
 
+/* The passes over a whole split (the data's scales, the start-ups, the thresholding and selection
+ * passes, the encoded training set) take its samples in order, in batches gathered into X:
+ *
+ *     TrainBatches it;
+ *     batches_begin(&it, ds, 0, N, N, Bmax);
+ *     while ((rc = batches_next(&it, X, st)) > 0) { ...it.s0, it.B: samples s0 .. s0 + B - 1... }
+ *     batches_end(&it);
+ *
+ * span > N spreads N samples evenly over the first span (sample i of the pass is i * span / N). */
+typedef struct {
+    const TrainData *ds;
+    int split;                          /* 0 training, 1 validation */
+    long N, span, s0, next;
+    int B, Bmax;
+    int64_t *idx;                       /* (Bmax) */
+} TrainBatches;
+
+void batches_begin(TrainBatches *it, const TrainData *ds, int split, long N, long span, int Bmax);
+/* 1: the next batch is in X (it->s0, it->B); 0: no more; < 0: a gather error in st. */
+int batches_next(TrainBatches *it, float *X, Status *st);
+void batches_end(TrainBatches *it);
+
+/* Every training sample encoded, in order: state (N, n_vars): z (and z') as the library takes them;
+ * target (N, d): z' (first order) or z'' (second order). X: a gather buffer for Bmax samples. */
+int train_encode_set(const TrainData *ds, const Model *m, ParamSet *ps, Tape *t, float *X, int Bmax, double *state,
+                     double *target, Status *st);
+
 typedef struct {
     const Config *cfg;
     const char *run_dir;

@@ -1,15 +1,18 @@
 /* io/sweep/summary.c: the sweep's summary: every member's results read back (log, equations,
  * forecast), ranked, grouped by model structure, with the Pareto front of error against active
- * terms; written as summary.csv and summary.html (io/sweep/sweep.h, docs/sweeps.md). */
+ * terms; written as summary.csv and summary.html, which links each member's report (written here
+ * for a finished member when missing or stale; io/sweep/sweep.h, docs/sweeps.md). */
 #include "io/sweep/sweep.h"
 
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 
 #include "io/fs/atomic_file.h"
 #include "io/fs/files.h"
+#include "io/report/report.h"
 #include "io/sweep/common.h"
 #include "sparse/equation.h"
 
@@ -50,8 +53,10 @@ static char *structure_of(const char *path, long *active, char *why, size_t n_wh
     return key;
 }
 
-/* Mean over recordings of mean_error in forecast.json; NAN when absent or unreadable. */
-static double forecast_error(const char *dir, char *why, size_t n_why) {
+/* Mean over recordings of mean_error in forecast.json; NAN when absent or unreadable. *no_better: the
+ * mean latent error is not below the persistence forecast's (results.md: the trivial law z' = 0). */
+static double forecast_error(const char *dir, char *why, size_t n_why, int *no_better) {
+    *no_better = 0;
     char p[CFG_PATH_MAX + 32];
     snprintf(p, sizeof p, "%s/forecast.json", dir);
     if (!fs_exists(p)) return NAN;
@@ -60,12 +65,17 @@ static double forecast_error(const char *dir, char *why, size_t n_why) {
     cJSON *root = text ? cJSON_Parse(text) : NULL;
     free(text);
     const cJSON *recs = root ? cJSON_GetObjectItemCaseSensitive(root, "recordings") : NULL;
-    double sum = 0;
-    int n = 0;
+    double sum = 0, lat = 0, hold = 0;
+    int n = 0, nl = 0, stopped = 0;
     for (const cJSON *r = cJSON_IsArray(recs) ? recs->child : NULL; r; r = r->next) {
         const cJSON *e = cJSON_GetObjectItemCaseSensitive(r, "mean_error");
         if (cJSON_IsNumber(e) && isfinite(e->valuedouble)) sum += e->valuedouble, n++;
+        const cJSON *l = cJSON_GetObjectItemCaseSensitive(r, "latent_mean_error"),
+                    *h = cJSON_GetObjectItemCaseSensitive(r, "persistence_latent_mean_error");
+        if (cJSON_IsNumber(l) && cJSON_IsNumber(h)) lat += l->valuedouble, hold += h->valuedouble, nl++;
+        stopped |= cJSON_IsString(cJSON_GetObjectItemCaseSensitive(r, "stopped"));
     }
+    *no_better = nl > 0 && (stopped || !(lat < hold));
     if (!root || !cJSON_IsArray(recs)) snprintf(why, n_why, "forecast.json: unreadable or without \"recordings\"");
     else if (!n) snprintf(why, n_why, "forecast.json: no recording with a mean_error");
     cJSON_Delete(root);
@@ -96,13 +106,15 @@ static void add_problem(char *why, size_t n, const char *msg) {
     snprintf(why + l, n - l, "%s%s", l ? "; " : "", msg);
 }
 
-/* A finished member whose law has no term says nothing moves: however small its error, it is no law. */
-static int empty_law(const SweepRow *r) { return r->active == 0 && !strcmp(r->status, "finished"); }
+/* A finished member whose law has no term says nothing moves, and one whose forecasts are no better
+ * than holding the first state explains nothing of the motion: however small their errors, they
+ * are no laws. */
+static int no_law(const SweepRow *r) { return (r->active == 0 || r->no_better) && !strcmp(r->status, "finished"); }
 
 static int row_cmp(const void *pa, const void *pb) {
     const SweepRow *a = pa, *b = pb;
-    int ra = empty_law(a) ? 3 : a->error_from == ERR_FORECAST ? 0 : a->error_from == ERR_VALIDATION ? 1 : 2;
-    int rb = empty_law(b) ? 3 : b->error_from == ERR_FORECAST ? 0 : b->error_from == ERR_VALIDATION ? 1 : 2;
+    int ra = no_law(a) ? 3 : a->error_from == ERR_FORECAST ? 0 : a->error_from == ERR_VALIDATION ? 1 : 2;
+    int rb = no_law(b) ? 3 : b->error_from == ERR_FORECAST ? 0 : b->error_from == ERR_VALIDATION ? 1 : 2;
     if (ra != rb) return ra - rb;
     if (ra < 2 && a->error != b->error) return a->error < b->error ? -1 : 1;
     return a->member - b->member;
@@ -144,7 +156,10 @@ int sweep_summary(const Sweep *sw, SweepSummary *sum, Status *st) {
         Status ls;
         if (sweep_log_read(dir, &r->log, &ls)) add_problem(why, sizeof why, ls.msg);
         r->active = r->log.active;
-        long epochs = sweep_member_config(sw, i, c, st) ? 0 : c->epochs;
+        int have_cfg = !sweep_member_config(sw, i, c, st);
+        long epochs = have_cfg ? c->epochs : 0;
+        /* with derivatives in latent space the dx term is not used (the log holds 0): left empty */
+        if (have_cfg && !strcmp(c->derivatives, "latent")) r->log.dx = NAN;
         snprintf(p, sizeof p, "%s/equations.json", dir);
         int eq = fs_exists(p);
         if (eq) {
@@ -155,8 +170,10 @@ int sweep_summary(const Sweep *sw, SweepSummary *sum, Status *st) {
         }
         r->status = eq && r->log.epoch >= epochs ? "finished" : fs_exists(dir) ? "incomplete" : "not started";
         r->equations = equations_line(dir);
+        snprintf(p, sizeof p, "%s/report.html", dir);
+        r->report = fs_exists(p);
         one[0] = 0;
-        r->error = forecast_error(dir, one, sizeof one);
+        r->error = forecast_error(dir, one, sizeof one, &r->no_better);
         if (one[0]) add_problem(why, sizeof why, one);
         if (isfinite(r->error)) {
             r->error_from = ERR_FORECAST;
@@ -168,9 +185,13 @@ int sweep_summary(const Sweep *sw, SweepSummary *sum, Status *st) {
             r->error = NAN;
             r->error_from = ERR_NONE;
         }
-        if (empty_law(r))
+        if (no_law(r) && r->active == 0)
             add_problem(why, sizeof why, "the law has no term (it says nothing moves), ranked last: lower "
                                          "threshold.value, or train longer before the first threshold pass");
+        else if (no_law(r))
+            add_problem(why, sizeof why, "the law forecasts the held-out recordings no better than holding the "
+                                         "first state (forecast.json), ranked last: lower threshold.value, or "
+                                         "train longer before the first threshold pass");
         if (why[0]) r->problem = sweep_strdup(why);
     }
     free(c);
@@ -180,11 +201,12 @@ int sweep_summary(const Sweep *sw, SweepSummary *sum, Status *st) {
     sum->pareto_from = have_forecast ? ERR_FORECAST : ERR_VALIDATION;
     for (int a = 0; a < n; a++) {
         SweepRow *r = &sum->rows[a];
-        if (r->error_from != sum->pareto_from || r->active <= 0 || strcmp(r->status, "finished")) continue;
+        if (r->error_from != sum->pareto_from || r->active <= 0 || no_law(r) || strcmp(r->status, "finished")) continue;
         int dominated = 0;
         for (int b = 0; b < n && !dominated; b++) {
             const SweepRow *q = &sum->rows[b];
-            if (b == a || q->error_from != sum->pareto_from || q->active <= 0 || strcmp(q->status, "finished")) continue;
+            if (b == a || q->error_from != sum->pareto_from || q->active <= 0 || no_law(q) || strcmp(q->status, "finished"))
+                continue;
             if (q->error <= r->error && q->active <= r->active && (q->error < r->error || q->active < r->active))
                 dominated = 1;
         }
@@ -352,7 +374,7 @@ char *sweep_summary_html(const Sweep *sw, const SweepSummary *sum) {
     }
     if (sw->seeds_vary) text_puts(&b, "<th>train.seed</th>");
     text_puts(&b, "<th>epochs</th><th>loss</th><th>validation</th><th>error</th><th>terms</th><th>front</th>"
-                 "<th>structure</th><th>equations</th></tr>\n");
+                 "<th>structure</th><th>equations</th><th>report</th></tr>\n");
     for (int k = 0; k < sum->n_rows; k++) {
         const SweepRow *r = &sum->rows[k];
         const SweepMember *m = &sw->members[r->member];
@@ -386,7 +408,9 @@ char *sweep_summary_html(const Sweep *sw, const SweepSummary *sum) {
             html_text(&b, r->problem);
             text_puts(&b, "</span>");
         }
-        text_puts(&b, "</td></tr>\n");
+        /* the member's folder is <output>/<id>, beside this page */
+        if (r->report) text_printf(&b, "</td><td><a href=\"%s/report.html\">report</a></td></tr>\n", m->id);
+        else text_puts(&b, "</td><td class=\"muted\">not made yet</td></tr>\n");
     }
     text_puts(&b, "</table>\n<h2>Model structures</h2>\n");
     if (!sum->n_groups) {
@@ -421,6 +445,44 @@ char *sweep_summary_html(const Sweep *sw, const SweepSummary *sum) {
     return text_take(&b);
 }
 
+/* Modification time of dir/name in nanoseconds; -1 when it does not exist. */
+static long long mtime_ns(const char *dir, const char *name) {
+    char p[CFG_PATH_MAX + 32];
+    struct stat sb;
+    snprintf(p, sizeof p, "%s/%s", dir, name);
+    if (stat(p, &sb)) return -1;
+    return (long long)sb.st_mtim.tv_sec * 1000000000LL + sb.st_mtim.tv_nsec;
+}
+
+/* A finished member's report, written when missing or older than its results. */
+static void member_report(const Sweep *sw, SweepRow *r) {
+    if (strcmp(r->status, "finished")) return;
+    const char *dir = sw->members[r->member].dir;
+    static const char *const results[] = {"log.csv", "equations.json", "forecast.json"};
+    long long have = mtime_ns(dir, "report.html"), newest = -1;
+    for (int i = 0; i < 3; i++) {
+        long long t = mtime_ns(dir, results[i]);
+        if (t > newest) newest = t;
+    }
+    if (have >= 0 && have >= newest) return;
+    Status st;
+    if (report_write(dir, NULL, NULL, &st)) {
+        char why[1100];
+        snprintf(why, sizeof why, "report: %s", st.msg);
+        if (r->problem) {
+            size_t l = strlen(r->problem) + strlen(why) + 3;
+            char *b = malloc(l);
+            if (b) snprintf(b, l, "%s; %s", r->problem, why);
+            free(r->problem);
+            r->problem = b;
+        } else {
+            r->problem = sweep_strdup(why);
+        }
+        return;
+    }
+    r->report = 1;
+}
+
 int sweep_write_summary(const Sweep *sw, SweepSummary *sum_in, Status *st) {
     SweepSummary own;
     SweepSummary *sum = sum_in ? sum_in : &own;
@@ -430,6 +492,7 @@ int sweep_write_summary(const Sweep *sw, SweepSummary *sum_in, Status *st) {
     if (!rc) atomic_remove_stale(sw->output, NULL); /* a killed writer's summary temporaries */
     if (!rc) rc = sweep_summary(sw, sum, st);
     if (rc) { sweep_unlock(fd); return rc; }
+    for (int k = 0; k < sum->n_rows; k++) member_report(sw, &sum->rows[k]);
     char *csv = sweep_summary_csv(sw, sum), *html = sweep_summary_html(sw, sum), *inc = sweep_inclusion_csv(&sum->inclusion);
     char p[CFG_PATH_MAX + 32];
     if (!csv || !html || !inc) rc = status_set(st, ST_RUNTIME, "out of memory");

@@ -137,9 +137,11 @@ typedef struct {
     SweepErrorFrom error_from;
     long active;                /* active terms; -1 unknown */
     int pareto;                 /* 1 on the Pareto front of (error, active) */
+    int no_better;              /* its forecasts are no better than holding the first state (forecast.json) */
     int structure;              /* index in groups; -1 without equations.json */
     char *equations;            /* equations.txt on one line ("; " between equations); may be NULL */
     char *problem;              /* a result file that could not be read, with why; may be NULL */
+    int report;                 /* 1: <dir>/report.html exists (sweep_write_summary writes it when finished) */
 } SweepRow;
 
 typedef struct {
@@ -186,7 +188,10 @@ void sweep_summary_free(SweepSummary *sum);
 char *sweep_summary_csv(const Sweep *sw, const SweepSummary *sum);
 char *sweep_summary_html(const Sweep *sw, const SweepSummary *sum);
 /* Build the summary and write <output>/summary.csv, summary.html and inclusion.csv atomically, under a lock in
- * the sweep folder (array tasks finishing together). sum may be NULL. */
+ * the sweep folder (array tasks finishing together). Before, the report (io/report/report.h) of each
+ * finished member is written when its report.html is missing or older than its log.csv,
+ * equations.json or forecast.json; a report that cannot be written is noted in the row's problem.
+ * sum may be NULL. */
 int sweep_write_summary(const Sweep *sw, SweepSummary *sum, Status *st);
 
 #endif
