@@ -83,8 +83,9 @@ int cmd_export(int argc, char **argv) {
 int cmd_forecast(int argc, char **argv) {
     if (cli_wants_help(argc, argv)) {
         printf("usage: framelaw forecast RUN_DIR [--set data.frames=NEW] [--quiet]\n\n"
-               "For each held-out recording: encode its first frame (and, for a second-order model, the first\n"
-               "derivative from the stencil), integrate the learned model over the recording (forecast.method,\n"
+               "For each held-out recording: start from the state fitted to the codes of its first frames\n"
+               "(32, at most a quarter; z' too for a second-order model), integrate the learned model over the\n"
+               "recording (forecast.method,\n"
                "forecast.tolerance), decode every step and compare with the real frames. Prints the mean\n"
                "relative error and the time it first exceeds forecast.bound (default 10%%), flags forecasts\n"
                "that leave the training region, and writes forecast.json and forecast/<recording>.csv.\n"
