@@ -263,8 +263,8 @@ int run_frames_move(const char *run_dir, Config *c, const char *old, int argc, c
         if (stat(old, &sb) != 0)
             return status_set(st, ST_INPUT,
                               "%s: the run records no digest of its frames' content (it was trained before framelaw "
-                              "recorded one) and %s is gone, so %s cannot be checked; put the frames back at %s, "
-                              "resume or export once, then move them",
+                              "recorded one) and %s is gone, so %s cannot be checked; put the frames back at %s and "
+                              "resume the run once (that records the digest), then move them",
                               run_dir, old, c->frames, old);
         Config *o = malloc(sizeof *o);
         if (!o) return status_set(st, ST_RUNTIME, "out of memory");
