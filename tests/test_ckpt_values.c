@@ -212,6 +212,15 @@ static void test_good_checkpoint_reads(void **state) {
     assert_int_equal(read_ckpt(fx, fx->bad, &meta, &st), 0);
     assert_int_equal(meta.batch, 2);
     assert_true(isinf(meta.best_val));
+    /* the epoch's steps all done, its end-of-epoch passes pending (a stop request during them) */
+    f = load(fx->bad);
+    put64(f.d + meta_off + M_BATCH, 3);
+    put64(f.d + meta_off + M_ACC_N, N_ORDER);
+    put64(f.d + meta_off + M_STEP, 5 * 3 + 3);
+    save(fx->bad, &f);
+    free(f.d);
+    assert_int_equal(read_ckpt(fx, fx->bad, &meta, &st), 0);
+    assert_int_equal(meta.batch, 3);
 }
 
 /* ORDR, the sample order: one past the end, -1, 2^63 (as i64 the smallest value), 2^63 - 1, and a
@@ -235,9 +244,9 @@ static void test_order_out_of_range(void **state) {
 static void test_meta_out_of_range(void **state) {
     Fx *fx = *state;
     patch_i64(fx->good, fx->bad, "META", M_BATCH, -1000000);
-    refused(fx, "section META", "batch position -1000000 is outside the epoch's 3 batches (0..2)");
-    patch_i64(fx->good, fx->bad, "META", M_BATCH, 3);
-    refused(fx, "section META", "batch position 3");
+    refused(fx, "section META", "batch position -1000000 is outside the epoch's 3 batches (0..3");
+    patch_i64(fx->good, fx->bad, "META", M_BATCH, 4); /* 3: the end-of-epoch passes pending (legal) */
+    refused(fx, "section META", "batch position 4 is outside the epoch's 3 batches (0..3");
     patch_i64(fx->good, fx->bad, "META", M_EPOCH, -1);
     refused(fx, "section META", "epoch -1");
     patch_i64(fx->good, fx->bad, "META", M_EPOCH, INT64_MAX); /* epoch x batches would overflow */

@@ -55,7 +55,7 @@ static int osc_gather(void *ctx, int split, const int64_t *idx, int B, float *X,
 }
 
 static TrainData osc_dataset(Osc *o) {
-    TrainData ds = {NCH, 2, (long)(NREC - 1) * NT, NT, o->dt, osc_gather, o, NULL, NULL};
+    TrainData ds = {NCH, 2, (long)(NREC - 1) * NT, NT, o->dt, osc_gather, o, NULL, NULL, NULL};
     return ds;
 }
 
@@ -214,6 +214,109 @@ static void test_resume_is_bit_exact(void **state) {
     test_rmtree(d3);
 }
 
+/* A stop request that comes with the last step of an epoch: the end-of-epoch passes (a thresholding
+ * pass, validation) end at their next batch instead of running to the end, the law goes back to what
+ * the step left, and the checkpoint says "epoch's steps done, end-of-epoch work pending" (batch ==
+ * the epoch's 10 batches). The resume does that work again and ends bit for bit where an
+ * uninterrupted run does. */
+typedef struct {
+    Osc o;
+    volatile sig_atomic_t stop;
+    int train_gathers, stop_at, after_stop; /* training gathers so far; the one that requests the stop */
+} StopOsc;
+
+static int stop_gather(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st) {
+    StopOsc *p = ctx;
+    if (p->stop) p->after_stop++;
+    if (!split && ++p->train_gathers == p->stop_at) p->stop = 1; /* as if Ctrl-C came during this step */
+    return osc_gather(&p->o, split, idx, B, X, st);
+}
+
+static void stop_in_passes(const char *measure) {
+    char d1[256], d2[256];
+    assert_non_null(test_tmpdir(d1, sizeof d1));
+    assert_non_null(test_tmpdir(d2, sizeof d2));
+    Config c;
+    Model m1, m2;
+    ParamSet p1, p2;
+    TrainResult res;
+    small_config(&c, d1);
+    snprintf(c.threshold_measure, sizeof c.threshold_measure, "%s", measure);
+    assert_int_equal(run(&c, d1, 0, 0, &m1, &p1, &res), 0);
+
+    small_config(&c, d2);
+    snprintf(c.threshold_measure, sizeof c.threshold_measure, "%s", measure);
+    StopOsc so = {.stop_at = 20}; /* the last step of epoch 2, a thresholding epoch (threshold_every 2) */
+    osc_init(&so.o);
+    TrainData ds = osc_dataset(&so.o);
+    ds.gather = stop_gather, ds.ctx = &so;
+    TrainOpts opts = {&c, d2, 0, 1, &so.stop, 0};
+    Status st;
+    assert_int_equal(train_run(&opts, &ds, &m2, &p2, &res, &st), 0);
+    assert_true(res.interrupted);
+    assert_int_equal(res.epochs_done, 1);
+    assert_int_equal(so.after_stop, 0); /* no gather after the request: each pass ended at its next batch */
+    assert_non_null(strstr(res.checkpoint, "ckpt-00000001-000010.ckpt"));
+    model_free(&m2);
+    params_free(&p2);
+    /* the checkpoint holds the law as the last step left it: every term, as before the first
+     * threshold (epoch 2), which the uninterrupted run's log shows pruning */
+    assert_int_equal(train_load_latest(d2, &c, NCH, (long)(NREC - 1) * NT, &m2, &p2, &st), 0);
+    long all = (long)m2.lib.n_terms * 2;
+    assert_int_equal(model_active(&m2), all);
+    model_free(&m2);
+    params_free(&p2);
+    assert_int_equal(run(&c, d2, 1, 0, &m2, &p2, &res), 0);
+    assert_int_equal(res.epochs_done, 6);
+    assert_true(same_params(&p1, &p2));
+    assert_memory_equal(m1.mask, m2.mask, (size_t)m1.lib.n_terms * 2);
+    char log1[512], log2[512];
+    snprintf(log1, sizeof log1, "%s/log.csv", d1);
+    snprintf(log2, sizeof log2, "%s/log.csv", d2);
+    FILE *f1 = fopen(log1, "r"), *f2 = fopen(log2, "r");
+    assert_non_null(f1);
+    assert_non_null(f2);
+    char a[512], b[512];
+    int rows = 0;
+    while (fgets(a, sizeof a, f1)) { /* the same rows up to the timing columns at the end */
+        assert_non_null(fgets(b, sizeof b, f2));
+        char *ca = a, *cb = b;
+        for (int comma = 0; comma < 10; comma++) { /* epoch ... validation: the columns before the seconds */
+            ca = strchr(ca, ',') + 1, cb = strchr(cb, ',') + 1;
+        }
+        assert_int_equal(ca - a, cb - b);
+        assert_memory_equal(a, b, (size_t)(ca - a));
+        long active;
+        if (rows == 2) { /* epoch 2: active is the ninth column */
+            assert_int_equal(sscanf(a, "%*[^,],%*[^,],%*[^,],%*[^,],%*[^,],%*[^,],%*[^,],%*[^,],%ld", &active), 1);
+            assert_true(active < all);
+        }
+        rows++;
+    }
+    assert_null(fgets(b, sizeof b, f2));
+    assert_int_equal(rows, 7); /* header and 6 epochs */
+    fclose(f1), fclose(f2);
+    model_free(&m1);
+    params_free(&p1);
+    model_free(&m2);
+    params_free(&p2);
+    test_rmtree(d1);
+    test_rmtree(d2);
+}
+
+/* thresholding by coefficient (no pass): the validation pass is the one stopped, after the
+ * threshold was applied, which is undone */
+static void test_stop_in_validation_pass(void **state) {
+    (void)state;
+    stop_in_passes("coefficient");
+}
+
+/* thresholding by contribution: its pass over the training set is the one stopped */
+static void test_stop_in_threshold_pass(void **state) {
+    (void)state;
+    stop_in_passes("contribution");
+}
+
 /* A checkpoint with a flipped byte or cut short is refused with a clear message, and resume falls
  * back to the previous good one. CRC-32 check value: crc32("123456789") = 0xCBF43926 (the standard
  * check value of CRC-32/ISO-HDLC, "A Painless Guide to CRC Error Detection Algorithms", 1993). */
@@ -359,7 +462,7 @@ static void ring_config(Config *c, const char *dir, const char *init) {
     c->init_epochs = 300;
 }
 
-static const TrainData RING_DATA = {RING, 2, RING_N, 0, 0.01, ring_gather, NULL, NULL, NULL};
+static const TrainData RING_DATA = {RING, 2, RING_N, 0, 0.01, ring_gather, NULL, NULL, NULL, NULL};
 
 static double ring_rank_correlation(const char *init) {
     char dir[256];
@@ -511,6 +614,8 @@ int main(void) {
         cmocka_unit_test(test_warmup_then_fit),
         cmocka_unit_test(test_isomap_init_follows_the_curve),
         cmocka_unit_test(test_stop_during_isomap_start),
+        cmocka_unit_test(test_stop_in_validation_pass),
+        cmocka_unit_test(test_stop_in_threshold_pass),
         cmocka_unit_test(test_isomap_failure_message),
     };
     return cmocka_run_group_tests_name("training loop", tests, NULL, NULL);

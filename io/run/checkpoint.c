@@ -155,9 +155,9 @@ static int check_meta(const char *path, const MetaDisk *md, long n_order, long b
 #define BAD(...) status_set(st, ST_INPUT, __VA_ARGS__)
     const char *h = "checkpoint section META:";
     long long nb = n_order > 0 ? (n_order + batch - 1) / batch : 1; /* batches per epoch */
-    if (md->batch < 0 || md->batch >= nb)
-        return BAD("%s: %s batch position %lld is outside the epoch's %lld batches (0..%lld)", path, h,
-                   (long long)md->batch, nb, nb - 1);
+    if (md->batch < 0 || md->batch > nb) /* nb: the epoch's steps done, its end-of-epoch passes pending */
+        return BAD("%s: %s batch position %lld is outside the epoch's %lld batches (0..%lld; %lld: the end-of-epoch "
+                   "passes pending)", path, h, (long long)md->batch, nb, nb, nb);
     if (md->epoch < 0 || md->epoch > (INT64_MAX - md->batch) / nb)
         return BAD("%s: %s epoch %lld is not a number of epochs done", path, h, (long long)md->epoch);
     int64_t steps = md->epoch * nb + md->batch; /* batches done since the start */

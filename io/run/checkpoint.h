@@ -26,7 +26,8 @@
 typedef struct {
     uint64_t config_digest;
     int64_t epoch;          /* epochs completed */
-    int64_t batch;          /* batches completed in the current epoch (0 at an epoch boundary) */
+    int64_t batch;          /* batches completed in the current epoch (0 at an epoch boundary; all of them
+                             * when a stop came during the end-of-epoch passes, which are pending) */
     Rng rng;
     double acc[5];          /* partial sums of the current epoch's loss terms (total, rec, dx, dz, l1) */
     int64_t acc_n;          /* samples in those sums */

@@ -256,6 +256,9 @@ void batches_begin(TrainBatches *it, const TrainData *ds, int split, long N, lon
 
 int batches_next(TrainBatches *it, float *X, Status *st) {
     if (it->next >= it->N) return 0;
+    if (it->ds->stop && *it->ds->stop)
+        return -status_set(st, TRAIN_STOPPED, "stopped by request in a pass over the %s set",
+                           it->split ? "validation" : "training");
     it->s0 = it->next;
     it->B = (int)(it->N - it->s0 < it->Bmax ? it->N - it->s0 : it->Bmax);
     for (int i = 0; i < it->B; i++) it->idx[i] = (int64_t)((it->s0 + i) * it->span / it->N);
@@ -554,10 +557,8 @@ static int isomap_init(Run *r, const TrainData *ds, float *X, int Bmax, const Tr
     long nb = (N + Bmax - 1) / Bmax;
     double last = 0, t_fit = clock_seconds();
     for (long e = 0; e < r->cfg->init_epochs; e++) {
-        if (o->stop && *o->stop) { /* nothing saved yet: a resume starts the run over, with the same result */
-            if (!quiet) fprintf(stderr, "\n");
-            rc = status_set(st, ST_RUNTIME, "stopped during the isomap start (model.init), before the first "
-                            "checkpoint: `framelaw resume %s` starts the run over", o->run_dir);
+        if (o->stop && *o->stop) { /* train_run says what a resume does */
+            rc = status_set(st, TRAIN_STOPPED, "stopped by request while fitting the autoencoder to the embedding");
             break;
         }
         if (tty && e > 0) {
@@ -641,12 +642,55 @@ int train_load_latest(const char *run_dir, const Config *cfg, int n_in, long n_t
     return rc;
 }
 
+/* ---- the law between steps ------------------------------------------------------------------- */
+
+/* A copy of what the end-of-epoch work may change (Xi with its Adam moments, the mask), so that a
+ * stop request in the middle of that work can put the law back as the last step left it. */
+typedef struct {
+    long n;
+    float *val, *m, *v;     /* (n) each */
+    uint8_t *mask;          /* (n) */
+} LawCopy;
+
+static void law_alloc(LawCopy *c, const Model *m, const ParamSet *ps) {
+    const ParamView *v = &ps->views[m->xi];
+    c->n = (long)v->rows * v->cols;
+    c->val = nn_alloc((size_t)3 * c->n * sizeof *c->val);
+    c->m = c->val + c->n, c->v = c->m + c->n;
+    c->mask = nn_alloc((size_t)c->n);
+}
+
+static void law_keep(LawCopy *c, const Model *m, const ParamSet *ps) {
+    long off = ps->views[m->xi].off;
+    memcpy(c->val, ps->val + off, (size_t)c->n * sizeof *c->val);
+    memcpy(c->m, ps->m + off, (size_t)c->n * sizeof *c->m);
+    memcpy(c->v, ps->v + off, (size_t)c->n * sizeof *c->v);
+    memcpy(c->mask, m->mask, (size_t)c->n);
+}
+
+static void law_restore(const LawCopy *c, Model *m, ParamSet *ps) {
+    long off = ps->views[m->xi].off;
+    memcpy(ps->val + off, c->val, (size_t)c->n * sizeof *c->val);
+    memcpy(ps->m + off, c->m, (size_t)c->n * sizeof *c->m);
+    memcpy(ps->v + off, c->v, (size_t)c->n * sizeof *c->v);
+    memcpy(m->mask, c->mask, (size_t)c->n);
+    for (long i = 0; i < c->n; i++) m->maskf[i] = m->mask[i] ? 1.0f : 0.0f;
+}
+
+static void law_free(LawCopy *c) {
+    nn_free(c->val), nn_free(c->mask);
+    c->val = NULL, c->mask = NULL;
+}
+
 /* ---- the loop -------------------------------------------------------------------------------- */
 
 int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, TrainResult *res, Status *st) {
     const Config *c = o->cfg;
     memset(res, 0, sizeof *res);
     res->best_val = NAN;
+    TrainData dsv = *ds; /* the passes over a split see the stop request */
+    dsv.stop = o->stop;
+    ds = &dsv;
     Run r;
     int rc = setup(&r, c, ds, o->run_dir, m, ps, st);
     if (rc) { nn_free(r.order); return rc; }
@@ -663,39 +707,39 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     }
 
     nn_set_threads(c->threads > 0 ? c->threads : (int)sysconf(_SC_NPROCESSORS_ONLN));
+    LawCopy law;
+    law_alloc(&law, m, ps);
+    int tty = isatty(fileno(stderr));
     int B = c->batch < ds->n_train ? c->batch : (int)ds->n_train;
     long n_batches = (ds->n_train + B - 1) / B;
     float *X = nn_alloc((size_t)ds->k * B * ds->n_in * sizeof(float)); /* (k B, n_in) */
     int fresh = ps->step == 0, use_pca = !strcmp(c->init, "pca") || !strcmp(c->init, "isomap");
-    if (fresh && ((use_pca && (rc = pca_init(&r, ds, X, B, st))) ||
-                  (!strcmp(c->init, "isomap") &&
-                   (rc = isomap_init(&r, ds, X, B, o, (AdamCfg){(float)c->lr, (float)c->beta1, (float)c->beta2,
-                                                                        (float)c->eps}, st))))) { /* a fresh model */
-        runlog_close(&log);
-        nn_free(X);
-        nn_free(r.order);
-        return rc;
-    }
-    if ((rc = data_scales(&r, ds, B, X, st))) {
-        runlog_close(&log);
-        nn_free(X);
-        nn_free(r.order);
-        return rc;
-    }
     Tape t;
     tape_init(&t, 256, (size_t)64 << 20);
-    /* threshold.select: the law is first chosen on the latent of the start-up, before joint training
-     * can bend the latent towards the dense law of the whole library */
-    if (fresh && strcmp(c->threshold_select, "none") && (rc = select_pass(&r, ds, &t, X, B, o->quiet, st))) {
-        tape_free(&t);
-        runlog_close(&log);
-        nn_free(X);
-        nn_free(r.order);
-        return rc;
+    if ((fresh && ((use_pca && (rc = pca_init(&r, ds, X, B, st))) ||
+                   (!strcmp(c->init, "isomap") &&
+                    (rc = isomap_init(&r, ds, X, B, o, (AdamCfg){(float)c->lr, (float)c->beta1, (float)c->beta2,
+                                                                         (float)c->eps}, st))))) || /* a fresh model */
+        (rc = data_scales(&r, ds, B, X, st)) ||
+        /* threshold.select: the law is first chosen on the latent of the start-up, before joint
+         * training can bend the latent towards the dense law of the whole library */
+        (fresh && strcmp(c->threshold_select, "none") && (rc = select_pass(&r, ds, &t, X, B, o->quiet, st)))) {
+        if (rc == TRAIN_STOPPED) {
+            if (fresh) { /* nothing saved yet: a resume starts the run over, with the same result */
+                if (!o->quiet) fputc('\n', stderr);
+                char what[64] = "the start-up";
+                if (use_pca) snprintf(what, sizeof what, "the %s start (model.init)", c->init);
+                rc = status_set(st, ST_RUNTIME, "stopped during %s, before the first checkpoint: `framelaw resume %s` "
+                                "starts the run over", what, o->run_dir);
+            } else { /* resumed: the checkpoint it started from is where it still stands */
+                rc = save_periodic(&r, res->checkpoint, st);
+                res->interrupted = !rc;
+            }
+        }
+        goto out;
     }
     AdamCfg ad = {(float)c->lr, (float)c->beta1, (float)c->beta2, (float)c->eps};
     long refine_from = c->epochs - c->refine_epochs; /* first epoch of the refinement phase */
-    int tty = isatty(fileno(stderr));
     double t_start = clock_seconds(), seconds0 = r.meta.seconds;
     long epoch0 = (long)r.meta.epoch, steps = 0;
     double t_shown = 0;
@@ -750,31 +794,38 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
                 goto out;
             }
         }
-        /* end of an epoch */
+        /* end of an epoch: its steps are done (batch == n_batches); the passes over the whole set
+         * (warm-up fit, thresholding, validation) follow. A stop request ends them at their next batch:
+         * the law goes back to what the last step left and the checkpoint keeps batch == n_batches,
+         * so that a resume does the end-of-epoch work again from the same state, bit for bit. */
         double mean[5];
         for (int i = 0; i < 5; i++) mean[i] = r.meta.acc[i] / (double)(r.meta.acc_n ? r.meta.acc_n : 1);
-        r.meta.epoch = epoch + 1;
-        r.meta.batch = 0;
         long done = epoch + 1;
+        int64_t thresholds_kept = r.meta.n_thresholds;
+        law_keep(&law, m, ps);
         if (warm && done == c->warmup_epochs) {
             m->warmup = 0;
-            if (c->warmup_fit && (rc = warmup_fit(&r, ds, &t, X, B, o->quiet, st))) goto out;
+            if (c->warmup_fit) rc = warmup_fit(&r, ds, &t, X, B, o->quiet, st);
         }
-        if (!refine && !warm && c->threshold_every > 0 && done % c->threshold_every == 0 && done <= refine_from) {
-            if (!strcmp(c->threshold_select, "every")) {
-                if ((rc = select_pass(&r, ds, &t, X, B, o->quiet, st))) goto out;
-            } else if (!strcmp(c->threshold_measure, "contribution")) {
-                if ((rc = threshold_contribution(&r, ds, &t, X, B, st))) goto out;
-            } else {
-                model_threshold(m, ps, (float)c->threshold);
-            }
+        if (!rc && !refine && !warm && c->threshold_every > 0 && done % c->threshold_every == 0 && done <= refine_from) {
+            if (!strcmp(c->threshold_select, "every")) rc = select_pass(&r, ds, &t, X, B, o->quiet, st);
+            else if (!strcmp(c->threshold_measure, "contribution")) rc = threshold_contribution(&r, ds, &t, X, B, st);
+            else model_threshold(m, ps, (float)c->threshold);
             r.meta.n_thresholds++;
         }
         double val = NAN;
         int validated = ds->n_val > 0 && (done % c->validate_every == 0 || done == c->epochs);
-        if (validated) {
-            if ((rc = validate(&r, &t, X, B, &val, st))) goto out;
+        if (!rc && validated) rc = validate(&r, &t, X, B, &val, st);
+        if (rc == TRAIN_STOPPED) {
+            law_restore(&law, m, ps);
+            r.meta.n_thresholds = thresholds_kept;
+            r.meta.seconds = seconds0 + clock_seconds() - t_start;
+            if (!(rc = save_periodic(&r, res->checkpoint, st))) res->interrupted = 1;
+            goto out;
         }
+        if (rc) goto out;
+        r.meta.epoch = done;
+        r.meta.batch = 0;
         r.meta.seconds = seconds0 + clock_seconds() - t_start;
         double ep_s = clock_seconds() - t_epoch;
         long active = model_active(m);
@@ -812,6 +863,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     }
 out:
     if (!o->quiet && tty) fputc('\n', stderr);
+    law_free(&law);
     runlog_close(&log);
     res->epochs_done = (long)r.meta.epoch;
     res->best_val = r.meta.best_val;

@@ -31,6 +31,8 @@ typedef struct {
                              * of one recording are consecutive samples); selection needs it */
     const Stencil *sten;    /* non-NULL: derivatives in latent space; the gather gives the stencil's
                              * 2m+1 frames around each sample as k = 2m+1 blocks */
+    volatile sig_atomic_t *stop; /* NULL, or a stop request (a signal): a pass over a split ends at its
+                             * next batch (batches_next returns TRAIN_STOPPED) */
 } TrainData;
 
 /* The passes over a whole split (the data's scales, the start-ups, the thresholding and selection
@@ -51,7 +53,11 @@ typedef struct {
 } TrainBatches;
 
 void batches_begin(TrainBatches *it, const TrainData *ds, int split, long N, long span, int Bmax);
-/* 1: the next batch is in X (it->s0, it->B); 0: no more; < 0: a gather error in st. */
+/* 1: the next batch is in X (it->s0, it->B); 0: no more; < 0: minus a status code, the gather's
+ * error in st, or -TRAIN_STOPPED when ds->stop was set (st says so). The passes built on it return
+ * that code as their own: TRAIN_STOPPED is not an exit status, and train_run turns it into a
+ * checkpoint. */
+enum { TRAIN_STOPPED = 100 };
 int batches_next(TrainBatches *it, float *X, Status *st);
 void batches_end(TrainBatches *it);
 
