@@ -6,6 +6,7 @@
  * the linear law do not change under a change of coordinates; the oscillator's angular frequency,
  * common practice). The search itself is checked against outside values in tests/test_canonical.c. */
 #include <sys/stat.h>
+#include <unistd.h>
 
 #include <cjson/cJSON.h>
 
@@ -227,11 +228,72 @@ static void test_command(void **state) {
     assert_non_null(strstr(out, "usage: framelaw canonical RUN_DIR"));
 }
 
+/* `framelaw canonical RUN --refine 15`: the reference (the canonical two-term rotation) trains on
+ * with its mask fixed; leaving out either term cannot fit a rotation (one coupling alone has no
+ * oscillation: both eigenvalues 0), so no sparser candidate is accepted, the refined law keeps both
+ * terms, and their product is still -w^2 (within 3%). refine.json lists every candidate; the kept
+ * model is the one with the lower validation loss; RUN/refine (the candidates' folders) is gone and
+ * RUN/refined is a run folder with its results. */
+static void test_refine(void **state) {
+    (void)state;
+    char args[1200], out[16384];
+    snprintf(args, sizeof args, "canonical '%s/run' --refine 15", tmp);
+    int rc = test_run_capture(args, out, sizeof out);
+    if (rc) fail_msg("canonical --refine exited %d:\n%s", rc, out);
+    assert_non_null(strstr(out, "refinement: 3 candidates of 15 epochs; the law kept has 2 terms"));
+    char *txt = run_file("refine.json");
+    cJSON *root = cJSON_Parse(txt);
+    assert_non_null(root);
+    cJSON *cands = cJSON_GetObjectItem(root, "candidates");
+    assert_int_equal(cJSON_GetArraySize(cands), 3);
+    double e_ref = cJSON_GetObjectItem(cJSON_GetArrayItem(cands, 0), "residual")->valuedouble;
+    double tol = cJSON_GetObjectItem(root, "tolerance")->valuedouble;
+    for (int i = 1; i < 3; i++) {
+        cJSON *c = cJSON_GetArrayItem(cands, i);
+        assert_int_equal(cJSON_GetObjectItem(c, "active")->valueint, 1);
+        assert_true(cJSON_IsFalse(cJSON_GetObjectItem(c, "accepted")));
+        assert_true(cJSON_GetObjectItem(c, "residual")->valuedouble > (1 + tol) * e_ref);
+    }
+    assert_int_equal(cJSON_GetObjectItem(root, "chosen")->valueint, 0);
+    double vr = cJSON_GetObjectItem(cJSON_GetArrayItem(cands, 0), "validation")->valuedouble;
+    double vl = cJSON_GetObjectItem(root, "learned_validation")->valuedouble;
+    assert_string_equal(cJSON_GetObjectItem(root, "kept")->valuestring, vr < vl ? "refined" : "learned");
+    cJSON_Delete(root);
+    free(txt);
+    char path[600];
+    snprintf(path, sizeof path, "%s/run/refine", tmp);
+    assert_int_equal(access(path, F_OK), -1);
+    txt = run_file("refined/equations.json");
+    root = cJSON_Parse(txt);
+    assert_non_null(root);
+    double prod = 1;
+    int n = 0;
+    cJSON *eq;
+    cJSON_ArrayForEach(eq, cJSON_GetObjectItem(root, "equations")) {
+        cJSON *co = cJSON_GetObjectItem(eq, "coefficients"), *v;
+        cJSON_ArrayForEach(v, co) if (v->valuedouble != 0) prod *= v->valuedouble, n++;
+    }
+    assert_int_equal(n, 2);
+    double w = sqrt(-prod);
+    if (!(fabs(w - W_OSC) < 0.03 * W_OSC)) fail_msg("refined frequency %g, expected %g", w, W_OSC);
+    cJSON_Delete(root);
+    free(txt);
+    char *f = run_file("refined/forecast.json");
+    free(f);
+    static const char *bad[] = {"--refine 0", "--refine x", "--refine"};
+    for (int i = 0; i < 3; i++) {
+        snprintf(args, sizeof args, "canonical '%s/run' %s", tmp, bad[i]);
+        rc = test_run_capture(args, out, sizeof out);
+        if (rc != 2 || !strstr(out, "--refine needs a number of epochs")) fail_msg("%s: exit %d, '%s'", args, rc, out);
+    }
+}
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_found_in_training),
         cmocka_unit_test(test_trajectory_columns),
         cmocka_unit_test(test_command),
+        cmocka_unit_test(test_refine),
     };
     return cmocka_run_group_tests_name("canonical form in a run", tests, setup, teardown);
 }

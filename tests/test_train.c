@@ -98,7 +98,7 @@ static int run(Config *c, const char *dir, int resume, int stop_after, Model *m,
     Osc o;
     osc_init(&o);
     TrainData ds = osc_dataset(&o);
-    TrainOpts opts = {c, dir, resume, 1, NULL, stop_after};
+    TrainOpts opts = {c, dir, resume, 1, NULL, stop_after, NULL, NULL};
     Status st;
     int rc = train_run(&opts, &ds, m, ps, res, &st);
     if (rc) fprintf(stderr, "train_run: %s\n", st.msg);
@@ -250,7 +250,7 @@ static void stop_in_passes(const char *measure) {
     osc_init(&so.o);
     TrainData ds = osc_dataset(&so.o);
     ds.gather = stop_gather, ds.ctx = &so;
-    TrainOpts opts = {&c, d2, 0, 1, &so.stop, 0};
+    TrainOpts opts = {&c, d2, 0, 1, &so.stop, 0, NULL, NULL};
     Status st;
     assert_int_equal(train_run(&opts, &ds, &m2, &p2, &res, &st), 0);
     assert_true(res.interrupted);
@@ -470,7 +470,7 @@ static double ring_rank_correlation(const char *init) {
     Config c;
     ring_config(&c, dir, init);
     TrainData ds = RING_DATA;
-    TrainOpts opts = {&c, dir, 0, 1, NULL, 0};
+    TrainOpts opts = {&c, dir, 0, 1, NULL, 0, NULL, NULL};
     Model m;
     ParamSet ps;
     TrainResult res;
@@ -518,7 +518,7 @@ static void test_stop_during_isomap_start(void **state) {
     ring_config(&c, dir, "isomap");
     TrainData ds = RING_DATA;
     volatile sig_atomic_t stop = 1; /* as if Ctrl-C came during the embedding */
-    TrainOpts opts = {&c, dir, 0, 1, &stop, 0};
+    TrainOpts opts = {&c, dir, 0, 1, &stop, 0, NULL, NULL};
     Model m;
     ParamSet ps;
     TrainResult res;
@@ -548,7 +548,7 @@ static void test_isomap_failure_message(void **state) {
     c.lib_constant = 0;
     TrainData ds = RING_DATA;
     ds.n_train = 2;
-    TrainOpts opts = {&c, dir, 0, 1, NULL, 0};
+    TrainOpts opts = {&c, dir, 0, 1, NULL, 0, NULL, NULL};
     Model m;
     ParamSet ps;
     TrainResult res;
@@ -587,7 +587,7 @@ static void test_divergence_stops_and_keeps_checkpoints(void **state) {
     TrainData ds = osc_dataset(&p.o);
     ds.gather = poisoned_gather;
     ds.ctx = &p;
-    TrainOpts opts = {&c, dir, 0, 1, NULL, 0};
+    TrainOpts opts = {&c, dir, 0, 1, NULL, 0, NULL, NULL};
     Model m;
     ParamSet ps;
     TrainResult res;

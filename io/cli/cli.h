@@ -60,6 +60,9 @@ int cmd_canonical(int argc, char **argv);
 /* Has the run in dir (config c) finished training? The log's last epoch against train.epochs. 0, or
  * ST_INPUT saying what to do. */
 int cli_run_finished(const char *dir, const Config *c, Status *st);
+/* The end of a run's training: export and forecast from its final checkpoint, the equations on
+ * stdout (io/cli/cmd_train.c; also used for the refined run of `framelaw canonical --refine`). */
+int cli_finish_run(const char *run_dir, int quiet, Status *st);
 
 #define CLI_MAX_SETS 64
 typedef struct {

@@ -2,6 +2,7 @@
  * under a change of latent coordinates, on demand (docs/canonical.md). Rewrites equations.txt / .tex
  * / .json (the canonical law opens the text files, its object is in the JSON); --set changes the
  * canonical.* keys and stores them in config.json. */
+#include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -9,10 +10,42 @@
 #include "io/cli/cli.h"
 #include "io/run/results.h"
 #include "io/run/runcanonical.h"
+#include "io/run/runrefine.h"
+
+static volatile sig_atomic_t stop_flag = 0;
+static void on_signal(int sig) {
+    (void)sig;
+    stop_flag = 1;
+}
+
+/* --refine EPOCHS (or --refine=EPOCHS) taken out of argv; 0 when absent, -1 after an error. */
+static long take_refine(int *argc, char **argv) {
+    long epochs = 0;
+    int k = 1;
+    for (int i = 1; i < *argc; i++) {
+        if (!strcmp(argv[i], "--")) {
+            while (i < *argc) argv[k++] = argv[i++];
+            break;
+        }
+        if (!strcmp(argv[i], "--refine") || !strncmp(argv[i], "--refine=", 9)) {
+            const char *v = argv[i][8] == '=' ? argv[i] + 9 : (i + 1 < *argc ? argv[++i] : NULL);
+            char *end;
+            epochs = v ? strtol(v, &end, 10) : 0;
+            if (!v || !*v || *end || epochs < 1 || epochs > 1000000) {
+                cli_error(2, "--refine needs a number of epochs (1 to 1000000), not '%s'", v ? v : "");
+                return -1;
+            }
+            continue;
+        }
+        argv[k++] = argv[i];
+    }
+    *argc = k;
+    return epochs;
+}
 
 int cmd_canonical(int argc, char **argv) {
     if (cli_wants_help(argc, argv)) {
-        printf("usage: framelaw canonical RUN_DIR [--set canonical.KEY=VALUE ...] [--quiet]\n\n"
+        printf("usage: framelaw canonical RUN_DIR [--set canonical.KEY=VALUE ...] [--refine EPOCHS] [--quiet]\n\n"
                "Search the changes of latent coordinates u = A z + b (one latent variable: an offset, and a\n"
                "fitted frequency of the sin / cos terms) for the one under which the run's law, refitted on\n"
                "its encoded training set, has the fewest terms while its fit error stays within\n"
@@ -24,11 +57,16 @@ int cmd_canonical(int argc, char **argv) {
                "options (default in brackets):\n"
                "  --set canonical.KEY=VALUE  change a setting (tolerance, cond_max); stored in\n"
                "                             RUN_DIR/config.json (repeatable)                      [none]\n"
+               "  --refine EPOCHS            train on in canonical form, EPOCHS epochs a candidate, leaving\n"
+               "                             out terms while the law still fits; the best becomes\n"
+               "                             RUN_DIR/refined (docs/canonical.md, Refinement)      [off]\n"
                "  --quiet                    no summary lines                                      [off]\n"
                "  --help                     this text\n\n"
                "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n");
         return 0;
     }
+    long refine = take_refine(&argc, argv);
+    if (refine < 0) return 2;
     RunArgs a;
     int rc = cli_run_args(argc, argv, "canonical.", &a);
     if (rc) return rc;
@@ -44,8 +82,31 @@ int cmd_canonical(int argc, char **argv) {
     }
     if (!rc) rc = cli_store_sets(&a, &c, &st); /* stored once they work, so export and the report see them */
     if (!rc) rc = results_write_equations(&r, quiet, &st);
+    static RefineResult res;
+    if (!rc && refine) {
+        struct sigaction sa, old_int, old_term;
+        memset(&sa, 0, sizeof sa);
+        sa.sa_handler = on_signal;
+        sigemptyset(&sa.sa_mask);
+        sigaction(SIGINT, &sa, &old_int);
+        sigaction(SIGTERM, &sa, &old_term);
+        RefineOptions ro = {refine, quiet, &stop_flag};
+        rc = run_refine(&r, &ro, &res, &st);
+        sigaction(SIGINT, &old_int, NULL);
+        sigaction(SIGTERM, &old_term, NULL);
+    }
     if (rc) cli_error(rc, "%s", st.msg);
     loaded_run_close(&r);
+    if (!rc && refine) {
+        const RefineCandidate *ch = &res.cand[res.chosen];
+        printf("refinement: %d candidates of %ld epochs; the law kept has %ld terms (canonical: %ld, learned: %ld); "
+               "validation %.4g refined, %.4g learned: the %s model is better\n", res.n, refine, ch->active,
+               res.cand[0].active, res.active_before, ch->val, res.val_before, res.kept_refined ? "refined" : "learned");
+        fflush(stdout);
+        char dir[CFG_PATH_MAX + 16];
+        snprintf(dir, sizeof dir, "%s/refined", a.dir);
+        if (cli_finish_run(dir, quiet, &st)) rc = cli_error(st.code, "%s", st.msg);
+    }
     run_unlock(&a.lock);
     return rc;
 }

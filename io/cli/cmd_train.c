@@ -28,8 +28,8 @@ static void on_signal(int sig) {
 
 /* ---- results at the end of training -------------------------------------------------------------- */
 
-/* Export and forecast from the final checkpoint, then print the equations. */
-static int finish_run(const char *run_dir, int quiet, Status *st) {
+/* Export and forecast from the final checkpoint, then print the equations (cli.h). */
+int cli_finish_run(const char *run_dir, int quiet, Status *st) {
     LoadedRun *r = malloc(sizeof *r);
     if (!r) return status_set(st, ST_RUNTIME, "out of memory");
     int rc = loaded_run_open(r, run_dir, st);
@@ -99,7 +99,7 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
     sigemptyset(&sa.sa_mask);
     sigaction(SIGINT, &sa, &old_int);
     sigaction(SIGTERM, &sa, &old_term);
-    TrainOpts o = {c, run_dir, resume, quiet, &stop_flag, 0};
+    TrainOpts o = {c, run_dir, resume, quiet, &stop_flag, 0, NULL, NULL};
     Model m;
     ParamSet ps;
     TrainResult res;
@@ -121,7 +121,7 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
     model_free(&m);
     params_free(&ps);
     rundata_close(&data);
-    if (!rc && !res.interrupted && finish_run(run_dir, quiet, &st)) rc = cli_error(st.code, "%s", st.msg);
+    if (!rc && !res.interrupted && cli_finish_run(run_dir, quiet, &st)) rc = cli_error(st.code, "%s", st.msg);
     return rc;
 }
 

@@ -1,7 +1,9 @@
 /* io/fs/files.c: see files.h. */
+#define _XOPEN_SOURCE 700 /* nftw */
 #include "io/fs/files.h"
 
 #include <errno.h>
+#include <ftw.h>
 #include <stdint.h>
 #include <fcntl.h>
 #include <stdio.h>
@@ -117,4 +119,17 @@ int fs_exists(const char *path) {
 int fs_is_dir(const char *path) {
     struct stat sb;
     return stat(path, &sb) == 0 && S_ISDIR(sb.st_mode);
+}
+
+static int remove_entry(const char *path, const struct stat *sb, int flag, struct FTW *ftw) {
+    (void)sb, (void)flag, (void)ftw;
+    return remove(path) ? -1 : 0;
+}
+
+int fs_remove_tree(const char *path, Status *st) {
+    struct stat sb;
+    if (lstat(path, &sb) != 0) return errno == ENOENT ? 0 : status_set(st, ST_RUNTIME, "%s: %s", path, strerror(errno));
+    if (nftw(path, remove_entry, 16, FTW_DEPTH | FTW_PHYS) != 0)
+        return status_set(st, ST_RUNTIME, "%s: cannot remove: %s", path, strerror(errno));
+    return 0;
 }

@@ -34,4 +34,8 @@ int fs_exists(const char *path);
 /* 1 when path is a folder (or a link to one). */
 int fs_is_dir(const char *path);
 
+/* Remove a folder framelaw made and everything in it (links are removed, not followed); a path
+ * that does not exist is fine. ST_RUNTIME naming what could not be removed. */
+int fs_remove_tree(const char *path, Status *st);
+
 #endif

@@ -356,6 +356,21 @@ static int data_scales(Run *r, const TrainData *ds, int Bmax, float *X, Status *
     return rc;
 }
 
+int train_validation_loss(const Config *c, const TrainData *ds, Model *m, ParamSet *ps, double *out, Status *st) {
+    Run r;
+    memset(&r, 0, sizeof r);
+    r.cfg = c, r.ds = ds, r.m = m, r.ps = ps;
+    int B = c->batch < ds->n_train ? c->batch : (int)(ds->n_train > 0 ? ds->n_train : 1);
+    float *X = nn_alloc((size_t)ds->k * B * ds->n_in * sizeof(float)); /* (k B, n_in) */
+    Tape t;
+    tape_init(&t, 256, (size_t)64 << 20);
+    int rc = data_scales(&r, ds, B, X, st);
+    if (!rc) rc = validate(&r, &t, X, B, out, st);
+    tape_free(&t);
+    nn_free(X);
+    return rc;
+}
+
 /* ---- threshold.measure contribution: the terms' scales over the training set -------------------- */
 
 static int threshold_contribution(Run *r, const TrainData *ds, Tape *t, float *X, int Bmax, Status *st) {
@@ -714,6 +729,17 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     long n_batches = (ds->n_train + B - 1) / B;
     float *X = nn_alloc((size_t)ds->k * B * ds->n_in * sizeof(float)); /* (k B, n_in) */
     int fresh = ps->step == 0, use_pca = !strcmp(c->init, "pca") || !strcmp(c->init, "isomap");
+    if (fresh && o->start) { /* a given start (refinement): its values and mask instead of model.init */
+        NN_CHECK(o->start->n == ps->n, "train_run: a start of %zu parameters for a model of %zu", o->start->n, ps->n);
+        memcpy(ps->val, o->start->val, ps->n * sizeof *ps->val);
+        long n_mask = (long)m->lib.n_terms * m->n_latent;
+        for (long i = 0; i < n_mask; i++) {
+            m->mask[i] = o->start_mask[i] ? 1 : 0;
+            m->maskf[i] = m->mask[i] ? 1.0f : 0.0f;
+        }
+        model_apply_mask(m, ps);
+        fresh = 0, use_pca = 0; /* nothing of the start-ups */
+    }
     Tape t;
     tape_init(&t, 256, (size_t)64 << 20);
     if ((fresh && ((use_pca && (rc = pca_init(&r, ds, X, B, st))) ||

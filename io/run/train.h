@@ -73,6 +73,9 @@ typedef struct {
     int quiet;                          /* no progress output */
     volatile sig_atomic_t *stop;        /* set by a signal: finish the step, checkpoint, return */
     int stop_after_steps;               /* tests: behave as if stopped after this many steps (0 = off) */
+    const ParamSet *start;              /* NULL, or a new run starts from these values (same layout; no
+                                         * model.init, no threshold.select pass) and ... */
+    const uint8_t *start_mask;          /* ... this mask (n_terms, n_latent) (refinement) */
 } TrainOpts;
 
 typedef struct {
@@ -82,6 +85,10 @@ typedef struct {
     long active;
     char checkpoint[4200];              /* the last checkpoint written */
 } TrainResult;
+
+/* The validation loss of a model (as train_run's log reports it: the loss weights of the config
+ * without the L1 term, the data's scales with loss.normalize), over ds's validation split. */
+int train_validation_loss(const Config *c, const TrainData *ds, Model *m, ParamSet *ps, double *out, Status *st);
 
 /* What a run will hold in memory, estimated before anything is allocated: the model's parameters
  * (values, gradients, two Adam moments and the checkpoint's copy: 6 floats each; for frames the first
