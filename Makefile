@@ -33,7 +33,7 @@ BENCH_BIN:= $(BENCH_SRC:tests/%.c=$(BUILD)/tests/%)
 all: framelaw
 
 framelaw: $(BUILD)/framelaw
-	cp $< $@
+	cp $< $@.tmp && mv -f $@.tmp $@  # a rename: a running ./framelaw keeps its old file
 
 $(BUILD)/framelaw: $(BUILD)/io/cli/main.o $(BUILD)/libframelaw.a
 	$(CC) $(CFLAGS) -o $@ $^ $(LDLIBS)

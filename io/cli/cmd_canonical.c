@@ -12,9 +12,9 @@
 #include "io/run/runcanonical.h"
 #include "io/run/runrefine.h"
 
-static volatile sig_atomic_t stop_flag = 0;
+static volatile sig_atomic_t stop_flag = 0, stop_sig = SIGINT;
 static void on_signal(int sig) {
-    (void)sig;
+    stop_sig = sig;
     stop_flag = 1;
 }
 
@@ -62,7 +62,8 @@ int cmd_canonical(int argc, char **argv) {
                "                             RUN_DIR/refined (docs/canonical.md, Refinement)      [off]\n"
                "  --quiet                    no summary lines                                      [off]\n"
                "  --help                     this text\n\n"
-               "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n");
+               "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input, 130 (143) a refinement\n"
+               "stopped by Ctrl-C (SIGTERM): RUN_DIR is as it was\n");
         return 0;
     }
     long refine = take_refine(&argc, argv);
@@ -96,6 +97,7 @@ int cmd_canonical(int argc, char **argv) {
         sigaction(SIGTERM, &old_term, NULL);
     }
     if (rc) cli_error(rc, "%s", st.msg);
+    if (rc && stop_flag) rc = 128 + stop_sig; /* as shells expect of a stopped process (docs/cli.md) */
     loaded_run_close(&r);
     if (!rc && refine) {
         const RefineCandidate *ch = &res.cand[res.chosen];
