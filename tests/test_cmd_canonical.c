@@ -5,7 +5,10 @@
  * ones it is the real Jordan form u1' = -a u2, u2' = c u1 with a c = w^2 (the eigenvalues +-i w of
  * the linear law do not change under a change of coordinates; the oscillator's angular frequency,
  * common practice). The search itself is checked against outside values in tests/test_canonical.c. */
+#include <signal.h>
 #include <sys/stat.h>
+#include <sys/wait.h>
+#include <time.h>
 #include <unistd.h>
 
 #include <cjson/cJSON.h>
@@ -288,12 +291,51 @@ static void test_refine(void **state) {
     }
 }
 
+/* Ctrl-C during a refinement: exit 130 (128 + SIGINT, as shells expect), its work folder RUN/refine
+ * removed, and the refinement kept from before (test_refine's RUN/refined, refine.json) untouched. */
+static void test_refine_stopped(void **state) {
+    (void)state;
+    char run[600], work[700];
+    snprintf(run, sizeof run, "%s/run", tmp);
+    snprintf(work, sizeof work, "%s/refine", run);
+    char *before_eq = run_file("refined/equations.json"), *before_json = run_file("refine.json");
+    pid_t pid = fork();
+    assert_true(pid >= 0);
+    if (pid == 0) {
+        FILE *n = freopen("/dev/null", "w", stderr);
+        n = freopen("/dev/null", "w", stdout);
+        (void)n;
+        execl(test_framelaw(), test_framelaw(), "canonical", run, "--refine", "1000000", "--quiet", (char *)NULL);
+        _exit(127);
+    }
+    int started = 0;
+    for (int i = 0; i < 600 && !started; i++) { /* up to a minute for the refinement to begin */
+        struct timespec ts = {0, 100000000};
+        nanosleep(&ts, NULL);
+        started = access(work, F_OK) == 0;
+    }
+    assert_true(started);
+    struct timespec ts = {0, 300000000};
+    nanosleep(&ts, NULL);
+    kill(pid, SIGINT);
+    int ws;
+    assert_int_equal(waitpid(pid, &ws, 0), pid);
+    assert_true(WIFEXITED(ws));
+    assert_int_equal(WEXITSTATUS(ws), 128 + SIGINT);
+    assert_int_equal(access(work, F_OK), -1);
+    char *after_eq = run_file("refined/equations.json"), *after_json = run_file("refine.json");
+    assert_string_equal(before_eq, after_eq);
+    assert_string_equal(before_json, after_json);
+    free(before_eq), free(after_eq), free(before_json), free(after_json);
+}
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_found_in_training),
         cmocka_unit_test(test_trajectory_columns),
         cmocka_unit_test(test_command),
         cmocka_unit_test(test_refine),
+        cmocka_unit_test(test_refine_stopped),
     };
     return cmocka_run_group_tests_name("canonical form in a run", tests, setup, teardown);
 }

@@ -63,7 +63,7 @@ int cmd_canonical(int argc, char **argv) {
                "  --quiet                    no summary lines                                      [off]\n"
                "  --help                     this text\n\n"
                "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input, 130 (143) a refinement\n"
-               "stopped by Ctrl-C (SIGTERM): RUN_DIR is as it was\n");
+               "stopped by Ctrl-C (SIGTERM): its work is removed, an earlier RUN_DIR/refined stays\n");
         return 0;
     }
     long refine = take_refine(&argc, argv);
