@@ -2,6 +2,7 @@
 #include "sparse/ensemble.h"
 
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -46,6 +47,13 @@ static int key_cmp(const void *a, const void *b) {
     if (x->rec != y->rec) return x->rec < y->rec ? -1 : 1;
     if (x->step != y->step) return x->step < y->step ? -1 : 1;
     return x->i < y->i ? -1 : x->i > y->i;
+}
+
+void ensemble_block_too_long_text(char *buf, size_t n, long block, long longest) {
+    snprintf(buf, n,
+             "block %ld samples is longer than every recording (the longest run of consecutive samples has %ld); "
+             "use a shorter block",
+             block, longest);
 }
 
 void block_plan_free(BlockPlan *bp) {
@@ -102,10 +110,10 @@ int block_plan_init(BlockPlan *bp, const int *rec, const long *step, long N, lon
     if (bp->win_cum[n_seg] == 0) {
         long longest = bp->longest;
         block_plan_free(bp);
-        return status_set(st, ST_INPUT,
-                          "ensemble: block %ld samples is longer than every recording (the longest run of "
-                          "consecutive samples has %ld); use a shorter block",
-                          block, longest);
+        bp->block = block, bp->longest = longest, bp->block_too_long = 1;
+        char why[200];
+        ensemble_block_too_long_text(why, sizeof why, block, longest);
+        return status_set(st, ST_INPUT, "ensemble: %s", why);
     }
     status_ok(st);
     return 0;
@@ -184,7 +192,10 @@ int ensemble_fit_theta(Ensemble *e, const double *theta, const double *dx, const
                 return status_set(st, ST_INPUT, "ensemble: non-finite target at sample %ld, equation %d", i + 1, j + 1);
     }
     BlockPlan bp;
-    if (block_plan_init(&bp, rec, step, N, o->block, st)) return st->code;
+    if (block_plan_init(&bp, rec, step, N, o->block, st)) {
+        if (bp.block_too_long) e->block_too_long = 1, e->longest = bp.longest;
+        return st->code;
+    }
 
     int M = o->members;
     long Td = (long)T * d;

@@ -84,10 +84,13 @@ typedef struct {
     long *win_cum;          /* (n_seg + 1) block positions before each segment: win_cum[n_seg] total */
     long longest;           /* the longest segment */
     long unreachable;       /* samples in segments shorter than the block */
+    int block_too_long;     /* after a failed block_plan_init: 1 when the block is longer than every
+                               segment (longest and block then say by how much), else 0 */
 } BlockPlan;
 
 /* Segments of the samples and the block positions. ST_INPUT naming "block" when it is < 1 or
- * longer than every segment; also for N < 1. */
+ * longer than every segment (then bp->block_too_long is 1); also for N < 1. On failure bp holds
+ * nothing to free. */
 int block_plan_init(BlockPlan *bp, const int *rec, const long *step, long N, long block, Status *st);
 void block_plan_free(BlockPlan *bp);
 /* Blocks per resample: ceil(N / block). */
@@ -115,7 +118,15 @@ typedef struct {
     long longest;           /* the longest segment, in samples */
     int rank_deficient;     /* member solves with dependent columns (ThreshLsqReport), summed */
     int unconverged;        /* members whose threshold passes had not settled at max_iter */
+    int block_too_long;     /* after a failed fit: 1 when the block is longer than every run of
+                               consecutive samples (longest says the longest), so that a caller can
+                               name its own key for the block; else 0 */
 } Ensemble;
+
+/* The reason of a block longer than every run of consecutive samples, without a prefix ("block 200
+ * samples is longer than every recording (...); use a shorter block"); the fit's message is
+ * "ensemble: " and this. */
+void ensemble_block_too_long_text(char *buf, size_t n, long block, long longest);
 
 /* Fit the ensemble on theta (N, T) (the library evaluated at each sample's state) and targets
  * dx (N, d), with rec (N) and step (N) as above. rng is advanced. Returns 0, ST_INPUT (bad options

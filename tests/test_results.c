@@ -288,7 +288,7 @@ static void test_forecast_of_blowing_up_model(void **state) {
     ParamSet ps;
     RunData d;
     assert_int_equal(rundata_open(&d, c, &st), 0);
-    assert_int_equal(train_load_latest(fx->run, c, (int)d.ds.n, d.td.n_train, &m, &ps, &st), 0);
+    assert_int_equal(train_load_latest(fx->run, c, (int)d.ds.n, d.td.n_train, &m, &ps, NULL, &st), 0);
     Mat xi = params_val(&ps, m.xi);
     memset(xi.d, 0, 4 * sizeof(float));
     xi.d[0 * 2 + 0] = 3.0f; /* dz1/dt = 3*z1 */

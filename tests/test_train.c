@@ -261,7 +261,7 @@ static void stop_in_passes(const char *measure) {
     params_free(&p2);
     /* the checkpoint holds the law as the last step left it: every term, as before the first
      * threshold (epoch 2), which the uninterrupted run's log shows pruning */
-    assert_int_equal(train_load_latest(d2, &c, NCH, (long)(NREC - 1) * NT, &m2, &p2, &st), 0);
+    assert_int_equal(train_load_latest(d2, &c, NCH, (long)(NREC - 1) * NT, &m2, &p2, NULL, &st), 0);
     long all = (long)m2.lib.n_terms * 2;
     assert_int_equal(model_active(&m2), all);
     model_free(&m2);
@@ -350,7 +350,7 @@ static void test_corrupt_checkpoints_are_refused(void **state) {
     Osc o;
     osc_init(&o);
     Status st;
-    assert_int_equal(train_load_latest(dir, &c, NCH, (long)(NREC - 1) * NT, &m, &ps, &st), 0);
+    assert_int_equal(train_load_latest(dir, &c, NCH, (long)(NREC - 1) * NT, &m, &ps, NULL, &st), 0);
     CkptMeta meta;
     long n_mask = (long)m.lib.n_terms * 2;
     int64_t *order = malloc((size_t)(NREC - 1) * NT * sizeof *order);
@@ -362,7 +362,7 @@ static void test_corrupt_checkpoints_are_refused(void **state) {
     /* the latest loadable one is epoch 2 */
     model_free(&m);
     params_free(&ps);
-    assert_int_equal(train_load_latest(dir, &c, NCH, (long)(NREC - 1) * NT, &m, &ps, &st), 0);
+    assert_int_equal(train_load_latest(dir, &c, NCH, (long)(NREC - 1) * NT, &m, &ps, NULL, &st), 0);
     snprintf(newest, sizeof newest, "%s/checkpoints/ckpt-00000002-000000.ckpt", dir);
     assert_int_equal(ckpt_read(newest, &meta, &ps, m.mask, n_mask, order, (NREC - 1) * NT, c.batch, &st), 0);
     assert_int_equal(meta.epoch, 2);
@@ -370,7 +370,7 @@ static void test_corrupt_checkpoints_are_refused(void **state) {
     c.lr = 1e-2;
     model_free(&m);
     params_free(&ps);
-    assert_int_equal(train_load_latest(dir, &c, NCH, (long)(NREC - 1) * NT, &m, &ps, &st), ST_INPUT);
+    assert_int_equal(train_load_latest(dir, &c, NCH, (long)(NREC - 1) * NT, &m, &ps, NULL, &st), ST_INPUT);
     assert_non_null(strstr(st.msg, "config changed"));
     free(order);
     model_free(&m);
@@ -597,7 +597,7 @@ static void test_divergence_stops_and_keeps_checkpoints(void **state) {
     assert_non_null(strstr(st.msg, "optimizer.lr"));
     model_free(&m);
     params_free(&ps);
-    assert_int_equal(train_load_latest(dir, &c, NCH, (long)(NREC - 1) * NT, &m, &ps, &st), 0);
+    assert_int_equal(train_load_latest(dir, &c, NCH, (long)(NREC - 1) * NT, &m, &ps, NULL, &st), 0);
     Mat xi = params_val(&ps, m.xi);
     for (long i = 0; i < mat_size(xi); i++) assert_true(isfinite(xi.d[i]));
     model_free(&m);

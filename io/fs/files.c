@@ -40,27 +40,28 @@ int fs_make_dirs(const char *path, Status *st) {
     return make_one(buf, st);
 }
 
-int fs_read_file(const char *path, size_t max, char **out, size_t *len, Status *st) {
+int fs_read_file_as(const char *path, const char *name, size_t max, char **out, size_t *len, Status *st) {
+    const char *pre = name ? name : "", *sep = name ? ": " : ""; /* what messages start with */
     *out = NULL;
     if (len) *len = 0;
     if (max > SIZE_MAX / 2) max = SIZE_MAX / 2;   /* so that max + 1 and the doubling cannot wrap */
     /* O_NONBLOCK: opening a pipe with no writer must not wait; it is refused below as not regular */
     int fd = open(path, O_RDONLY | O_NONBLOCK | O_CLOEXEC);
-    if (fd < 0) return status_set(st, ST_INPUT, "%s: cannot open: %s", path, strerror(errno));
+    if (fd < 0) return status_set(st, ST_INPUT, "%s%scannot open: %s", pre, sep, strerror(errno));
     struct stat sb;
     if (fstat(fd, &sb) != 0) {
         int e = errno;
         close(fd);
-        return status_set(st, ST_INPUT, "%s: cannot read: %s", path, strerror(e));
+        return status_set(st, ST_INPUT, "%s%scannot read: %s", pre, sep, strerror(e));
     }
     if (!S_ISREG(sb.st_mode)) {
         close(fd);
-        return status_set(st, ST_INPUT, "%s: not a regular file (%s)", path,
+        return status_set(st, ST_INPUT, "%s%snot a regular file (%s)", pre, sep,
                           S_ISDIR(sb.st_mode) ? "a folder" : "a device, pipe or socket");
     }
     if ((unsigned long long)sb.st_size > (unsigned long long)max) {
         close(fd);
-        return status_set(st, ST_INPUT, "%s: %lld bytes, more than the %zu this file may have", path,
+        return status_set(st, ST_INPUT, "%s%s%lld bytes, more than the %zu this file may have", pre, sep,
                           (long long)sb.st_size, max);
     }
     /* The size from fstat is a hint (the file may grow while it is read): read until end of file,
@@ -71,21 +72,21 @@ int fs_read_file(const char *path, size_t max, char **out, size_t *len, Status *
     char *b = malloc(cap + 1);
     if (!b) {
         close(fd);
-        return status_set(st, ST_RUNTIME, "%s: out of memory (%zu bytes)", path, cap + 1);
+        return status_set(st, ST_RUNTIME, "%s%sout of memory (%zu bytes)", pre, sep, cap + 1);
     }
     for (;;) {
         if (n == cap) {
             if (cap > max) {
                 free(b);
                 close(fd);
-                return status_set(st, ST_INPUT, "%s: more than the %zu bytes this file may have", path, max);
+                return status_set(st, ST_INPUT, "%s%smore than the %zu bytes this file may have", pre, sep, max);
             }
             size_t nc = cap * 2 > max + 1 ? max + 1 : cap * 2;
             char *nb = realloc(b, nc + 1);
             if (!nb) {
                 free(b);
                 close(fd);
-                return status_set(st, ST_RUNTIME, "%s: out of memory (%zu bytes)", path, nc + 1);
+                return status_set(st, ST_RUNTIME, "%s%sout of memory (%zu bytes)", pre, sep, nc + 1);
             }
             b = nb, cap = nc;
         }
@@ -95,7 +96,7 @@ int fs_read_file(const char *path, size_t max, char **out, size_t *len, Status *
             int e = errno;
             free(b);
             close(fd);
-            return status_set(st, ST_INPUT, "%s: read error: %s", path, strerror(e));
+            return status_set(st, ST_INPUT, "%s%sread error: %s", pre, sep, strerror(e));
         }
         if (got == 0) break;
         n += (size_t)got;
@@ -103,12 +104,16 @@ int fs_read_file(const char *path, size_t max, char **out, size_t *len, Status *
     close(fd);
     if (n > max) {
         free(b);
-        return status_set(st, ST_INPUT, "%s: more than the %zu bytes this file may have", path, max);
+        return status_set(st, ST_INPUT, "%s%smore than the %zu bytes this file may have", pre, sep, max);
     }
     b[n] = 0;
     *out = b;
     if (len) *len = n;
     return 0;
+}
+
+int fs_read_file(const char *path, size_t max, char **out, size_t *len, Status *st) {
+    return fs_read_file_as(path, path, max, out, len, st);
 }
 
 int fs_exists(const char *path) {

@@ -28,6 +28,9 @@ int fs_make_dirs(const char *path, Status *st);
  * pipe: never waited on), one larger than max bytes, a read error. Out of memory is ST_RUNTIME.
  * On failure *out is NULL. */
 int fs_read_file(const char *path, size_t max, char **out, size_t *len, Status *st);
+/* The same with messages that start with name instead of the path, or (name NULL) with the reason
+ * alone ("cannot open: No such file or directory"), for a caller that says what the file was. */
+int fs_read_file_as(const char *path, const char *name, size_t max, char **out, size_t *len, Status *st);
 
 /* 1 when something (file, folder, ...) exists at path. */
 int fs_exists(const char *path);

@@ -741,12 +741,8 @@ int config_parse(Config *c, const char *json, const char *origin, const char *ba
 static int read_text(const char *path, char **out, Status *st) {
     size_t len;
     Status rs;
-    if (fs_read_file(path, 1u << 24, out, &len, &rs)) {
-        /* rs.msg starts with the path: say what the file was meant to be */
-        size_t pl = strlen(path);
-        const char *why = !strncmp(rs.msg, path, pl) && !strncmp(rs.msg + pl, ": ", 2) ? rs.msg + pl + 2 : rs.msg;
-        return status_set(st, rs.code, "%s: cannot read the config: %s", path, why);
-    }
+    if (fs_read_file_as(path, NULL, 1u << 24, out, &len, &rs)) /* rs.msg: the reason alone */
+        return status_set(st, rs.code, "%s: cannot read the config: %s", path, rs.msg);
     if (strlen(*out) != len) {
         free(*out);
         *out = NULL;
@@ -813,33 +809,37 @@ int config_load(Config *c, const char *path, Status *st) { return load_file(c, p
 
 int config_load_run(Config *c, const char *path, Status *st) { return load_file(c, path, 1, st); }
 
-int config_set(Config *c, const char *assignment, Status *st) {
+int config_set(Config *c, const char *assignment, Status *st) { return config_set_as(c, assignment, "--set", st); }
+
+int config_set_as(Config *c, const char *assignment, const char *origin, Status *st) {
+    /* messages: "<origin>: why" or "<origin> <key>: why", without origin "why" or "<key>: why" */
+    const char *pre = origin ? origin : "", *colon = origin ? ": " : "", *space = origin ? " " : "";
     const char *eq = strchr(assignment, '=');
     if (!eq || eq == assignment)
-        return status_set(st, ST_INPUT, "--set %s: expected KEY=VALUE (for example train.epochs=100)", assignment);
+        return status_set(st, ST_INPUT, "%s%s%s: expected KEY=VALUE (for example train.epochs=100)", pre, space, assignment);
     size_t klen = (size_t)(eq - assignment);
     char key[256];
-    if (klen >= sizeof key) return status_set(st, ST_INPUT, "--set: key too long");
+    if (klen >= sizeof key) return status_set(st, ST_INPUT, "%s%skey too long", pre, colon);
     memcpy(key, assignment, klen);
     key[klen] = 0;
     /* the key path: non-empty parts joined by dots */
     for (size_t i = 0; i < klen; i++)
         if ((key[i] == '.' && (i == 0 || i + 1 == klen || key[i + 1] == '.')) || isspace((unsigned char)key[i]))
-            return status_set(st, ST_INPUT, "--set: bad key path '%s'", key);
+            return status_set(st, ST_INPUT, "%s%sbad key path '%s'", pre, colon, key);
     if (!find_key(key) && !is_section(key)) {
         char s[128];
         suggest(key, s, sizeof s);
-        if (s[0]) return status_set(st, ST_INPUT, "--set: %s: unknown key (did you mean %s?)", key, s);
-        return status_set(st, ST_INPUT, "--set: %s: unknown key", key);
+        if (s[0]) return status_set(st, ST_INPUT, "%s%s%s: unknown key (did you mean %s?)", pre, colon, key, s);
+        return status_set(st, ST_INPUT, "%s%s%s: unknown key", pre, colon, key);
     }
     cJSON *value = cJSON_ParseWithOpts(eq + 1, NULL, 1);
     JsonFault jf;
     if (value && json_check(eq + 1, strlen(eq + 1), &jf)) { /* what cJSON takes but RFC 8259 does not */
         cJSON_Delete(value);
-        return status_set(st, ST_INPUT, "--set %s: the value is not JSON (RFC 8259): column %d: %s", key, jf.col, jf.what);
+        return status_set(st, ST_INPUT, "%s%s%s: the value is not JSON (RFC 8259): column %d: %s", pre, space, key, jf.col, jf.what);
     }
     if (!value) value = cJSON_CreateString(eq + 1);   /* a bare word */
-    if (!value) return status_set(st, ST_RUNTIME, "--set: out of memory");
+    if (!value) return status_set(st, ST_RUNTIME, "%s%sout of memory", pre, colon);
     /* nest it: {"a": {"b": value}} for "a.b" */
     cJSON *root = cJSON_CreateObject(), *cur = root;
     char *part = key;
@@ -851,7 +851,7 @@ int config_set(Config *c, const char *assignment, Status *st) {
     }
     cJSON_AddItemToObject(cur, part, value);
     char cwd[CFG_PATH_MAX];
-    Ctx x = {"--set", getcwd(cwd, sizeof cwd) ? cwd : NULL};
+    Ctx x = {origin, getcwd(cwd, sizeof cwd) ? cwd : NULL};
     int rc = apply_tree(c, root, &x, st);
     cJSON_Delete(root);
     if (!rc) status_ok(st);

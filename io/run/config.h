@@ -132,6 +132,9 @@ int config_load_run(Config *c, const char *path, Status *st);
  * validation and messages as the file, prefixed "--set"; a relative data.frames is made absolute
  * against the current directory. On error *c is left unchanged. */
 int config_set(Config *c, const char *assignment, Status *st);
+/* The same with messages prefixed origin instead of "--set" ("<origin>: <key>: why"), or (origin
+ * NULL) not prefixed at all, for a caller that says where the assignment came from. */
+int config_set_as(Config *c, const char *assignment, const char *origin, Status *st);
 
 /* 1 when the key was given (by the file or a --set), 0 when it holds its default. A run folder's
  * config.json gives every key it holds. */

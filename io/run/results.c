@@ -45,12 +45,12 @@ int loaded_run_open(LoadedRun *r, const char *run_dir, Status *st) {
         return st->code;
     }
     r->have_data = 1;
-    int rc = train_load_latest(run_dir, &r->cfg, r->data.td.n_in, r->data.td.n_train, &r->m, &r->ps, st);
+    int found;
+    int rc = train_load_latest(run_dir, &r->cfg, r->data.td.n_in, r->data.td.n_train, &r->m, &r->ps, &found, st);
     r->have_model = 1;
     coef_init(&r->coef, r->m.lib.n_terms, r->m.n_latent);
     if (rc) {
-        if (strstr(st->msg, "no checkpoint"))
-            status_set(st, ST_INPUT, "%s: no checkpoint (has the run been trained?)", run_dir);
+        if (found == 0) status_set(st, ST_INPUT, "%s: no checkpoint (has the run been trained?)", run_dir);
         loaded_run_close(r);
         return st->code;
     }

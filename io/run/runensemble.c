@@ -64,11 +64,10 @@ int run_ensemble_get(LoadedRun *r, int quiet, Status *st) {
     int rc = ensemble_fit(&re->e, &r->m.lib, es.state, es.target, es.rec, es.step, es.N, &re->opt, &rng, st);
     encoded_set_free(&es);
     if (rc) {
-        if (rc == ST_INPUT && strstr(st->msg, "block")) {
-            char msg[sizeof st->msg];
-            snprintf(msg, sizeof msg, "%s", st->msg);
-            const char *m = strncmp(msg, "ensemble: ", 10) ? msg : msg + 10;
-            status_set(st, ST_INPUT, "%s: %s", re->block_from_seconds ? "ensemble.block_seconds" : "ensemble.block", m);
+        if (re->e.block_too_long) { /* name the key the block came from */
+            char why[200];
+            ensemble_block_too_long_text(why, sizeof why, re->opt.block, re->e.longest);
+            status_set(st, ST_INPUT, "%s: %s", re->block_from_seconds ? "ensemble.block_seconds" : "ensemble.block", why);
         }
         free(re);
         return rc;

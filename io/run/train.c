@@ -177,10 +177,12 @@ static int save_periodic(Run *r, char *written, Status *st) {
     return rc;
 }
 
-/* Newest checkpoint that reads back whole and matches the config; corrupt ones are reported. */
-static int load_latest(Run *r, int quiet, int allow_fresh, Status *st) {
+/* Newest checkpoint that reads back whole and matches the config; corrupt ones are reported. *found
+ * (when not NULL) receives the number of checkpoint files there were, readable or not. */
+static int load_latest(Run *r, int quiet, int allow_fresh, int *found, Status *st) {
     char **names;
     int n = list_checkpoints(r->ckpt_dir, &names);
+    if (found) *found = n;
     long n_mask = (long)r->m->lib.n_terms * r->m->n_latent;
     long batch = r->cfg->batch < r->ds->n_train ? r->cfg->batch : r->ds->n_train; /* as train_run's B */
     if (batch < 1) batch = 1;
@@ -646,13 +648,14 @@ static int setup(Run *r, const Config *cfg, const TrainData *ds, const char *run
 }
 
 int train_load_latest(const char *run_dir, const Config *cfg, int n_in, long n_train, Model *m, ParamSet *ps,
-                      Status *st) {
+                      int *found, Status *st) {
+    if (found) *found = -1;
     TrainData ds = {0};
     ds.n_in = n_in;
     ds.n_train = n_train;
     Run r;
     int rc = setup(&r, cfg, &ds, run_dir, m, ps, st);
-    if (!rc) rc = load_latest(&r, 1, 0, st);
+    if (!rc) rc = load_latest(&r, 1, 0, found, st);
     nn_free(r.order);
     return rc;
 }
@@ -715,7 +718,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
         return status_set(st, ST_INPUT, "dataset gives %d blocks, model needs %d", ds->k, m->win ? m->win : m->order + 1);
     }
     RunLogWriter log;
-    if (fs_make_dirs(r.ckpt_dir, st) || (o->resume && load_latest(&r, o->quiet, 1, st)) ||
+    if (fs_make_dirs(r.ckpt_dir, st) || (o->resume && load_latest(&r, o->quiet, 1, NULL, st)) ||
         runlog_open(&log, o->run_dir, o->resume, (long)r.meta.epoch, st)) {
         nn_free(r.order);
         return st->code;

@@ -124,8 +124,11 @@ int model_spec_from_config(const Config *c, int n_in, ModelSpec *sp, Status *st)
  * stays) or a file error. */
 int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, TrainResult *res, Status *st);
 
-/* Load the newest valid checkpoint of a run into a model set up from its config (no training). */
+/* Load the newest valid checkpoint of a run into a model set up from its config (no training).
+ * *found (when not NULL) receives the number of checkpoint files in the run's checkpoints folder,
+ * readable or not (-1 when the call failed before looking): 0 tells a run never trained from one
+ * whose checkpoints are all unusable, without reading the message. */
 int train_load_latest(const char *run_dir, const Config *cfg, int n_in, long n_train, Model *m, ParamSet *ps,
-                      Status *st);
+                      int *found, Status *st);
 
 #endif

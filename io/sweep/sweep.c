@@ -179,14 +179,8 @@ int sweep_member_config(const Sweep *sw, int i, Config *c, Status *st) {
     if (!as) return status_set(st, ST_RUNTIME, "out of memory");
     int rc = 0;
     for (int a = 0; a < sw->n_axes && !rc; a++) {
-        if ((rc = assignment(sw, i, a, as, CFG_PATH_MAX * 3, st)) || (rc = config_set(c, as, st))) {
-            char msg[sizeof st->msg];
-            const char *p = st->msg;
-            if (!strncmp(p, "--set: ", 7)) p += 7;
-            else if (!strncmp(p, "--set ", 6)) p += 6;
-            snprintf(msg, sizeof msg, "%s", p);
-            rc = status_set(st, ST_INPUT, "%s: member %s (%s): vary: %s", sw->path, m->id, label, msg);
-        }
+        if ((rc = assignment(sw, i, a, as, CFG_PATH_MAX * 3, st)) || (rc = config_set_as(c, as, NULL, st)))
+            rc = status_set(st, ST_INPUT, "%s: member %s (%s): vary: %s", sw->path, m->id, label, st->msg);
     }
     free(as);
     if (rc) return rc;
