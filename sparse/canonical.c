@@ -1716,52 +1716,40 @@ typedef struct {
     int digits;
 } NameCtx;
 
+static NameStyle name_style(EqStyle style) { return style == EQ_LATEX ? NAME_LATEX : NAME_TEXT; }
+
+/* Variable v of the canonical coordinates: u1 .. uk, then du1/dt .. (library.c's form, letter u). */
 static int var_name(int k, int v, EqStyle style, char *buf, size_t n) {
-    int vel = v >= k, idx = (vel ? v - k : v) + 1;
-    if (style == EQ_LATEX) return snprintf(buf, n, vel ? "\\dot{u}_{%d}" : "u_{%d}", idx);
-    return snprintf(buf, n, vel ? "du%d/dt" : "u%d", idx);
+    int vel = v >= k;
+    return library_symbol_name('u', vel ? v - k : v, vel, name_style(style), buf, n);
 }
 
-/* Term t of the library in the canonical variables: u instead of z, trig arguments f w_i u_i. */
+static int canon_var(const void *vctx, int v, NameStyle style, char *buf, size_t n) {
+    const NameCtx *ctx = vctx;
+    return var_name(ctx->c->k, v, style == NAME_LATEX ? EQ_LATEX : EQ_TEXT, buf, n);
+}
+
+/* A trig argument's factor in the canonical variables: f w_i. */
+static int canon_freq(const void *vctx, const Term *term, char *buf, size_t n) {
+    const NameCtx *ctx = vctx;
+    return snprintf(buf, n, "%.*g", ctx->digits, term->freq * ctx->c->w[term->var[0] % ctx->c->k]);
+}
+
+/* Term t of the library in the canonical variables (named by library.c's term table): u instead of
+ * z, trig arguments f w_i u_i. Returns 1 for the constant. */
 static int canon_term_name(const void *vctx, int t, EqStyle style, char *buf, size_t n) {
     const NameCtx *ctx = vctx;
     const Term *term = &ctx->lib->terms[t];
-    int k = ctx->c->k;
-    if (term->kind == TERM_CONST) {
-        snprintf(buf, n, "1");
-        return 1;
-    }
-    char v[48];
-    if (term->kind == TERM_MONO) {
-        size_t len = 0;
-        if (n) buf[0] = 0;
-        for (int f = 0; f < term->n_fac && len < n; f++) {
-            var_name(k, term->var[f], style, v, sizeof v);
-            int vel = term->var[f] >= k;
-            const char *sep = !f ? "" : style == EQ_LATEX ? " " : "*";   /* as library.c names them */
-            int w;
-            if (term->pow[f] == 1) w = snprintf(buf + len, n - len, "%s%s", sep, v);
-            else if (style == EQ_LATEX) w = snprintf(buf + len, n - len, "%s%s^{%d}", sep, v, term->pow[f]);
-            else if (vel) w = snprintf(buf + len, n - len, "%s(%s)^%d", sep, v, term->pow[f]);
-            else w = snprintf(buf + len, n - len, "%s%s^%d", sep, v, term->pow[f]);
-            len += w > 0 ? (size_t)w : 0;
-        }
-        return 0;
-    }
-    var_name(k, term->var[0], style, v, sizeof v);
-    const char *fn = term->kind == TERM_SIN ? "sin" : "cos";
-    char fr[40];
-    snprintf(fr, sizeof fr, "%.*g", ctx->digits, term->freq * ctx->c->w[term->var[0] % k]);
-    const char *pre = style == EQ_LATEX ? "\\" : "";
-    if (!strcmp(fr, "1")) snprintf(buf, n, "%s%s(%s)", pre, fn, v);
-    else snprintf(buf, n, style == EQ_LATEX ? "%s%s(%s %s)" : "%s%s(%s*%s)", pre, fn, fr, v);
-    return 0;
+    TermNamer nm = {ctx->c->k, canon_var, canon_freq, ctx};
+    library_name_with(term, name_style(style), &nm, buf, n);
+    return term->kind == TERM_CONST;
 }
 
-static void lhs_name(const Canonical *c, int j, EqStyle style, char *buf, size_t n) {
-    int second = c->order == 2;
-    if (style == EQ_LATEX) snprintf(buf, n, "%s{u}_{%d} &=", second ? "\\ddot" : "\\dot", j + 1);
-    else snprintf(buf, n, second ? "d2u%d/dt2 =" : "du%d/dt =", j + 1);
+/* "du1/dt =", LaTeX "\dot{u}_{1} &=" (align: with the alignment mark) or "\dot{u}_{1} =". */
+static void lhs_name(const Canonical *c, int j, EqStyle style, int align, char *buf, size_t n) {
+    char u[40];
+    library_symbol_name('u', j, c->order, name_style(style), u, sizeof u);
+    snprintf(buf, n, style == EQ_LATEX && align ? "%s &=" : "%s =", u);
 }
 
 static int clamp_digits(int d) { return d < 1 ? 1 : d > 17 ? 17 : d; }
@@ -1778,7 +1766,7 @@ size_t canonical_format(char *buf, size_t n, EqStyle style, const Canonical *c, 
     if (style == EQ_LATEX) PUT("\\begin{aligned}\n");
     for (int j = 0; j < c->k; j++) {
         char lhs[64];
-        lhs_name(c, j, style, lhs, sizeof lhs);
+        lhs_name(c, j, style, 1, lhs, sizeof lhs);
         size_t w = equation_line_with(len < n ? buf + len : NULL, len < n ? n - len : 0, style, lhs, c->n_terms,
                                       canon_term_name, &ctx, c->xi + j, c->mask + j, c->k, digits);
         len += w;
@@ -1798,7 +1786,7 @@ static int map_term_name(const void *vctx, int t, EqStyle style, char *buf, size
         snprintf(buf, n, "1");
         return 1;
     }
-    snprintf(buf, n, style == EQ_LATEX ? "z_{%d}" : "z%d", t + 1);
+    library_symbol_name('z', t, 0, name_style(style), buf, n);
     return 0;
 }
 
@@ -1807,8 +1795,9 @@ static size_t map_line(char *buf, size_t n, EqStyle style, const Canonical *c, i
     double row[KMAX + 1];
     for (int j = 0; j < c->k; j++) row[j] = c->A[i * c->k + j];
     row[c->k] = c->b[i];
-    char lhs[32];
-    snprintf(lhs, sizeof lhs, style == EQ_LATEX ? "u_{%d} &=" : "u%d =", i + 1);
+    char u[32], lhs[40];
+    library_symbol_name('u', i, 0, name_style(style), u, sizeof u);
+    snprintf(lhs, sizeof lhs, style == EQ_LATEX ? "%s &=" : "%s =", u);
     MapNameCtx ctx = {c->k};
     return equation_line_with(buf, n, style, lhs, c->k + 1, map_term_name, &ctx, row, NULL, 1, digits);
 }
@@ -1863,11 +1852,7 @@ static size_t line_fn(char *buf, size_t n, void *varg) {
     if (a->map) return map_line(buf, n, a->style, a->c, a->j, a->digits);
     NameCtx ctx = {a->c, a->lib, clamp_digits(a->digits)};
     char lhs[64];
-    lhs_name(a->c, a->j, a->style, lhs, sizeof lhs);
-    if (a->style == EQ_LATEX) {   /* without the alignment mark */
-        char *amp = strstr(lhs, " &=");
-        if (amp) memmove(amp + 1, amp + 2, strlen(amp + 2) + 1);
-    }
+    lhs_name(a->c, a->j, a->style, 0, lhs, sizeof lhs);   /* a line alone: no alignment mark */
     return equation_line_with(buf, n, a->style, lhs, a->c->n_terms, canon_term_name, &ctx, a->c->xi + a->j,
                               a->c->mask + a->j, a->c->k, a->digits);
 }
@@ -1907,7 +1892,7 @@ cJSON *canonical_json(const Canonical *c, const Library *lib, int digits) {
     for (int j = 0; j < k; j++) {
         cJSON *e = cJSON_CreateObject();
         char lhs[32];
-        snprintf(lhs, sizeof lhs, c->order == 2 ? "d2u%d/dt2" : "du%d/dt", j + 1);
+        library_symbol_name('u', j, c->order, NAME_TEXT, lhs, sizeof lhs);
         cJSON_AddStringToObject(e, "lhs", lhs);
         cJSON *co = cJSON_AddArrayToObject(e, "coefficients"), *ma = cJSON_AddArrayToObject(e, "mask");
         int active = 0;

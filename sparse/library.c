@@ -15,8 +15,8 @@ typedef struct {
     double (*eval)(const Term *t, const double *s);
     /* ds (n_vars) += g * d term / d s */
     void (*grad)(const Term *t, const double *s, double g, double *ds);
-    /* the term's name in a style; returns what snprintf returns */
-    int (*name)(const Library *lib, const Term *t, NameStyle style, char *buf, size_t n);
+    /* the term's name in a style, its variables named by nm; returns what snprintf returns */
+    int (*name)(const Term *t, NameStyle style, const TermNamer *nm, char *buf, size_t n);
 } TermRow;
 
 static double ipow(double x, int p) {
@@ -33,8 +33,8 @@ static double const_eval(const Term *t, const double *s) {
 static void const_grad(const Term *t, const double *s, double g, double *ds) {
     (void)t, (void)s, (void)g, (void)ds;
 }
-static int const_name(const Library *lib, const Term *t, NameStyle style, char *buf, size_t n) {
-    (void)lib, (void)t, (void)style;
+static int const_name(const Term *t, NameStyle style, const TermNamer *nm, char *buf, size_t n) {
+    (void)t, (void)style, (void)nm;
     return snprintf(buf, n, "1");
 }
 
@@ -53,13 +53,13 @@ static void mono_grad(const Term *t, const double *s, double g, double *ds) {
         ds[t->var[f]] += g * d;
     }
 }
-static int mono_name(const Library *lib, const Term *t, NameStyle style, char *buf, size_t n) {
+static int mono_name(const Term *t, NameStyle style, const TermNamer *nm, char *buf, size_t n) {
     char out[LIB_SHOWN_MAX] = "";   /* every factor fits in LIB_SHOWN_MAX / LIB_MAX_DEGREE characters */
     size_t len = 0;
     for (int f = 0; f < t->n_fac; f++) {
         char v[LIB_SHOWN_MAX / LIB_MAX_DEGREE - 8];
-        library_var_name(lib, t->var[f], style, v, sizeof v);
-        int vel = t->var[f] >= lib->spec.n_latent;
+        nm->var(nm->ctx, t->var[f], style, v, sizeof v);
+        int vel = t->var[f] >= nm->k;
         const char *sep = !f ? "" : style == NAME_LATEX ? " " : "*";
         char *o = out + len;
         size_t room = sizeof out - len;
@@ -82,19 +82,20 @@ static double cos_eval(const Term *t, const double *s) { return cos(t->freq * s[
 static void cos_grad(const Term *t, const double *s, double g, double *ds) {
     ds[t->var[0]] -= g * t->freq * sin(t->freq * s[t->var[0]]);
 }
-static int trig_name(const char *fn, const Library *lib, const Term *t, NameStyle style, char *buf,
-                     size_t n) {
-    char v[LIB_SHOWN_MAX / LIB_MAX_DEGREE - 8];
-    library_var_name(lib, t->var[0], style, v, sizeof v);
+static int trig_name(const char *fn, const Term *t, NameStyle style, const TermNamer *nm, char *buf, size_t n) {
+    char v[LIB_SHOWN_MAX / LIB_MAX_DEGREE - 8], fr[40];
+    nm->var(nm->ctx, t->var[0], style, v, sizeof v);
+    if (nm->freq) nm->freq(nm->ctx, t, fr, sizeof fr);
+    else snprintf(fr, sizeof fr, "%d", t->freq);
     const char *pre = style == NAME_LATEX ? "\\" : "";
-    if (t->freq == 1) return snprintf(buf, n, "%s%s(%s)", pre, fn, v);
-    return snprintf(buf, n, style == NAME_LATEX ? "%s%s(%d %s)" : "%s%s(%d*%s)", pre, fn, t->freq, v);
+    if (!strcmp(fr, "1")) return snprintf(buf, n, "%s%s(%s)", pre, fn, v);
+    return snprintf(buf, n, style == NAME_LATEX ? "%s%s(%s %s)" : "%s%s(%s*%s)", pre, fn, fr, v);
 }
-static int sin_name(const Library *lib, const Term *t, NameStyle style, char *buf, size_t n) {
-    return trig_name("sin", lib, t, style, buf, n);
+static int sin_name(const Term *t, NameStyle style, const TermNamer *nm, char *buf, size_t n) {
+    return trig_name("sin", t, style, nm, buf, n);
 }
-static int cos_name(const Library *lib, const Term *t, NameStyle style, char *buf, size_t n) {
-    return trig_name("cos", lib, t, style, buf, n);
+static int cos_name(const Term *t, NameStyle style, const TermNamer *nm, char *buf, size_t n) {
+    return trig_name("cos", t, style, nm, buf, n);
 }
 
 static const TermRow term_rows[] = {
@@ -135,11 +136,21 @@ static void latex_parts(const char *name, char *base, size_t nb, char *sub, size
     if (ns) sub[k] = 0;
 }
 
-int library_deriv_name(const Library *lib, int j, int d, NameStyle style, char *buf, size_t n) {
-    int named = lib->has_var_names && style != NAME_KEY && j >= 0 && j < lib->spec.n_latent;
+int library_symbol_name(char letter, int j, int d, NameStyle style, char *buf, size_t n) {
     if (style == NAME_LATEX) {
         const char *dot = d == 1 ? "\\dot" : d == 2 ? "\\ddot" : "";
-        if (!named) return d ? snprintf(buf, n, "%s{z}_{%d}", dot, j + 1) : snprintf(buf, n, "z_{%d}", j + 1);
+        return d ? snprintf(buf, n, "%s{%c}_{%d}", dot, letter, j + 1) : snprintf(buf, n, "%c_{%d}", letter, j + 1);
+    }
+    if (d == 1) return snprintf(buf, n, "d%c%d/dt", letter, j + 1);
+    if (d == 2) return snprintf(buf, n, "d2%c%d/dt2", letter, j + 1);
+    return snprintf(buf, n, "%c%d", letter, j + 1);
+}
+
+int library_deriv_name(const Library *lib, int j, int d, NameStyle style, char *buf, size_t n) {
+    int named = lib->has_var_names && style != NAME_KEY && j >= 0 && j < lib->spec.n_latent;
+    if (!named) return library_symbol_name('z', j, d, style, buf, n);
+    if (style == NAME_LATEX) {
+        const char *dot = d == 1 ? "\\dot" : d == 2 ? "\\ddot" : "";
         char base[LIB_VAR_NAME_MAX + 16], sub[LIB_VAR_NAME_MAX];
         latex_parts(lib->var_names[j], base, sizeof base, sub, sizeof sub);
         char tail[LIB_VAR_NAME_MAX + 8] = "";
@@ -147,8 +158,7 @@ int library_deriv_name(const Library *lib, int j, int d, NameStyle style, char *
         return d ? snprintf(buf, n, "%s{%s}%s", dot, base, tail) : snprintf(buf, n, "%s%s", base, tail);
     }
     char v[LIB_VAR_NAME_MAX + 16];
-    if (named) snprintf(v, sizeof v, "%s", lib->var_names[j]);
-    else snprintf(v, sizeof v, "z%d", j + 1);
+    snprintf(v, sizeof v, "%s", lib->var_names[j]);
     if (d == 1) return snprintf(buf, n, "d%s/dt", v);
     if (d == 2) return snprintf(buf, n, "d2%s/dt2", v);
     return snprintf(buf, n, "%s", v);
@@ -203,8 +213,17 @@ int library_term_name(const Library *lib, int t, NameStyle style, char *buf, siz
     return library_name_of(lib, &lib->terms[t], style, buf, n);
 }
 
+static int lib_var(const void *ctx, int i, NameStyle style, char *buf, size_t n) {
+    return library_var_name(ctx, i, style, buf, n);
+}
+
 int library_name_of(const Library *lib, const Term *term, NameStyle style, char *buf, size_t n) {
-    return term_rows[term->kind].name(lib, term, style, buf, n);
+    TermNamer nm = {lib->spec.n_latent, lib_var, NULL, lib};
+    return library_name_with(term, style, &nm, buf, n);
+}
+
+int library_name_with(const Term *term, NameStyle style, const TermNamer *nm, char *buf, size_t n) {
+    return term_rows[term->kind].name(term, style, nm, buf, n);
 }
 
 static int term_equal(const Term *a, const Term *b) {

@@ -117,6 +117,21 @@ int library_var_name(const Library *lib, int i, NameStyle style, char *buf, size
 /* The d-th time derivative (0, 1 or 2) of z variable j (0..n_latent-1): z1, dz1/dt, d2z1/dt2; LaTeX
  * z_{1}, \dot{z}_{1}, \ddot{z}_{1}; with names x, dx/dt, d2x/dt2, \ddot{x}. snprintf-like. */
 int library_deriv_name(const Library *lib, int j, int d, NameStyle style, char *buf, size_t n);
+/* The unnamed form of variable j's d-th derivative with another letter: u1, du1/dt, d2u1/dt2; LaTeX
+ * u_{1}, \dot{u}_{1}, \ddot{u}_{1} (library_deriv_name is this with 'z' for a library without
+ * variable names). snprintf-like. */
+int library_symbol_name(char letter, int j, int d, NameStyle style, char *buf, size_t n);
+/* Term names are composed in one place (the term table in library.c); a caller whose variables are
+ * not the library's (the canonical coordinates u) gives their names here: var names variable i
+ * (i >= k a velocity, written in parentheses under a power), freq (NULL: the term's integer
+ * frequency) writes the factor inside a sin or cos, "1" leaving it out. */
+typedef struct {
+    int k;
+    int (*var)(const void *ctx, int i, NameStyle style, char *buf, size_t n);
+    int (*freq)(const void *ctx, const Term *t, char *buf, size_t n);
+    const void *ctx;
+} TermNamer;
+int library_name_with(const Term *term, NameStyle style, const TermNamer *nm, char *buf, size_t n);
 /* Name of term t in a style; the text names are also in lib->names. */
 int library_term_name(const Library *lib, int t, NameStyle style, char *buf, size_t n);
 /* The same for any term of the library's variables (one library_parse_term gave, say). */
