@@ -65,7 +65,7 @@ void battery_rhs(double t, const double *y, double *dydt, void *ctx) {
 
 /* n (<= BATTERY_MAX_RECORDINGS) values spread evenly over [lo, hi], dealt out in a random order. */
 static void spread(int n, double lo, double hi, Rng *r, double *out) {
-    int order[BATTERY_MAX_RECORDINGS];
+    long order[BATTERY_MAX_RECORDINGS];
     for (int k = 0; k < n; k++) order[k] = k;
     rng_shuffle(r, order, n);
     for (int k = 0; k < n; k++) out[k] = n > 1 ? lo + (hi - lo) * order[k] / (n - 1) : 0.5 * (lo + hi);

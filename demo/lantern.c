@@ -30,7 +30,7 @@ double lantern_period(const LanternPhysics *p, double amp) {
 void lantern_initial_states(const LanternPhysics *p, int n, Rng *r, double *theta0, double *theta_dot0,
                             double *amp) {
     const double deg = M_PI / 180;
-    int *order = nn_alloc(sizeof(int) * (size_t)(n > 0 ? n : 1));
+    long *order = nn_alloc(sizeof *order * (size_t)(n > 0 ? n : 1));
     for (int k = 0; k < n; k++) order[k] = k;
     rng_shuffle(r, order, n);
     for (int k = 0; k < n; k++) {

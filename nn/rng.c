@@ -48,10 +48,10 @@ uint64_t rng_below(Rng *r, uint64_t n) {
     return x % n;
 }
 
-void rng_shuffle(Rng *r, int *a, int n) {
-    for (int i = n - 1; i > 0; i--) {
-        int j = (int)rng_below(r, (uint64_t)i + 1);
-        int t = a[i];
+void rng_shuffle(Rng *r, long *a, long n) {
+    for (long i = n - 1; i > 0; i--) {
+        long j = (long)rng_below(r, (uint64_t)i + 1);
+        long t = a[i];
         a[i] = a[j];
         a[j] = t;
     }

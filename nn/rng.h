@@ -13,6 +13,6 @@ uint64_t rng_u64(Rng *r);
 double rng_uniform(Rng *r);                 /* [0, 1), 53 bits */
 double rng_normal(Rng *r);                  /* standard normal (Box-Muller, one value per call) */
 uint64_t rng_below(Rng *r, uint64_t n);     /* uniform in [0, n), unbiased */
-void rng_shuffle(Rng *r, int *a, int n);    /* Fisher-Yates */
+void rng_shuffle(Rng *r, long *a, long n);  /* Fisher-Yates */
 
 #endif

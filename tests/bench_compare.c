@@ -256,15 +256,13 @@ static int make_data(const Workload *w, const char *store_path, const char *raw_
 typedef struct {
     Dataset ds;
     int k;
-    int *idx;   /* (batch) */
 } Data;
 
-static int data_gather(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st) {
+static int data_gather(void *ctx, int split, const long *idx, int B, float *X, Status *st) {
     (void)st;
     Data *d = ctx;
-    for (int i = 0; i < B; i++) d->idx[i] = (int)idx[i];
     long n = d->ds.n;
-    dataset_gather(&d->ds, split ? SPLIT_VAL : SPLIT_TRAIN, d->idx, B, X, X + (long)B * n,
+    dataset_gather(&d->ds, split ? SPLIT_VAL : SPLIT_TRAIN, idx, B, X, X + (long)B * n,
                    d->k == 3 ? X + 2L * B * n : NULL);
     return 0;
 }
@@ -332,7 +330,6 @@ static int child_main(const Workload *w, int threads, const char *store_path, co
     memset(&d, 0, sizeof d);
     if (dataset_init(&d.ds, &fs, &s, &st)) { fprintf(stderr, "bench: %s\n", st.msg); return 1; }
     d.k = w->order + 1;
-    d.idx = malloc(sizeof(int) * BATCH);
     Config c;
     config_defaults(&c);
     c.fps = w->fps;
@@ -404,7 +401,6 @@ static int child_main(const Workload *w, int threads, const char *store_path, co
     params_free(&ps);
     dataset_free(&d.ds);
     store_close(&fs);
-    free(d.idx);
     /* the sgemm-only ceiling */
     if (sgemm_reps > 0) {
         static Gemms g;

@@ -81,15 +81,15 @@ int main(void) {
     }
     double t_load = now() - t0;
     long n_train = ds.count[SPLIT_TRAIN];
-    int *order = malloc(sizeof(int) * (size_t)n_train);                         /* (n_train) */
+    long *order = malloc(sizeof *order * (size_t)n_train);                      /* (n_train) */
     float *x = malloc(sizeof(float) * (size_t)BATCH * (size_t)ds.n);            /* (B, n) */
     float *dx = malloc(sizeof(float) * (size_t)BATCH * (size_t)ds.n);           /* (B, n) */
     float *ddx = malloc(sizeof(float) * (size_t)BATCH * (size_t)ds.n);          /* (B, n) */
     if (!order || !x || !dx || !ddx) return 1;
-    for (long i = 0; i < n_train; i++) order[i] = (int)i;
+    for (long i = 0; i < n_train; i++) order[i] = i;
     Rng rng;
     rng_seed(&rng, 7);
-    rng_shuffle(&rng, order, (int)n_train);
+    rng_shuffle(&rng, order, n_train);
     t0 = now();
     double checksum = 0;
     for (long b0 = 0; b0 < n_train; b0 += BATCH) {
@@ -101,7 +101,7 @@ int main(void) {
     /* The validation split too, as a training run would. */
     for (long b0 = 0; b0 < ds.count[SPLIT_VAL]; b0 += BATCH) {
         int nb = (int)(ds.count[SPLIT_VAL] - b0 < BATCH ? ds.count[SPLIT_VAL] - b0 : BATCH);
-        for (int b = 0; b < nb; b++) order[b] = (int)(b0 + b);
+        for (int b = 0; b < nb; b++) order[b] = b0 + b;
         dataset_gather(&ds, SPLIT_VAL, order, nb, x, dx, ddx);
     }
     double frame_mb = (double)store_payload_bytes(&fs) / 1e6, peak = peak_mb();

@@ -113,7 +113,7 @@ typedef struct {
     char dir[256], good[320], bad[320];
     ParamSet ps;
     uint8_t mask[N_MASK];
-    int64_t order[N_ORDER];
+    long order[N_ORDER];
 } Fx;
 
 static void make_params(ParamSet *ps) {
@@ -132,7 +132,7 @@ static int setup(void **state) {
     make_params(&ps);
     for (size_t i = 0; i < ps.n; i++) ps.val[i] = 0.1f * (float)i - 0.5f, ps.m[i] = 0.01f, ps.v[i] = 1e-4f;
     uint8_t mask[N_MASK] = {1, 0, 1, 1};
-    int64_t order[N_ORDER] = {3, 7, 0, 9, 1, 2, 8, 4, 6, 5};
+    long order[N_ORDER] = {3, 7, 0, 9, 1, 2, 8, 4, 6, 5};
     /* after 5 epochs and 1 batch of the sixth: 16 Adam steps, 4 samples in the partial sums */
     CkptMeta meta = {0};
     meta.config_digest = 0x1234;

@@ -251,7 +251,7 @@ static void test_blocks_stay_in_recordings(void **state) {
     enum { N = 40 + 3 + 57 + 20 };
     int rec[N];
     long step[N];
-    int perm[N];
+    long perm[N];
     long n = 0;
     const int len[4] = {40, 3, 57, 20};
     for (int k = 0; k < 4; k++)

@@ -127,7 +127,7 @@ static void test_gather_numeric(void **state) {
             assert_close(ds.dt, dt, 1e-15, 0);
             for (int sp = 0; sp < SPLIT_COUNT; sp++) {
                 int B = (int)ds.count[sp], r = sp;   /* split sp holds recording sp here */
-                int *idx = malloc(sizeof(int) * (size_t)B);
+                long *idx = malloc(sizeof *idx * (size_t)B);
                 float *x = malloc(sizeof(float) * (size_t)B * 3), *dx = malloc(sizeof(float) * (size_t)B * 3),
                       *ddx = malloc(sizeof(float) * (size_t)B * 3);   /* (B, 3) each */
                 for (int b = 0; b < B; b++) idx[b] = B - 1 - b;     /* any order */
@@ -178,7 +178,7 @@ static void test_gather_images(void **state) {
     open_all(dir, &s, &fs, &ds, &st, 0);
     assert_int_equal(ds.count[SPLIT_TRAIN], N - 2);
     assert_int_equal(ds.count[SPLIT_VAL], 0);   /* one recording: nothing held out */
-    int idx[2] = {2, 0};                        /* frames 3 and 1 */
+    long idx[2] = {2, 0};                        /* frames 3 and 1 */
     float x[2 * W * H], dx[2 * W * H], ddx[2 * W * H];   /* (2, W*H) */
     dataset_gather(&ds, SPLIT_TRAIN, idx, 2, x, dx, ddx);
     double dt = 1.0 / 25;

@@ -108,7 +108,7 @@ static int setup_mode(void **state, int latent) {
     xi.d[1 * 2 + 0] = (float)W_OSC;  /* dz1/dt = w z2 */
     xi.d[0 * 2 + 1] = (float)-W_OSC; /* dz2/dt = -w z1 */
     long n_train = d.td.n_train;
-    int64_t *order = malloc((size_t)n_train * sizeof *order);
+    long *order = malloc((size_t)n_train * sizeof *order);
     for (long i = 0; i < n_train; i++) order[i] = i;
     CkptMeta meta = {0}; /* values a real run can have written (ckpt_read checks them) */
     meta.config_digest = config_digest(c);
@@ -294,7 +294,7 @@ static void test_forecast_of_blowing_up_model(void **state) {
     xi.d[0 * 2 + 0] = 3.0f; /* dz1/dt = 3*z1 */
     xi.d[1 * 2 + 1] = 3.0f; /* dz2/dt = 3*z2 */
     long n_train = d.td.n_train;
-    int64_t *order = malloc((size_t)n_train * sizeof *order);
+    long *order = malloc((size_t)n_train * sizeof *order);
     for (long i = 0; i < n_train; i++) order[i] = i;
     CkptMeta meta = {0};
     meta.config_digest = config_digest(c);

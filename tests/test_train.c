@@ -35,7 +35,7 @@ static void osc_init(Osc *o) {
 }
 
 /* sample s of a split: recording s / NT (validation is the last recording), time (s % NT) dt */
-static int osc_gather(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st) {
+static int osc_gather(void *ctx, int split, const long *idx, int B, float *X, Status *st) {
     (void)st;
     Osc *o = ctx;
     for (int b = 0; b < B; b++) {
@@ -225,7 +225,7 @@ typedef struct {
     int train_gathers, stop_at, after_stop; /* training gathers so far; the one that requests the stop */
 } StopOsc;
 
-static int stop_gather(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st) {
+static int stop_gather(void *ctx, int split, const long *idx, int B, float *X, Status *st) {
     StopOsc *p = ctx;
     if (p->stop) p->after_stop++;
     if (!split && ++p->train_gathers == p->stop_at) p->stop = 1; /* as if Ctrl-C came during this step */
@@ -353,7 +353,7 @@ static void test_corrupt_checkpoints_are_refused(void **state) {
     assert_int_equal(train_load_latest(dir, &c, NCH, (long)(NREC - 1) * NT, &m, &ps, NULL, &st), 0);
     CkptMeta meta;
     long n_mask = (long)m.lib.n_terms * 2;
-    int64_t *order = malloc((size_t)(NREC - 1) * NT * sizeof *order);
+    long *order = malloc((size_t)(NREC - 1) * NT * sizeof *order);
     assert_int_equal(ckpt_read(newest, &meta, &ps, m.mask, n_mask, order, (NREC - 1) * NT, c.batch, &st), ST_INPUT);
     assert_non_null(strstr(st.msg, "CRC mismatch"));
     /* truncated */
@@ -436,7 +436,7 @@ enum { RING = 48, RING_N = 300 };
 
 static double ring_phi(long s) { return (300.0 * ((double)s / (RING_N - 1) - 0.5)) * M_PI / 180; }
 
-static int ring_gather(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st) {
+static int ring_gather(void *ctx, int split, const long *idx, int B, float *X, Status *st) {
     (void)ctx, (void)split, (void)st;
     for (int b = 0; b < B; b++) {
         /* sample order scrambled (7 s mod N, N prime to 7): nothing in the index order helps */
@@ -477,7 +477,7 @@ static double ring_rank_correlation(const char *init) {
     Status st;
     assert_int_equal(train_run(&opts, &ds, &m, &ps, &res, &st), 0);
     static float X[2 * RING_N * RING], z[RING_N];
-    int64_t idx[RING_N];
+    long idx[RING_N];
     for (long i = 0; i < RING_N; i++) idx[i] = i;
     ring_gather(NULL, 0, idx, RING_N, X, &st);
     Tape t;
@@ -568,7 +568,7 @@ typedef struct {
     int calls;
 } Poisoned;
 
-static int poisoned_gather(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st) {
+static int poisoned_gather(void *ctx, int split, const long *idx, int B, float *X, Status *st) {
     Poisoned *p = ctx;
     int rc = osc_gather(&p->o, split, idx, B, X, st);
     if (split == 0 && ++p->calls > 25) X[0] = NAN;

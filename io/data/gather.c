@@ -271,7 +271,7 @@ void dataset_gather_frames(const Dataset *ds, const long *frames, int B, float *
 typedef struct {
     const Dataset *ds;
     SplitId split;
-    const int *idx;
+    const long *idx;
     float *x, *dx, *ddx;
 } GatherJob;
 
@@ -290,7 +290,7 @@ static void gather_range(void *ctx, long lo, long hi) {
 }
 
 /* The samples are split over the step's threads (nn/par.h); the result does not depend on it. */
-void dataset_gather(const Dataset *ds, SplitId split, const int *idx, int B, float *x, float *dx, float *ddx) {
+void dataset_gather(const Dataset *ds, SplitId split, const long *idx, int B, float *x, float *dx, float *ddx) {
     GatherJob j = {ds, split, idx, x, dx, ddx};
     par_for(B, 32, gather_range, &j);
 }
@@ -298,7 +298,7 @@ void dataset_gather(const Dataset *ds, SplitId split, const int *idx, int B, flo
 typedef struct {
     const Dataset *ds;
     SplitId split;
-    const int *idx;
+    const long *idx;
     int B;
     float *x;
 } WindowJob;
@@ -313,7 +313,7 @@ static void window_range(void *ctx, long lo, long hi) {
     }
 }
 
-void dataset_gather_window(const Dataset *ds, SplitId split, const int *idx, int B, float *x) {
+void dataset_gather_window(const Dataset *ds, SplitId split, const long *idx, int B, float *x) {
     WindowJob j = {ds, split, idx, B, x};
     par_for(B, 32, window_range, &j);
 }

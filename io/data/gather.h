@@ -44,11 +44,11 @@ void dataset_free(Dataset *ds);
 
 /* Batch of B samples of a split, idx (B) indexing ds->samples[split] (0 <= idx[b] < count[split]):
  * x, dx, ddx (B, n) float32. dx and ddx may be NULL (not computed). */
-void dataset_gather(const Dataset *ds, SplitId split, const int *idx, int B, float *x, float *dx, float *ddx);
+void dataset_gather(const Dataset *ds, SplitId split, const long *idx, int B, float *x, float *dx, float *ddx);
 
 /* Batch of B samples as the stencil's frames: block j (B, n) of x (2m+1 blocks) holds the frame at
  * offset j - m of each sample (model.derivatives latent). */
-void dataset_gather_window(const Dataset *ds, SplitId split, const int *idx, int B, float *x);
+void dataset_gather_window(const Dataset *ds, SplitId split, const long *idx, int B, float *x);
 
 /* The same from frame indices (each a valid sample of its recording). */
 void dataset_gather_frames(const Dataset *ds, const long *frames, int B, float *x, float *dx, float *ddx);

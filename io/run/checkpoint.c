@@ -53,10 +53,15 @@ static void put_u64(Buf *b, uint64_t v) {
     buf_put(b, x, 8);
 }
 
-static void section(Buf *b, const char tag[4], const void *p, uint64_t n) {
+/* A section's header: its tag, a reserved word, the bytes that follow. */
+static void section_head(Buf *b, const char tag[4], uint64_t n) {
     buf_put(b, tag, 4);
     put_u32(b, 0);
     put_u64(b, n);
+}
+
+static void section(Buf *b, const char tag[4], const void *p, uint64_t n) {
+    section_head(b, tag, n);
     if (n) buf_put(b, p, n);
 }
 
@@ -75,7 +80,7 @@ typedef struct {
 } MetaDisk;
 
 int ckpt_write(const char *path, const CkptMeta *m, const ParamSet *ps, const uint8_t *mask, long n_mask,
-               const int64_t *order, long n_order, Status *st) {
+               const long *order, long n_order, Status *st) {
     if (!host_is_little_endian()) return status_set(st, ST_RUNTIME, "%s: checkpoints need a little-endian host", path);
     MetaDisk md;
     memset(&md, 0, sizeof md);
@@ -104,7 +109,8 @@ int ckpt_write(const char *path, const CkptMeta *m, const ParamSet *ps, const ui
     section(&b, "ADM1", ps->m, ps->n * sizeof(float));
     section(&b, "ADM2", ps->v, ps->n * sizeof(float));
     section(&b, "MASK", mask, (uint64_t)n_mask);
-    section(&b, "ORDR", order, (uint64_t)n_order * sizeof(int64_t));
+    section_head(&b, "ORDR", (uint64_t)n_order * 8);   /* the sample order as 64-bit integers */
+    for (long i = 0; i < n_order; i++) put_u64(&b, (uint64_t)(int64_t)order[i]);
     put_u32(&b, fs_crc32(0, b.d, b.n));
     int rc = atomic_write_bytes(path, b.d, b.n, st);
     nn_free(b.d);
@@ -147,7 +153,7 @@ static long first_bad_float(const uint8_t *p, size_t n, int nonneg) {
 
 size_t ckpt_size(const ParamSet *ps, long n_mask, long n_order) {
     return 16 + N_SECTIONS * 16 + sizeof(MetaDisk) + (size_t)ps->n_views * sizeof(ParamView) + 3 * ps->n * sizeof(float) +
-           (size_t)n_mask + (size_t)n_order * sizeof(int64_t) + 4;
+           (size_t)n_mask + (size_t)n_order * 8 + 4;
 }
 
 /* The META values against the run (n_order samples in batches of `batch`). */
@@ -199,7 +205,7 @@ static int check_meta(const char *path, const MetaDisk *md, long n_order, long b
 #undef BAD
 }
 
-int ckpt_read(const char *path, CkptMeta *m, ParamSet *ps, uint8_t *mask, long n_mask, int64_t *order,
+int ckpt_read(const char *path, CkptMeta *m, ParamSet *ps, uint8_t *mask, long n_mask, long *order,
               long n_order, long batch, Status *st) {
     NN_CHECK(n_mask >= 0 && n_order >= 0 && batch >= 1, "ckpt_read: n_mask %ld, n_order %ld, batch %ld", n_mask,
              n_order, batch);
@@ -353,7 +359,7 @@ int ckpt_read(const char *path, CkptMeta *m, ParamSet *ps, uint8_t *mask, long n
     memcpy(ps->v, sec[S_ADM2].p, sec[S_ADM2].n);
     ps->step = md.adam_step;
     if (n_mask) memcpy(mask, sec[S_MASK].p, sec[S_MASK].n);
-    if (n_order) memcpy(order, sec[S_ORDR].p, sec[S_ORDR].n);
+    for (long i = 0; i < n_order; i++) order[i] = (long)(int64_t)le_get_u64(sec[S_ORDR].p + 8 * i);
     m->config_digest = md.digest;
     m->epoch = md.epoch;
     m->batch = md.batch;

@@ -39,7 +39,7 @@ typedef struct {
 
 /* Write params (values, Adam moments, step), the mask (n_mask) and the order (n_order). */
 int ckpt_write(const char *path, const CkptMeta *meta, const ParamSet *ps, const uint8_t *mask, long n_mask,
-               const int64_t *order, long n_order, Status *st);
+               const long *order, long n_order, Status *st);
 
 /* Read into an allocated ParamSet of the same layout (names and shapes must match), mask (n_mask)
  * and order (n_order: the training samples) of a run that trains in batches of `batch` samples
@@ -48,7 +48,7 @@ int ckpt_write(const char *path, const CkptMeta *meta, const ParamSet *ps, const
  * permutation of 0..n_order-1, the batch position within the epoch, counters consistent with the
  * epoch, mask bytes 0 or 1, finite parameters and moments, ...) gives ST_INPUT naming the file, the
  * section and the value; nothing is modified unless the whole file checks out. */
-int ckpt_read(const char *path, CkptMeta *meta, ParamSet *ps, uint8_t *mask, long n_mask, int64_t *order,
+int ckpt_read(const char *path, CkptMeta *meta, ParamSet *ps, uint8_t *mask, long n_mask, long *order,
               long n_order, long batch, Status *st);
 
 /* The exact size in bytes of a checkpoint of this layout. */

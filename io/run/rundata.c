@@ -13,16 +13,15 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
-static int gather(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st) {
+static int gather(void *ctx, int split, const long *idx, int B, float *X, Status *st) {
     RunData *d = ctx;
     if (B > d->batch) return status_set(st, ST_RUNTIME, "gather: batch of %d exceeds %d", B, d->batch);
-    for (int i = 0; i < B; i++) d->idx[i] = (int)idx[i];
     long n = d->ds.n;
     if (d->td.sten) {
-        dataset_gather_window(&d->ds, split ? SPLIT_VAL : SPLIT_TRAIN, d->idx, B, X);
+        dataset_gather_window(&d->ds, split ? SPLIT_VAL : SPLIT_TRAIN, idx, B, X);
         return 0;
     }
-    dataset_gather(&d->ds, split ? SPLIT_VAL : SPLIT_TRAIN, d->idx, B, X, X + (long)B * n,
+    dataset_gather(&d->ds, split ? SPLIT_VAL : SPLIT_TRAIN, idx, B, X, X + (long)B * n,
                    d->k == 3 ? X + 2L * B * n : NULL);
     return 0;
 }
@@ -31,7 +30,6 @@ void rundata_close(RunData *d) {
     if (d->have_ds) dataset_free(&d->ds);
     if (d->have_store) store_close(&d->store);
     if (d->have_scan) frames_scan_free(&d->scan);
-    free(d->idx);
     memset(d, 0, sizeof *d);
 }
 
@@ -168,8 +166,6 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     int latent = !strcmp(c->derivatives, "latent");
     d->k = latent ? 2 * d->ds.sten.m + 1 : c->order + 1;
     d->batch = c->batch > 0 ? c->batch : 1;
-    d->idx = malloc((size_t)d->batch * sizeof(int));
-    if (!d->idx) return status_set(st, ST_RUNTIME, "out of memory");
     TrainData *td = &d->td;
     td->n_in = (int)d->ds.n;
     td->k = d->k;

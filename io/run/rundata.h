@@ -16,7 +16,6 @@ typedef struct {
     Dataset ds;
     TrainData td;       /* gather over ds for the epoch loop */
     int k;              /* stacked blocks: model order + 1, or the stencil's length (model.derivatives latent) */
-    int *idx;           /* (batch) work for the gather */
     int batch;
     int have_scan, have_store, have_ds;
     StoreOpenInfo store_info;       /* where the store is; its note when the frames' folder is read-only */

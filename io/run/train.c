@@ -155,7 +155,7 @@ typedef struct {
     Model *m;
     ParamSet *ps;
     CkptMeta meta;
-    int64_t *order;     /* (n_train) */
+    long *order;        /* (n_train) */
     double rec_norm, dx_norm;   /* loss.normalize: 1 / var(x), 1 / mean(x'^2 or x''^2); else 1 */
     char ckpt_dir[4150];
 } Run;
@@ -228,15 +228,6 @@ static int load_latest(Run *r, int quiet, int allow_fresh, int *found, Status *s
     return rc;
 }
 
-static void shuffle64(Rng *rng, int64_t *a, long n) {
-    for (long i = n - 1; i > 0; i--) {
-        long j = (long)rng_below(rng, (uint64_t)i + 1);
-        int64_t t = a[i];
-        a[i] = a[j];
-        a[j] = t;
-    }
-}
-
 /* ---- progress -------------------------------------------------------------------------------- */
 
 static void fmt_duration(double s, char *buf, size_t n) {
@@ -263,7 +254,7 @@ int batches_next(TrainBatches *it, float *X, Status *st) {
                            it->split ? "validation" : "training");
     it->s0 = it->next;
     it->B = (int)(it->N - it->s0 < it->Bmax ? it->N - it->s0 : it->Bmax);
-    for (int i = 0; i < it->B; i++) it->idx[i] = (int64_t)((it->s0 + i) * it->span / it->N);
+    for (int i = 0; i < it->B; i++) it->idx[i] = (it->s0 + i) * it->span / it->N;
     it->next += it->B;
     int rc = it->ds->gather(it->ds->ctx, it->split, it->idx, it->B, X, st);
     return rc ? -rc : 1;
@@ -638,7 +629,7 @@ static int setup(Run *r, const Config *cfg, const TrainData *ds, const char *run
     if (ds->sten) model_set_window(m, ds->sten, ds->dt);
     rng_seed(&r->meta.rng, cfg->seed);
     model_init_params(m, ps, &r->meta.rng);
-    r->order = nn_alloc((size_t)(ds->n_train > 0 ? ds->n_train : 1) * sizeof(int64_t));
+    r->order = nn_alloc((size_t)(ds->n_train > 0 ? ds->n_train : 1) * sizeof *r->order);
     for (long i = 0; i < ds->n_train; i++) r->order[i] = i;
     r->meta.config_digest = config_digest(cfg);
     r->meta.best_val = INFINITY;
@@ -785,7 +776,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
         ad.lr = (float)lr_at(c, epoch);
         double t_epoch = clock_seconds();
         if (r.meta.batch == 0) {
-            shuffle64(&r.meta.rng, r.order, ds->n_train);
+            rng_shuffle(&r.meta.rng, r.order, ds->n_train);
             memset(r.meta.acc, 0, sizeof r.meta.acc);
             r.meta.acc_n = 0;
         }

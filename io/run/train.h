@@ -25,7 +25,7 @@ typedef struct {
     int k;
     long n_train, n_val;
     double dt;              /* seconds between samples */
-    int (*gather)(void *ctx, int split, const int64_t *idx, int B, float *X, Status *st);
+    int (*gather)(void *ctx, int split, const long *idx, int B, float *X, Status *st);
     void *ctx;
     const long *sample_frame; /* (n_train) or NULL: the frame of each training sample (consecutive frames
                              * of one recording are consecutive samples); selection needs it */
@@ -49,7 +49,7 @@ typedef struct {
     int split;                          /* 0 training, 1 validation */
     long N, span, s0, next;
     int B, Bmax;
-    int64_t *idx;                       /* (Bmax) */
+    long *idx;                          /* (Bmax) */
 } TrainBatches;
 
 void batches_begin(TrainBatches *it, const TrainData *ds, int split, long N, long span, int Bmax);
