@@ -1,4 +1,14 @@
-/* io/run/train.c: the epoch loop (see train.h). */
+/* io/run/train.c: the epoch loop (see train.h).
+ *
+ * Longer than 800 lines, on purpose for now: besides the loop it holds the passes over a whole split
+ * that the loop calls at its fixed points (the data's scale, the start-ups from principal
+ * directions and Isomap, the warm-up's least-squares fit, the thresholding and selection passes)
+ * and the checkpoints of the run folder. They all read and write the one run state, `Run`, and its
+ * checkpoint metadata, whose order of updates is what makes a resumed run bit-identical to an
+ * uninterrupted one; the mathematics of each pass is already below io/ (nn/pca, nn/isomap,
+ * sparse/thresh_lsq, sparse/select), so what remains here is their order against that state. The
+ * seam for a split is the passes (from "passes over a split" to "model.init = isomap", about 360
+ * lines) behind a small internal header exposing `Run`. */
 #include "io/run/train.h"
 
 #include <dirent.h>
