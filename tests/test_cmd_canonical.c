@@ -299,15 +299,7 @@ static void test_refine_stopped(void **state) {
     snprintf(run, sizeof run, "%s/run", tmp);
     snprintf(work, sizeof work, "%s/refine", run);
     char *before_eq = run_file("refined/equations.json"), *before_json = run_file("refine.json");
-    pid_t pid = fork();
-    assert_true(pid >= 0);
-    if (pid == 0) {
-        FILE *n = freopen("/dev/null", "w", stderr);
-        n = freopen("/dev/null", "w", stdout);
-        (void)n;
-        execl(test_framelaw(), test_framelaw(), "canonical", run, "--refine", "1000000", "--quiet", (char *)NULL);
-        _exit(127);
-    }
+    pid_t pid = test_spawn_quiet("canonical", run, "--refine", "1000000", "--quiet", (char *)NULL);
     int started = 0;
     for (int i = 0; i < 600 && !started; i++) { /* up to a minute for the refinement to begin */
         struct timespec ts = {0, 100000000};

@@ -218,16 +218,7 @@ static void write_config(const char *path, const char *data, const char *out, in
 }
 
 static pid_t spawn(const char *a1, const char *a2) {
-    pid_t pid = fork();
-    assert_true(pid >= 0);
-    if (pid == 0) {
-        FILE *n = freopen("/dev/null", "w", stderr);
-        n = freopen("/dev/null", "w", stdout);
-        (void)n;
-        execl(test_framelaw(), test_framelaw(), a1, a2, "--quiet", (char *)NULL);
-        _exit(127);
-    }
-    return pid;
+    return test_spawn_quiet(a1, a2, "--quiet", (char *)NULL);
 }
 
 static int wait_status(pid_t pid) {

@@ -118,15 +118,7 @@ static void test_second_command_refused(void **state) {
             " \"output\": \"%s\"}\n",
             data, run);
     fclose(f);
-    pid_t pid = fork();
-    assert_true(pid >= 0);
-    if (pid == 0) {
-        FILE *n = freopen("/dev/null", "w", stderr);
-        n = freopen("/dev/null", "w", stdout);
-        (void)n;
-        execl(test_framelaw(), test_framelaw(), "train", cfg, "--quiet", (char *)NULL);
-        _exit(127);
-    }
+    pid_t pid = test_spawn_quiet("train", cfg, "--quiet", (char *)NULL);
     /* wait until it holds the lock and has written a checkpoint (any: with keep 2 on a fast machine,
      * the one of epoch 10 can be gone before the first look) */
     char ckdir[600];

@@ -13,6 +13,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/wait.h>
+#include <unistd.h>
 
 /* Fail with both values and the tolerance when |a - b| > atol + rtol |b|. */
 #define assert_close(a, b, atol, rtol)                                                          \
@@ -77,6 +78,27 @@ static inline int test_run_capture(const char *args, char *out, size_t n) {
     out[len] = 0;
     int status = pclose(p);
     return WIFEXITED(status) ? WEXITSTATUS(status) : -1;
+}
+
+/* Start framelaw with the arguments given (NULL-terminated, at most 15), its stdout and stderr
+ * sent to /dev/null; returns its pid without waiting. */
+static inline pid_t test_spawn_quiet(const char *arg, ...) {
+    char *argv[17] = {(char *)test_framelaw()};
+    int n = 1;
+    va_list ap;
+    va_start(ap, arg);
+    for (const char *a = arg; a && n < 16; a = va_arg(ap, const char *)) argv[n++] = (char *)a;
+    va_end(ap);
+    pid_t pid = fork();
+    assert_true(pid >= 0);
+    if (pid == 0) {
+        FILE *f = freopen("/dev/null", "w", stderr);
+        f = freopen("/dev/null", "w", stdout);
+        (void)f;
+        execv(argv[0], argv);
+        _exit(127);
+    }
+    return pid;
 }
 
 #endif
