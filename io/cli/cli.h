@@ -3,6 +3,8 @@
 #ifndef IO_CLI_H
 #define IO_CLI_H
 
+#include <signal.h>
+
 #include "io/run/config.h"
 #include "io/run/results.h"
 #include "io/run/runlock.h"
@@ -63,6 +65,13 @@ int cli_run_finished(const char *dir, const Config *c, Status *st);
 /* The end of a run's training: export and forecast from its final checkpoint, the equations on
  * stdout (io/cli/cmd_train.c; also used for the refined run of `framelaw canonical --refine`). */
 int cli_finish_run(const char *run_dir, int quiet, Status *st);
+
+/* A stop request during long work (training, refinement): cli_stop_catch makes SIGINT and SIGTERM
+ * set cli_stop_flag (and cli_stop_sig) instead of ending the process, cli_stop_release puts the
+ * handlers from before back (main's, which remove temporaries and end it). io/cli/cmd_train.c. */
+extern volatile sig_atomic_t cli_stop_flag, cli_stop_sig;
+void cli_stop_catch(void);
+void cli_stop_release(void);
 
 #define CLI_MAX_SETS 64
 typedef struct {

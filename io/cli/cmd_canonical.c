@@ -12,11 +12,6 @@
 #include "io/run/runcanonical.h"
 #include "io/run/runrefine.h"
 
-static volatile sig_atomic_t stop_flag = 0, stop_sig = SIGINT;
-static void on_signal(int sig) {
-    stop_sig = sig;
-    stop_flag = 1;
-}
 
 /* --refine EPOCHS (or --refine=EPOCHS) taken out of argv; 0 when absent, -1 after an error. */
 static long take_refine(int *argc, char **argv) {
@@ -85,19 +80,13 @@ int cmd_canonical(int argc, char **argv) {
     if (!rc) rc = results_write_equations(&r, quiet, &st);
     static RefineResult res;
     if (!rc && refine) {
-        struct sigaction sa, old_int, old_term;
-        memset(&sa, 0, sizeof sa);
-        sa.sa_handler = on_signal;
-        sigemptyset(&sa.sa_mask);
-        sigaction(SIGINT, &sa, &old_int);
-        sigaction(SIGTERM, &sa, &old_term);
-        RefineOptions ro = {refine, quiet, &stop_flag};
+        cli_stop_catch();
+        RefineOptions ro = {refine, quiet, &cli_stop_flag};
         rc = run_refine(&r, &ro, &res, &st);
-        sigaction(SIGINT, &old_int, NULL);
-        sigaction(SIGTERM, &old_term, NULL);
+        cli_stop_release();
     }
     if (rc) cli_error(rc, "%s", st.msg);
-    if (rc && stop_flag) rc = 128 + stop_sig; /* as shells expect of a stopped process (docs/cli.md) */
+    if (rc && cli_stop_flag) rc = 128 + cli_stop_sig; /* as shells expect of a stopped process (docs/cli.md) */
     loaded_run_close(&r);
     if (!rc && refine) {
         const RefineCandidate *ch = &res.cand[res.chosen];

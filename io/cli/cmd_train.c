@@ -20,10 +20,25 @@
 #include "sparse/coef.h"
 #include "sparse/equation.h"
 
-static volatile sig_atomic_t stop_flag = 0, stop_sig = SIGINT;
+volatile sig_atomic_t cli_stop_flag = 0, cli_stop_sig = SIGINT;
+static struct sigaction stop_old_int, stop_old_term;
 static void on_signal(int sig) {
-    stop_sig = sig;
-    stop_flag = 1;
+    cli_stop_sig = sig;
+    cli_stop_flag = 1;
+}
+
+void cli_stop_catch(void) {
+    struct sigaction sa;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = on_signal;
+    sigemptyset(&sa.sa_mask);
+    sigaction(SIGINT, &sa, &stop_old_int);
+    sigaction(SIGTERM, &sa, &stop_old_term);
+}
+
+void cli_stop_release(void) {
+    sigaction(SIGINT, &stop_old_int, NULL);
+    sigaction(SIGTERM, &stop_old_term, NULL);
 }
 
 /* ---- results at the end of training -------------------------------------------------------------- */
@@ -93,27 +108,21 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
         fprintf(stderr, "framelaw: model: latent %d, order %d, %s; batch %d, %ld epochs; log in %s/log.csv\n",
                 c->latent, c->order, c->activation, c->batch, c->epochs, run_dir);
     }
-    struct sigaction sa, old_int, old_term;
-    memset(&sa, 0, sizeof sa);
-    sa.sa_handler = on_signal;
-    sigemptyset(&sa.sa_mask);
-    sigaction(SIGINT, &sa, &old_int);
-    sigaction(SIGTERM, &sa, &old_term);
-    TrainOpts o = {c, run_dir, resume, quiet, &stop_flag, 0, NULL, NULL};
+    cli_stop_catch();
+    TrainOpts o = {c, run_dir, resume, quiet, &cli_stop_flag, 0, NULL, NULL};
     Model m;
     ParamSet ps;
     TrainResult res;
     rc = train_run(&o, &td, &m, &ps, &res, &st);
     /* training is over: Ctrl-C now stops at once, removing the temporaries of the files being written
      * (the handler of atomic_cleanup_on_signals) */
-    sigaction(SIGINT, &old_int, NULL);
-    sigaction(SIGTERM, &old_term, NULL);
+    cli_stop_release();
     if (rc) {
         cli_error(rc, "%s", st.msg);
     } else if (res.interrupted) {
         fprintf(stderr, "framelaw: stopped after epoch %ld; checkpoint %s\nframelaw: continue with: framelaw resume %s\n",
                 res.epochs_done, res.checkpoint, run_dir);
-        rc = 128 + stop_sig; /* 130 for Ctrl-C, 143 for SIGTERM, as shells expect of a stopped process */
+        rc = 128 + cli_stop_sig; /* 130 for Ctrl-C, 143 for SIGTERM, as shells expect of a stopped process */
     } else {
         if (!quiet && isfinite(res.best_val))
             fprintf(stderr, "framelaw: best validation loss %.4g\n", res.best_val);
