@@ -31,6 +31,7 @@
 #include "io/fs/json_check.h"
 #include "nn/mlp.h"
 #include "sparse/ensemble.h"
+#include "sparse/equation.h"
 #include "sparse/library.h"
 #include "sparse/stencil.h"
 
@@ -555,17 +556,6 @@ int config_validate(const Config *c, Status *st) {
 
 /* ---- writing ------------------------------------------------------------------------------ */
 
-/* Numbers are written as raw text of our own: cJSON's printer accepts a shorter form when it is
- * merely close, and the written config must read back to the same bits. */
-static cJSON *num_exact(double d) {
-    char b[40];
-    for (int prec = 15; prec <= 17; prec++) {
-        snprintf(b, sizeof b, "%.*g", prec, d);
-        if (strtod(b, NULL) == d) break;
-    }
-    return cJSON_CreateRaw(b);
-}
-
 static cJSON *int_exact(long long v) {
     char b[32];
     snprintf(b, sizeof b, "%lld", v);
@@ -574,7 +564,9 @@ static cJSON *int_exact(long long v) {
 
 static cJSON *key_value(const Config *c, const KeyDef *k) {
     switch (k->type) {
-    case T_NUM: return num_exact(*(const double *)cfield(c, k));
+    /* numbers as raw text that reads back to the same bits (cJSON's printer accepts a shorter form
+     * when it is merely close); a config's numbers are finite */
+    case T_NUM: return equation_exact_number(*(const double *)cfield(c, k));
     case T_INT: return int_exact(*(const int *)cfield(c, k));
     case T_LONG: return int_exact(*(const long *)cfield(c, k));
     case T_U64: return int_exact((long long)*(const uint64_t *)cfield(c, k));   /* <= 2^53 */
