@@ -6,7 +6,8 @@
  * choices, the Config field it fills and a one-line meaning. Parsing, defaults, config_to_json,
  * config_set (--set), the digest and the Markdown key list in docs/config.md all walk that table,
  * so a key added there is parsed, written, digested and documented at once (tests/test_config.c
- * checks the docs page against the table).
+ * checks the docs page against the table). A key with a fixed set of string values (T_CHOICE) is
+ * parsed once into its enum; the Config never holds the string, and writing gives back the name.
  *
  * JSON per RFC 8259 (IETF, 2017), parsed with cJSON; cJSON keeps repeated object members as
  * separate children, which is how duplicate keys are found. */
