@@ -27,6 +27,7 @@
 #include <cblas.h>
 
 #include "nn/rng.h"
+#include "sparse/equation.h"
 #include "sparse/optim.h"
 #include "sparse/polymap.h"
 #include "sparse/thresh_lsq.h"
@@ -1815,20 +1816,9 @@ size_t canonical_format_map(char *buf, size_t n, const Canonical *c, int digits)
 #undef PUT
 }
 
-/* A number that reads back bit for bit (as in equation.c); non-finite values become null. */
-static cJSON *exact_number(double v) {
-    if (!isfinite(v)) return cJSON_CreateNull();
-    char b[40];
-    for (int d = 15; d <= 17; d++) {
-        snprintf(b, sizeof b, "%.*g", d, v);
-        if (strtod(b, NULL) == v) break;
-    }
-    return cJSON_CreateRaw(b);
-}
-
 static cJSON *exact_array(const double *v, int n) {
     cJSON *a = cJSON_CreateArray();
-    for (int i = 0; i < n; i++) cJSON_AddItemToArray(a, exact_number(v[i]));
+    for (int i = 0; i < n; i++) cJSON_AddItemToArray(a, equation_exact_number(v[i]));
     return a;
 }
 
@@ -1867,7 +1857,7 @@ cJSON *canonical_json(const Canonical *c, const Library *lib, int digits) {
     for (int i = 0; i < k; i++) cJSON_AddItemToArray(A, exact_array(c->A + i * k, k));
     cJSON_AddItemToObject(mp, "b", exact_array(c->b, k));
     cJSON_AddItemToObject(mp, "w", exact_array(c->w, k));
-    cJSON_AddItemToObject(mp, "cond", exact_number(c->cond));
+    cJSON_AddItemToObject(mp, "cond", equation_exact_number(c->cond));
     cJSON *mt = cJSON_AddArrayToObject(mp, "text");
     for (int i = 0; i < k; i++) {
         LineArg a = {c, lib, i, digits, EQ_TEXT, 1};
@@ -1898,7 +1888,7 @@ cJSON *canonical_json(const Canonical *c, const Library *lib, int digits) {
         int active = 0;
         for (int t = 0; t < c->n_terms; t++) {
             int on = c->mask[t * k + j] != 0;
-            cJSON_AddItemToArray(co, exact_number(on ? c->xi[t * k + j] : 0.0));
+            cJSON_AddItemToArray(co, equation_exact_number(on ? c->xi[t * k + j] : 0.0));
             cJSON_AddItemToArray(ma, cJSON_CreateNumber(on));
             active += on && c->xi[t * k + j] != 0;
         }
@@ -1916,10 +1906,10 @@ cJSON *canonical_json(const Canonical *c, const Library *lib, int digits) {
     cJSON_AddNumberToObject(fit, "active_learned", (double)c->active_raw);
     cJSON_AddItemToObject(fit, "relative_error", exact_array(c->err, k));
     cJSON_AddItemToObject(fit, "relative_error_learned", exact_array(c->err_raw, k));
-    cJSON_AddItemToObject(fit, "total_error", exact_number(c->err_total));
-    cJSON_AddItemToObject(fit, "total_error_learned", exact_number(c->err_raw_total));
-    cJSON_AddItemToObject(fit, "tolerance", exact_number(c->tolerance));
-    cJSON_AddItemToObject(fit, "cond_max", exact_number(c->cond_max));
+    cJSON_AddItemToObject(fit, "total_error", equation_exact_number(c->err_total));
+    cJSON_AddItemToObject(fit, "total_error_learned", equation_exact_number(c->err_raw_total));
+    cJSON_AddItemToObject(fit, "tolerance", equation_exact_number(c->tolerance));
+    cJSON_AddItemToObject(fit, "cond_max", equation_exact_number(c->cond_max));
     cJSON_AddNumberToObject(fit, "samples", (double)c->n_samples);
     return o;
 }

@@ -118,9 +118,7 @@ int equation_fprint(FILE *f, EqStyle style, const Library *lib, const double *xi
 
 /* ---- JSON ------------------------------------------------------------------------------------- */
 
-/* A number that reads back bit for bit: the shortest of %.15g, %.16g, %.17g that does (cJSON's own
- * printing accepts a difference of one rounding step). Non-finite values become null. */
-static cJSON *exact_number(double v) {
+cJSON *equation_exact_number(double v) {
     if (!isfinite(v)) return cJSON_CreateNull();
     char b[40];
     for (int d = 15; d <= 17; d++) {
@@ -197,7 +195,7 @@ cJSON *equation_json_as(const Library *lib, const double *xi, const uint8_t *mas
         int active = 0;
         for (int t = 0; t < lib->n_terms; t++) {
             int on = mask ? mask[(long)t * k + j] != 0 : 1;
-            cJSON_AddItemToArray(co, exact_number(on ? xi[(long)t * k + j] : 0.0));
+            cJSON_AddItemToArray(co, equation_exact_number(on ? xi[(long)t * k + j] : 0.0));
             cJSON_AddItemToArray(ma, cJSON_CreateNumber(on));
             active += on && xi[(long)t * k + j] != 0;
         }

@@ -68,6 +68,11 @@ size_t equation_format(char *buf, size_t n, EqStyle style, const Library *lib, c
 int equation_fprint(FILE *f, EqStyle style, const Library *lib, const double *xi, const uint8_t *mask,
                     int digits);
 
+/* A number as JSON that reads back bit for bit: raw text, the shortest of %.15g, %.16g, %.17g that
+ * does (cJSON's own printing accepts a difference of one rounding step); null when not finite. The
+ * one writer of exact numbers: equations, the canonical form and the config use it. */
+cJSON *equation_exact_number(double v);
+
 /* The JSON object described in docs/sparse.md (the caller may add members, then cJSON_Delete). */
 cJSON *equation_json(const Library *lib, const double *xi, const uint8_t *mask, int digits);
 /* The name of the number of equations: "n_latent" for a run's latent variables, "n_variables" for

@@ -342,16 +342,16 @@ static int child_main(const Workload *w, int threads, const char *store_path, co
     c.n_encoder = w->n_hidden;
     for (int i = 0; i < w->n_hidden; i++) c.encoder[i] = w->hidden[i];
     c.n_decoder = -1;
-    snprintf(c.activation, sizeof c.activation, "sigmoid");
+    c.activation = ACT_SIGMOID;
     /* the reference's model and loss: Glorot start, the frames' stencil derivatives carried through
      * the encoder, unnormalised squared terms, L1 on |Xi|, no selection of the law by forecasts and
      * no autoencoder-only warm-up (framelaw's defaults now differ in each) */
-    snprintf(c.init, sizeof c.init, "glorot");
-    snprintf(c.derivatives, sizeof c.derivatives, "frames");
+    c.init = INIT_GLOROT;
+    c.derivatives = DERIVS_FRAMES;
     c.loss_normalize = 0;
-    snprintf(c.threshold_measure, sizeof c.threshold_measure, "coefficient");
-    snprintf(c.threshold_select, sizeof c.threshold_select, "none");
-    snprintf(c.schedule, sizeof c.schedule, "constant");
+    c.threshold_measure = MEASURE_COEFFICIENT;
+    c.threshold_select = SELECT_NONE;
+    c.schedule = SCHED_CONSTANT;
     c.warmup_epochs = 0;
     c.lib_degree = w->degree;
     c.lib_constant = 1;

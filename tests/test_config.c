@@ -11,6 +11,7 @@
 #include <unistd.h>
 
 #include "io/run/config.h"
+#include "sparse/integrate.h"
 #include "io/data/images.h"
 #include "nn/act.h"
 #include "sparse/stencil.h"
@@ -60,13 +61,13 @@ static void test_defaults(void **state) {
     config_defaults(&c);
     assert_string_equal(c.frames, "");
     assert_true(c.fps == 30);
-    assert_string_equal(c.gray, "bt601");
+    assert_int_equal(c.gray, GRAY_BT601);
     for (int i = 0; i < 4; i++) assert_int_equal(c.crop[i], 0);
     assert_int_equal(c.size[0], 0);
-    assert_string_equal(c.scale, "unit");
+    assert_int_equal(c.scale, SCALE_UNIT);
     assert_int_equal(c.stride, 1);
     assert_int_equal(c.store_bits, 8);
-    assert_string_equal(c.derivative, "auto");
+    assert_int_equal(c.derivative, DERIV_AUTO);
     assert_int_equal(c.sg_window, 7);
     assert_int_equal(c.sg_degree, 3);
     assert_int_equal(c.n_val_names, 0);
@@ -77,9 +78,9 @@ static void test_defaults(void **state) {
     assert_int_equal(c.encoder[0], 64);
     assert_int_equal(c.encoder[1], 32);
     assert_int_equal(c.n_decoder, -1);
-    assert_string_equal(c.activation, "sigmoid");
-    assert_string_equal(c.init, "isomap");
-    assert_string_equal(c.derivatives, "latent");
+    assert_int_equal(c.activation, ACT_SIGMOID);
+    assert_int_equal(c.init, INIT_ISOMAP);
+    assert_int_equal(c.derivatives, DERIVS_LATENT);
     assert_int_equal(c.init_epochs, 200);
     assert_int_equal(c.init_frames, 2000);
     assert_int_equal(c.lib_degree, 3);
@@ -93,7 +94,7 @@ static void test_defaults(void **state) {
     assert_true(c.w_rec == 1 && c.w_dx == 0.1 && c.w_dz == 1 && c.w_l1 == 1e-4);
     assert_int_equal(c.loss_normalize, 1);
     assert_true(c.lr == 1e-3 && c.beta1 == 0.9 && c.beta2 == 0.999 && c.eps == 1e-8);
-    assert_string_equal(c.schedule, "constant");
+    assert_int_equal(c.schedule, SCHED_CONSTANT);
     assert_int_equal(c.sched_every, 1000);
     assert_true(c.sched_factor == 0.5 && c.lr_min == 0);
     assert_int_equal(c.batch, 256);
@@ -102,8 +103,8 @@ static void test_defaults(void **state) {
     assert_int_equal(c.threads, 0);
     assert_int_equal(c.validate_every, 10);
     assert_true(c.threshold == 0.02);
-    assert_string_equal(c.threshold_measure, "contribution");
-    assert_string_equal(c.threshold_select, "every");
+    assert_int_equal(c.threshold_measure, MEASURE_CONTRIBUTION);
+    assert_int_equal(c.threshold_select, SELECT_EVERY);
     assert_int_equal(c.threshold_every, 250);
     assert_int_equal(c.refine_epochs, 300);
     assert_int_equal(c.ckpt_every, 100);
@@ -212,9 +213,9 @@ static void test_set(void **state) {
     assert_int_equal(c.encoder[1], 32);
     assert_int_equal(c.encoder[2], 0);
     set_ok(&c, "data.gray=bt709");                   /* a bare word is a string */
-    assert_string_equal(c.gray, "bt709");
+    assert_int_equal(c.gray, GRAY_BT709);
     set_ok(&c, "data.gray=\"bt601\"");               /* and so is a JSON string */
-    assert_string_equal(c.gray, "bt601");
+    assert_int_equal(c.gray, GRAY_BT601);
     set_ok(&c, "train.epochs=10");
     assert_int_equal(c.epochs, 10);
     set_ok(&c, "data.derivative.window=11");         /* nested */
@@ -231,7 +232,7 @@ static void test_set(void **state) {
     set_ok(&c, "loss.l1=0");
     assert_true(c.w_l1 == 0);
     set_ok(&c, "data.derivative={\"method\":\"savgol\",\"degree\":4}");   /* a whole section */
-    assert_string_equal(c.derivative, "savgol");
+    assert_int_equal(c.derivative, DERIV_SAVGOL);
     assert_int_equal(c.sg_degree, 4);
     assert_int_equal(c.sg_window, 11);               /* keys not named keep their value */
     set_ok(&c, "train.seed=12345678901");
@@ -335,14 +336,14 @@ static void test_digest(void **state) {
     test_write_file(path, OLD_RUN_CONFIG);
     Status lst;
     assert_int_equal(config_load_run(&c, path, &lst), 0);
-    assert_string_equal(c.derivatives, "frames");
-    assert_string_equal(c.threshold_measure, "coefficient");
-    assert_string_equal(c.threshold_select, "none");
+    assert_int_equal(c.derivatives, DERIVS_FRAMES);
+    assert_int_equal(c.threshold_measure, MEASURE_COEFFICIENT);
+    assert_int_equal(c.threshold_select, SELECT_NONE);
     assert_true(config_digest(&c) == 0x0742f5f2c47c9cf7ull);
     /* read as a user's config, the keys it lacks take today's defaults: another digest */
     Config u0;
     assert_int_equal(config_load(&u0, path, &lst), 0);
-    assert_string_equal(u0.derivatives, "latent");
+    assert_int_equal(u0.derivatives, DERIVS_LATENT);
     assert_true(config_digest(&u0) != 0x0742f5f2c47c9cf7ull);
     test_rmtree(tmp);
     config_defaults(&c);
@@ -530,7 +531,7 @@ static void test_choices_match_modules(void **state) {
     for (int i = 1; i < ACT_COUNT; i++) {     /* ACT_NONE is the linear output layer, not a choice */
         snprintf(a, sizeof a, "model.activation=%s", act_table[i].name);
         set_ok(&c, a);
-        assert_int_not_equal(act_from_name(c.activation), ACT_COUNT);
+        assert_int_equal(c.activation, i);
     }
     for (int i = 0; i < GRAY_COUNT; i++) {
         snprintf(a, sizeof a, "data.gray=%s", gray_std_names[i]);
@@ -540,6 +541,90 @@ static void test_choices_match_modules(void **state) {
         snprintf(a, sizeof a, "data.derivative.method=%s", stencil_kind_names[i]);
         set_ok(&c, a);
     }
+}
+
+/* Each key with a fixed set of string values, the field it is parsed into and the table that
+ * names the field's values (the module's own where the field holds a module's enum). */
+static const char *gray_name(int v) { return gray_std_names[v]; }
+static const char *scale_name(int v) { return scale_mode_names[v]; }
+static const char *deriv_name(int v) { return deriv_method_names[v]; }
+static const char *act_name(int v) { return act_table[v].name; }
+static const char *init_name(int v) { return model_init_names[v]; }
+static const char *derivs_name(int v) { return latent_derivs_names[v]; }
+static const char *sched_name(int v) { return lr_schedule_names[v]; }
+static const char *measure_name(int v) { return thresh_measure_names[v]; }
+static const char *select_name(int v) { return thresh_select_names[v]; }
+static const char *ode_name(int v) { return ode_method_names[v]; }
+
+static const struct {
+    const char *path;
+    size_t off;                 /* the field in Config (int-sized) */
+    const char *(*name_of)(int);
+    int first, count;           /* the values that are choices: [first, count) */
+} CHOICE_KEYS[] = {
+    {"data.gray", offsetof(Config, gray), gray_name, 0, GRAY_COUNT},
+    {"data.scale", offsetof(Config, scale), scale_name, 0, SCALE_COUNT},
+    {"data.derivative.method", offsetof(Config, derivative), deriv_name, 0, DERIV_METHOD_COUNT},
+    {"model.activation", offsetof(Config, activation), act_name, ACT_NONE + 1, ACT_COUNT},
+    {"model.init", offsetof(Config, init), init_name, 0, INIT_COUNT},
+    {"model.derivatives", offsetof(Config, derivatives), derivs_name, 0, DERIVS_COUNT},
+    {"optimizer.schedule", offsetof(Config, schedule), sched_name, 0, SCHED_COUNT},
+    {"threshold.measure", offsetof(Config, threshold_measure), measure_name, 0, MEASURE_COUNT},
+    {"threshold.select", offsetof(Config, threshold_select), select_name, 0, SELECT_COUNT},
+    {"forecast.method", offsetof(Config, fc_method), ode_name, 0, ODE_METHOD_COUNT},
+};
+
+/* Choices are parsed once into enums: every allowed string of every such key sets its field to the
+ * value of that name (in the table that names the enum), every value is the choice of exactly one
+ * name, the config file writes the name back and reads it again to the same value, and a string
+ * that is none of them is refused. A key given a fixed set of strings without an entry above fails
+ * here too. */
+static void test_choices_parse_into_enums(void **state) {
+    (void)state;
+    int n_keys = (int)(sizeof CHOICE_KEYS / sizeof CHOICE_KEYS[0]), seen = 0;
+    for (int i = 0; config_key_path(i); i++) {
+        const char *path = config_key_path(i);
+        if (!config_choice(path, 0, NULL)) continue;
+        int j = 0;
+        while (j < n_keys && strcmp(CHOICE_KEYS[j].path, path)) j++;
+        if (j == n_keys) fail_msg("%s: a key with choices that this test does not know", path);
+        seen++;
+    }
+    assert_int_equal(seen, n_keys);
+    for (int j = 0; j < n_keys; j++) {
+        const char *path = CHOICE_KEYS[j].path;
+        int hit[64] = {0}, n = 0, v = -1;
+        assert_true(CHOICE_KEYS[j].count <= 64);
+        for (const char *name; (name = config_choice(path, n, &v)); n++) {
+            if (v < CHOICE_KEYS[j].first || v >= CHOICE_KEYS[j].count) fail_msg("%s=%s: value %d out of range", path, name, v);
+            if (hit[v]++) fail_msg("%s=%s: value %d is the choice of two names", path, name, v);
+            if (strcmp(CHOICE_KEYS[j].name_of(v), name))
+                fail_msg("%s: '%s' parses to value %d, which its enum names '%s'", path, name, v, CHOICE_KEYS[j].name_of(v));
+            Config c, back;
+            config_defaults(&c);
+            char a[160];
+            snprintf(a, sizeof a, "%s=%s", path, name);
+            set_ok(&c, a);
+            assert_int_equal(*(const int *)((const char *)&c + CHOICE_KEYS[j].off), v);
+            assert_true(config_given(&c, path));
+            char *json = config_to_json(&c), want[160]; /* cJSON writes "key":<tab>value */
+            snprintf(want, sizeof want, "\"%s\":\t\"%s\"", strrchr(path, '.') + 1, name);
+            if (!strstr(json, want)) fail_msg("%s: the written config lacks %s", path, want);
+            Status st;
+            config_defaults(&back);
+            if (config_parse(&back, json, "written", NULL, &st)) fail_msg("%s=%s: written config refused: %s", path, name, st.msg);
+            free(json);
+            assert_int_equal(*(const int *)((const char *)&back + CHOICE_KEYS[j].off), v);
+            /* not a choice: a name with one letter more */
+            snprintf(a, sizeof a, "%s=%sx", path, name);
+            assert_int_equal(config_set(&c, a, &st), ST_INPUT);
+            assert_non_null(strstr(st.msg, "must be one of"));
+        }
+        assert_int_equal(n, CHOICE_KEYS[j].count - CHOICE_KEYS[j].first); /* every value is a choice */
+        assert_null(config_choice(path, -1, &v));
+    }
+    assert_null(config_choice("data.fps", 0, NULL));    /* a number has no choices */
+    assert_null(config_choice("model.order", 0, NULL)); /* nor an integer with choices */
 }
 
 static void test_load(void **state) {
@@ -641,6 +726,7 @@ int main(void) {
         cmocka_unit_test(test_bad_configs),
         cmocka_unit_test(test_nested_too_deep),
         cmocka_unit_test(test_choices_match_modules),
+        cmocka_unit_test(test_choices_parse_into_enums),
         cmocka_unit_test(test_load),
         cmocka_unit_test(test_docs),
     };

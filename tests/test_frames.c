@@ -384,8 +384,8 @@ static void test_from_config(void **state) {
     c.n_val_names = 2;
     snprintf(c.val_names[0], sizeof c.val_names[0], "run3");
     snprintf(c.val_names[1], sizeof c.val_names[1], "run7");
-    snprintf(c.derivative, sizeof c.derivative, "savgol");
-    snprintf(c.scale, sizeof c.scale, "standardize");
+    c.derivative = DERIV_SAVGOL;
+    c.scale = SCALE_STANDARD;
     assert_int_equal(frame_settings_from_config(&c, &s, &st), 0);
     assert_string_equal(s.val_names, "run3,run7");
     assert_int_equal(s.stencil, STENCIL_SAVGOL);

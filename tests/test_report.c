@@ -460,7 +460,7 @@ static void test_missing_sections(void **state) {
     Status cst;
     config_defaults(c);
     if (config_load_run(c, cp, &cst)) fail_msg("%s", cst.msg);
-    snprintf(c->derivatives, sizeof c->derivatives, "frames");
+    c->derivatives = DERIVS_FRAMES;
     char *cj = config_to_json(c);
     test_write_file(cp, cj);
     free(cj);

@@ -75,13 +75,13 @@ static int setup_mode(void **state, int latent) {
     /* a linear library and none of the image levers (the defaults before the template of round 2) */
     c->lib_trig = 0;
     c->loss_normalize = 0;
-    snprintf(c->init, sizeof c->init, "glorot");
-    snprintf(c->derivatives, sizeof c->derivatives, "frames");
-    snprintf(c->derivative, sizeof c->derivative, "central");
-    snprintf(c->threshold_measure, sizeof c->threshold_measure, "coefficient");
-    snprintf(c->threshold_select, sizeof c->threshold_select, "none");
+    c->init = INIT_GLOROT;
+    c->derivatives = DERIVS_FRAMES;
+    c->derivative = DERIV_CENTRAL;
+    c->threshold_measure = MEASURE_COEFFICIENT;
+    c->threshold_select = SELECT_NONE;
     if (latent) {
-        snprintf(c->derivatives, sizeof c->derivatives, "latent");
+        c->derivatives = DERIVS_LATENT;
         c->loss_normalize = 1; /* required with latent derivatives */
     }
     char path[700];

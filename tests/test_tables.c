@@ -4,6 +4,9 @@
  * table and asks for a non-empty, distinct name (and a function where one is needed). */
 #include "tests/testutil.h"
 
+#include "io/data/frames.h"
+#include "io/data/images.h"
+#include "io/run/config.h"
 #include "nn/act.h"
 #include "nn/tape.h"
 #include "sparse/integrate.h"
@@ -23,6 +26,14 @@ static void test_every_entry_named(void **state) {
     check_names("ode_method_names", ode_method_names, ODE_METHOD_COUNT);
     check_names("ode_stop_names", ode_stop_names, ODE_STOP_COUNT);
     check_names("stencil_kind_names", stencil_kind_names, STENCIL_KIND_COUNT);
+    check_names("gray_std_names", gray_std_names, GRAY_COUNT);
+    check_names("scale_mode_names", scale_mode_names, SCALE_COUNT);
+    check_names("deriv_method_names", deriv_method_names, DERIV_METHOD_COUNT);
+    check_names("model_init_names", model_init_names, INIT_COUNT);
+    check_names("latent_derivs_names", latent_derivs_names, DERIVS_COUNT);
+    check_names("lr_schedule_names", lr_schedule_names, SCHED_COUNT);
+    check_names("thresh_measure_names", thresh_measure_names, MEASURE_COUNT);
+    check_names("thresh_select_names", thresh_select_names, SELECT_COUNT);
     const char *act[ACT_COUNT];
     for (int i = 0; i < ACT_COUNT; i++) {
         act[i] = act_table[i].name;
@@ -33,6 +44,8 @@ static void test_every_entry_named(void **state) {
     for (int i = 0; i < ACT_COUNT; i++) assert_int_equal(act_from_name(act[i]), i);
     for (int i = 0; i < STENCIL_KIND_COUNT; i++) assert_int_equal(stencil_kind_from_name(stencil_kind_names[i]), i);
     for (int i = 0; i < ODE_METHOD_COUNT; i++) assert_int_equal(ode_method_from_name(ode_method_names[i]), i);
+    for (int i = 0; i < GRAY_COUNT; i++) assert_int_equal(gray_std_from_name(gray_std_names[i]), i);
+    for (int i = 0; i < SCALE_COUNT; i++) assert_int_equal(scale_mode_from_name(scale_mode_names[i]), i);
 }
 
 int main(void) {

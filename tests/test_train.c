@@ -68,7 +68,7 @@ static void small_config(Config *c, const char *dir) {
     c->n_encoder = 1;
     c->encoder[0] = 32;
     c->n_decoder = -1;
-    snprintf(c->activation, sizeof c->activation, "tanh");
+    c->activation = ACT_TANH;
     c->lib_degree = 2;
     c->batch = 100;
     c->epochs = 6;
@@ -85,11 +85,11 @@ static void small_config(Config *c, const char *dir) {
     c->threads = 1;
     /* the loop's mechanics on synthetic data without frames: the levers of image runs off (the
      * defaults before the template of round 2) */
-    snprintf(c->init, sizeof c->init, "glorot");
-    snprintf(c->derivatives, sizeof c->derivatives, "frames");
-    snprintf(c->derivative, sizeof c->derivative, "central");
-    snprintf(c->threshold_measure, sizeof c->threshold_measure, "coefficient");
-    snprintf(c->threshold_select, sizeof c->threshold_select, "none");
+    c->init = INIT_GLOROT;
+    c->derivatives = DERIVS_FRAMES;
+    c->derivative = DERIV_CENTRAL;
+    c->threshold_measure = MEASURE_COEFFICIENT;
+    c->threshold_select = SELECT_NONE;
     c->lib_trig = 0;
     c->loss_normalize = 0;
 }
@@ -232,7 +232,7 @@ static int stop_gather(void *ctx, int split, const long *idx, int B, float *X, S
     return osc_gather(&p->o, split, idx, B, X, st);
 }
 
-static void stop_in_passes(const char *measure) {
+static void stop_in_passes(ThreshMeasure measure) {
     char d1[256], d2[256];
     assert_non_null(test_tmpdir(d1, sizeof d1));
     assert_non_null(test_tmpdir(d2, sizeof d2));
@@ -241,11 +241,11 @@ static void stop_in_passes(const char *measure) {
     ParamSet p1, p2;
     TrainResult res;
     small_config(&c, d1);
-    snprintf(c.threshold_measure, sizeof c.threshold_measure, "%s", measure);
+    c.threshold_measure = measure;
     assert_int_equal(run(&c, d1, 0, 0, &m1, &p1, &res), 0);
 
     small_config(&c, d2);
-    snprintf(c.threshold_measure, sizeof c.threshold_measure, "%s", measure);
+    c.threshold_measure = measure;
     StopOsc so = {.stop_at = 20}; /* the last step of epoch 2, a thresholding epoch (threshold_every 2) */
     osc_init(&so.o);
     TrainData ds = osc_dataset(&so.o);
@@ -308,13 +308,13 @@ static void stop_in_passes(const char *measure) {
  * threshold was applied, which is undone */
 static void test_stop_in_validation_pass(void **state) {
     (void)state;
-    stop_in_passes("coefficient");
+    stop_in_passes(MEASURE_COEFFICIENT);
 }
 
 /* thresholding by contribution: its pass over the training set is the one stopped */
 static void test_stop_in_threshold_pass(void **state) {
     (void)state;
-    stop_in_passes("contribution");
+    stop_in_passes(MEASURE_CONTRIBUTION);
 }
 
 /* A checkpoint with a flipped byte or cut short is refused with a clear message, and resume falls
@@ -393,7 +393,7 @@ static void test_warmup_then_fit(void **state) {
     small_config(&c, d1);
     c.warmup_epochs = 2;
     c.threshold_every = 100; /* no thresholding pass in this short run */
-    snprintf(c.init, sizeof c.init, "pca");   /* and the principal-direction initialisation */
+    c.init = INIT_PCA;   /* and the principal-direction initialisation */
     /* stop at the end of the warm-up (10 batches an epoch) */
     assert_int_equal(run(&c, d1, 0, 20, &m1, &p1, &res), 0);
     assert_int_equal(res.epochs_done, 2);
@@ -407,7 +407,7 @@ static void test_warmup_then_fit(void **state) {
     small_config(&c, d2);
     c.warmup_epochs = 2;
     c.threshold_every = 100;
-    snprintf(c.init, sizeof c.init, "pca");
+    c.init = INIT_PCA;
     assert_int_equal(run(&c, d2, 0, 0, &m2, &p2, &res), 0);
     assert_true(same_params(&p1, &p2));
     char path[512], line[512];
@@ -451,20 +451,20 @@ static int ring_gather(void *ctx, int split, const long *idx, int B, float *X, S
 }
 
 /* One epoch on the ring with model.init `init`: the initialisation is what is under test. */
-static void ring_config(Config *c, const char *dir, const char *init) {
+static void ring_config(Config *c, const char *dir, ModelInit init) {
     small_config(c, dir);
     c->latent = 1;
     c->epochs = 1;
     c->refine_epochs = 0;
     c->w_dz = 0;
     c->w_dx = 0;
-    snprintf(c->init, sizeof c->init, "%s", init);
+    c->init = init;
     c->init_epochs = 300;
 }
 
 static const TrainData RING_DATA = {RING, 2, RING_N, 0, 0.01, ring_gather, NULL, NULL, NULL, NULL};
 
-static double ring_rank_correlation(const char *init) {
+static double ring_rank_correlation(ModelInit init) {
     char dir[256];
     assert_non_null(test_tmpdir(dir, sizeof dir));
     Config c;
@@ -502,7 +502,7 @@ static double ring_rank_correlation(const char *init) {
 
 static void test_isomap_init_follows_the_curve(void **state) {
     (void)state;
-    double iso = ring_rank_correlation("isomap"), pca = ring_rank_correlation("pca");
+    double iso = ring_rank_correlation(INIT_ISOMAP), pca = ring_rank_correlation(INIT_PCA);
     print_message("rank correlation with phi: isomap start %.4f, pca start %.4f\n", iso, pca);
     if (!(fabs(iso) > 0.99)) fail_msg("isomap start: rank correlation with phi %.4f", iso);
     if (!(fabs(pca) < 0.9)) fail_msg("pca start: rank correlation with phi %.4f (expected a fold)", pca);
@@ -515,7 +515,7 @@ static void test_stop_during_isomap_start(void **state) {
     char dir[256];
     assert_non_null(test_tmpdir(dir, sizeof dir));
     Config c;
-    ring_config(&c, dir, "isomap");
+    ring_config(&c, dir, INIT_ISOMAP);
     TrainData ds = RING_DATA;
     volatile sig_atomic_t stop = 1; /* as if Ctrl-C came during the embedding */
     TrainOpts opts = {&c, dir, 0, 1, &stop, 0, NULL, NULL};
@@ -542,7 +542,7 @@ static void test_isomap_failure_message(void **state) {
     char dir[256];
     assert_non_null(test_tmpdir(dir, sizeof dir));
     Config c;
-    ring_config(&c, dir, "isomap");
+    ring_config(&c, dir, INIT_ISOMAP);
     c.batch = 2;
     c.lib_degree = 1;
     c.lib_constant = 0;

@@ -22,7 +22,8 @@
 #define FIT_DT_TOL 0.01
 
 typedef enum { OUT_TEXT, OUT_LATEX, OUT_JSON, OUT_COUNT } OutFormat;
-static const char *const out_names[OUT_COUNT] = {"text", "latex", "json"};
+static const char *const out_names[] = {"text", "latex", "json"};
+_Static_assert(sizeof out_names / sizeof out_names[0] == OUT_COUNT, "one name per output format");
 
 typedef struct {
     const char *path;

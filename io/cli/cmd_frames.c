@@ -73,8 +73,8 @@ static void frames_usage(FILE *f) {
             "  --rebuild              rebuild the frame store even when it is current      [off]\n"
             "  --help                 this text\n\n"
             "exit status: 0 success, 1 runtime failure, 2 bad usage or bad input\n",
-            gray_std_names[d.gray], d.bits, d.stride, d.fps, scale_mode_names[d.scale], c.derivative, d.sg_window,
-            d.sg_degree, d.val_last);
+            gray_std_names[d.gray], d.bits, d.stride, d.fps, scale_mode_names[d.scale],
+            deriv_method_names[c.derivative], d.sg_window, d.sg_degree, d.val_last);
 }
 
 static int parse_int(const char *opt, const char *v, int lo, int *out) {
@@ -225,7 +225,7 @@ int cmd_frames(int argc, char **argv) {
         config_defaults(cfg);
         int rc = (config && config_load(cfg, config, &st)) || frame_settings_from_config(cfg, &s, &st);
         snprintf(cfg_frames, sizeof cfg_frames, "%s", cfg->frames);
-        autod = !strcmp(cfg->derivative, "auto"), order = cfg->order;
+        autod = cfg->derivative == DERIV_AUTO, order = cfg->order;
         free(cfg);
         if (rc) return cli_error(st.code, "%s", st.msg);
     }

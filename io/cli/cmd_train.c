@@ -106,7 +106,7 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
                     "the frames move at %.3g rad per frame, a period of %.1f frames)\n", data.auto_window,
                     data.auto_degree, data.auto_theta, 2 * M_PI / data.auto_theta);
         fprintf(stderr, "framelaw: model: latent %d, order %d, %s; batch %d, %ld epochs; log in %s/log.csv\n",
-                c->latent, c->order, c->activation, c->batch, c->epochs, run_dir);
+                c->latent, c->order, act_table[c->activation].name, c->batch, c->epochs, run_dir);
     }
     cli_stop_catch();
     TrainOpts o = {c, run_dir, resume, quiet, &cli_stop_flag, 0, NULL, NULL};

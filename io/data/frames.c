@@ -14,7 +14,8 @@
 #include "io/fs/hash.h"
 #include "io/data/store.h"
 
-const char *const scale_mode_names[SCALE_COUNT] = {"unit", "standardize"};
+const char *const scale_mode_names[] = {"unit", "standardize"};
+_Static_assert(sizeof scale_mode_names / sizeof scale_mode_names[0] == SCALE_COUNT, "one name per scaling");
 
 ScaleMode scale_mode_from_name(const char *name) {
     for (int k = 0; k < SCALE_COUNT; k++)

@@ -26,7 +26,7 @@
 /* ---- Settings ---------------------------------------------------------------------------- */
 
 typedef enum { SCALE_UNIT, SCALE_STANDARD, SCALE_COUNT } ScaleMode;
-extern const char *const scale_mode_names[SCALE_COUNT];   /* "unit", "standardize" */
+extern const char *const scale_mode_names[];   /* (SCALE_COUNT) "unit", "standardize" */
 ScaleMode scale_mode_from_name(const char *name);          /* SCALE_COUNT when unknown */
 
 #define FRAMES_MAX_VAL_NAMES 1024

@@ -15,7 +15,8 @@
 #include "io/fs/files.h"
 #include "io/fs/hash.h"
 
-const char *const gray_std_names[GRAY_COUNT] = {"bt601", "bt709"};
+const char *const gray_std_names[] = {"bt601", "bt709"};
+_Static_assert(sizeof gray_std_names / sizeof gray_std_names[0] == GRAY_COUNT, "one name per standard");
 
 GrayStd gray_std_from_name(const char *name) {
     for (int g = 0; g < GRAY_COUNT; g++)

@@ -28,7 +28,7 @@
 
 typedef enum { GRAY_BT601, GRAY_BT709, GRAY_COUNT } GrayStd;
 
-extern const char *const gray_std_names[GRAY_COUNT];   /* "bt601", "bt709" */
+extern const char *const gray_std_names[];   /* (GRAY_COUNT) "bt601", "bt709" */
 GrayStd gray_std_from_name(const char *name);          /* GRAY_COUNT when unknown */
 /* The standard's luma weights w[0..2] = (wr, wg, wb). */
 void gray_weights(GrayStd g, double w[3]);

@@ -176,7 +176,7 @@ static void section_training(Report *r, const RunLog *L) {
     if (L->have & RUNLOG_HAVE_RECONSTRUCTION)
         s[ns++] = (PlotSeries){"reconstruction term", ep, d + REC, n, NC, plot_color(1), DASH_SOLID};
     /* with derivatives in latent space the decoder's derivative term is not used (logged as 0) */
-    int dx_used = strcmp(r->cfg->derivatives, "latent") != 0;
+    int dx_used = r->cfg->derivatives != DERIVS_LATENT;
     if ((L->have & RUNLOG_HAVE_DX) && dx_used) s[ns++] = (PlotSeries){dname, ep, d + DX, n, NC, plot_color(2), DASH_SOLID};
     if (L->have & RUNLOG_HAVE_DZ) s[ns++] = (PlotSeries){zname, ep, d + DZ, n, NC, plot_color(4), DASH_SOLID};
     if (nv) s[ns++] = (PlotSeries){"validation loss (no L1)", ve, vv, nv, 1, plot_color(3), DASH_DASHED};

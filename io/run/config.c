@@ -6,7 +6,8 @@
  * choices, the Config field it fills and a one-line meaning. Parsing, defaults, config_to_json,
  * config_set (--set), the digest and the Markdown key list in docs/config.md all walk that table,
  * so a key added there is parsed, written, digested and documented at once (tests/test_config.c
- * checks the docs page against the table).
+ * checks the docs page against the table). A key with a fixed set of string values (T_CHOICE) is
+ * parsed once into its enum; the Config never holds the string, and writing gives back the name.
  *
  * JSON per RFC 8259 (IETF, 2017), parsed with cJSON; cJSON keeps repeated object members as
  * separate children, which is how duplicate keys are found. */
@@ -31,6 +32,7 @@
 #include "io/fs/json_check.h"
 #include "nn/mlp.h"
 #include "sparse/ensemble.h"
+#include "sparse/equation.h"
 #include "sparse/library.h"
 #include "sparse/stencil.h"
 
@@ -128,13 +130,6 @@ static int int_ok(const cJSON *v, double lo, double hi, double limit, const char
         return 0;
     }
     return 1;
-}
-
-static int in_choices(const char *s, const char *choices) {
-    size_t n = strlen(s);
-    for (const char *p = choices; p; p = strchr(p, '|') ? strchr(p, '|') + 1 : NULL)
-        if (!strncmp(p, s, n) && (p[n] == '|' || p[n] == 0)) return 1;
-    return 0;
 }
 
 /* An integer list (T_INTS, T_INTS_NULL, T_CROP, T_SIZE). */
@@ -257,24 +252,28 @@ static int apply_value(Config *c, const KeyDef *k, const cJSON *v, const char *p
         if (!cJSON_IsBool(v)) return rule_error(st, x, path, k);
         *(int *)field(c, k) = cJSON_IsTrue(v) ? 1 : 0;
         return 0;
-    case T_STR: case T_PATH: {
+    case T_CHOICE: /* parsed once: the Config holds the enum value, never the string */
+        if (cJSON_IsString(v))
+            for (int i = 0; i < k->n_names; i++)
+                if (!strcmp(v->valuestring, k->names[i])) {
+                    *(int *)field(c, k) = config_choice_value(k, i);
+                    return 0;
+                }
+        return rule_error(st, x, path, k);
+    case T_PATH: {
         if (!cJSON_IsString(v)) return rule_error(st, x, path, k);
         const char *s = v->valuestring;
-        if (k->choices && !in_choices(s, k->choices)) return rule_error(st, x, path, k);
         char buf[CFG_PATH_MAX];
         int n;
-        if (k->type == T_PATH && (!strcmp(k->path, "data.frames") || !strcmp(k->path, "data.store")) && s[0] &&
+        if ((!strcmp(k->path, "data.frames") || !strcmp(k->path, "data.store")) && s[0] &&
             s[0] != '/' && x->base_dir &&
             x->base_dir[0] && strcmp(x->base_dir, "."))
             n = snprintf(buf, sizeof buf, "%s%s%s", x->base_dir,
                          x->base_dir[strlen(x->base_dir) - 1] == '/' ? "" : "/", s);
         else
             n = snprintf(buf, sizeof buf, "%s", s);
-        if (n < 0 || (size_t)n >= k->size) {
-            if (k->type == T_PATH)
-                return key_error(st, x, path, "path too long (at most %zu bytes)", k->size - 1);
-            return rule_error(st, x, path, k);
-        }
+        if (n < 0 || (size_t)n >= k->size)
+            return key_error(st, x, path, "path too long (at most %zu bytes)", k->size - 1);
         memset(field(c, k), 0, k->size);
         memcpy(field(c, k), buf, (size_t)n);
         return 0;
@@ -524,11 +523,11 @@ int config_validate(const Config *c, Status *st) {
                           "train.warmup_epochs (%ld) + threshold.refine_epochs (%ld) must be less than train.epochs "
                           "(%ld): shorten the warm-up or the refinement, or train longer",
                           c->warmup_epochs, c->refine_epochs, c->epochs);
-    if (!strcmp(c->derivatives, "latent") && !c->loss_normalize)
+    if (c->derivatives == DERIVS_LATENT && !c->loss_normalize)
         return status_set(st, ST_INPUT,
                           "model.derivatives latent needs loss.normalize true: without the decoder's derivative "
                           "term only the relative latent term keeps the latent from shrinking to nothing");
-    if (!strcmp(c->derivative, "savgol")) {
+    if (c->derivative == DERIV_SAVGOL) {
         if (c->sg_window % 2 == 0)
             return status_set(st, ST_INPUT, "data.derivative.window: must be odd for savgol (is %d)", c->sg_window);
         if (c->sg_window <= c->sg_degree)
@@ -550,24 +549,13 @@ int config_validate(const Config *c, Status *st) {
         for (int j = 0; j < i; j++)
             if (!strcmp(c->val_names[i], c->val_names[j]))
                 return status_set(st, ST_INPUT, "data.validation.recordings[%d]: '%s' is listed twice", i, c->val_names[i]);
-    if (!strcmp(c->schedule, "cosine") && c->lr_min > c->lr)
+    if (c->schedule == SCHED_COSINE && c->lr_min > c->lr)
         return status_set(st, ST_INPUT, "optimizer.lr_min (%g) must not exceed optimizer.lr (%g)", c->lr_min, c->lr);
     status_ok(st);
     return 0;
 }
 
 /* ---- writing ------------------------------------------------------------------------------ */
-
-/* Numbers are written as raw text of our own: cJSON's printer accepts a shorter form when it is
- * merely close, and the written config must read back to the same bits. */
-static cJSON *num_exact(double d) {
-    char b[40];
-    for (int prec = 15; prec <= 17; prec++) {
-        snprintf(b, sizeof b, "%.*g", prec, d);
-        if (strtod(b, NULL) == d) break;
-    }
-    return cJSON_CreateRaw(b);
-}
 
 static cJSON *int_exact(long long v) {
     char b[32];
@@ -577,12 +565,19 @@ static cJSON *int_exact(long long v) {
 
 static cJSON *key_value(const Config *c, const KeyDef *k) {
     switch (k->type) {
-    case T_NUM: return num_exact(*(const double *)cfield(c, k));
+    /* numbers as raw text that reads back to the same bits (cJSON's printer accepts a shorter form
+     * when it is merely close); a config's numbers are finite */
+    case T_NUM: return equation_exact_number(*(const double *)cfield(c, k));
     case T_INT: return int_exact(*(const int *)cfield(c, k));
     case T_LONG: return int_exact(*(const long *)cfield(c, k));
     case T_U64: return int_exact((long long)*(const uint64_t *)cfield(c, k));   /* <= 2^53 */
     case T_BOOL: return cJSON_CreateBool(*(const int *)cfield(c, k));
-    case T_STR: case T_PATH: return cJSON_CreateString(cfield(c, k));
+    case T_PATH: return cJSON_CreateString(cfield(c, k));
+    case T_CHOICE: {
+        int i = config_choice_index(k, *(const int *)cfield(c, k));
+        NN_CHECK(i >= 0, "%s: value %d is none of its choices", k->path, *(const int *)cfield(c, k));
+        return cJSON_CreateString(k->names[i]);
+    }
     case T_INTS: case T_INTS_NULL: case T_CROP: case T_SIZE: {
         int n = k->type == T_CROP || k->type == T_SIZE ? (int)(k->size / sizeof(int)) : count_of(c, k);
         if (n < 0) return cJSON_CreateNull();

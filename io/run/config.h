@@ -13,9 +13,32 @@
 #include <stddef.h>
 #include <stdint.h>
 
+#include "io/data/frames.h"
+#include "nn/act.h"
 #include "nn/core.h"
+#include "sparse/integrate.h"
 
 #define CFG_PATH_MAX 4096
+
+/* Keys with a fixed set of string values are parsed once into enums: the Config holds the value,
+ * never the string. A key whose values a module below already names holds that module's enum
+ * (data.gray GrayStd, data.scale ScaleMode, model.activation ActId, forecast.method OdeMethod);
+ * the others have their enums here. The name of each value, as a config file writes it, is in the
+ * key table (config_choice_name); the config's tables of these enums are below. */
+typedef enum { DERIV_CENTRAL, DERIV_SAVGOL, DERIV_AUTO, DERIV_METHOD_COUNT } DerivMethod;   /* data.derivative.method */
+typedef enum { INIT_GLOROT, INIT_PCA, INIT_ISOMAP, INIT_COUNT } ModelInit;                   /* model.init */
+typedef enum { DERIVS_FRAMES, DERIVS_LATENT, DERIVS_COUNT } LatentDerivs;                  /* model.derivatives */
+typedef enum { SCHED_CONSTANT, SCHED_STEP, SCHED_COSINE, SCHED_COUNT } LrSchedule;          /* optimizer.schedule */
+typedef enum { MEASURE_COEFFICIENT, MEASURE_CONTRIBUTION, MEASURE_COUNT } ThreshMeasure;    /* threshold.measure */
+typedef enum { SELECT_NONE, SELECT_FIRST, SELECT_EVERY, SELECT_COUNT } ThreshSelect;        /* threshold.select */
+
+/* The names of those enums' values, indexed by value ("central", "savgol", "auto"; ...). */
+extern const char *const deriv_method_names[];    /* (DERIV_METHOD_COUNT) */
+extern const char *const model_init_names[];      /* (INIT_COUNT) */
+extern const char *const latent_derivs_names[];   /* (DERIVS_COUNT) */
+extern const char *const lr_schedule_names[];     /* (SCHED_COUNT) */
+extern const char *const thresh_measure_names[];  /* (MEASURE_COUNT) */
+extern const char *const thresh_select_names[];   /* (SELECT_COUNT) */
 #define CFG_MAX_LIST 16
 #define CFG_NAME_MAX 96
 
@@ -24,15 +47,15 @@ typedef struct {
     char frames[CFG_PATH_MAX];      /* data.frames: frames folder, or a folder/file of CSV / .npy recordings */
     char frames_origin[CFG_PATH_MAX]; /* data.frames_origin: data.frames when trained, once the frames moved */
     double fps;                     /* data.fps: frames (samples) per second; dt = stride / fps     [30] */
-    char gray[16];                  /* data.gray: "bt601" | "bt709"                              [bt601] */
+    GrayStd gray;                   /* data.gray: "bt601" | "bt709"                              [bt601] */
     int crop[4];                    /* data.crop: [x, y, width, height] in source pixels; width 0 = none */
     int size[2];                    /* data.size: [width, height] after resizing; 0 = keep           */
-    char scale[16];                 /* data.scale: "unit" ([0,1]) | "standardize" (per pixel)     [unit] */
+    ScaleMode scale;                /* data.scale: "unit" ([0,1]) | "standardize" (per pixel)     [unit] */
     int stride;                     /* data.stride: keep every n-th frame                              [1] */
     int store_bits;                 /* data.store_bits: 8 | 16                                         [8] */
     char store[CFG_PATH_MAX];       /* data.store: frame store file; "": beside the frames, or the cache when
                                        their folder is read-only (docs/frames.md)                  [""] */
-    char derivative[16];            /* data.derivative.method: "central" | "savgol" | "auto"      [auto] */
+    DerivMethod derivative;         /* data.derivative.method: "central" | "savgol" | "auto"      [auto] */
     int sg_window, sg_degree;       /* data.derivative.window [7], .degree [3]                          */
     int n_val_names;                /* data.validation.recordings: names of held-out recordings        */
     char val_names[CFG_MAX_LIST][CFG_NAME_MAX];
@@ -46,9 +69,9 @@ typedef struct {
     int n_decoder;                  /* model.decoder: hidden widths; null = encoder mirrored    [null] */
                                     /*   (n_decoder = -1 for null)                                     */
     int decoder[CFG_MAX_LIST];
-    char activation[16];            /* model.activation: sigmoid | tanh | softplus | silu     [sigmoid] */
-    char init[16];                  /* model.init: "glorot" | "pca" | "isomap"                 [isomap] */
-    char derivatives[16];           /* model.derivatives: "frames" | "latent"                 [latent] */
+    ActId activation;               /* model.activation: sigmoid | tanh | softplus | silu     [sigmoid] */
+    ModelInit init;                 /* model.init: "glorot" | "pca" | "isomap"                 [isomap] */
+    LatentDerivs derivatives;       /* model.derivatives: "frames" | "latent"                 [latent] */
     long init_epochs;               /* model.init_epochs: isomap fitting epochs                   [200] */
     long init_frames;               /* model.init_frames: frames embedded by isomap              [2000] */
     /* library */
@@ -66,7 +89,7 @@ typedef struct {
     int loss_normalize;             /* loss.normalize: divide rec and dx terms by the data's scale [true] */
     /* optimizer */
     double lr, beta1, beta2, eps;   /* optimizer.lr [1e-3], .beta1 [0.9], .beta2 [0.999], .eps [1e-8] */
-    char schedule[16];              /* optimizer.schedule: "constant" | "step" | "cosine"    [constant] */
+    LrSchedule schedule;            /* optimizer.schedule: "constant" | "step" | "cosine"    [constant] */
     int sched_every;                /* optimizer.decay_every: epochs between step decays         [1000] */
     double sched_factor;            /* optimizer.decay_factor: step decay multiplier              [0.5] */
     double lr_min;                  /* optimizer.lr_min: floor of the cosine schedule               [0] */
@@ -81,8 +104,8 @@ typedef struct {
     int warmup_fit;                 /* train.warmup_fit: Xi from thresholded least squares after it [true] */
     /* threshold */
     double threshold;               /* threshold.value                                           [0.02] */
-    char threshold_measure[16];     /* threshold.measure: "coefficient" | "contribution" [contribution] */
-    char threshold_select[16];      /* threshold.select: "none" | "first" | "every"                 [every] */
+    ThreshMeasure threshold_measure; /* threshold.measure: "coefficient" | "contribution" [contribution] */
+    ThreshSelect threshold_select;  /* threshold.select: "none" | "first" | "every"                 [every] */
     int threshold_every;            /* threshold.every: epochs between passes                     [250] */
     long refine_epochs;             /* threshold.refine_epochs: last epochs, mask fixed, no L1    [300] */
     /* checkpoint */
@@ -90,7 +113,7 @@ typedef struct {
     int ckpt_keep;                  /* checkpoint.keep: how many periodic checkpoints to keep       [3] */
     /* forecast (safe to change on resume: they do not affect training) */
     double fc_bound;                /* forecast.bound: relative error that ends a good forecast   [0.1] */
-    char fc_method[16];             /* forecast.method: "dopri5" | "rk4"                       [dopri5] */
+    OdeMethod fc_method;            /* forecast.method: "dopri5" | "rk4"                       [dopri5] */
     double fc_tol;                  /* forecast.tolerance: dopri5 relative tolerance             [1e-8] */
     /* ensemble by bagging after training (safe to change on resume; docs/ensembles.md) */
     int ens_members;                /* ensemble.members                                           [100] */
@@ -161,6 +184,9 @@ void config_safe_keys_text(char *buf, size_t n);   /* NULL-terminated */
 
 /* The key table, for docs and tests: the path of key i (0, 1, ...), NULL past the last key. */
 const char *config_key_path(int i);
+/* A key with a fixed set of string values: the i-th allowed name (0, 1, ...) and, in *value, the
+ * enum value it is parsed into; NULL past the last name or when the key has no such set. */
+const char *config_choice(const char *path, int i, int *value);
 
 /* The key table as Markdown (one row per key: key, type, default, allowed values, meaning), as it
  * appears in docs/config.md; malloc'ed, caller frees. */

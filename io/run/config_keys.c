@@ -22,13 +22,53 @@ _Static_assert(sizeof(((Config *)0)->lib_freq) / sizeof(int) == LIB_MAX_FREQ, "l
 _Static_assert(sizeof(((Config *)0)->lib_include) / CFG_NAME_MAX == LIB_MAX_EDITS, "library.include");
 _Static_assert(sizeof(((Config *)0)->lib_exclude) / CFG_NAME_MAX == LIB_MAX_EDITS, "library.exclude");
 
-/* ---- the key table ------------------------------------------------------------------------ */
-
 const char *const config_type_names[] = {
     "number", "integer", "integer", "integer", "bool", "string", "path",
     "integer list", "integer list or null", "string list", "crop", "size",
 };
 _Static_assert(sizeof config_type_names / sizeof config_type_names[0] == T_COUNT, "a key type without a name");
+
+/* ---- the choices: enums parsed from a fixed set of strings ---------------------------------- */
+
+const char *const deriv_method_names[] = {"central", "savgol", "auto"};
+_Static_assert(sizeof deriv_method_names / sizeof deriv_method_names[0] == DERIV_METHOD_COUNT, "deriv_method_names");
+const char *const model_init_names[] = {"glorot", "pca", "isomap"};
+_Static_assert(sizeof model_init_names / sizeof model_init_names[0] == INIT_COUNT, "model_init_names");
+const char *const latent_derivs_names[] = {"frames", "latent"};
+_Static_assert(sizeof latent_derivs_names / sizeof latent_derivs_names[0] == DERIVS_COUNT, "latent_derivs_names");
+const char *const lr_schedule_names[] = {"constant", "step", "cosine"};
+_Static_assert(sizeof lr_schedule_names / sizeof lr_schedule_names[0] == SCHED_COUNT, "lr_schedule_names");
+const char *const thresh_measure_names[] = {"coefficient", "contribution"};
+_Static_assert(sizeof thresh_measure_names / sizeof thresh_measure_names[0] == MEASURE_COUNT, "thresh_measure_names");
+const char *const thresh_select_names[] = {"none", "first", "every"};
+_Static_assert(sizeof thresh_select_names / sizeof thresh_select_names[0] == SELECT_COUNT, "thresh_select_names");
+
+/* Keys that hold a module's enum list its names in the config's own order (the order the docs and
+ * the messages give), each with its value; tests/test_config.c checks that every name is the
+ * module's name of its value. ACT_NONE (the linear output layer) is not a choice. */
+static const char *const gray_choice_names[] = {"bt601", "bt709"};
+static const int gray_choice_values[] = {GRAY_BT601, GRAY_BT709};
+static const char *const scale_choice_names[] = {"unit", "standardize"};
+static const int scale_choice_values[] = {SCALE_UNIT, SCALE_STANDARD};
+static const char *const act_choice_names[] = {"sigmoid", "tanh", "softplus", "silu"};
+static const int act_choice_values[] = {ACT_SIGMOID, ACT_TANH, ACT_SOFTPLUS, ACT_SILU};
+static const char *const ode_choice_names[] = {"dopri5", "rk4"};
+static const int ode_choice_values[] = {ODE_DOPRI5, ODE_RK4};
+#define N_OF(a) ((int)(sizeof a / sizeof a[0]))
+_Static_assert(N_OF(gray_choice_names) == N_OF(gray_choice_values), "data.gray: a name without a value");
+_Static_assert(N_OF(scale_choice_names) == N_OF(scale_choice_values), "data.scale: a name without a value");
+_Static_assert(N_OF(act_choice_names) == N_OF(act_choice_values), "model.activation: a name without a value");
+_Static_assert(N_OF(ode_choice_names) == N_OF(ode_choice_values), "forecast.method: a name without a value");
+
+int config_choice_index(const KeyDef *k, int v) {
+    for (int i = 0; i < k->n_names; i++)
+        if (config_choice_value(k, i) == v) return i;
+    return -1;
+}
+
+int config_choice_value(const KeyDef *k, int i) { return k->values ? k->values[i] : i; }
+
+/* ---- the key table ------------------------------------------------------------------------ */
 
 #define FIELD(f) .off = offsetof(Config, f), .size = sizeof(((Config *)0)->f)
 #define INTTYPE(f) _Generic(((Config *)0)->f, int: T_INT, long: T_LONG, uint64_t: T_U64)
@@ -38,7 +78,11 @@ _Static_assert(sizeof config_type_names / sizeof config_type_names[0] == T_COUNT
 #define K_INT(p, f, d, lo, hi, ch, m) \
     { .path = p, .type = INTTYPE(f), .def = d, .min = lo, .max = hi, .choices = ch, FIELD(f), .meaning = m }
 #define K_BOOL(p, f, d, m) { .path = p, .type = T_BOOL, .def = d, FIELD(f), .meaning = m }
-#define K_STR(p, f, d, ch, m) { .path = p, .type = T_STR, .def = d, .choices = ch, FIELD(f), .meaning = m }
+/* an enum field: names[] and values[] (or NULL: the value is the index); .min is 0, written so that
+ * a field that is not int-sized fails to compile (a negative array size) */
+#define K_CHOICE(p, f, d, nm, vals, m)                                                                       \
+    { .path = p, .type = T_CHOICE, .def = d, .names = nm, .values = vals, .n_names = N_OF(nm), FIELD(f),    \
+      .min = sizeof(char[sizeof(((Config *)0)->f) == sizeof(int) ? 1 : -1]) - 1, .meaning = m }
 #define K_PATH(p, f, dd, m) { .path = p, .type = T_PATH, .def = "\"\"", .doc_def = dd, FIELD(f), .meaning = m }
 #define K_INTS(p, t, f, n, d, mn, lo, hi, m)                                                     \
     { .path = p, .type = t, .def = d, .min = lo, .max = hi, .min_n = mn, FIELD(f),                \
@@ -60,12 +104,12 @@ const KeyDef config_keys[] = {
     K_NUM("data.fps", fps, "30", 0, INFINITY, LO_OPEN,
           "frames (samples) per second of the source; the time step is data.stride / data.fps; required for "
           "image frames (they carry no rate)"),
-    K_STR("data.gray", gray, "\"bt601\"", "bt601|bt709", "weights that turn colour frames to gray"),
+    K_CHOICE("data.gray", gray, "\"bt601\"", gray_choice_names, gray_choice_values, "weights that turn colour frames to gray"),
     K_FIXED("data.crop", T_CROP, crop, "[0, 0, 0, 0]", "[x, y, width, height]",
             "crop in source pixels, before resizing; width 0 = no crop"),
     K_FIXED("data.size", T_SIZE, size, "[0, 0]", "[width, height]",
             "frame size after cropping and resizing (area average); [0, 0] = keep"),
-    K_STR("data.scale", scale, "\"unit\"", "unit|standardize",
+    K_CHOICE("data.scale", scale, "\"unit\"", scale_choice_names, scale_choice_values,
           "pixel scaling: unit = [0, 1]; standardize = zero mean, unit variance per pixel"),
     K_INT("data.stride", stride, "1", 1, NOMAX, NULL, "keep every n-th frame"),
     K_INT("data.store_bits", store_bits, "8", 8, 16, "8|16", "bits per pixel in the frame store"),
@@ -73,7 +117,7 @@ const KeyDef config_keys[] = {
            "frame store file (a cache of the preprocessed frames); relative to the config file's folder; \"\" = "
            "DIR/.framelaw-store beside the frames, or in $XDG_CACHE_HOME/framelaw (~/.cache/framelaw) when their "
            "folder is not writable (docs/frames.md)"),
-    K_STR("data.derivative.method", derivative, "\"auto\"", "central|savgol|auto",
+    K_CHOICE("data.derivative.method", derivative, "\"auto\"", deriv_method_names, NULL,
           "how x' and x'' (or z', z'') are formed from neighbouring frames: central differences, Savitzky-Golay "
           "(window, degree), or auto: the Savitzky-Golay stencil of least noise whose response stays within 2% "
           "of exact at the rms frequency of the training frames' leading principal components (window up to 13)"),
@@ -92,14 +136,14 @@ const KeyDef config_keys[] = {
            "widths of the encoder's hidden layers"),
     K_INTS("model.decoder", T_INTS_NULL, decoder, n_decoder, "null", 0, 1, NOMAX,
            "widths of the decoder's hidden layers; null = the encoder's reversed"),
-    K_STR("model.activation", activation, "\"sigmoid\"", "sigmoid|tanh|softplus|silu",
+    K_CHOICE("model.activation", activation, "\"sigmoid\"", act_choice_names, act_choice_values,
           "activation of the hidden layers (the output layers are linear)"),
-    K_STR("model.init", init, "\"isomap\"", "glorot|pca|isomap",
+    K_CHOICE("model.init", init, "\"isomap\"", model_init_names, NULL,
           "glorot: uniform weights, zero biases; pca: in addition, the encoder's first layer projects on the "
           "leading principal directions of the training frames (whitened) and the decoder starts at the mean "
           "frame; isomap: pca, then the encoder is fitted to an Isomap embedding of the training frames (and "
           "the decoder to its inverse), so that the latent starts along the frames' manifold"),
-    K_STR("model.derivatives", derivatives, "\"latent\"", "frames|latent",
+    K_CHOICE("model.derivatives", derivatives, "\"latent\"", latent_derivs_names, NULL,
           "frames: z' (and z'') by carrying the frames' stencil derivatives x' (x'') through the encoder; "
           "latent: by the same stencil (data.derivative) applied to the codes of the frames around each "
           "sample, robust when the picture changes a lot from one frame to the next (loss.dx is then not "
@@ -137,7 +181,7 @@ const KeyDef config_keys[] = {
     K_NUM("optimizer.beta1", beta1, "0.9", 0, 1, HI_OPEN, "Adam decay of the first moment"),
     K_NUM("optimizer.beta2", beta2, "0.999", 0, 1, HI_OPEN, "Adam decay of the second moment"),
     K_NUM("optimizer.eps", eps, "1e-08", 0, INFINITY, LO_OPEN, "Adam epsilon"),
-    K_STR("optimizer.schedule", schedule, "\"constant\"", "constant|step|cosine",
+    K_CHOICE("optimizer.schedule", schedule, "\"constant\"", lr_schedule_names, NULL,
           "learning-rate schedule: constant; step (times decay_factor every decay_every epochs); "
           "cosine (from lr down to lr_min over the run)"),
     K_INT("optimizer.decay_every", sched_every, "1000", 1, NOMAX, NULL, "step schedule: epochs between decays"),
@@ -162,11 +206,11 @@ const KeyDef config_keys[] = {
     /* threshold */
     K_NUM("threshold.value", threshold, "0.02", 0, INFINITY, 0,
           "coefficients with |Xi| below this are set to zero and masked out for good"),
-    K_STR("threshold.measure", threshold_measure, "\"contribution\"", "coefficient|contribution",
+    K_CHOICE("threshold.measure", threshold_measure, "\"contribution\"", thresh_measure_names, NULL,
           "what threshold.value and loss.l1 measure: coefficient = |Xi| in the units of the latent and of "
           "time; contribution = |Xi| rms(term) / rms(z' or z'') over the training set (the L1 term over the "
           "batch), the share of the target a term carries, the same in any units"),
-    K_STR("threshold.select", threshold_select, "\"every\"", "none|first|every",
+    K_CHOICE("threshold.select", threshold_select, "\"every\"", thresh_select_names, NULL,
           "first: the law is selected once, on the latent of the start-up before joint training; every: then "
           "again at every thresholding pass, in place of pruning. Selection: candidate laws from thresholded "
           "least squares on the encoded training set (nested libraries, a grid of contribution thresholds) "
@@ -186,7 +230,7 @@ const KeyDef config_keys[] = {
     /* forecast */
     K_NUM("forecast.bound", fc_bound, "0.1", 0, INFINITY, LO_OPEN,
           "relative error at which a forecast counts as lost (its time is reported)"),
-    K_STR("forecast.method", fc_method, "\"dopri5\"", "dopri5|rk4", "integrator of the learned model"),
+    K_CHOICE("forecast.method", fc_method, "\"dopri5\"", ode_choice_names, ode_choice_values, "integrator of the learned model"),
     K_NUM("forecast.tolerance", fc_tol, "1e-08", 0, INFINITY, LO_OPEN,
           "relative tolerance of dopri5 (absolute: 1e-3 of it); rk4 takes 8 steps per frame"),
     /* ensemble */
@@ -238,6 +282,13 @@ void config_safe_keys_text(char *buf, size_t n) {
 }
 
 const char *config_key_path(int i) { return i >= 0 && i < config_n_keys ? config_keys[i].path : NULL; }
+
+const char *config_choice(const char *path, int i, int *value) {
+    const KeyDef *k = config_find_key(path);
+    if (!k || k->type != T_CHOICE || i < 0 || i >= k->n_names) return NULL;
+    if (value) *value = config_choice_value(k, i);
+    return k->names[i];
+}
 
 const KeyDef *config_find_key(const char *path) {
     for (int i = 0; i < config_n_keys; i++)
@@ -306,14 +357,16 @@ void config_key_rule(char *b, size_t n, const KeyDef *k) {
     case T_NUM: num_rule(b, n, k); break;
     case T_INT: case T_LONG: case T_U64: config_int_rule(b, n, k->min, k->max, k->choices); break;
     case T_BOOL: snprintf(b, n, "true or false"); break;
-    case T_STR:
-        if (k->choices) {
-            choices_text(c, sizeof c, k->choices);
-            snprintf(b, n, "one of %s", c);
-        } else {
-            snprintf(b, n, "a string of at most %zu characters", k->size - 1);
+    case T_CHOICE: {
+        size_t j = 0;
+        for (int i = 0; i < k->n_names && j < sizeof c; i++) {
+            int w = snprintf(c + j, sizeof c - j, "%s%s", i ? ", " : "", k->names[i]);
+            if (w < 0) break;
+            j += (size_t)w;
         }
+        snprintf(b, n, "one of %s", c);
         break;
+    }
     case T_PATH: snprintf(b, n, "a path (a string of at most %zu bytes)", k->size - 1); break;
     case T_INTS: case T_INTS_NULL:
         config_int_rule(e, sizeof e, k->min, k->max, NULL);

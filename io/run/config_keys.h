@@ -15,7 +15,7 @@ typedef enum {
     T_LONG,         /* long */
     T_U64,          /* uint64_t */
     T_BOOL,         /* int, 0 / 1 */
-    T_STR,          /* char[], optionally one of `choices` */
+    T_CHOICE,       /* an enum (int-sized): a string, one of `names`, stored as its value */
     T_PATH,         /* char[CFG_PATH_MAX] */
     T_INTS,         /* int[] with a count field */
     T_INTS_NULL,    /* int[] with a count field; null gives count -1 */
@@ -37,7 +37,10 @@ typedef struct {
     double min, max;        /* numbers, integers and list elements */
     int flags;              /* LO_OPEN, HI_OPEN */
     int min_n;              /* lists: fewest entries */
-    const char *choices;    /* strings and integers: "a|b|c" (or NULL) */
+    const char *choices;    /* integers: "8|16" (or NULL) */
+    const char *const *names;   /* T_CHOICE: the allowed strings, in the order the docs list them */
+    const int *values;      /* T_CHOICE: the enum value of each name, or NULL when it is its index */
+    int n_names;
     const char *shape;      /* crop / size: "[x, y, width, height]" */
     size_t off, size;       /* the field in Config */
     size_t off_n;           /* lists: the int count field */
@@ -47,6 +50,11 @@ typedef struct {
 extern const char *const config_type_names[];   /* (T_COUNT) "number", "integer", ... for docs */
 extern const KeyDef config_keys[];              /* (config_n_keys) */
 extern const int config_n_keys;
+
+/* T_CHOICE: the index in k->names of enum value v, or -1. */
+int config_choice_index(const KeyDef *k, int v);
+/* T_CHOICE: the enum value of names[i]. */
+int config_choice_value(const KeyDef *k, int i);
 
 /* The row of a key path, or NULL. */
 const KeyDef *config_find_key(const char *path);

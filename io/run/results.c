@@ -54,7 +54,7 @@ int loaded_run_open(LoadedRun *r, const char *run_dir, Status *st) {
         loaded_run_close(r);
         return st->code;
     }
-    if (!strcmp(r->cfg.derivatives, "latent")) model_set_window(&r->m, &r->data.ds.sten, r->data.ds.dt);
+    if (r->cfg.derivatives == DERIVS_LATENT) model_set_window(&r->m, &r->data.ds.sten, r->data.ds.dt);
     coef_from_float(&r->coef, params_val(&r->ps, r->m.xi).d, r->m.mask);
     tape_init(&r->tape, 256, (size_t)16 << 20);
     r->have_tape = 1;
@@ -499,7 +499,7 @@ static int forecast_recording(LoadedRun *r, int rec, const Region *reg, FcResult
     LearnedOde lo;
     learned_ode_init(&lo, &r->m.lib, r->coef.xi, r->coef.mask);
     OdeOptions opt = ode_defaults();
-    opt.method = strcmp(r->cfg.fc_method, "rk4") ? ODE_DOPRI5 : ODE_RK4;
+    opt.method = r->cfg.fc_method;
     opt.h = opt.method == ODE_RK4 ? dt / 8 : 0;
     opt.rtol = r->cfg.fc_tol;
     opt.atol = 1e-3 * r->cfg.fc_tol;
@@ -695,7 +695,7 @@ int results_forecast(LoadedRun *r, int quiet, Status *st) {
         cJSON_AddStringToObject(o, "name", name);
         cJSON_AddNumberToObject(o, "frames", (double)fr.frames);
         cJSON_AddNumberToObject(o, "duration", fr.duration);
-        cJSON_AddStringToObject(o, "method", r->cfg.fc_method);
+        cJSON_AddStringToObject(o, "method", ode_method_names[r->cfg.fc_method]);
         cJSON_AddNumberToObject(o, "start_frames", fr.start_frames);
         cJSON_AddItemToObject(o, "mean_error", num_or_null(fr.mean_err));
         cJSON_AddItemToObject(o, "final_error", num_or_null(fr.final_err));

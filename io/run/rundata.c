@@ -36,18 +36,14 @@ void rundata_close(RunData *d) {
 int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st) {
     *s = frame_settings_default();
     s->fps = c->fps;
-    s->gray = gray_std_from_name(c->gray);
-    if (s->gray == GRAY_COUNT) return status_set(st, ST_INPUT, "data.gray: unknown standard '%s'", c->gray);
+    s->gray = c->gray;
     s->crop_x = c->crop[0], s->crop_y = c->crop[1], s->crop_w = c->crop[2], s->crop_h = c->crop[3];
     s->width = c->size[0], s->height = c->size[1];
-    s->scale = scale_mode_from_name(c->scale);
-    if (s->scale == SCALE_COUNT) return status_set(st, ST_INPUT, "data.scale: unknown scaling '%s'", c->scale);
+    s->scale = c->scale;
     s->stride = c->stride;
     s->bits = c->store_bits;
     /* auto: central differences until rundata_open has looked at the frames */
-    s->stencil = !strcmp(c->derivative, "auto") ? STENCIL_CENTRAL : stencil_kind_from_name(c->derivative);
-    if (s->stencil == STENCIL_KIND_COUNT)
-        return status_set(st, ST_INPUT, "data.derivative.method: unknown method '%s'", c->derivative);
+    s->stencil = c->derivative == DERIV_SAVGOL ? STENCIL_SAVGOL : STENCIL_CENTRAL;
     s->sg_window = c->sg_window, s->sg_degree = c->sg_degree;
     size_t k = 0;
     for (int i = 0; i < c->n_val_names && i < CFG_MAX_LIST; i++) {
@@ -155,7 +151,7 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     d->have_store = 1;
     if (dataset_init(&d->ds, &d->store, &s, st)) return st->code;
     d->have_ds = 1;
-    if (!strcmp(c->derivative, "auto")) { /* the stencil from the data, then the samples again */
+    if (c->derivative == DERIV_AUTO) { /* the stencil from the data, then the samples again */
         if (rundata_auto_stencil(&d->ds, &d->store, c->order, &s, &d->auto_theta, st)) return st->code;
         dataset_free(&d->ds);
         d->have_ds = 0;
@@ -163,7 +159,7 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
         d->have_ds = 1;
         d->auto_window = s.sg_window, d->auto_degree = s.sg_degree;
     }
-    int latent = !strcmp(c->derivatives, "latent");
+    int latent = c->derivatives == DERIVS_LATENT;
     d->k = latent ? 2 * d->ds.sten.m + 1 : c->order + 1;
     d->batch = c->batch > 0 ? c->batch : 1;
     TrainData *td = &d->td;

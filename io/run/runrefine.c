@@ -93,7 +93,7 @@ static int train_candidate(Ctx *x, int idx, const uint8_t *mask, RefineCandidate
     cfg->warmup_epochs = 0;
     cfg->w_l1 = 0;
     cfg->threshold_every = (int)(x->o->epochs + 1); /* never: the mask is fixed */
-    snprintf(cfg->threshold_select, sizeof cfg->threshold_select, "none");
+    cfg->threshold_select = SELECT_NONE;
     cfg->validate_every = x->o->epochs; /* once, at the end: the final model's loss */
     cfg->ckpt_every = x->o->epochs;
     cfg->ckpt_keep = 1;

@@ -80,9 +80,9 @@ int model_spec_from_config(const Config *c, int n_in, ModelSpec *sp, Status *st)
     sp->dec_mirror = c->n_decoder < 0;
     sp->n_dec = c->n_decoder < 0 ? 0 : c->n_decoder;
     for (int i = 0; i < sp->n_dec; i++) sp->dec_widths[i] = c->decoder[i];
-    sp->act = act_from_name(c->activation);
+    sp->act = c->activation;
     if (sp->act == ACT_COUNT || sp->act == ACT_NONE)
-        return status_set(st, ST_INPUT, "model.activation: unknown activation '%s'", c->activation);
+        return status_set(st, ST_INPUT, "model.activation: not an activation of hidden layers (%d)", (int)c->activation);
     if (sp->n_enc + 1 > MLP_MAX_LAYERS || sp->n_dec + 1 > MLP_MAX_LAYERS)
         return status_set(st, ST_INPUT, "model.encoder: at most %d hidden layers", MLP_MAX_LAYERS - 1);
     if (model_memory_check(c, n_in, st)) return st->code;
@@ -104,9 +104,9 @@ int model_spec_from_config(const Config *c, int n_in, ModelSpec *sp, Status *st)
 }
 
 static double lr_at(const Config *c, long epoch) {
-    if (!strcmp(c->schedule, "step") && c->sched_every > 0)
+    if (c->schedule == SCHED_STEP && c->sched_every > 0)
         return c->lr * pow(c->sched_factor, (double)(epoch / c->sched_every));
-    if (!strcmp(c->schedule, "cosine") && c->epochs > 0)
+    if (c->schedule == SCHED_COSINE && c->epochs > 0)
         return c->lr_min + 0.5 * (c->lr - c->lr_min) * (1 + cos(M_PI * (double)epoch / (double)c->epochs));
     return c->lr;
 }
@@ -732,7 +732,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     int B = c->batch < ds->n_train ? c->batch : (int)ds->n_train;
     long n_batches = (ds->n_train + B - 1) / B;
     float *X = nn_alloc((size_t)ds->k * B * ds->n_in * sizeof(float)); /* (k B, n_in) */
-    int fresh = ps->step == 0, use_pca = !strcmp(c->init, "pca") || !strcmp(c->init, "isomap");
+    int fresh = ps->step == 0, use_pca = c->init == INIT_PCA || c->init == INIT_ISOMAP;
     if (fresh && o->start) { /* a given start (refinement): its values and mask instead of model.init */
         NN_CHECK(o->start->n == ps->n, "train_run: a start of %zu parameters for a model of %zu", o->start->n, ps->n);
         memcpy(ps->val, o->start->val, ps->n * sizeof *ps->val);
@@ -747,18 +747,18 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     Tape t;
     tape_init(&t, 256, (size_t)64 << 20);
     if ((fresh && ((use_pca && (rc = pca_init(&r, ds, X, B, st))) ||
-                   (!strcmp(c->init, "isomap") &&
+                   (c->init == INIT_ISOMAP &&
                     (rc = isomap_init(&r, ds, X, B, o, (AdamCfg){(float)c->lr, (float)c->beta1, (float)c->beta2,
                                                                          (float)c->eps}, st))))) || /* a fresh model */
         (rc = data_scales(&r, ds, B, X, st)) ||
         /* threshold.select: the law is first chosen on the latent of the start-up, before joint
          * training can bend the latent towards the dense law of the whole library */
-        (fresh && strcmp(c->threshold_select, "none") && (rc = select_pass(&r, ds, &t, X, B, o->quiet, st)))) {
+        (fresh && c->threshold_select != SELECT_NONE && (rc = select_pass(&r, ds, &t, X, B, o->quiet, st)))) {
         if (rc == TRAIN_STOPPED) {
             if (fresh) { /* nothing saved yet: a resume starts the run over, with the same result */
                 if (!o->quiet) fputc('\n', stderr);
                 char what[64] = "the start-up";
-                if (use_pca) snprintf(what, sizeof what, "the %s start (model.init)", c->init);
+                if (use_pca) snprintf(what, sizeof what, "the %s start (model.init)", model_init_names[c->init]);
                 rc = status_set(st, ST_RUNTIME, "stopped during %s, before the first checkpoint: `framelaw resume %s` "
                                 "starts the run over", what, o->run_dir);
             } else { /* resumed: the checkpoint it started from is where it still stands */
@@ -780,7 +780,7 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
         int refine = epoch >= refine_from, warm = epoch < c->warmup_epochs;
         m->warmup = warm;
         m->dz_relative = c->loss_normalize;
-        m->l1_contribution = !strcmp(c->threshold_measure, "contribution");
+        m->l1_contribution = c->threshold_measure == MEASURE_CONTRIBUTION;
         LossWeights w = {(float)(c->w_rec * r.rec_norm), (float)(c->w_dx * r.dx_norm), warm ? 0.0f : (float)c->w_dz,
                          refine || warm ? 0.0f : (float)c->w_l1};
         ad.lr = (float)lr_at(c, epoch);
@@ -838,8 +838,8 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
             if (c->warmup_fit) rc = warmup_fit(&r, ds, &t, X, B, o->quiet, st);
         }
         if (!rc && !refine && !warm && c->threshold_every > 0 && done % c->threshold_every == 0 && done <= refine_from) {
-            if (!strcmp(c->threshold_select, "every")) rc = select_pass(&r, ds, &t, X, B, o->quiet, st);
-            else if (!strcmp(c->threshold_measure, "contribution")) rc = threshold_contribution(&r, ds, &t, X, B, st);
+            if (c->threshold_select == SELECT_EVERY) rc = select_pass(&r, ds, &t, X, B, o->quiet, st);
+            else if (c->threshold_measure == MEASURE_CONTRIBUTION) rc = threshold_contribution(&r, ds, &t, X, B, st);
             else model_threshold(m, ps, (float)c->threshold);
             r.meta.n_thresholds++;
         }

@@ -96,7 +96,7 @@ int sweep_member_prepare(const Sweep *sw, int i, MemberState state, int threads,
 }
 
 void sweep_store_key(const Config *c, char *buf, size_t n) {
-    snprintf(buf, n, "%s|%s|%d,%d,%d,%d|%d,%d|%d|%d", c->frames, c->gray, c->crop[0], c->crop[1], c->crop[2],
+    snprintf(buf, n, "%s|%s|%d,%d,%d,%d|%d,%d|%d|%d", c->frames, gray_std_names[c->gray], c->crop[0], c->crop[1], c->crop[2],
              c->crop[3], c->size[0], c->size[1], c->stride, c->store_bits);
 }
 

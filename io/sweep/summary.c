@@ -159,7 +159,7 @@ int sweep_summary(const Sweep *sw, SweepSummary *sum, Status *st) {
         int have_cfg = !sweep_member_config(sw, i, c, st);
         long epochs = have_cfg ? c->epochs : 0;
         /* with derivatives in latent space the dx term is not used (the log holds 0): left empty */
-        if (have_cfg && !strcmp(c->derivatives, "latent")) r->log.dx = NAN;
+        if (have_cfg && c->derivatives == DERIVS_LATENT) r->log.dx = NAN;
         snprintf(p, sizeof p, "%s/equations.json", dir);
         int eq = fs_exists(p);
         if (eq) {
