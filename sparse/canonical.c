@@ -44,7 +44,7 @@
 #define ZERO_PATTERN 0.01  /* relative contribution below which a coefficient starts as zero */
 
 CanonOptions canon_defaults(void) {
-    CanonOptions o = {0.05, 1e3, 1e-6, 12, 2000, 1};
+    CanonOptions o = {0.05, 1e3, 1e-6, 12, 5000, 1};
     return o;
 }
 

@@ -62,7 +62,7 @@ typedef struct {
     double cond_max;    /* 1e3: bound on the condition number of the map between standardised coordinates */
     double err_floor;   /* 1e-6: relative residual below which two fits count as equal */
     int starts;         /* 12 seeded random starts of the polynomial search (besides the structured ones) */
-    long max_samples;   /* 2000: samples the search uses (evenly spaced); the final refit uses all */
+    long max_samples;   /* 5000: samples the search uses (evenly spaced); the final refit uses all */
     unsigned long long seed;   /* 1: seed of the random starts (the result is deterministic) */
 } CanonOptions;
 
