@@ -13,9 +13,12 @@
  *     terms) and the solutions of k of the coefficients of the next lower degree, which are affine
  *     in b (the classical shift that removes the z^2 term of a cubic is one of them);
  *   - a greedy descent in the count with exact zeros: force one more coefficient to zero by
- *     Levenberg-Marquardt on the exactly transformed coefficients, keep it when the law refitted on
- *     the samples without that term is within the tolerance. This is also what makes the result
- *     precise (a smoothed objective only comes near the zeros).
+ *     Levenberg-Marquardt on the exactly transformed coefficients; of the smallest few, take the one
+ *     whose law refitted on the samples stays nearest its reference (a choice that does not depend
+ *     on the tolerance, so a looser tolerance follows the same path and stops later), while that
+ *     law is within the tolerance. This is also what makes the result precise (a smoothed
+ *     objective only comes near the zeros). Every law on the way is a candidate, and every
+ *     candidate is refitted on every sample: the sparsest within the tolerance there is reported.
  * Everything is deterministic: the random starts come from a seeded generator. */
 #include "sparse/canonical.h"
 
@@ -41,7 +44,7 @@
 #define ZERO_PATTERN 0.01  /* relative contribution below which a coefficient starts as zero */
 
 CanonOptions canon_defaults(void) {
-    CanonOptions o = {0.05, 1e3, 1e-6, 12, 2000, 1};
+    CanonOptions o = {0.05, 1e3, 1e-6, 12, 5000, 1};
     return o;
 }
 
@@ -745,94 +748,57 @@ static void vp_polish(Prob *P, double *x, long rows, int iters) {
     opt_lm(vp_res, P, x, P->nA + P->k, (int)(rows * P->k), &vo);
 }
 
-/* LM with the forced zeros off, from x (in place): first on the exactly transformed coefficients
- * (cheap), then, when the refitted law is near the tolerance but not within it, on the sample fit
- * itself (variable projection: with noisy data the coefficients cannot reach exact zeros, and the
- * fit is what counts). 1 when the result is a valid map whose law, refitted on the search samples
- * with the remaining terms, is within the tolerance. */
-static int force_and_check(Prob *P, double *x, uint8_t *support, double *err_sum) {
+/* How far a fit is from its reference: the largest over the equations of (err_i - err_floor) /
+ * ref_i. A law is within the tolerance when this is at most 1 + tolerance (as `within`). */
+static double excess(const Prob *P, const double *err, const double *ref) {
+    double s = 0;
+    for (int i = 0; i < P->k; i++) {
+        double e = err[i] - P->opt->err_floor, q = e <= 0 ? 0 : ref[i] > 0 ? e / ref[i] : HUGE_VAL;
+        s = q > s ? q : s;
+    }
+    return s;
+}
+
+#define POLISH_NEAR 1.5   /* excess up to which the map is refined on the samples */
+
+/* LM with the forced zeros off, from x (in place), on the exactly transformed coefficients.
+ * Returns the excess of the law refitted on the search samples with the remaining terms (HUGE_VAL
+ * when the map is not valid); err_sum gets the sum of its relative errors. */
+static double force_and_check(Prob *P, double *x, uint8_t *support, double *err_sum) {
     int k = P->k, n = P->nA + k;
     long m_res = count_set(P->off, (long)P->nb * k);
     OptOptions lo = opt_lm_defaults();
     if (m_res > 0) opt_lm(off_res, P, x, n, (int)m_res, &lo);
     Map m;
-    if (x_to_map(P, x, 1, &m)) return 0;
+    if (x_to_map(P, x, 1, &m)) return HUGE_VAL;
     support_of_off(P, support);
     double err[KMAX], err0[KMAX];
-    int ok = fit_support(P, &m, support, err, err0);
-    if (!ok) {
-        int near = 1;
-        for (int i = 0; i < k; i++) near &= err[i] <= (1 + 4 * P->opt->tolerance) * err0[i] + P->opt->err_floor;
-        if (!near) return 0;
-        vp_polish(P, x, P->Nc, 20);
-        if (x_to_map(P, x, 1, &m) || !fit_support(P, &m, support, err, err0)) return 0;
-    }
+    fit_support(P, &m, support, err, err0);
     *err_sum = 0;
     for (int i = 0; i < k; i++) *err_sum += err[i];
-    return 1;
+    return excess(P, err, err0);
 }
 
-typedef struct {
-    long idx;
-    double size;
-} Entry;
-
-static int entry_cmp(const void *a, const void *b) {
-    const Entry *x = a, *y = b;
-    return x->size < y->size ? -1 : x->size > y->size ? 1 : (x->idx > y->idx) - (x->idx < y->idx);
-}
-
-/* Stage 3 from x (nA + k, in place): force one more coefficient to zero at a time. Returns the
- * number of terms of the support found (support (p, k) out), or -1. */
-static long stage3_greedy(Prob *P, double *x, uint8_t *support, double *err_sum) {
+/* When the law of x is near its reference but above it (excess s in (1, POLISH_NEAR]), the map
+ * refined on the sample fit itself (variable projection: with noisy data the coefficients cannot
+ * reach exact zeros, and the fit is what counts), kept when the excess falls. Returns the excess.
+ * Nothing here depends on the tolerance, so a looser tolerance sees the same maps and the same
+ * excesses as a tighter one. */
+static double polish_near(Prob *P, double *x, const uint8_t *support, double s, double *err_sum) {
     int k = P->k, n = P->nA + k;
-    long nbk = (long)P->nb * k;
+    if (!(s > 1 && s <= POLISH_NEAR)) return s;
+    double x1[OPT_MAX_PARAMS], e1[KMAX], r1[KMAX];
+    memcpy(x1, x, (size_t)n * sizeof *x);
+    vp_polish(P, x1, P->Nc, 20);
     Map m;
-    if (x_to_map(P, x, 1, &m) || exact_K(P, &m)) return -1;
-    double *K0 = nn_alloc((size_t)nbk * sizeof *K0), xx[OPT_MAX_PARAMS];
-    uint8_t *off0 = nn_alloc((size_t)nbk), *sup = nn_alloc((size_t)P->p * k);
-    Entry *list = nn_alloc((size_t)nbk * sizeof *list);
-    memcpy(K0, P->K, (size_t)nbk * sizeof *K0);
-    const double thr[3] = {ZERO_PATTERN, 1e-6, -1};
-    int ok = 0;
-    for (int a = 0; a < 3 && !ok; a++) {
-        for (long e = 0; e < nbk; e++) P->off[e] = !P->inlib[e / k] || fabs(K0[e]) < thr[a];
-        memcpy(xx, x, (size_t)n * sizeof *xx);
-        ok = force_and_check(P, xx, sup, err_sum);
-    }
-    long result = -1;
-    if (ok) {
-        memcpy(x, xx, (size_t)n * sizeof *x);
-        memcpy(support, sup, (size_t)P->p * k);
-        for (;;) {
-            memcpy(off0, P->off, (size_t)nbk);
-            if (x_to_map(P, x, 1, &m) || exact_K(P, &m)) break;
-            long nl = 0;
-            for (long e = 0; e < nbk; e++)
-                if (!P->off[e]) list[nl].idx = e, list[nl].size = fabs(P->K[e]), nl++;
-            qsort(list, (size_t)nl, sizeof *list, entry_cmp);
-            int progress = 0;
-            for (long q = 0; q < nl && q < GREEDY_TRIES && !progress; q++) {
-                memcpy(P->off, off0, (size_t)nbk);
-                P->off[list[q].idx] = 1;
-                memcpy(xx, x, (size_t)n * sizeof *xx);
-                double es;
-                if (force_and_check(P, xx, sup, &es)) {
-                    progress = 1;
-                    memcpy(x, xx, (size_t)n * sizeof *x);
-                    memcpy(support, sup, (size_t)P->p * k);
-                    *err_sum = es;
-                }
-            }
-            if (!progress) {
-                memcpy(P->off, off0, (size_t)nbk);
-                break;
-            }
-        }
-        result = count_set(support, (long)P->p * k);
-    }
-    nn_free(K0), nn_free(off0), nn_free(sup), nn_free(list);
-    return result;
+    if (x_to_map(P, x1, 1, &m)) return s;
+    fit_support(P, &m, support, e1, r1);
+    double s1 = excess(P, e1, r1);
+    if (!(s1 < s)) return s;
+    memcpy(x, x1, (size_t)n * sizeof *x);
+    *err_sum = 0;
+    for (int i = 0; i < k; i++) *err_sum += e1[i];
+    return s1;
 }
 
 /* ---- candidates ------------------------------------------------------------------------------- */
@@ -859,47 +825,163 @@ static int rank_less(const Prob *P, long c1, const uint8_t *m1, double e1, long 
     return e1 < e2;
 }
 
-#define MAX_CANDS 96
-
+/* A law the search met: its map, its terms on the search samples, and the keys of rank_less. */
 typedef struct {
     Map m;
     uint8_t *support;   /* (p, k) */
     long count;
     double err;
-    int identity;
+    int self, widest;   /* equations keeping their own linear term; the most terms of one equation */
+    int order;          /* when it was met: the last tie-break, so the order does not depend on qsort */
 } Cand;
 
+/* Every law the search met (growing): the final choice refits each on every sample. */
 typedef struct {
-    Cand c[MAX_CANDS];
-    int n;
+    Cand *c;
+    int n, cap;
 } CandList;
 
-static void cand_add(CandList *L, const Prob *P, const Map *m, const uint8_t *support, long count, double err,
-                     int identity) {
-    if (count < 0) return;
-    int at = L->n;
-    if (L->n == MAX_CANDS) {   /* replace the worst */
-        at = 0;
-        for (int i = 1; i < L->n; i++)
-            if (rank_less(P, L->c[at].count, L->c[at].support, L->c[at].err, L->c[i].count, L->c[i].support, L->c[i].err))
-                at = i;
-        if (!rank_less(P, count, support, err, L->c[at].count, L->c[at].support, L->c[at].err)) return;
-        nn_free(L->c[at].support);
-    } else {
-        L->n++;
+static void rank_keys(const Prob *P, const uint8_t *m, int *self, int *widest) {
+    int k = P->k;
+    *self = *widest = 0;
+    for (int i = 0; i < k; i++) {
+        int t = P->self_term[i], n = 0;
+        if (t >= 0) *self += m[t * k + i] != 0;
+        for (int u = 0; u < P->p; u++) n += m[u * k + i] != 0;
+        *widest = n > *widest ? n : *widest;
     }
-    Cand *c = &L->c[at];
+}
+
+/* rank_less on the keys of two candidates (a total order: the order met breaks the last ties). */
+static int cand_cmp(const void *x, const void *y) {
+    const Cand *a = x, *b = y;
+    if (a->count != b->count) return a->count < b->count ? -1 : 1;
+    if (a->self != b->self) return a->self > b->self ? -1 : 1;
+    if (a->widest != b->widest) return a->widest < b->widest ? -1 : 1;
+    if (a->err != b->err) return a->err < b->err ? -1 : 1;
+    return (a->order > b->order) - (a->order < b->order);
+}
+
+static int close_to(double a, double b) { return fabs(a - b) <= 1e-6 * (fabs(a) + fabs(b)); }
+
+/* Adds a law unless the list has it already (the same terms at the same map, as from starts that
+ * end at the same point). */
+static void cand_add(CandList *L, const Prob *P, const Map *m, const uint8_t *support, long count, double err) {
+    if (count < 0) return;
+    size_t pk = (size_t)P->p * P->k;
+    for (int i = 0; i < L->n; i++) {
+        const Cand *o = &L->c[i];
+        if (o->count != count || memcmp(o->support, support, pk)) continue;
+        int same = 1;
+        for (int j = 0; j < P->k * P->k && same; j++) same = close_to(o->m.A[j], m->A[j]);
+        for (int j = 0; j < P->k && same; j++) same = close_to(o->m.b[j], m->b[j]) && close_to(o->m.w[j], m->w[j]);
+        if (same) return;
+    }
+    if (L->n == L->cap) {
+        int cap = L->cap ? 2 * L->cap : 64;
+        Cand *c = nn_alloc((size_t)cap * sizeof *c);
+        if (L->n) memcpy(c, L->c, (size_t)L->n * sizeof *c);
+        if (L->c) nn_free(L->c);
+        L->c = c, L->cap = cap;
+    }
+    Cand *c = &L->c[L->n];
+    c->order = L->n++;
     c->m = *m;
-    c->support = nn_alloc((size_t)P->p * P->k);
-    memcpy(c->support, support, (size_t)P->p * P->k);
+    c->support = nn_alloc(pk);
+    memcpy(c->support, support, pk);
     c->count = count;
     c->err = err;
-    c->identity = identity;
+    rank_keys(P, support, &c->self, &c->widest);
 }
 
 static void cand_free(CandList *L) {
     for (int i = 0; i < L->n; i++) nn_free(L->c[i].support);
-    L->n = 0;
+    if (L->c) nn_free(L->c);
+    L->c = NULL;
+    L->n = L->cap = 0;
+}
+
+typedef struct {
+    long idx;
+    double size;
+} Entry;
+
+static int entry_cmp(const void *a, const void *b) {
+    const Entry *x = a, *y = b;
+    return x->size < y->size ? -1 : x->size > y->size ? 1 : (x->idx > y->idx) - (x->idx < y->idx);
+}
+
+/* Stage 3 from x (nA + k, in place): force one more coefficient to zero at a time. Returns the
+ * number of terms of the support found (support (p, k) out), or -1. Every accepted step on the way
+ * is added to L as well (its map and support): the endpoint was accepted on the search samples,
+ * and when its law is not within the tolerance on every sample (the final refit), a step before it
+ * may be, and is sparser than the other candidates. */
+static long stage3_greedy(Prob *P, double *x, uint8_t *support, double *err_sum, CandList *L) {
+    int k = P->k, n = P->nA + k;
+    long nbk = (long)P->nb * k;
+    Map m;
+    if (x_to_map(P, x, 1, &m) || exact_K(P, &m)) return -1;
+    double *K0 = nn_alloc((size_t)nbk * sizeof *K0), xx[OPT_MAX_PARAMS];
+    uint8_t *off0 = nn_alloc((size_t)nbk), *sup = nn_alloc((size_t)P->p * k);
+    Entry *list = nn_alloc((size_t)nbk * sizeof *list);
+    memcpy(K0, P->K, (size_t)nbk * sizeof *K0);
+    const double thr[3] = {ZERO_PATTERN, 1e-6, -1}, accept = 1 + P->opt->tolerance;
+    int ok = 0;
+    for (int a = 0; a < 3 && !ok; a++) {
+        for (long e = 0; e < nbk; e++) P->off[e] = !P->inlib[e / k] || fabs(K0[e]) < thr[a];
+        memcpy(xx, x, (size_t)n * sizeof *xx);
+        ok = polish_near(P, xx, sup, force_and_check(P, xx, sup, err_sum), err_sum) <= accept;
+    }
+    long result = -1;
+    if (ok) {
+        memcpy(x, xx, (size_t)n * sizeof *x);
+        memcpy(support, sup, (size_t)P->p * k);
+        double xb[OPT_MAX_PARAMS];
+        uint8_t *supb = nn_alloc((size_t)P->p * k);
+        long best_e = -1;
+        for (;;) {
+            if (x_to_map(P, x, 1, &m)) break;
+            cand_add(L, P, &m, support, count_set(support, (long)P->p * k), *err_sum);   /* the step reached */
+            memcpy(off0, P->off, (size_t)nbk);
+            if (exact_K(P, &m)) break;
+            long nl = 0;
+            for (long e = 0; e < nbk; e++)
+                if (!P->off[e]) list[nl].idx = e, list[nl].size = fabs(P->K[e]), nl++;
+            qsort(list, (size_t)nl, sizeof *list, entry_cmp);
+            /* the step: of the smallest coefficients, the one whose removal leaves the smallest
+             * excess (not the first within the tolerance), its map then refined on the samples:
+             * the choice does not depend on the tolerance, so a looser tolerance follows the same
+             * descent as a tighter one while that one goes on, and only stops later */
+            double best_s = HUGE_VAL, best_es = 0;
+            best_e = -1;
+            for (long q = 0; q < nl && q < GREEDY_TRIES; q++) {
+                memcpy(P->off, off0, (size_t)nbk);
+                P->off[list[q].idx] = 1;
+                memcpy(xx, x, (size_t)n * sizeof *xx);
+                double es, sq = force_and_check(P, xx, sup, &es);
+                if (sq < best_s) {
+                    best_s = sq, best_es = es, best_e = list[q].idx;
+                    memcpy(xb, xx, (size_t)n * sizeof *xb);
+                    memcpy(supb, sup, (size_t)P->p * k);
+                }
+            }
+            memcpy(P->off, off0, (size_t)nbk);
+            if (best_e < 0) break;
+            P->off[best_e] = 1;
+            best_s = polish_near(P, xb, supb, best_s, &best_es);
+            if (!(best_s <= accept)) {
+                P->off[best_e] = 0;
+                break;
+            }
+            memcpy(x, xb, (size_t)n * sizeof *x);
+            memcpy(support, supb, (size_t)P->p * k);
+            *err_sum = best_es;
+        }
+        nn_free(supb);
+        result = count_set(support, (long)P->p * k);
+    }
+    nn_free(K0), nn_free(off0), nn_free(sup), nn_free(list);
+    return result;
 }
 
 /* Stages 2 and 3 from the A of xa; candidates into L. */
@@ -912,7 +994,7 @@ static void from_A(Prob *P, const double *xa, const double *extra_b, CandList *L
         memcpy(x, xa, (size_t)nA * sizeof *x);
         memcpy(x + nA, xb + (long)q * k, (size_t)k * sizeof *x);
         double es = 0;
-        long cnt = stage3_greedy(P, x, sup, &es);
+        long cnt = stage3_greedy(P, x, sup, &es, L);
         if (cnt >= 0) {   /* the most accurate map for the terms found: the sample fit itself */
             double x0[OPT_MAX_PARAMS], e2[KMAX], e0[KMAX];
             memcpy(x0, x, sizeof x0);
@@ -921,7 +1003,7 @@ static void from_A(Prob *P, const double *xa, const double *extra_b, CandList *L
             if (x_to_map(P, x, 1, &mp) || !fit_support(P, &mp, sup, e2, e0)) memcpy(x, x0, sizeof x0);
         }
         Map m;
-        if (cnt >= 0 && x_to_map(P, x, 1, &m) == 0) cand_add(L, P, &m, sup, cnt, es, 0);
+        if (cnt >= 0 && x_to_map(P, x, 1, &m) == 0) cand_add(L, P, &m, sup, cnt, es);
     }
     nn_free(sup);
 }
@@ -1138,7 +1220,7 @@ static void trig_search(Prob *P, CandList *L) {
             if (cnt >= 0 && cnt <= best_c) cur = m, best_c = cnt, best_e = es, memcpy(best_sup, sup, (size_t)p * k);
         }
     }
-    if (best_c >= 0) cand_add(L, P, &cur, best_sup, best_c, best_e, 0);
+    if (best_c >= 0) cand_add(L, P, &cur, best_sup, best_c, best_e);
     nn_free(sup);
     nn_free(best_sup);
 }
@@ -1603,8 +1685,7 @@ int canonical_find(Canonical *out, const Library *lib, const double *xi, const u
         }
     }
     find_fixed_points(&P);
-    CandList L;
-    L.n = 0;
+    CandList L = {NULL, 0, 0};
     if (P.trig) trig_search(&P, &L);
     else poly_search(&P, &L);
 
@@ -1619,19 +1700,16 @@ int canonical_find(Canonical *out, const Library *lib, const double *xi, const u
     int bident = 1;
     double bsum = 0;
     for (int i = 0; i < k; i++) bsum += berr[i];
-    /* the best candidates by rank_less on the search samples, refitted on every sample */
-    for (int pass = 0; pass < 4 && L.n > 0; pass++) {
-        int at = 0;
-        for (int i = 1; i < L.n; i++)
-            if (rank_less(&P, L.c[i].count, L.c[i].support, L.c[i].err, L.c[at].count, L.c[at].support, L.c[at].err))
-                at = i;
+    /* every law the search met, in the order of rank_less on the search samples, refitted on every
+     * sample: the sparsest on the search samples need not stay within the tolerance on all of them,
+     * and another law the search met (a step of the same descent, another start) may */
+    qsort(L.c, (size_t)L.n, sizeof *L.c, cand_cmp);
+    for (int at = 0; at < L.n; at++) {
         Cand c = L.c[at];
-        L.c[at] = L.c[--L.n];
         Map m = c.m;
         apply_conventions(&P, &m, c.support);
         double cond = map_cond(&P, m.A);
         long cnt = cond <= opt->cond_max ? final_refit(&P, &m, c.support, cxi, cmask, cerr, cerr0) : -1;
-        nn_free(c.support);
         if (cnt < 0) continue;
         double sum = 0;
         for (int i = 0; i < k; i++) sum += cerr[i];

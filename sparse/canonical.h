@@ -17,8 +17,9 @@
  *   (2) offsets b among the fixed points of the law and the solutions that zero k coefficients of
  *       the next lower degree (those are affine in b);
  *   (3) a greedy pass that forces one more coefficient to zero at a time (Levenberg-Marquardt on
- *       the exactly transformed coefficients over A and b) and keeps it when the law refitted on
- *       the samples with the remaining terms is still within the tolerance.
+ *       the exactly transformed coefficients over A and b): of the smallest coefficients, the one
+ *       whose law, refitted on the samples with the remaining terms, stays nearest its reference,
+ *       while that law is within the tolerance. Every law on the way is a candidate.
  * - Libraries with sin / cos terms are not closed (sin of a mixture of variables is not a term),
  *   so the map is diagonal there: u_i = a_i z_i + b_i, and the frequency of the trig terms becomes
  *   a fitted parameter: sin(k z_i) is replaced by sin(k w_i u_i). For each variable, w_i is scanned
@@ -27,8 +28,8 @@
  *   scored by backward elimination on the samples, and the best (w, b) is refined by
  *   Levenberg-Marquardt on the fit error with its terms fixed.
  *
- * The accepted law is refitted on every sample by sequentially thresholded least squares
- * (sparse/thresh_lsq.h) restricted to the terms found, along a path of thresholds on the relative
+ * Every candidate the search met is refitted on every sample by sequentially thresholded least
+ * squares (sparse/thresh_lsq.h) restricted to its terms, along a path of thresholds on the relative
  * contribution of each term; the sparsest law within the tolerance is kept.
  *
  * Tolerance: equation by equation, the canonical law's relative residual on the samples must be
@@ -61,7 +62,7 @@ typedef struct {
     double cond_max;    /* 1e3: bound on the condition number of the map between standardised coordinates */
     double err_floor;   /* 1e-6: relative residual below which two fits count as equal */
     int starts;         /* 12 seeded random starts of the polynomial search (besides the structured ones) */
-    long max_samples;   /* 2000: samples the search uses (evenly spaced); the final refit uses all */
+    long max_samples;   /* 5000: samples the search uses (evenly spaced); the final refit uses all */
     unsigned long long seed;   /* 1: seed of the random starts (the result is deterministic) */
 } CanonOptions;
 
