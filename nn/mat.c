@@ -23,27 +23,12 @@ static void gemm_shapes(int ta, int tb, Mat a, Mat b, Mat c, int *m, int *n, int
     *k = ak;
 }
 
-/* Products below GEMM_SPLIT_MNK multiply-adds run on one thread. OpenBLAS 0.3.21 splits every
- * product above 2^18 (m n k) over its threads; on the small products of a small model (the S
- * workload of docs/performance.md: m n k from 5e4 to 4.2e6, 25-100 us each) the split costs more than
- * it saves, and the threads it wakes then spin (sched_yield, about 0.1 s) against the caller's
- * elementwise passes, so that two threads ran slower than one. The big products of a model on pixels
- * (V: 3.8e7 and up) gain from the second thread. Setting OpenBLAS's thread count costs a store
- * (about 5 ns), so it is set per product and put back: the other callers of OpenBLAS
- * (nn/pca.c, nn/isomap.c, sparse/canonical.c) keep the count nn_set_threads chose. The choice
- * depends only on the shape and the thread count, so a run stays the same bit for bit at a given
- * thread count. */
-#define GEMM_SPLIT_MNK 8388608.0 /* 2^23 */
-
 void mat_gemm(int ta, int tb, float alpha, Mat a, Mat b, float beta, Mat c) {
     int m, n, k;
     gemm_shapes(ta, tb, a, b, c, &m, &n, &k);
     if (m == 0 || n == 0) return;
-    int threads = openblas_get_num_threads(), one = threads > 1 && (double)m * n * k < GEMM_SPLIT_MNK;
-    if (one) openblas_set_num_threads(1);
     cblas_sgemm(CblasRowMajor, ta ? CblasTrans : CblasNoTrans, tb ? CblasTrans : CblasNoTrans, m, n, k,
                 alpha, a.d, a.cols, b.d, b.cols, beta, c.d, c.cols);
-    if (one) openblas_set_num_threads(threads);
 }
 
 void mat_gemm_ref(int ta, int tb, float alpha, Mat a, Mat b, float beta, Mat c) {

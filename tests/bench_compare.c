@@ -22,8 +22,7 @@
  *     model_loss, tape_backward, adam_step, mask) over warm-up + timed epochs; the seconds of each
  *     epoch come from the run's log.csv. Peak memory: VmHWM from /proc/self/status after training.
  *     Then, in the same process, the sgemm-only ceiling: the step's own products (same shapes,
- *     transposes and beta, full batches) through mat_gemm (cblas_sgemm, on the threads the step gives
- *     each product), one epoch's worth per repetition.
+ *     transposes and beta, full batches) through cblas_sgemm, one epoch's worth per repetition.
  *   PyTorch: tests/reference/bench_torch.py run by /usr/bin/python3 (same model, loss, stencil and
  *     epoch loop, float32, tangents propagated by hand, written as fast as PyTorch allows: stacked
  *     blocks, a hand-written backward for the sigmoid layers with tangents, F.mse_loss, one flat

@@ -40,43 +40,6 @@ static void test_gemm_matches_reference(void **state) {
         }
 }
 
-/* At 2 threads, a product below the size mat_gemm keeps on one thread (200 x 64 x 128) and one
- * above it (517 x 70 x 300) against the triple loop, every transpose combination; each gives the
- * same bits when repeated, and the thread count is as set afterwards (common practice). The
- * tolerance: float32 products of k <= 300 terms of magnitude <= 1 accumulate a rounding error of
- * about sqrt(k) 6e-8 |sum|, well under 1e-4 in absolute and relative terms. */
-static void test_gemm_at_two_threads(void **state) {
-    (void)state;
-    static const int shapes[2][3] = {{200, 64, 128}, {517, 70, 300}}; /* (m, n, k) */
-    int threads = nn_get_threads();
-    nn_set_threads(2);
-    Rng r;
-    rng_seed(&r, 3);
-    for (int s = 0; s < 2; s++)
-        for (int ta = 0; ta < 2; ta++)
-            for (int tb = 0; tb < 2; tb++) {
-                int m = shapes[s][0], n = shapes[s][1], k = shapes[s][2];
-                float *A = malloc(sizeof(float) * (size_t)m * k), *B = malloc(sizeof(float) * (size_t)k * n);
-                float *C[3];
-                for (int i = 0; i < 3; i++) C[i] = malloc(sizeof(float) * (size_t)m * n);
-                Mat a = ta ? mat_view(A, k, m) : mat_view(A, m, k);
-                Mat b = tb ? mat_view(B, n, k) : mat_view(B, k, n);
-                fill(a, &r, -1, 1);
-                fill(b, &r, -1, 1);
-                fill(mat_view(C[0], m, n), &r, -1, 1);
-                memcpy(C[1], C[0], sizeof(float) * (size_t)m * n);
-                memcpy(C[2], C[0], sizeof(float) * (size_t)m * n);
-                mat_gemm(ta, tb, 0.5f, a, b, 0.25f, mat_view(C[0], m, n));
-                assert_int_equal(nn_get_threads(), 2);
-                mat_gemm(ta, tb, 0.5f, a, b, 0.25f, mat_view(C[1], m, n));
-                mat_gemm_ref(ta, tb, 0.5f, a, b, 0.25f, mat_view(C[2], m, n));
-                assert_memory_equal(C[0], C[1], sizeof(float) * (size_t)m * n);
-                for (long i = 0; i < (long)m * n; i++) assert_close(C[0][i], C[2][i], 1e-4, 1e-4);
-                free(A), free(B), free(C[0]), free(C[1]), free(C[2]);
-            }
-    nn_set_threads(threads);
-}
-
 /* A hand example: [1 2; 3 4] [5 6; 7 8] = [19 22; 43 50]. */
 static void test_gemm_hand_example(void **state) {
     (void)state;
@@ -397,7 +360,6 @@ int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_gemm_matches_reference),
         cmocka_unit_test(test_gemm_hand_example),
-        cmocka_unit_test(test_gemm_at_two_threads),
         cmocka_unit_test(test_arena_reuses_memory_after_first_step),
         cmocka_unit_test(test_rng_reference_values),
         cmocka_unit_test(test_grad_matmul),
