@@ -128,6 +128,13 @@ static void lorenz(double t, const double *s, double *d, void *ctx) {
     d[2] = s[0] * s[1] - BETA * s[2];
 }
 
+/* A random affine map of three variables drawn from rng: R (3, 3) standard normal, then the offset
+ * d (3) of scale 5. */
+static void random_map(Rng *rng, double *R, double *d) {
+    for (int i = 0; i < 9; i++) R[i] = rng_normal(rng);
+    for (int i = 0; i < 3; i++) d[i] = 5 * rng_normal(rng);
+}
+
 /* Lorenz's system in z = R x + d (R, d random, seeded), derivatives with 0.1% noise (of each
  * component's rms); the dense degree-2 law fitted in z (30 terms), then the canonical step must
  * return the seven terms of the published form, whose diagonal coefficients -sigma, -1, -beta
@@ -146,8 +153,7 @@ static void test_lorenz(void **state) {
     Rng rng;
     rng_seed(&rng, 2024);
     double R[9], d[3];
-    for (int i = 0; i < 9; i++) R[i] = rng_normal(&rng);
-    for (int i = 0; i < 3; i++) d[i] = 5 * rng_normal(&rng);
+    random_map(&rng, R, d);
     double condR = la_cond(R, 3);
     print_message("random map: cond %.3g\n", condR);
     assert_true(condR > 2 && condR < 100);   /* a real mixing, well inside the default bound */
@@ -222,8 +228,7 @@ static void test_monotone_in_tolerance(void **state) {
     Rng rng;
     rng_seed(&rng, 3);
     double R[9], d[3];
-    for (int i = 0; i < 9; i++) R[i] = rng_normal(&rng);
-    for (int i = 0; i < 3; i++) d[i] = 5 * rng_normal(&rng);
+    random_map(&rng, R, d);
     double *z = malloc(sizeof(double) * n * k), *dz = malloc(sizeof(double) * n * k), rms[3] = {0};
     for (int r = 0; r < n; r++) {
         double f[3];
