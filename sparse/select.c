@@ -107,8 +107,25 @@ static void law_rhs(const Library *lib, const double *xi, const uint8_t *mask, c
     (void)nv;
 }
 
+/* The standard deviation of each latent component over the data set (sdj (d)). */
+static void component_scales(const SelectData *D, double *sdj) {
+    for (int j = 0; j < D->d; j++) {
+        double m = 0, v = 0;
+        for (long i = 0; i < D->N; i++) m += D->state[i * D->n_vars + j];
+        m /= (double)D->N;
+        for (long i = 0; i < D->N; i++) {
+            double e = D->state[i * D->n_vars + j] - m;
+            v += e * e;
+        }
+        sdj[j] = sqrt(v / (double)D->N);
+    }
+}
+
+/* The mean segment error pooled over the components (returned), and per component in ej (d) when
+ * not NULL: component j's error over a segment divided by its own standard deviation sdj[j], capped
+ * like the pooled one. */
 static double forecast_error(const Library *lib, const SelectData *D, const double *xi, const uint8_t *mask, int H,
-                             int S, double sd, double cap, int *n_seg) {
+                             int S, double sd, const double *sdj, double cap, double *ej, int *n_seg) {
     int nv = lib->n_vars, d = D->d;
     double *theta = malloc((size_t)lib->n_terms * sizeof *theta);
     double y[4 * LIB_MAX_VARS], k1[LIB_MAX_VARS], k2[LIB_MAX_VARS], k3[LIB_MAX_VARS], k4[LIB_MAX_VARS];
@@ -118,13 +135,13 @@ static double forecast_error(const Library *lib, const SelectData *D, const doub
         if (fabs(D->state[i]) > bound) bound = fabs(D->state[i]);
     bound += 100 * sd;
     const int sub = 4;
-    double h = D->dt / sub, total = 0;
+    double h = D->dt / sub, total = 0, tj[LIB_MAX_VARS] = {0};
     int n = 0;
     for (int r = 0; r < D->n_rec; r++) {
         long a = D->rec_start[r], len = D->rec_start[r + 1] - a;
         for (long s0 = 0; s0 + H <= len; s0 += S) {
             memcpy(y, D->state + (a + s0) * nv, (size_t)nv * sizeof *y);
-            double se = 0;
+            double se = 0, sej[LIB_MAX_VARS] = {0};
             int lost = 0;
             for (int k = 1; k < H && !lost; k++) {
                 for (int u = 0; u < sub; u++) { /* classic RK4 */
@@ -140,15 +157,24 @@ static double forecast_error(const Library *lib, const SelectData *D, const doub
                 for (int i = 0; i < nv; i++)
                     if (!isfinite(y[i]) || fabs(y[i]) > bound) lost = 1;
                 const double *ref = D->state + (a + s0 + k) * nv;
-                for (int j = 0; j < d && !lost; j++) se += (y[j] - ref[j]) * (y[j] - ref[j]);
+                for (int j = 0; j < d && !lost; j++) {
+                    double q = (y[j] - ref[j]) * (y[j] - ref[j]);
+                    se += q, sej[j] += q;
+                }
             }
             double e = lost ? cap : sqrt(se / ((double)(H - 1) * d)) / sd;
             total += e < cap ? e : cap;
+            for (int j = 0; j < d; j++) {
+                double q = lost || !(sdj[j] > 0) ? cap : sqrt(sej[j] / (double)(H - 1)) / sdj[j];
+                tj[j] += q < cap ? q : cap;
+            }
             n++;
         }
     }
     free(theta);
     *n_seg = n;
+    if (ej)
+        for (int j = 0; j < d; j++) ej[j] = n ? tj[j] / n : cap;
     return n ? total / n : cap;
 }
 
@@ -157,7 +183,9 @@ int select_forecast_error(const Library *lib, const SelectData *data, const doub
     int H, S, n;
     double sd;
     if (check_data(lib, data, st) || resolve_horizon(lib, data, opt, &H, &S, &sd, st)) return st->code;
-    *err = forecast_error(lib, data, xi, mask, H, S, sd, opt->cap, &n);
+    double sdj[LIB_MAX_VARS];
+    component_scales(data, sdj);
+    *err = forecast_error(lib, data, xi, mask, H, S, sd, sdj, opt->cap, NULL, &n);
     if (segments) *segments = n;
     return 0;
 }
@@ -191,6 +219,7 @@ typedef struct {
     double tq;                  /* sum of squared targets */
     int H, S;
     double sd;
+    double sdj[LIB_MAX_VARS];   /* (d) each component's standard deviation */
     Status *st;
 } Ctx;
 
@@ -204,12 +233,19 @@ static int term_complexity(const Term *t) {
     return deg;
 }
 
-static double score_of(const Library *lib, const SelectOptions *o, double forecast, const uint8_t *m, int d) {
-    double f = forecast + o->abs_tol;
-    for (int t = 0; t < lib->n_terms; t++)
-        for (int j = 0; j < d; j++)
+/* The score of a candidate (see select.h): one latent variable, (e + abs_tol) prod (1 + tol c_t);
+ * several, the geometric mean over the equations of (e_j + abs_tol) prod over equation j's terms. */
+static double score_of(const Library *lib, const SelectOptions *o, double forecast, const double *ej, const uint8_t *m,
+                       int d) {
+    double lf = 0;
+    for (int j = 0; j < d; j++) {
+        double f = (d == 1 ? forecast : ej[j]) + o->abs_tol;
+        for (int t = 0; t < lib->n_terms; t++)
             if (m[(long)t * d + j]) f *= 1 + o->tol * term_complexity(&lib->terms[t]);
-    return f;
+        if (d == 1) return f;
+        lf += log(f);
+    }
+    return exp(lf / d);
 }
 
 /* Refit the active set m by least squares (x receives the coefficients), score it and append it to
@@ -254,8 +290,9 @@ static int consider(Ctx *c, SelectPath *p, uint8_t *m, double *x, int level, dou
     double n = (double)D->N * d, k = (double)act;
     e.aicc = n * log(rss / n > 1e-300 ? rss / n : 1e-300) + 2 * k + (n - k - 1 > 0 ? 2 * k * (k + 1) / (n - k - 1) : INFINITY);
     int nseg = 0;
-    e.forecast = forecast_error(c->lib, D, x, m, c->H, c->S, c->sd, c->o->cap, &nseg);
-    e.score = score_of(c->lib, c->o, e.forecast, m, d);
+    double ej[LIB_MAX_VARS];
+    e.forecast = forecast_error(c->lib, D, x, m, c->H, c->S, c->sd, c->sdj, c->o->cap, ej, &nseg);
+    e.score = score_of(c->lib, c->o, e.forecast, ej, m, d);
     p->segments = nseg;
     if (path_push(p, &e, m, x)) return status_set(c->st, ST_RUNTIME, "out of memory");
     *idx = p->n - 1;
@@ -290,7 +327,8 @@ int select_law(const Library *lib, const SelectData *D, const uint8_t *allowed, 
     if (!have_trig) top = max_deg;
     double tq = 0;
     for (long i = 0; i < D->N * d; i++) tq += D->target[i] * D->target[i];
-    Ctx ctx = {lib, D, o, theta, tq, H, S, sd, st};
+    Ctx ctx = {.lib = lib, .D = D, .o = o, .theta = theta, .tq = tq, .H = H, .S = S, .sd = sd, .st = st};
+    component_scales(D, ctx.sdj);
     for (int level = 1; level <= top; level++) {
         int any = 0;
         for (int t = 0; t < T; t++)

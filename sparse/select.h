@@ -24,7 +24,12 @@
  * trigonometric term 2): a term earns its place when it makes the forecast better by more than the
  * factor 1 + tol c_t, so a cubic term must buy three times what a linear one must
  * (the parsimony rule of model selection, common practice: the simplest model within the noise of
- * the best; abs_tol keeps errors near zero from buying terms). The best candidate of the path is
+ * the best; abs_tol keeps errors near zero from buying terms). With several latent variables each
+ * equation is judged on its own variable's error: the score is the geometric mean over equations j
+ * of (e_j + abs_tol) prod over equation j's terms (1 + tol c_t), e_j the mean segment error of z_j
+ * divided by z_j's own standard deviation (capped likewise), so a term must improve the forecast of
+ * its own variable, and a weak term of one equation is not lost in another variable's larger error
+ * (one variable: the score above, unchanged). The best candidate of the path is
  * then improved stepwise: every law that adds one allowed term to it or drops one of its terms is
  * refitted and scored, the best move is taken while it lowers the score (at most `max_steps`
  * moves); the candidates met on the way join the path. The Akaike information criterion with the
@@ -75,7 +80,7 @@ typedef struct {
     int level;                  /* nested library it came from (1 = degree <= 1, ...) */
     double threshold;           /* the first grid threshold that gave it */
     double fit;                 /* rms(Theta xi - target) / rms(target), pooled over equations */
-    double forecast;            /* mean segment error (see above) */
+    double forecast;            /* mean segment error pooled over the variables (see above) */
     double aicc;                /* N log(RSS / N) + 2 k + 2 k (k + 1) / (N - k - 1), k = active */
     double score;               /* (forecast + abs_tol) prod (1 + tol c_t) */
     int step;                   /* 0: from the path; s > 0: found by the s-th stepwise move */
