@@ -40,19 +40,6 @@ static double masked_fit(const double *theta, const double *y, long N, int T, in
     return res;
 }
 
-/* A trained candidate kept as the start of the next round: its parameters (the latent v of the
- * canonical coordinates) and its encoded training set (library columns and targets in v). */
-typedef struct {
-    float *val;
-    double *theta, *y;
-    long N;
-} Start;
-
-static void start_free(Start *s) {
-    nn_free(s->val), nn_free(s->theta), nn_free(s->y);
-    memset(s, 0, sizeof *s);
-}
-
 typedef struct {
     LoadedRun *r;
     const RefineOptions *o;
@@ -76,12 +63,9 @@ static void put_back(Ctx *x) {
     for (long i = 0; i < n; i++) x->r->m.maskf[i] = x->r->m.mask[i] ? 1.0f : 0.0f;
 }
 
-/* Train candidate `idx` with mask (T, d) in RUN/refine/NN, from `from` (a trained parent: its weights,
- * its law refitted on its own encoded set with the mask) or, when from->val is NULL, from the
- * canonical start (the learned model folded into the canonical coordinates). Fills residual and
- * validation loss; `got` receives the trained candidate as a start for the next round. */
-static int train_candidate(Ctx *x, int idx, const uint8_t *mask, const Start *from, RefineCandidate *cand, Start *got,
-                           Status *st) {
+/* Train candidate `idx` with mask (T, d) from the canonical start in RUN/refine/NN; fills residual
+ * and validation loss. */
+static int train_candidate(Ctx *x, int idx, const uint8_t *mask, RefineCandidate *cand, Status *st) {
     LoadedRun *r = x->r;
     int T = r->m.lib.n_terms, d = r->m.n_latent;
     double *xi = nn_alloc((size_t)T * d * sizeof *xi);
@@ -95,32 +79,14 @@ static int train_candidate(Ctx *x, int idx, const uint8_t *mask, const Start *fr
         nn_free(xi);
         return status_set(st, ST_RUNTIME, "out of memory");
     }
-    if (from->val) { /* the parent speaks v already: its weights, its law refitted on the mask */
-        if (masked_fit(from->theta, from->y, from->N, T, d, mask, xi, st) < 0) {
-            rc = st->code;
-            goto done;
-        }
-        ParamSet *ps = &r->ps;
-        memcpy(ps->val, from->val, ps->n * sizeof *ps->val);
-        memset(ps->m, 0, ps->n * sizeof *ps->m);
-        memset(ps->v, 0, ps->n * sizeof *ps->v);
-        ps->step = 0;
-        float *pxi = params_val(ps, r->m.xi).d;
-        for (long i = 0; i < (long)T * d; i++) {
-            r->m.mask[i] = mask[i] ? 1 : 0;
-            r->m.maskf[i] = mask[i] ? 1.0f : 0.0f;
-            pxi[i] = mask[i] ? (float)xi[i] : 0.0f;
-        }
-    } else {
-        if (masked_fit(x->theta_c, x->y_c, x->N, T, d, mask, xi, st) < 0) {
-            rc = st->code;
-            goto done;
-        }
-        Canonical cc = *x->c; /* the same map, the law refitted on this mask */
-        cc.xi = xi;
-        cc.mask = (uint8_t *)mask;
-        if ((rc = canonical_fold(&cc, &r->m, &r->ps, mask, st))) goto done;
+    if (masked_fit(x->theta_c, x->y_c, x->N, T, d, mask, xi, st) < 0) {
+        rc = st->code;
+        goto done;
     }
+    Canonical cc = *x->c; /* the same map, the law refitted on this mask */
+    cc.xi = xi;
+    cc.mask = (uint8_t *)mask;
+    if ((rc = canonical_fold(&cc, &r->m, &r->ps, mask, st))) goto done;
     *cfg = r->cfg;
     cfg->epochs = x->o->epochs;
     cfg->refine_epochs = 0;
@@ -159,18 +125,9 @@ static int train_candidate(Ctx *x, int idx, const uint8_t *mask, const Start *fr
         double *theta = nn_alloc((size_t)es.N * T * sizeof *theta);
         library_eval(&m2.lib, theta, es.state, es.N);
         cand->residual = masked_fit(theta, es.target, es.N, T, d, mask, xi, st);
-        if (cand->residual < 0) {
-            rc = st->code;
-            nn_free(theta);
-        } else {
-            got->val = nn_alloc(p2.n * sizeof *got->val);
-            memcpy(got->val, p2.val, p2.n * sizeof *got->val);
-            got->theta = theta;
-            got->y = nn_alloc((size_t)es.N * d * sizeof *got->y);
-            memcpy(got->y, es.target, (size_t)es.N * d * sizeof *got->y);
-            got->N = es.N;
-        }
+        nn_free(theta);
         encoded_set_free(&es);
+        if (cand->residual < 0) rc = st->code;
     }
     cand->active = 0;
     for (long i = 0; i < (long)T * d; i++) cand->active += mask[i] != 0;
@@ -265,7 +222,6 @@ int run_refine(LoadedRun *r, const RefineOptions *o, RefineResult *res, Status *
     x.keep_step = ps->step;
     x.keep_mask = nn_alloc((size_t)nm);
     memcpy(x.keep_mask, r->m.mask, (size_t)nm);
-    Start parent = {0}, round_best = {0}; /* the start of the next round, the best of this one */
     uint8_t *cur = nn_alloc((size_t)nm), *trial = nn_alloc((size_t)nm), *best_mask = nn_alloc((size_t)nm);
     memcpy(cur, c->mask, (size_t)nm);
     res->active_before = 0;
@@ -273,9 +229,8 @@ int run_refine(LoadedRun *r, const RefineOptions *o, RefineResult *res, Status *
     if ((rc = fs_remove_tree(x.root, st)) || (rc = fs_make_dirs(x.root, st))) goto done;
     if ((rc = train_validation_loss(&r->cfg, &r->data.td, &r->m, &r->ps, &res->val_before, st))) goto done;
 
-    /* 1. the reference: the canonical law's mask, from the canonical start */
-    const Start canonical_start = {0};
-    if ((rc = train_candidate(&x, 0, cur, &canonical_start, &res->cand[0], &parent, st))) goto done;
+    /* 1. the reference: the canonical law's mask */
+    if ((rc = train_candidate(&x, 0, cur, &res->cand[0], st))) goto done;
     res->cand[0].accepted = 1;
     res->n = 1;
     res->chosen = 0;
@@ -293,18 +248,13 @@ int run_refine(LoadedRun *r, const RefineOptions *o, RefineResult *res, Status *
             RefineCandidate *cd = &res->cand[res->n];
             if (d > 1) snprintf(cd->dropped, sizeof cd->dropped, "%s in equation %d", r->m.lib.names[i / d], (int)(i % d) + 1);
             else snprintf(cd->dropped, sizeof cd->dropped, "%s", r->m.lib.names[i / d]);
-            Start got = {0};
-            if ((rc = train_candidate(&x, res->n, trial, &parent, cd, &got, st))) goto done;
+            if ((rc = train_candidate(&x, res->n, trial, cd, st))) goto done;
             if (!o->quiet)
                 fprintf(stderr, "framelaw: refine: without %s: residual %.4g, validation %.4g\n", cd->dropped,
                         cd->residual, cd->val);
             if (best < 0 || cd->residual < res->cand[best].residual) {
                 best = res->n;
                 memcpy(best_mask, trial, (size_t)nm);
-                start_free(&round_best);
-                round_best = got;
-            } else {
-                start_free(&got);
             }
             res->n++;
         }
@@ -312,9 +262,6 @@ int run_refine(LoadedRun *r, const RefineOptions *o, RefineResult *res, Status *
         res->cand[best].accepted = 1;
         res->chosen = best;
         memcpy(cur, best_mask, (size_t)nm);
-        start_free(&parent); /* the next round starts from the accepted candidate's weights */
-        parent = round_best;
-        memset(&round_best, 0, sizeof round_best);
     }
     /* 3. keep the better of the learned and the refined model; the chosen candidate becomes RUN/refined */
     res->kept_refined = res->cand[res->chosen].val < res->val_before;
@@ -354,6 +301,5 @@ done:
     }
     nn_free(theta), nn_free(yc), nn_free(x.keep_val), nn_free(x.keep_mask);
     nn_free(cur), nn_free(trial), nn_free(best_mask);
-    start_free(&parent), start_free(&round_best);
     return rc;
 }

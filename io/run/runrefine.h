@@ -9,12 +9,10 @@
  *     `epochs` epochs with the canonical law's mask fixed (no L1 term, no thresholding): the
  *     reference, whose law fits its encoded training set with relative residual e_ref;
  *  2. backward elimination by training: from the current mask, each active term in turn is left
- *     out and the model trained again with that mask, starting from the current law's trained
- *     model (the reference, then the last accepted candidate: its weights, its law refitted by
- *     least squares on its own encoded set without the term), so that the straightening of the
- *     coordinate goes on from round to round; the candidate with the lowest residual is accepted
- *     when its residual is within (1 + canonical.tolerance) e_ref (plus the float floor), and
- *     elimination goes on from it; otherwise it stops;
+ *     out (the law refitted by least squares on the canonical coordinates without it), and the
+ *     model trained again from the canonical start with that mask; the candidate with the lowest
+ *     residual is accepted when its residual is within (1 + canonical.tolerance) e_ref (plus the
+ *     float floor), and elimination goes on from it; otherwise it stops;
  *  3. the sparsest accepted candidate is compared with the learned model on the validation set
  *     (the validation loss of training, without the L1 term): the better one is kept, and said.
  *
