@@ -44,21 +44,24 @@ static int check_data(const Library *lib, const SelectData *D, Status *st) {
     return 0;
 }
 
+/* The sum of squared deviations from its mean of latent component j over the data set. */
+static double component_sq_dev(const SelectData *D, int j) {
+    double m = 0, v = 0;
+    for (long i = 0; i < D->N; i++) m += D->state[i * D->n_vars + j];
+    m /= (double)D->N;
+    for (long i = 0; i < D->N; i++) {
+        double e = D->state[i * D->n_vars + j] - m;
+        v += e * e;
+    }
+    return v;
+}
+
 /* Standard deviation of z (the first d state values) pooled over components, and the
  * characteristic angular frequency w_c (see select.h). */
 static void data_scales(const Library *lib, const SelectData *D, double *sd, double *wc) {
     int d = D->d;
     double q = 0, tq = 0;
-    for (int j = 0; j < d; j++) {
-        double m = 0, v = 0;
-        for (long i = 0; i < D->N; i++) m += D->state[i * D->n_vars + j];
-        m /= (double)D->N;
-        for (long i = 0; i < D->N; i++) {
-            double e = D->state[i * D->n_vars + j] - m;
-            v += e * e;
-        }
-        q += v;
-    }
+    for (int j = 0; j < d; j++) q += component_sq_dev(D, j);
     for (long i = 0; i < D->N * d; i++) tq += D->target[i] * D->target[i];
     *sd = sqrt(q / ((double)D->N * d));
     double ratio = *sd > 0 ? sqrt(tq / ((double)D->N * d)) / *sd : 0;
@@ -109,16 +112,7 @@ static void law_rhs(const Library *lib, const double *xi, const uint8_t *mask, c
 
 /* The standard deviation of each latent component over the data set (sdj (d)). */
 static void component_scales(const SelectData *D, double *sdj) {
-    for (int j = 0; j < D->d; j++) {
-        double m = 0, v = 0;
-        for (long i = 0; i < D->N; i++) m += D->state[i * D->n_vars + j];
-        m /= (double)D->N;
-        for (long i = 0; i < D->N; i++) {
-            double e = D->state[i * D->n_vars + j] - m;
-            v += e * e;
-        }
-        sdj[j] = sqrt(v / (double)D->N);
-    }
+    for (int j = 0; j < D->d; j++) sdj[j] = sqrt(component_sq_dev(D, j) / (double)D->N);
 }
 
 /* The mean segment error pooled over the components (returned), and per component in ej (d) when
