@@ -40,6 +40,10 @@ void pca_free(Pca *p) {
 }
 
 int pca_finish(Pca *p, int r, double *mean, double *vecs, double *vals, Status *st) {
+    return pca_finish_total(p, r, mean, vecs, vals, NULL, st);
+}
+
+int pca_finish_total(Pca *p, int r, double *mean, double *vecs, double *vals, double *total, Status *st) {
     int n = p->n, rc = 0;
     if (r < 1 || r > n) {
         pca_free(p);
@@ -54,6 +58,11 @@ int pca_finish(Pca *p, int r, double *mean, double *vecs, double *vals, Status *
     /* covariance = sum x x^T / N - mean mean^T (lower triangle, row-major = upper, column-major) */
     for (int i = 0; i < n; i++)
         for (int j = 0; j <= i; j++) p->cov[(long)i * n + j] = p->cov[(long)i * n + j] / N - mean[i] * mean[j];
+    if (total) { /* the trace: the variance summed over the values */
+        double tr = 0;
+        for (int i = 0; i < n; i++) tr += p->cov[(long)i * n + i];
+        *total = tr;
+    }
     /* row-major lower == column-major upper */
     int il = n - r + 1, iu = n, m = 0, info = 0, lwork = -1, liwork = -1, iwq = 0;
     double vl = 0, vu = 0, abstol = 0, wq = 0;

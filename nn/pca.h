@@ -28,6 +28,9 @@ void pca_add(Pca *p, const float *x, int B);
  * the covariance, largest first. ST_INPUT when r > n or fewer than 2 samples; ST_RUNTIME when LAPACK
  * fails. Frees the accumulators. */
 int pca_finish(Pca *p, int r, double *mean, double *vecs, double *vals, Status *st);
+/* The same, and *total the covariance's trace (the variance summed over the n values), so that
+ * sum(vals) / total is the share of the variance the r directions carry. */
+int pca_finish_total(Pca *p, int r, double *mean, double *vecs, double *vals, double *total, Status *st);
 void pca_free(Pca *p);
 
 #endif

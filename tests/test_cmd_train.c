@@ -259,6 +259,55 @@ static void test_provenance(void **state) {
     free(html);
 }
 
+/* model.map: the recordings are 16 channels that are a fixed linear image of a two-variable state, so
+ * two principal directions carry all their variance (rank 2; principal component analysis, common
+ * practice) and auto resolves to linear for a latent of 2. The run's config.json keeps the resolved
+ * keys: linear's defaults where the config gave none (no hidden layer, the pca start, derivatives
+ * through the encoder) where the keys hold their defaults (the default init given explicitly too),
+ * the config's other values as given; curved keeps today's defaults. */
+static void test_map_resolved(void **state) {
+    Fixture *fx = *state;
+    static const struct {
+        const char *model;              /* the config's model object, after latent and order */
+        const char *map, *init, *derivs;
+        int n_enc, enc0;
+    } cases[] = {
+        {"", "linear", "pca", "frames", 0, 0},
+        {", \"encoder\": [16], \"init\": \"glorot\"", "linear", "glorot", "frames", 1, 16},
+        {", \"init\": \"isomap\", \"derivatives\": \"latent\", \"encoder\": [32]", "linear", "pca", "frames", 1, 32},
+        {", \"map\": \"curved\", \"init\": \"glorot\"", "curved", "glorot", "latent", 2, 64},
+    };
+    char cfg[600], run[600], args[1400], out[8192], path[700];
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        snprintf(cfg, sizeof cfg, "%s/map%zu.json", fx->dir, i);
+        snprintf(run, sizeof run, "%s/map%zu-run", fx->dir, i);
+        FILE *f = fopen(cfg, "w");
+        assert_non_null(f);
+        fprintf(f, "{\"data\": {\"frames\": \"%s\", \"fps\": 30}, \"model\": {\"latent\": 2, \"order\": 1%s},\n"
+                   " \"train\": {\"epochs\": 4, \"threads\": 1}, \"threshold\": {\"select\": \"none\"},\n"
+                   " \"output\": \"%s\"}\n", fx->data, cases[i].model, run);
+        fclose(f);
+        snprintf(args, sizeof args, "train '%s'", cfg);
+        if (test_run_capture(args, out, sizeof out) != 0) fail_msg("case %zu: %s", i, out);
+        if (i == 0 && !strstr(out, "framelaw: model.map auto: linear (the leading 2 principal directions of the "
+                                   "training frames carry 100.0% of their variance; linear from 90%)"))
+            fail_msg("case 0: no line on the choice in '%s'", out);
+        snprintf(path, sizeof path, "%s/config.json", run);
+        char *text = test_slurp(path);
+        assert_non_null(text);
+        cJSON *root = cJSON_Parse(text), *m = cJSON_GetObjectItem(root, "model");
+        assert_non_null(m);
+        assert_string_equal(cJSON_GetObjectItem(m, "map")->valuestring, cases[i].map);
+        assert_string_equal(cJSON_GetObjectItem(m, "init")->valuestring, cases[i].init);
+        assert_string_equal(cJSON_GetObjectItem(m, "derivatives")->valuestring, cases[i].derivs);
+        cJSON *enc = cJSON_GetObjectItem(m, "encoder");
+        assert_int_equal(cJSON_GetArraySize(enc), cases[i].n_enc);
+        if (cases[i].n_enc) assert_int_equal(cJSON_GetArrayItem(enc, 0)->valueint, cases[i].enc0);
+        cJSON_Delete(root);
+        free(text);
+    }
+}
+
 /* Recordings too short for what the defaults need: exit 2 and a line that says what to change. */
 static void test_short_recordings(void **state) {
     Fixture *fx = *state;
@@ -323,6 +372,7 @@ int main(void) {
         cmocka_unit_test_setup_teardown(test_bad_usage, setup, teardown),
         cmocka_unit_test_setup_teardown(test_short_recordings, setup, teardown),
         cmocka_unit_test_setup_teardown(test_provenance, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_map_resolved, setup, teardown),
     };
     return cmocka_run_group_tests_name("train and resume commands", tests, NULL, NULL);
 }

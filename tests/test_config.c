@@ -25,7 +25,7 @@ static const char *FULL =
     "            \"derivative\": {\"method\": \"savgol\", \"window\": 9, \"degree\": 4},\n"
     "            \"validation\": {\"recordings\": [\"run07\", \"run 08\"], \"last\": 0}},\n"
     "  \"model\": {\"latent\": 2, \"order\": 1, \"encoder\": [256, 64], \"decoder\": [32, 64, 128],\n"
-    "            \"activation\": \"tanh\", \"init\": \"pca\", \"derivatives\": \"frames\",\n"
+    "            \"activation\": \"tanh\", \"map\": \"linear\", \"init\": \"pca\", \"derivatives\": \"frames\",\n"
     "            \"init_epochs\": 50, \"init_frames\": 500},\n"
     "  \"library\": {\"degree\": 2, \"constant\": false, \"trig\": false, \"trig_velocity\": false,\n"
     "              \"multipliers\": [1, 2, 3], \"include\": [\"z1*z2\"], \"exclude\": [\"z1^2\", \"cos(z2)\"]},\n"
@@ -79,6 +79,7 @@ static void test_defaults(void **state) {
     assert_int_equal(c.encoder[1], 32);
     assert_int_equal(c.n_decoder, -1);
     assert_int_equal(c.activation, ACT_SIGMOID);
+    assert_int_equal(c.map, MAP_AUTO);
     assert_int_equal(c.init, INIT_ISOMAP);
     assert_int_equal(c.derivatives, DERIVS_LATENT);
     assert_int_equal(c.init_epochs, 200);
@@ -337,6 +338,7 @@ static void test_digest(void **state) {
     Status lst;
     assert_int_equal(config_load_run(&c, path, &lst), 0);
     assert_int_equal(c.derivatives, DERIVS_FRAMES);
+    assert_int_equal(c.map, MAP_CURVED);
     assert_int_equal(c.threshold_measure, MEASURE_COEFFICIENT);
     assert_int_equal(c.threshold_select, SELECT_NONE);
     assert_true(config_digest(&c) == 0x0742f5f2c47c9cf7ull);
@@ -375,6 +377,7 @@ static void test_digest(void **state) {
         "library.constant=false", "data.gray=bt709", "model.init_epochs=5",
         "model.init_frames=100", "model.init=glorot", "model.derivatives=frames", "threshold.select=none",
         "threshold.measure=coefficient", "library.trig=false", "data.derivative.method=central",
+        "model.map=linear",
     };
     for (size_t i = 0; i < sizeof unsafe / sizeof unsafe[0]; i++) {
         Config u = c;
@@ -551,6 +554,7 @@ static const char *deriv_name(int v) { return deriv_method_names[v]; }
 static const char *act_name(int v) { return act_table[v].name; }
 static const char *init_name(int v) { return model_init_names[v]; }
 static const char *derivs_name(int v) { return latent_derivs_names[v]; }
+static const char *map_name(int v) { return frames_map_names[v]; }
 static const char *sched_name(int v) { return lr_schedule_names[v]; }
 static const char *measure_name(int v) { return thresh_measure_names[v]; }
 static const char *select_name(int v) { return thresh_select_names[v]; }
@@ -566,6 +570,7 @@ static const struct {
     {"data.scale", offsetof(Config, scale), scale_name, 0, SCALE_COUNT},
     {"data.derivative.method", offsetof(Config, derivative), deriv_name, 0, DERIV_METHOD_COUNT},
     {"model.activation", offsetof(Config, activation), act_name, ACT_NONE + 1, ACT_COUNT},
+    {"model.map", offsetof(Config, map), map_name, 0, MAP_COUNT},
     {"model.init", offsetof(Config, init), init_name, 0, INIT_COUNT},
     {"model.derivatives", offsetof(Config, derivatives), derivs_name, 0, DERIVS_COUNT},
     {"optimizer.schedule", offsetof(Config, schedule), sched_name, 0, SCHED_COUNT},

@@ -29,9 +29,10 @@ static void test_pca_known_covariance(void **state) {
     pca_begin(&pc, 3);
     pca_add(&pc, x, 2);
     pca_add(&pc, x + 6, 2);
-    double mean[3], vecs[2 * 3], vals[2];
+    double mean[3], vecs[2 * 3], vals[2], total = 0;
     Status st;
-    assert_int_equal(pca_finish(&pc, 2, mean, vecs, vals, &st), 0);
+    assert_int_equal(pca_finish_total(&pc, 2, mean, vecs, vals, &total, &st), 0);
+    assert_close(total, 5.0, 1e-5, 0); /* the trace: 4.5 + 0.5 + 0 */
     for (int i = 0; i < 3; i++) assert_close(mean[i], 0.25 * (i + 1), 1e-7, 0);
     /* float inputs: 1e-7 relative rounding of x gives ~1e-6 in the covariance */
     assert_close(vals[0], 4.5, 1e-5, 0);

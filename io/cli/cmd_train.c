@@ -70,6 +70,26 @@ int cli_finish_run(const char *run_dir, int quiet, Status *st) {
 
 /* ---- shared by train and resume ---------------------------------------------------------------- */
 
+/* model.map of a run trained anew (or of one stopped before its start-up stored the choice): auto
+ * becomes linear or curved by the frames, and the run's config.json gets the resolved keys, so that
+ * resume, export and the report see the model that was trained. */
+static int resolve_map(RunData *d, Config *c, const char *run_dir, int quiet, Status *st) {
+    FramesMap asked = c->map;
+    if (rundata_apply_map(d, c, st)) return st->code;
+    if (!quiet && asked == MAP_AUTO)
+        fprintf(stderr, "framelaw: model.map auto: %s (the leading %d principal direction%s of the training frames "
+                        "carry %.1f%% of their variance; linear from %.0f%%)\n",
+                c->map == MAP_LINEAR ? "linear" : "curved", c->latent, c->latent > 1 ? "s" : "",
+                100 * d->plane_share, 100 * MAP_LINEAR_SHARE);
+    char path[CFG_PATH_MAX + 32];
+    snprintf(path, sizeof path, "%s/config.json", run_dir);
+    char *json = config_to_json(c);
+    if (!json) return status_set(st, ST_RUNTIME, "out of memory");
+    int rc = atomic_write_bytes(path, json, strlen(json), st);
+    free(json);
+    return rc;
+}
+
 static int run_training(Config *c, const char *run_dir, int resume, int quiet, int argc, char **argv) {
     Status st;
     RunData data;
@@ -77,6 +97,10 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
     if (data.have_scan) frames_warn_gaps(&data.scan, stderr); /* also when the pieces are too short */
     if (data.store_info.note[0] && !quiet) fprintf(stderr, "framelaw: note: %s\n", data.store_info.note);
     if (rc) {
+        rundata_close(&data);
+        return cli_error(rc, "%s", st.msg);
+    }
+    if ((!resume || c->map == MAP_AUTO) && (rc = resolve_map(&data, c, run_dir, quiet, &st))) {
         rundata_close(&data);
         return cli_error(rc, "%s", st.msg);
     }

@@ -410,7 +410,8 @@ static const struct {
     const char *path, *compat;
 } late_keys[] = {{"model.derivatives", "\"frames\""},       {"model.init_epochs", "200"},
                  {"model.init_frames", "2000"},            {"threshold.measure", "\"coefficient\""},
-                 {"threshold.select", "\"none\""},       {"data.store", "\"\""}};
+                 {"threshold.select", "\"none\""},       {"data.store", "\"\""},
+                 {"model.map", "\"curved\""}};
 
 static const char *late_compat(const char *path) {
     for (size_t i = 0; i < sizeof late_keys / sizeof late_keys[0]; i++)
@@ -652,4 +653,18 @@ uint64_t config_digest(const Config *c) {
     uint64_t h = fnv1a64_str(FNV1A64_INIT, s);
     free(s);
     return h;
+}
+
+void config_apply_map(Config *c, FramesMap map) {
+    c->map = map;
+    if (map != MAP_LINEAR) return;
+    /* by value, not by config_given: a run's or a sweep member's config.json writes every key */
+    Config *d = malloc(sizeof *d);
+    NN_CHECK(d, "config_apply_map: out of memory");
+    config_defaults(d);
+    if (c->n_encoder == d->n_encoder && !memcmp(c->encoder, d->encoder, (size_t)d->n_encoder * sizeof *d->encoder))
+        c->n_encoder = 0;
+    if (c->init == d->init) c->init = INIT_PCA;
+    if (c->derivatives == d->derivatives) c->derivatives = DERIVS_FRAMES;
+    free(d);
 }

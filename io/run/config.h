@@ -28,6 +28,7 @@
 typedef enum { DERIV_CENTRAL, DERIV_SAVGOL, DERIV_AUTO, DERIV_METHOD_COUNT } DerivMethod;   /* data.derivative.method */
 typedef enum { INIT_GLOROT, INIT_PCA, INIT_ISOMAP, INIT_COUNT } ModelInit;                   /* model.init */
 typedef enum { DERIVS_FRAMES, DERIVS_LATENT, DERIVS_COUNT } LatentDerivs;                  /* model.derivatives */
+typedef enum { MAP_AUTO, MAP_LINEAR, MAP_CURVED, MAP_COUNT } FramesMap;                     /* model.map */
 typedef enum { SCHED_CONSTANT, SCHED_STEP, SCHED_COSINE, SCHED_COUNT } LrSchedule;          /* optimizer.schedule */
 typedef enum { MEASURE_COEFFICIENT, MEASURE_CONTRIBUTION, MEASURE_COUNT } ThreshMeasure;    /* threshold.measure */
 typedef enum { SELECT_NONE, SELECT_FIRST, SELECT_EVERY, SELECT_COUNT } ThreshSelect;        /* threshold.select */
@@ -36,6 +37,7 @@ typedef enum { SELECT_NONE, SELECT_FIRST, SELECT_EVERY, SELECT_COUNT } ThreshSel
 extern const char *const deriv_method_names[];    /* (DERIV_METHOD_COUNT) */
 extern const char *const model_init_names[];      /* (INIT_COUNT) */
 extern const char *const latent_derivs_names[];   /* (DERIVS_COUNT) */
+extern const char *const frames_map_names[];      /* (MAP_COUNT) */
 extern const char *const lr_schedule_names[];     /* (SCHED_COUNT) */
 extern const char *const thresh_measure_names[];  /* (MEASURE_COUNT) */
 extern const char *const thresh_select_names[];   /* (SELECT_COUNT) */
@@ -70,6 +72,8 @@ typedef struct {
                                     /*   (n_decoder = -1 for null)                                     */
     int decoder[CFG_MAX_LIST];
     ActId activation;               /* model.activation: sigmoid | tanh | softplus | silu     [sigmoid] */
+    FramesMap map;                  /* model.map: "auto" | "linear" | "curved"                   [auto] */
+                                    /*   (train resolves auto and stores linear or curved)             */
     ModelInit init;                 /* model.init: "glorot" | "pca" | "isomap"                 [isomap] */
     LatentDerivs derivatives;       /* model.derivatives: "frames" | "latent"                 [latent] */
     long init_epochs;               /* model.init_epochs: isomap fitting epochs                   [200] */
@@ -165,6 +169,12 @@ int config_given(const Config *c, const char *path);
 /* The first library.include / library.exclude name that writes a product with a space ("z1 z2",
  * deprecated: "z1*z2"), with its key in *key; NULL when there is none. */
 const char *config_old_term(const Config *c, const char **key);
+
+/* model.map resolved to map (MAP_LINEAR or MAP_CURVED): linear sets model.encoder [] (no hidden
+ * layer), model.init pca and model.derivatives frames where they hold their defaults (curved's), so
+ * that the rule reads the same from a user's file as from a config.json that writes every key;
+ * curved keeps the keys as they are. */
+void config_apply_map(Config *c, FramesMap map);
 
 /* Cross-key checks after parsing and overrides (e.g. refine_epochs < epochs, data.frames given). */
 int config_validate(const Config *c, Status *st);

@@ -36,6 +36,8 @@ const char *const model_init_names[] = {"glorot", "pca", "isomap"};
 _Static_assert(sizeof model_init_names / sizeof model_init_names[0] == INIT_COUNT, "model_init_names");
 const char *const latent_derivs_names[] = {"frames", "latent"};
 _Static_assert(sizeof latent_derivs_names / sizeof latent_derivs_names[0] == DERIVS_COUNT, "latent_derivs_names");
+const char *const frames_map_names[] = {"auto", "linear", "curved"};
+_Static_assert(sizeof frames_map_names / sizeof frames_map_names[0] == MAP_COUNT, "frames_map_names");
 const char *const lr_schedule_names[] = {"constant", "step", "cosine"};
 _Static_assert(sizeof lr_schedule_names / sizeof lr_schedule_names[0] == SCHED_COUNT, "lr_schedule_names");
 const char *const thresh_measure_names[] = {"coefficient", "contribution"};
@@ -133,21 +135,29 @@ const KeyDef config_keys[] = {
     K_INT("model.latent", latent, "1", 1, LIB_MAX_VARS, NULL, "latent variables z1..zk"),
     K_INT("model.order", order, "2", 1, 2, "1|2", "order of the latent ODE: 1 (dz/dt) or 2 (d2z/dt2)"),
     K_INTS("model.encoder", T_INTS, encoder, n_encoder, "[64, 32]", 0, 1, NOMAX,
-           "widths of the encoder's hidden layers"),
+           "widths of the encoder's hidden layers (model.map linear turns the default into [])"),
     K_INTS("model.decoder", T_INTS_NULL, decoder, n_decoder, "null", 0, 1, NOMAX,
            "widths of the decoder's hidden layers; null = the encoder's reversed"),
     K_CHOICE("model.activation", activation, "\"sigmoid\"", act_choice_names, act_choice_values,
           "activation of the hidden layers (the output layers are linear)"),
+    K_CHOICE("model.map", map, "\"auto\"", frames_map_names, NULL,
+          "how the frames depend on the state; it sets model.encoder, model.init and model.derivatives "
+          "where they hold their defaults: linear (the frames an affine image of the state, "
+          "as a field that is a sum of a few patterns): [], pca, frames; curved (a moving or turning object): "
+          "the defaults listed; auto: linear when the training frames' leading model.latent principal "
+          "directions carry at least 90% of their variance, else curved (train stores the choice in the run's "
+          "config.json)"),
     K_CHOICE("model.init", init, "\"isomap\"", model_init_names, NULL,
           "glorot: uniform weights, zero biases; pca: in addition, the encoder's first layer projects on the "
           "leading principal directions of the training frames (whitened) and the decoder starts at the mean "
           "frame; isomap: pca, then the encoder is fitted to an Isomap embedding of the training frames (and "
-          "the decoder to its inverse), so that the latent starts along the frames' manifold"),
+          "the decoder to its inverse), so that the latent starts along the frames' manifold (model.map linear "
+          "turns the default into pca)"),
     K_CHOICE("model.derivatives", derivatives, "\"latent\"", latent_derivs_names, NULL,
           "frames: z' (and z'') by carrying the frames' stencil derivatives x' (x'') through the encoder; "
           "latent: by the same stencil (data.derivative) applied to the codes of the frames around each "
           "sample, robust when the picture changes a lot from one frame to the next (loss.dx is then not "
-          "used)"),
+          "used; model.map linear turns the default into frames)"),
     K_INT("model.init_epochs", init_epochs, "200", 1, NOMAX, NULL,
           "isomap: epochs over the embedded frames that fit the encoder and decoder to the embedding"),
     K_INT("model.init_frames", init_frames, "2000", 16, 20000, NULL,
@@ -403,7 +413,7 @@ char *config_keys_markdown(void) {
     len += (size_t)snprintf(out, cap, "| key | type | default | allowed | meaning |\n|---|---|---|---|---|\n");
     for (int i = 0; i < config_n_keys; i++) {
         const KeyDef *k = &config_keys[i];
-        char rule[400], def[160], meaning[400];
+        char rule[400], def[160], meaning[1024];
         config_key_rule(rule, sizeof rule, k);
         if (k->doc_def) snprintf(def, sizeof def, "%s", k->doc_def);
         else snprintf(def, sizeof def, "`%s`", k->def);

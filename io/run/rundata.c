@@ -130,6 +130,8 @@ done:
     return rc;
 }
 
+static void set_blocks(RunData *d, const Config *c);
+
 int rundata_open(RunData *d, const Config *c, Status *st) {
     memset(d, 0, sizeof *d);
     FrameSettings s;
@@ -159,6 +161,19 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
         d->have_ds = 1;
         d->auto_window = s.sg_window, d->auto_degree = s.sg_degree;
     }
+    d->plane_share = NAN;
+    if (c->map == MAP_AUTO && rundata_plane_share(&d->ds, &d->store, c->latent, &d->plane_share, st)) {
+        char why[sizeof st->msg];
+        snprintf(why, sizeof why, "%s", st->msg);
+        return status_set(st, st->code, "model.map auto: the frames' principal directions: %s (set model.map linear "
+                          "or curved)", why);
+    }
+    set_blocks(d, c);
+    return 0;
+}
+
+/* The blocks a sample gathers and the TrainData over them, as model.derivatives wants them. */
+static void set_blocks(RunData *d, const Config *c) {
     int latent = c->derivatives == DERIVS_LATENT;
     d->k = latent ? 2 * d->ds.sten.m + 1 : c->order + 1;
     d->batch = c->batch > 0 ? c->batch : 1;
@@ -172,7 +187,40 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     td->sten = latent ? &d->ds.sten : NULL;
     td->gather = gather;
     td->ctx = d;
-    return 0;
+}
+
+int rundata_plane_share(const Dataset *ds, const FrameStore *fs, int q, double *share, Status *st) {
+    long n = ds->n;
+    if (q > n) q = (int)n;
+    float *x = malloc((size_t)n * sizeof *x);
+    double *mean = malloc((size_t)n * sizeof *mean), *vecs = malloc((size_t)q * n * sizeof *vecs);
+    double *vals = malloc((size_t)q * sizeof *vals), total = 0;
+    int rc = 0;
+    if (!x || !mean || !vecs || !vals) {
+        rc = status_set(st, ST_RUNTIME, "out of memory");
+        goto done;
+    }
+    Pca p;
+    pca_begin(&p, (int)n);
+    for (int r = 0; r < fs->n_rec; r++)
+        if (ds->rec_split[r] == SPLIT_TRAIN)
+            for (long f = 0; f < fs->rec[r].count; f++) {
+                dataset_frame(ds, fs->rec[r].first + f, x);
+                pca_add(&p, x, 1);
+            }
+    if ((rc = pca_finish_total(&p, q, mean, vecs, vals, &total, st))) goto done;
+    double top = 0;
+    for (int j = 0; j < q; j++) top += vals[j] > 0 ? vals[j] : 0;
+    *share = total > 0 ? top / total : 1.0; /* still frames: any plane holds them */
+done:
+    free(x), free(mean), free(vecs), free(vals);
+    return rc;
+}
+
+int rundata_apply_map(RunData *d, Config *c, Status *st) {
+    config_apply_map(c, c->map != MAP_AUTO ? c->map : d->plane_share >= MAP_LINEAR_SHARE ? MAP_LINEAR : MAP_CURVED);
+    set_blocks(d, c);
+    return config_validate(c, st);
 }
 
 void rundata_memory(const RunData *d, const Config *c, MemEstimate *e) {

@@ -21,7 +21,14 @@ typedef struct {
     StoreOpenInfo store_info;       /* where the store is; its note when the frames' folder is read-only */
     int auto_window, auto_degree;   /* data.derivative.method auto: the stencil chosen (0: not auto) */
     double auto_theta;              /* and the frames' rms frequency it was chosen for (rad / sample) */
+    double plane_share;             /* model.map auto: the share of the training frames' variance in their
+                                     * leading model.latent principal directions (NAN: not measured) */
 } RunData;
+
+/* model.map auto chooses linear when the leading model.latent principal directions carry at least
+ * this share of the training frames' variance. Our measurements (docs/battery.md): the convection
+ * cell's three carry 0.965, the colony's one 0.773, the other scenarios' 0.13-0.42. */
+#define MAP_LINEAR_SHARE 0.90
 
 /* The data.* keys of a resolved run config as frame settings. ST_INPUT naming the
  * key when a name is unknown. */
@@ -34,8 +41,19 @@ int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st);
 int rundata_auto_stencil(const Dataset *ds, const FrameStore *fs, int order, FrameSettings *s, double *theta,
                          Status *st);
 
-/* Scan data.frames, open (or build) the frame store, split. ST_INPUT naming the fault. */
+/* Scan data.frames, open (or build) the frame store, split; with model.map auto, measure plane_share.
+ * ST_INPUT naming the fault. */
 int rundata_open(RunData *d, const Config *c, Status *st);
+
+/* The share of the training frames' variance (over the recordings ds trains on) that their leading q
+ * principal directions carry, into *share (1 for frames that never change). */
+int rundata_plane_share(const Dataset *ds, const FrameStore *fs, int q, double *share, Status *st);
+
+/* A fresh run's model.map: auto becomes linear or curved by plane_share (rundata_open measured it),
+ * and config_apply_map sets the keys it decides; the samples' blocks follow model.derivatives. Then
+ * the cross-key checks (config_validate) on the result. Only for a config being trained anew: a
+ * run's config.json holds the resolved values. */
+int rundata_apply_map(RunData *d, Config *c, Status *st);
 void rundata_close(RunData *d);
 
 /* Videos and CSV recordings with a time column carry their rate (frames_source_rate): when data.fps

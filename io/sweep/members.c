@@ -45,6 +45,14 @@ void sweep_read_log(const char *run_dir, SweepLog *log) {
     sweep_log_read(run_dir, log, &st);
 }
 
+/* The member's config as training resolved it: model.map auto becomes the run's choice (the run's
+ * config.json holds the resolved keys, io/run/rundata.h); an explicit map is applied as training
+ * applies it. Changes and returns c. */
+static Config *resolved_as(Config *c, FramesMap run_map) {
+    config_apply_map(c, c->map == MAP_AUTO ? run_map : c->map);
+    return c;
+}
+
 int sweep_member_state(const Sweep *sw, int i, MemberState *state, Status *st) {
     const char *dir = sw->members[i].dir;
     char p[CFG_PATH_MAX + 64];
@@ -56,7 +64,7 @@ int sweep_member_state(const Sweep *sw, int i, MemberState *state, Status *st) {
         Status ls;
         if (config_load_run(theirs, p, &ls))
             rc = status_set(st, ST_INPUT, "member %s: %s (move the folder away to start this member over)", sw->members[i].id, ls.msg);
-        else if (config_digest(theirs) != config_digest(mine))
+        else if (config_digest(theirs) != config_digest(resolved_as(mine, theirs->map)))
             rc = status_set(st, ST_INPUT, "member %s: %s holds a run of another config (the sweep file or its base config "
                                           "changed since it started); move the folder away or give the sweep another output",
                             sw->members[i].id, dir);
