@@ -65,19 +65,22 @@ int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st) {
 #define AUTO_STENCIL_TOL 0.02      /* responses within 2% of exact at that frequency */
 #define AUTO_STENCIL_MAX 13        /* frames per window at most (latent mode encodes each one) */
 
-int rundata_auto_stencil(const Dataset *ds, const FrameStore *fs, int order, FrameSettings *s, double *theta_out,
-                         Status *st) {
+/* rundata_auto_stencil, and with share_q > 0 also rundata_plane_share's share of share_q directions
+ * from the same pass over the frames (the stencil uses the leading three of them). */
+static int auto_stencil_share(const Dataset *ds, const FrameStore *fs, int order, FrameSettings *s,
+                              double *theta_out, int share_q, double *share, Status *st) {
     long n = ds->n, N = 0;
     int nr = 0;
     for (int r = 0; r < fs->n_rec; r++)
         if (ds->rec_split[r] == SPLIT_TRAIN) N += fs->rec[r].count, nr++;
-    int q = n < 3 ? (int)n : 3;
+    int q = n < 3 ? (int)n : 3, qp = share_q > q ? (share_q < n ? share_q : (int)n) : q;
     float *x = malloc((size_t)n * sizeof *x);
-    double *mean = malloc((size_t)n * sizeof *mean), *vecs = malloc((size_t)q * n * sizeof *vecs), vals[3];
+    double *mean = malloc((size_t)n * sizeof *mean), *vecs = malloc((size_t)qp * n * sizeof *vecs);
+    double *vals = malloc((size_t)qp * sizeof *vals), total = 0;
     double *sc = malloc((size_t)N * q * sizeof *sc);
     long *rs = malloc((size_t)(nr + 1) * sizeof *rs);
     int rc = 0;
-    if (!x || !mean || !vecs || !sc || !rs) {
+    if (!x || !mean || !vecs || !vals || !sc || !rs) {
         rc = status_set(st, ST_RUNTIME, "out of memory");
         goto done;
     }
@@ -89,7 +92,12 @@ int rundata_auto_stencil(const Dataset *ds, const FrameStore *fs, int order, Fra
                 dataset_frame(ds, fs->rec[r].first + f, x);
                 pca_add(&p, x, 1);
             }
-    if ((rc = pca_finish(&p, q, mean, vecs, vals, st))) goto done;
+    if ((rc = pca_finish_total(&p, qp, mean, vecs, vals, &total, st))) goto done;
+    if (share_q > 0) {
+        double top = 0;
+        for (int j = 0; j < share_q && j < qp; j++) top += vals[j] > 0 ? vals[j] : 0;
+        *share = total > 0 ? top / total : 1.0; /* still frames: any plane holds them */
+    }
     long i = 0;
     int k = 0;
     for (int r = 0; r < fs->n_rec; r++) {
@@ -126,14 +134,20 @@ int rundata_auto_stencil(const Dataset *ds, const FrameStore *fs, int order, Fra
     s->sg_degree = sten.degree;
     *theta_out = theta;
 done:
-    free(x), free(mean), free(vecs), free(sc), free(rs);
+    free(x), free(mean), free(vecs), free(vals), free(sc), free(rs);
     return rc;
+}
+
+int rundata_auto_stencil(const Dataset *ds, const FrameStore *fs, int order, FrameSettings *s, double *theta_out,
+                         Status *st) {
+    return auto_stencil_share(ds, fs, order, s, theta_out, 0, NULL, st);
 }
 
 static void set_blocks(RunData *d, const Config *c);
 
 int rundata_open(RunData *d, const Config *c, Status *st) {
     memset(d, 0, sizeof *d);
+    d->plane_share = NAN;
     FrameSettings s;
     if (frame_settings_from_config(c, &s, st) || frame_settings_check(&s, st)) return st->code;
     if (frames_scan(c->frames, &d->scan, st)) return st->code;
@@ -154,15 +168,16 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     if (dataset_init(&d->ds, &d->store, &s, st)) return st->code;
     d->have_ds = 1;
     if (c->derivative == DERIV_AUTO) { /* the stencil from the data, then the samples again */
-        if (rundata_auto_stencil(&d->ds, &d->store, c->order, &s, &d->auto_theta, st)) return st->code;
+        if (auto_stencil_share(&d->ds, &d->store, c->order, &s, &d->auto_theta, c->map == MAP_AUTO ? c->latent : 0,
+                               &d->plane_share, st))
+            return st->code;
         dataset_free(&d->ds);
         d->have_ds = 0;
         if (dataset_init(&d->ds, &d->store, &s, st)) return st->code;
         d->have_ds = 1;
         d->auto_window = s.sg_window, d->auto_degree = s.sg_degree;
     }
-    d->plane_share = NAN;
-    if (c->map == MAP_AUTO && rundata_plane_share(&d->ds, &d->store, c->latent, &d->plane_share, st)) {
+    if (c->map == MAP_AUTO && c->derivative != DERIV_AUTO && rundata_plane_share(&d->ds, &d->store, c->latent, &d->plane_share, st)) {
         char why[sizeof st->msg];
         snprintf(why, sizeof why, "%s", st->msg);
         return status_set(st, st->code, "model.map auto: the frames' principal directions: %s (set model.map linear "
