@@ -104,7 +104,9 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
         rundata_close(&data);
         return cli_error(rc, "%s", st.msg);
     }
-    if ((rc = rundata_memory_check(&data, c, &st))) {
+    if ((rc = rundata_memory_check(&data, c, &st)) ||
+        (!resume && c->init != INIT_GLOROT &&
+         (rc = rundata_pca_fits(data.td.n_in, c, c->init == INIT_PCA ? "model.init pca" : "model.init isomap", &st)))) {
         rundata_close(&data);
         return cli_error(rc, "%s", st.msg);
     }

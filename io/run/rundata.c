@@ -167,6 +167,9 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     d->have_store = 1;
     if (dataset_init(&d->ds, &d->store, &s, st)) return st->code;
     d->have_ds = 1;
+    if ((c->derivative == DERIV_AUTO || c->map == MAP_AUTO) &&
+        rundata_pca_fits(d->ds.n, c, c->derivative == DERIV_AUTO ? "data.derivative.method auto" : "model.map auto", st))
+        return st->code;
     if (c->derivative == DERIV_AUTO) { /* the stencil from the data, then the samples again */
         if (auto_stencil_share(&d->ds, &d->store, c->order, &s, &d->auto_theta, c->map == MAP_AUTO ? c->latent : 0,
                                &d->plane_share, st))
@@ -202,6 +205,16 @@ static void set_blocks(RunData *d, const Config *c) {
     td->sten = latent ? &d->ds.sten : NULL;
     td->gather = gather;
     td->ctx = d;
+}
+
+int rundata_pca_fits(long n, const Config *c, const char *why, Status *st) {
+    MemEstimate e;
+    model_memory(c, n, 1, 1, &e);
+    double need = 8.0 * (double)n * (double)n;
+    if (need <= e.budget) return 0;
+    return status_set(st, ST_INPUT, "frames of %ld values: %s analyses them in a %ld x %ld matrix of about %.3g GB, "
+                      "above train.memory_budget (%.3g GB): shrink the frames with data.size (e.g. [64, 64]) or "
+                      "data.crop, or raise the budget", n, why, n, n, need / 1e9, e.budget / 1e9);
 }
 
 int rundata_plane_share(const Dataset *ds, const FrameStore *fs, int q, double *share, Status *st) {

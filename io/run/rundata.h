@@ -45,6 +45,12 @@ int rundata_auto_stencil(const Dataset *ds, const FrameStore *fs, int order, Fra
  * ST_INPUT naming the fault. */
 int rundata_open(RunData *d, const Config *c, Status *st);
 
+/* The principal component analysis of the frames (data.derivative.method auto, model.map auto, the pca
+ * and isomap starts) holds an n x n covariance of doubles: ST_INPUT naming `why` (the key that asks
+ * for it), the size and data.size when that matrix would exceed train.memory_budget, before it is
+ * built. */
+int rundata_pca_fits(long n, const Config *c, const char *why, Status *st);
+
 /* The share of the training frames' variance (over the recordings ds trains on) that their leading q
  * principal directions carry, into *share (1 for frames that never change). */
 int rundata_plane_share(const Dataset *ds, const FrameStore *fs, int q, double *share, Status *st);
