@@ -31,6 +31,7 @@ static void test_every_entry_named(void **state) {
     check_names("deriv_method_names", deriv_method_names, DERIV_METHOD_COUNT);
     check_names("model_init_names", model_init_names, INIT_COUNT);
     check_names("latent_derivs_names", latent_derivs_names, DERIVS_COUNT);
+    check_names("frames_map_names", frames_map_names, MAP_COUNT);
     check_names("lr_schedule_names", lr_schedule_names, SCHED_COUNT);
     check_names("thresh_measure_names", thresh_measure_names, MEASURE_COUNT);
     check_names("thresh_select_names", thresh_select_names, SELECT_COUNT);
