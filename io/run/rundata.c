@@ -65,6 +65,29 @@ int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st) {
 #define AUTO_STENCIL_TOL 0.02      /* responses within 2% of exact at that frequency */
 #define AUTO_STENCIL_MAX 13        /* frames per window at most (latent mode encodes each one) */
 
+/* The principal directions of the training recordings' frames: q of them with their variances (vals)
+ * and the total variance (pca_finish_total). x: (ds->n) work. */
+static int train_frames_pca(const Dataset *ds, const FrameStore *fs, int q, float *x, double *mean, double *vecs,
+                            double *vals, double *total, Status *st) {
+    Pca p;
+    pca_begin(&p, (int)ds->n);
+    for (int r = 0; r < fs->n_rec; r++)
+        if (ds->rec_split[r] == SPLIT_TRAIN)
+            for (long f = 0; f < fs->rec[r].count; f++) {
+                dataset_frame(ds, fs->rec[r].first + f, x);
+                pca_add(&p, x, 1);
+            }
+    return pca_finish_total(&p, q, mean, vecs, vals, total, st);
+}
+
+/* The share of the total variance that the leading q directions carry (1 for still frames: any
+ * plane holds them). */
+static double leading_share(const double *vals, int q, double total) {
+    double top = 0;
+    for (int j = 0; j < q; j++) top += vals[j] > 0 ? vals[j] : 0;
+    return total > 0 ? top / total : 1.0;
+}
+
 /* rundata_auto_stencil, and with share_q > 0 also rundata_plane_share's share of share_q directions
  * from the same pass over the frames (the stencil uses the leading three of them). */
 static int auto_stencil_share(const Dataset *ds, const FrameStore *fs, int order, FrameSettings *s,
@@ -84,20 +107,8 @@ static int auto_stencil_share(const Dataset *ds, const FrameStore *fs, int order
         rc = status_set(st, ST_RUNTIME, "out of memory");
         goto done;
     }
-    Pca p;
-    pca_begin(&p, (int)n);
-    for (int r = 0; r < fs->n_rec; r++)
-        if (ds->rec_split[r] == SPLIT_TRAIN)
-            for (long f = 0; f < fs->rec[r].count; f++) {
-                dataset_frame(ds, fs->rec[r].first + f, x);
-                pca_add(&p, x, 1);
-            }
-    if ((rc = pca_finish_total(&p, qp, mean, vecs, vals, &total, st))) goto done;
-    if (share_q > 0) {
-        double top = 0;
-        for (int j = 0; j < share_q && j < qp; j++) top += vals[j] > 0 ? vals[j] : 0;
-        *share = total > 0 ? top / total : 1.0; /* still frames: any plane holds them */
-    }
+    if ((rc = train_frames_pca(ds, fs, qp, x, mean, vecs, vals, &total, st))) goto done;
+    if (share_q > 0) *share = leading_share(vals, share_q < qp ? share_q : qp, total);
     long i = 0;
     int k = 0;
     for (int r = 0; r < fs->n_rec; r++) {
@@ -228,18 +239,8 @@ int rundata_plane_share(const Dataset *ds, const FrameStore *fs, int q, double *
         rc = status_set(st, ST_RUNTIME, "out of memory");
         goto done;
     }
-    Pca p;
-    pca_begin(&p, (int)n);
-    for (int r = 0; r < fs->n_rec; r++)
-        if (ds->rec_split[r] == SPLIT_TRAIN)
-            for (long f = 0; f < fs->rec[r].count; f++) {
-                dataset_frame(ds, fs->rec[r].first + f, x);
-                pca_add(&p, x, 1);
-            }
-    if ((rc = pca_finish_total(&p, q, mean, vecs, vals, &total, st))) goto done;
-    double top = 0;
-    for (int j = 0; j < q; j++) top += vals[j] > 0 ? vals[j] : 0;
-    *share = total > 0 ? top / total : 1.0; /* still frames: any plane holds them */
+    if ((rc = train_frames_pca(ds, fs, q, x, mean, vecs, vals, &total, st))) goto done;
+    *share = leading_share(vals, q, total);
 done:
     free(x), free(mean), free(vecs), free(vals);
     return rc;
