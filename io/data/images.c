@@ -120,7 +120,11 @@ static int check_truncation(const char *path, const unsigned char *b, long n, St
          * u32 length (big-endian), 4-byte type, data, u32 CRC ("PNG (Portable Network Graphics)
          * Specification", W3C Recommendation, 2003, 5.3). */
         long off = 8;
-        while (off + 12 <= n) {
+        while (off < n) {
+            if (n - off < 12) /* a chunk's length, type and CRC alone take 12 bytes: stb_image reads zeros
+                               * past the end, so a length cut short can still declare 2 GB (fuzz_stb) */
+                return status_set(st, ST_INPUT, "%s: truncated or corrupt PNG (a chunk at byte %ld, %ld bytes left, "
+                                  "fewer than a chunk's 12)", path, off, n - off);
             unsigned long len = (unsigned long)b[off] << 24 | (unsigned long)b[off + 1] << 16 |
                                 (unsigned long)b[off + 2] << 8 | b[off + 3];
             if (len > (unsigned long)(n - off - 12)) {
