@@ -157,8 +157,13 @@ uninstall:
 # clang, AddressSanitizer and UBSan against a library compiled with -DFRAMELAW_FUZZ (checkpoint and
 # frame store CRCs skipped) into build-fuzz/. `make fuzz` runs each target for FUZZ_SECONDS from its
 # seed corpus tests/fuzz/corpus/<target>/ (new inputs go to build-fuzz/corpus/<target>/, a crash to
-# build-fuzz/crashes/) and fails if any target finds one. Not part of make test; CI runs the short form.
+# build-fuzz/crashes/) and fails if any target finds one. Not part of make test; CI runs the short form
+# with FUZZ_SEED and FUZZ_RUNS fixed, so that its inputs are the same on every run (FUZZ_SECONDS then
+# only caps the time; a campaign leaves both empty: a new random seed each time, new inputs; what it
+# finds becomes a seed of the corpus).
 FUZZ_SECONDS ?= 60
+FUZZ_SEED ?=
+FUZZ_RUNS ?=
 FUZZ_TARGETS ?= $(patsubst tests/fuzz/fuzz_%.c,%,$(wildcard tests/fuzz/fuzz_*.c))
 FUZZ_FLAGS := -O1 -g -fsanitize=address,undefined -fno-sanitize-recover=undefined -fno-omit-frame-pointer -DFRAMELAW_FUZZ
 DEB_FUZZ := clang
@@ -181,7 +186,7 @@ fuzz-seeds: $(BUILD)/libframelaw.a
 fuzz: fuzz-bin
 	@fail=0; mkdir -p build-fuzz/crashes; for t in $(FUZZ_TARGETS); do \
 	  mkdir -p build-fuzz/corpus/$$t; echo "== fuzz_$$t for $(FUZZ_SECONDS) s"; \
-	  UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 build-fuzz/fuzz/fuzz_$$t -max_total_time=$(FUZZ_SECONDS) \
+	  UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 build-fuzz/fuzz/fuzz_$$t -max_total_time=$(FUZZ_SECONDS) $(if $(FUZZ_SEED),-seed=$(FUZZ_SEED)) $(if $(FUZZ_RUNS),-runs=$(FUZZ_RUNS)) \
 	    -timeout=10 -rss_limit_mb=2048 -malloc_limit_mb=1024 -max_len=65536 -print_final_stats=1 \
 	    -artifact_prefix=build-fuzz/crashes/$$t- build-fuzz/corpus/$$t tests/fuzz/corpus/$$t \
 	    > build-fuzz/fuzz_$$t.log 2>&1 || { fail=1; echo "fuzz_$$t: FAILED (build-fuzz/fuzz_$$t.log)"; tail -40 build-fuzz/fuzz_$$t.log; }; \
