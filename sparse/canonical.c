@@ -1787,6 +1787,39 @@ void canonical_eval(const Canonical *c, const Library *lib, double *theta, const
     nn_free(tmp);
 }
 
+int canonical_ode_init(CanonicalOde *o, const Canonical *c, const Library *lib, Status *st) {
+    o->c = c, o->lib = lib;
+    o->work = nn_alloc(2 * (size_t)lib->n_terms * sizeof *o->work);
+    if (!o->work) return status_set(st, ST_RUNTIME, "out of memory");
+    status_ok(st);
+    return 0;
+}
+
+void canonical_ode_free(CanonicalOde *o) {
+    nn_free(o->work);
+    o->work = NULL;
+}
+
+void canonical_ode_rhs(double t, const double *y, double *dydt, void *ctx) {
+    (void)t;
+    const CanonicalOde *o = ctx;
+    const Canonical *c = o->c;
+    int k = c->k, T = o->lib->n_terms;
+    double *theta = o->work;
+    eval_terms(o->lib, k, c->w, theta, y, 1, o->work + T);
+    double *out = dydt;
+    if (c->order == 2) {
+        memcpy(dydt, y + k, (size_t)k * sizeof *y);   /* (u)' = u' */
+        out = dydt + k;
+    }
+    for (int j = 0; j < k; j++) {
+        double acc = 0;
+        for (int i = 0; i < T; i++)
+            if (c->mask[(long)i * k + j]) acc += theta[i] * c->xi[(long)i * k + j];
+        out[j] = acc;
+    }
+}
+
 /* ---- writing ---------------------------------------------------------------------------------- */
 
 typedef struct {

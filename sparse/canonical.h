@@ -109,6 +109,18 @@ void canonical_map_state(const Canonical *c, double *sigma, const double *s, lon
  * terms with sin(f x) and cos(f x) of variable i taken at f w_i x. */
 void canonical_eval(const Canonical *c, const Library *lib, double *theta, const double *sigma, long B);
 
+/* The canonical law as an OdeFn (sparse/integrate.h), for checks that integrate it: the state y is
+ * the canonical sigma (u, or u and u'), y' = (u', Theta_w(u, u') (Xi * M)) as learned_ode_rhs does
+ * for the learned law. canonical_ode_init allocates the work; c and lib stay the caller's. */
+typedef struct {
+    const Canonical *c;
+    const Library *lib;
+    double *work;       /* (2 n_terms) */
+} CanonicalOde;
+int canonical_ode_init(CanonicalOde *o, const Canonical *c, const Library *lib, Status *st);
+void canonical_ode_free(CanonicalOde *o);
+void canonical_ode_rhs(double t, const double *y, double *dydt, void *ctx);
+
 /* The canonical law as text (one line per equation: "du1/dt = ..."; variables u1, du1/dt) or as a
  * LaTeX aligned block, snprintf-like; a trig term prints its frequency: sin(0.7071*u1). */
 size_t canonical_format(char *buf, size_t n, EqStyle style, const Canonical *c, const Library *lib, int digits);

@@ -7,6 +7,8 @@
  * oscillator integrated by SciPy (tests/reference/make_battery_truth.py). RK4 with 20 steps per
  * frame interval: its global error over these spans is below 1e-7 of the amplitude (error of order
  * (w h)^4 w t / 120 per unit amplitude; common practice), so 1e-6 is the tolerance. */
+#include <cjson/cJSON.h>
+
 #include "demo/battery.h"
 #include "demo/lantern.h"
 #include "tests/testutil.h"
@@ -143,6 +145,84 @@ static void test_demo_command(void **state) {
     test_rmtree(tmp);
 }
 
+/* Coefficient of the term named `name` in equation 0 of a law object of equations.json (its "terms"
+ * and "equations"), 0 when inactive. */
+static double law_coef(const cJSON *law, const char *name) {
+    const cJSON *terms = cJSON_GetObjectItem(law, "terms"), *eq = cJSON_GetArrayItem(cJSON_GetObjectItem(law, "equations"), 0);
+    const cJSON *coef = cJSON_GetObjectItem(eq, "coefficients"), *mask = cJSON_GetObjectItem(eq, "mask");
+    for (int t = 0; t < cJSON_GetArraySize(terms); t++)
+        if (!strcmp(cJSON_GetStringValue(cJSON_GetArrayItem(terms, t)), name))
+            return cJSON_GetArrayItem(mask, t)->valueint ? cJSON_GetArrayItem(coef, t)->valuedouble : 0.0;
+    fail_msg("no term %s", name);
+    return 0;
+}
+
+/* `framelaw verify --law canonical` checks the law equations.txt prints first: the canonical law
+ * when a sparser one was found (status "found"), else the learned one. A short spring run (seed 5
+ * of this 12-epoch config learns z'' = c0 + k z + c z', whose constant the canonical form removes by
+ * an offset) must report, for the law it names, the frequency and decay rate of that law's own
+ * coefficients: a linear law z'' = k z + c z' (+ a constant) has the eigenvalues -c/2 +- i
+ * sqrt(-k - c^2/4) (the damped linear oscillator, Thornton and Marion, Classical Dynamics of Particles
+ * and Systems, 5th ed., 2004, sec. 3.5). A law with other terms is not linear and the check is
+ * skipped with a message. */
+static void test_verify_law(void **state) {
+    (void)state;
+    char tmp[256], args[1200], out[8192], path[600];
+    assert_non_null(test_tmpdir(tmp, sizeof tmp));
+    snprintf(args, sizeof args, "demo spring '%s/s' --recordings 3 --frames 60", tmp);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
+    snprintf(args, sizeof args, "train configs/battery/spring.json --quiet --set data.frames='%s/s' --set train.epochs=12 "
+             "--set train.threads=1 --set train.seed=5 --set output='%s/run'", tmp, tmp);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
+    snprintf(args, sizeof args, "verify --law modal '%s/run'", tmp);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 2);
+    assert_non_null(strstr(out, "--law: 'modal' is not one of learned, canonical"));
+    snprintf(args, sizeof args, "verify --law=canonical '%s/run'", tmp);
+    int rc = test_run_capture(args, out, sizeof out);
+    assert_true(rc == 0 || rc == 1);
+    snprintf(path, sizeof path, "%s/run/equations.json", tmp);
+    char *txt = test_slurp(path);
+    cJSON *eq = cJSON_Parse(txt);
+    free(txt);
+    snprintf(path, sizeof path, "%s/run/verify-canonical.json", tmp);
+    txt = test_slurp(path);
+    cJSON *ver = cJSON_Parse(txt);
+    free(txt);
+    assert_non_null(eq);
+    assert_non_null(ver);
+    const cJSON *canon = cJSON_GetObjectItem(eq, "canonical");
+    int found = !strcmp(cJSON_GetStringValue(cJSON_GetObjectItem(canon, "status")), "found");
+    const char *law = cJSON_GetStringValue(cJSON_GetObjectItem(ver, "law"));
+    print_message("canonical form %s; verify checked: %s\n", found ? "found" : "not found", law);
+    assert_true(found ? !strcmp(law, "canonical") : !strncmp(law, "learned (", 9));
+    const cJSON *L = found ? canon : eq;
+    const char *zn = found ? "u1" : "z1", *vn = found ? "du1/dt" : "dz1/dt";
+    double k = law_coef(L, zn), c = law_coef(L, vn);
+    int others = 0;
+    const cJSON *terms = cJSON_GetObjectItem(L, "terms");
+    const cJSON *mask = cJSON_GetObjectItem(cJSON_GetArrayItem(cJSON_GetObjectItem(L, "equations"), 0), "mask");
+    for (int t = 0; t < cJSON_GetArraySize(terms); t++) {
+        const char *nm = cJSON_GetStringValue(cJSON_GetArrayItem(terms, t));
+        if (cJSON_GetArrayItem(mask, t)->valueint && strcmp(nm, "1") && strcmp(nm, zn) && strcmp(nm, vn)) others++;
+    }
+    const cJSON *res = cJSON_GetObjectItem(ver, "results");
+    assert_int_equal(cJSON_GetArraySize(res), 2);
+    if (others || k >= 0 || -k - c * c / 4 <= 0) {
+        print_message("the law is not a damped linear oscillator (k %g, c %g, %d other terms): closed form skipped\n", k, c,
+                      others);
+    } else {
+        double wd = sqrt(-k - c * c / 4), sigma = -c / 2;
+        double v0 = cJSON_GetObjectItem(cJSON_GetArrayItem(res, 0), "value")->valuedouble;
+        double v1 = cJSON_GetObjectItem(cJSON_GetArrayItem(res, 1), "value")->valuedouble;
+        print_message("verify: w_d %.8g (closed form %.8g), decay rate %.8g (%.8g)\n", v0, wd, v1, sigma);
+        assert_close(v0, wd, 0, 1e-4);
+        assert_close(v1, sigma, 0, 1e-4);
+    }
+    cJSON_Delete(eq);
+    cJSON_Delete(ver);
+    test_rmtree(tmp);
+}
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_spring_and_puck_closed_form),
@@ -150,6 +230,7 @@ int main(void) {
         cmocka_unit_test(test_pulse_against_scipy),
         cmocka_unit_test(test_cameras),
         cmocka_unit_test(test_demo_command),
+        cmocka_unit_test(test_verify_law),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

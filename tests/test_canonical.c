@@ -13,6 +13,7 @@
 #include "sparse/optim.h"
 #include "sparse/polymap.h"
 #include "sparse/thresh_lsq.h"
+#include "sparse/verify.h"
 #include "tests/testutil.h"
 
 /* ---- helpers ---------------------------------------------------------------------------------- */
@@ -343,6 +344,19 @@ static void test_pendulum(void **state) {
     assert_close(cs * c.w[0], -G0 / LEN, 0, 0.01);
     assert_close(cd, -DAMP, 0, 0.02);
     assert_close(c.w[0], a, 0, 0.01);   /* one variable keeps its scale: w u is the angle */
+    /* the canonical law integrated (canonical_ode_rhs, what `framelaw verify --law canonical` runs)
+     * from a 0.3 rad release mapped into u: its period is the true pendulum's, measured the same way
+     * from the true law (a property no change of coordinates alters); with both coefficients within
+     * 1-2% the period is within 1% */
+    CanonicalOde co;
+    assert_int_equal(canonical_ode_init(&co, &c, &lib, &st), 0);
+    double s0[2] = {(0.3 - b) / a, 0}, u0[2], th0[2] = {0.3, 0}, per_u, per_true;
+    canonical_map_state(&c, u0, s0, 1);
+    assert_int_equal(verify_period(canonical_ode_rhs, &co, 2, u0, 0, 20, 1e-3, &per_u, &st), 0);
+    assert_int_equal(verify_period(pendulum, NULL, 2, th0, 0, 20, 1e-3, &per_true, &st), 0);
+    print_message("period: canonical law %.6g s, true law %.6g s\n", per_u, per_true);
+    assert_close(per_u, per_true, 0, 0.01);
+    canonical_ode_free(&co);
     canonical_free(&c);
     free(s), free(y), free(xi), free(mask);
     library_free(&lib);
@@ -431,6 +445,21 @@ static void test_linear_modal(void **state) {
     print_message("eigenvalues %.12g %.12g, diagonal %.12g %.12g\n", lo, hi, d0, d1);
     assert_true(fabs(fmin(d0, d1) - lo) <= 1e-6 && fabs(fmax(d0, d1) - hi) <= 1e-6);
     assert_true(std_cond(&c, z, n) <= o.cond_max);
+    /* the canonical law as an ODE (canonical_ode_rhs): its fixed point is the image of z = d, where
+     * the learned law rests, and its Jacobian there has M's eigenvalues (to 1e-6 as above) */
+    CanonicalOde co;
+    assert_int_equal(canonical_ode_init(&co, &c, &lib, &st), 0);
+    double zs[2] = {2, -1}, u0[2], u[2], ere[2], eim[2];
+    canonical_map_state(&c, u0, zs, 1);
+    u0[0] += 0.1, u0[1] -= 0.1;   /* a start off the fixed point for the search */
+    assert_int_equal(verify_fixed_point(canonical_ode_rhs, &co, 2, u0, u, &st), 0);
+    double uz[2];
+    canonical_map_state(&c, uz, zs, 1);
+    assert_true(fabs(u[0] - uz[0]) <= 1e-6 * (1 + fabs(uz[0])) && fabs(u[1] - uz[1]) <= 1e-6 * (1 + fabs(uz[1])));
+    assert_int_equal(verify_jacobian_eigs(canonical_ode_rhs, &co, 2, u, ere, eim, &st), 0);
+    print_message("canonical ODE: eigenvalues %.12g %.12g\n", fmin(ere[0], ere[1]), fmax(ere[0], ere[1]));
+    assert_true(fabs(fmin(ere[0], ere[1]) - lo) <= 1e-6 && fabs(fmax(ere[0], ere[1]) - hi) <= 1e-6);
+    canonical_ode_free(&co);
     canonical_free(&c);
     free(z), free(dz), free(xi), free(mask);
     library_free(&lib);

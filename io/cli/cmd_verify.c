@@ -15,6 +15,7 @@
 #include "io/fs/files.h"
 #include "io/cli/cli.h"
 #include "io/run/results.h"
+#include "io/run/runcanonical.h"
 #include "sparse/integrate.h"
 #include "sparse/verify.h"
 
@@ -45,6 +46,57 @@ static void fail_check(Checks *c, const char *name, double expected, double rtol
     printf("  %s\n", why);
 }
 
+/* The law the checks integrate: the learned one in the encoder's coordinates z, or the canonical one
+ * (sparse/canonical.h) in u = A z + b. Every check is on a property that no change of coordinates
+ * alters (periods, decay rates, eigenvalues, Lyapunov exponents), so both are held to the same
+ * targets; only the start states are mapped. */
+typedef struct {
+    OdeFn fn;
+    void *ctx;
+    LearnedOde lo;
+    CanonicalOde co;
+    const Canonical *c;   /* NULL: the learned law */
+} Law;
+
+static int law_open(Law *L, LoadedRun *r, const Canonical *c, Status *st) {
+    memset(L, 0, sizeof *L);
+    if (c) {
+        if (canonical_ode_init(&L->co, c, &r->m.lib, st)) return st->code;
+        L->c = c, L->fn = canonical_ode_rhs, L->ctx = &L->co;
+    } else {
+        learned_ode_init(&L->lo, &r->m.lib, r->coef.xi, r->coef.mask);
+        L->fn = learned_ode_rhs, L->ctx = &L->lo;
+    }
+    status_ok(st);
+    return 0;
+}
+
+static void law_close(Law *L) {
+    if (L->c) canonical_ode_free(&L->co);
+    else learned_ode_free(&L->lo);
+}
+
+/* y (n_vars) in the law's coordinates from a learned state s (z, or z and z'). */
+static void law_state(const Law *L, const double *s, double *y, int nv) {
+    if (L->c) canonical_map_state(L->c, y, s, 1);
+    else memcpy(y, s, (size_t)nv * sizeof *y);
+}
+
+/* The largest |coordinate| of the law over a box of learned states |z_j| <= ext_j. */
+static double law_extent(const Law *L, const double *ext, int d) {
+    double e = 0;
+    for (int i = 0; i < d; i++) {
+        double acc = 0;
+        if (!L->c) acc = ext[i];
+        else {
+            acc = fabs(L->c->b[i]);
+            for (int j = 0; j < d; j++) acc += fabs(L->c->A[i * d + j]) * ext[j];
+        }
+        e = fmax(e, acc);
+    }
+    return e;
+}
+
 /* Encode one rendered frame (size x size, 8-bit) through the run's scaling: z (d). */
 static void encode_pixels(LoadedRun *r, const uint8_t *px, float *x, float *z) {
     const Dataset *ds = &r->data.ds;
@@ -53,7 +105,7 @@ static void encode_pixels(LoadedRun *r, const uint8_t *px, float *x, float *z) {
     model_encode(&r->tape, &r->m, &r->ps, x, 1, 1, z);
 }
 
-static int verify_lantern(LoadedRun *r, const cJSON *demo, Checks *c, Status *st) {
+static int verify_lantern(LoadedRun *r, const Law *L, const cJSON *demo, Checks *c, Status *st) {
     const cJSON *ph = cJSON_GetObjectItem(demo, "physics");
     LanternPhysics p = lantern_physics_default();
     if (ph) {
@@ -70,39 +122,38 @@ static int verify_lantern(LoadedRun *r, const cJSON *demo, Checks *c, Status *st
     LanternCamera cam = lantern_camera(size, 0.0);
     uint8_t *px = malloc((size_t)size * size);
     float *x = malloc((size_t)size * size * sizeof *x), z[LIB_MAX_VARS];
-    LearnedOde lo;
-    learned_ode_init(&lo, &r->m.lib, r->coef.xi, r->coef.mask);
     double t_small = 2 * M_PI * sqrt(p.L / p.g), t_big = 4 * sqrt(p.L / p.g) * ellip_k(pow(sin(M_PI / 3), 2));
     double h = t_small / 2000;
     Status s2;
     /* a small swing released at rest: the encoder's z' of a still frame is 0 */
     lantern_render(&cam, 5 * M_PI / 180, NULL, px);
     encode_pixels(r, px, x, z);
-    double y0[2] = {z[0], 0}, period, rate;
-    if (verify_period(learned_ode_rhs, &lo, 2, y0, 0, 10 * t_small, h, &period, &s2) == 0)
+    double s0[2] = {z[0], 0}, y0[2], period, rate;
+    law_state(L, s0, y0, 2);
+    if (verify_period(L->fn, L->ctx, 2, y0, 0, 10 * t_small, h, &period, &s2) == 0)
         check(c, "small-swing period (5 deg)", period, t_small, 0.03, "s");
     else
         fail_check(c, "small-swing period (5 deg)", t_small, 0.03, "s", s2.msg);
-    if (verify_decay_rate(learned_ode_rhs, &lo, 2, y0, 0, 40 * t_small, h, &rate, &s2) == 0)
+    if (verify_decay_rate(L->fn, L->ctx, 2, y0, 0, 40 * t_small, h, &rate, &s2) == 0)
         check(c, "damping rate c = 2 x amplitude decay", 2 * rate, p.c, 0.20, "1/s");
     else
         fail_check(c, "damping rate c = 2 x amplitude decay", p.c, 0.20, "1/s", s2.msg);
     lantern_render(&cam, 120 * M_PI / 180, NULL, px);
     encode_pixels(r, px, x, z);
-    double y1[2] = {z[0], 0};
+    double s1[2] = {z[0], 0}, y1[2];
+    law_state(L, s1, y1, 2);
     /* the first swing's period: damping shortens later swings (the true law with c = 0.1 gives 1.907 s
      * this way, 2.1% under the undamped formula, but 1.65 s as a mean over ten swings) */
-    if (verify_swing_period(learned_ode_rhs, &lo, 2, y1, 0, 2 * t_big, h, &period, &s2) == 0)
+    if (verify_swing_period(L->fn, L->ctx, 2, y1, 0, 2 * t_big, h, &period, &s2) == 0)
         check(c, "120-degree period", period, t_big, 0.05, "s");
     else
         fail_check(c, "120-degree period", t_big, 0.05, "s", s2.msg);
-    learned_ode_free(&lo);
     free(px);
     free(x);
     return 0;
 }
 
-static int verify_convection(LoadedRun *r, Checks *c, Status *st) {
+static int verify_convection(LoadedRun *r, const Law *L, Checks *c, Status *st) {
     if (r->m.order != 1)
         return status_set(st, ST_INPUT, "verify: the convection check needs a first-order model");
     int d = r->m.n_latent;
@@ -113,33 +164,29 @@ static int verify_convection(LoadedRun *r, Checks *c, Status *st) {
     tape_reset(&r->tape);
     model_encode(&r->tape, &r->m, &r->ps, x, 1, 1, z);
     free(x);
-    double y0[LIB_MAX_VARS];
-    for (int j = 0; j < d; j++) y0[j] = z[j];
-    LearnedOde lo;
-    learned_ode_init(&lo, &r->m.lib, r->coef.xi, r->coef.mask);
+    double s0[LIB_MAX_VARS], y0[LIB_MAX_VARS];
+    for (int j = 0; j < d; j++) s0[j] = z[j];
+    law_state(L, s0, y0, d);
     Status s2;
     double lambda;
-    if (verify_lyapunov(learned_ode_rhs, &lo, d, y0, 10, 500, 0.002, 1.0, &lambda, &s2) == 0)
+    if (verify_lyapunov(L->fn, L->ctx, d, y0, 10, 500, 0.002, 1.0, &lambda, &s2) == 0)
         check(c, "largest Lyapunov exponent", lambda, LYAPUNOV_LORENZ, 0.15, "1/s");
     else
         fail_check(c, "largest Lyapunov exponent", LYAPUNOV_LORENZ, 0.15, "1/s", s2.msg);
     /* bounded for 100 time units: never beyond 10x the training range */
     Region reg;
-    if (results_region(r, &reg, st)) {
-        learned_ode_free(&lo);
-        return st->code;
-    }
-    double extent = 0;
-    for (int j = 0; j < d; j++) extent = fmax(extent, fmax(fabs(reg.zmin[j]), fabs(reg.zmax[j])));
+    if (results_region(r, &reg, st)) return st->code;
+    double ext[LIB_MAX_VARS];
+    for (int j = 0; j < d; j++) ext[j] = fmax(fabs(reg.zmin[j]), fabs(reg.zmax[j]));
+    double extent = law_extent(L, ext, d);
     OdeOptions opt = ode_defaults();
     opt.method = ODE_RK4;
     opt.h = 0.002;
     opt.bound = 10 * extent;
     double t_end = 100, y_end[LIB_MAX_VARS], y_out[LIB_MAX_VARS];
     OdeReport rep;
-    int bad = ode_solve(learned_ode_rhs, &lo, d, 0, y0, &t_end, 1, y_out, y_end, &opt, &rep, &s2);
+    int bad = ode_solve(L->fn, L->ctx, d, 0, y0, &t_end, 1, y_out, y_end, &opt, &rep, &s2);
     check(c, "bounded for 100 s (time steps reached)", bad ? rep.t : 100.0, 100.0, 0.0, "s");
-    learned_ode_free(&lo);
     return 0;
 }
 
@@ -157,7 +204,8 @@ static double num(const cJSON *o, const char *k, double def) {
     return cJSON_IsNumber(v) ? v->valuedouble : def;
 }
 
-static int verify_battery(LoadedRun *r, const cJSON *demo, const BatteryScenario *b, Checks *c, Status *st) {
+static int verify_battery(LoadedRun *r, const Law *L, const cJSON *demo, const BatteryScenario *b, Checks *c,
+                          Status *st) {
     int size = (int)cJSON_GetNumberValue(cJSON_GetObjectItem(demo, "frame_width"));
     if (r->data.store.width != size || r->data.store.height != size || r->data.store.elem != STORE_U8)
         return status_set(st, ST_INPUT, "verify: the run's frames are %dx%d, the scenario renders %dx%d 8-bit frames "
@@ -177,22 +225,21 @@ static int verify_battery(LoadedRun *r, const cJSON *demo, const BatteryScenario
         free(px), free(x);
         return status_set(st, ST_RUNTIME, "out of memory");
     }
-    LearnedOde lo;
-    learned_ode_init(&lo, &r->m.lib, r->coef.xi, r->coef.mask);
-    double rest[BATTERY_MAX_STATE] = {0}, y0[LIB_MAX_VARS] = {0}, y[LIB_MAX_VARS], re[LIB_MAX_VARS], im[LIB_MAX_VARS];
+    double rest[BATTERY_MAX_STATE] = {0}, s0[LIB_MAX_VARS] = {0}, y0[LIB_MAX_VARS] = {0}, y[LIB_MAX_VARS], re[LIB_MAX_VARS], im[LIB_MAX_VARS];
     Status s2;
     if (!strcmp(b->name, "spring") || !strcmp(b->name, "puck")) {
         /* the linearisation at the rest position: eigenvalues -sigma +- i w_d per mode (closed form of
          * the damped linear oscillator: w_d = w0 sqrt(1 - zeta^2), sigma = zeta w0; Thornton and Marion,
          * Classical Dynamics of Particles and Systems, 5th ed., 2004, sec. 3.5) */
         encode_state(r, b, size, rest, px, x, z);
-        for (int j = 0; j < d; j++) y0[j] = z[j];
+        for (int j = 0; j < d; j++) s0[j] = z[j];
+        law_state(L, s0, y0, nv);
         int modes = d;
         double w0[2], zeta[2];
         if (d == 1) w0[0] = p.w0, zeta[0] = p.zeta;
         else w0[0] = 2 * M_PI * p.f1, w0[1] = 2 * M_PI * p.f2, zeta[0] = p.z1, zeta[1] = p.z2;
-        int ok = !verify_fixed_point(learned_ode_rhs, &lo, nv, y0, y, &s2) &&
-                 !verify_jacobian_eigs(learned_ode_rhs, &lo, nv, y, re, im, &s2);
+        int ok = !verify_fixed_point(L->fn, L->ctx, nv, y0, y, &s2) &&
+                 !verify_jacobian_eigs(L->fn, L->ctx, nv, y, re, im, &s2);
         for (int k = 0; k < modes; k++) {
             char n1[64], n2[64];
             snprintf(n1, sizeof n1, "mode %d frequency w_d", k + 1);
@@ -215,9 +262,10 @@ static int verify_battery(LoadedRun *r, const cJSON *demo, const BatteryScenario
          * encoded frame the learned fixed point matches */
         rest[0] = p.K;
         encode_state(r, b, size, rest, px, x, z);
-        y0[0] = z[0];
-        int ok = !verify_fixed_point(learned_ode_rhs, &lo, nv, y0, y, &s2) &&
-                 !verify_jacobian_eigs(learned_ode_rhs, &lo, nv, y, re, im, &s2);
+        s0[0] = z[0];
+        law_state(L, s0, y0, nv);
+        int ok = !verify_fixed_point(L->fn, L->ctx, nv, y0, y, &s2) &&
+                 !verify_jacobian_eigs(L->fn, L->ctx, nv, y, re, im, &s2);
         if (ok) check(c, "eigenvalue at the stable fixed point", re[0], -p.r, 0.10, "1/h");
         else fail_check(c, "eigenvalue at the stable fixed point", -p.r, 0.10, "1/h", s2.msg);
         double area = NAN, prev = NAN;
@@ -225,9 +273,11 @@ static int verify_battery(LoadedRun *r, const cJSON *demo, const BatteryScenario
             double a = p.K * (0.05 + 1.85 * k / 400.0);
             rest[0] = a;
             encode_state(r, b, size, rest, px, x, z);
-            if (k && (prev - y[0]) * (z[0] - y[0]) <= 0 && isnan(area))
-                area = a - p.K * 1.85 / 400.0 * (z[0] - y[0]) / (z[0] - prev);
-            prev = z[0];
+            double sz = z[0], u;   /* the encoded frame in the law's coordinate */
+            law_state(L, &sz, &u, 1);
+            if (k && (prev - y[0]) * (u - y[0]) <= 0 && isnan(area))
+                area = a - p.K * 1.85 / 400.0 * (u - y[0]) / (u - prev);
+            prev = u;
         }
         if (ok && !isnan(area)) check(c, "area at the stable fixed point", area, p.K, 0.10, "K");
         else fail_check(c, "area at the stable fixed point", p.K, 0.10, "K",
@@ -240,7 +290,6 @@ static int verify_battery(LoadedRun *r, const cJSON *demo, const BatteryScenario
         double ytrue[2] = {0.5, 0}, t_true, range_true;
         double T0 = 2 * M_PI / p.w, h = T0 / 2000;
         if (verify_cycle(battery_rhs, &bc, 2, ytrue, 0, 20 * T0, 10 * T0, h, &t_true, &range_true, &s2)) {
-            learned_ode_free(&lo);
             free(px), free(x);
             return status_set(st, ST_RUNTIME, "verify: the true law: %s", s2.msg);
         }
@@ -249,10 +298,11 @@ static int verify_battery(LoadedRun *r, const cJSON *demo, const BatteryScenario
         for (int k = 0; k < 2; k++) {
             rest[0] = starts[k], rest[1] = 0;
             encode_state(r, b, size, rest, px, x, z);
-            y0[0] = z[0], y0[1] = 0;
+            s0[0] = z[0], s0[1] = 0;
+            law_state(L, s0, y0, nv);
             char n1[64];
             snprintf(n1, sizeof n1, "cycle period from x = %.1f", starts[k]);
-            ok[k] = !verify_cycle(learned_ode_rhs, &lo, nv, y0, 0, 20 * T0, 10 * T0, h, &per[k], &rng[k], &s2);
+            ok[k] = !verify_cycle(L->fn, L->ctx, nv, y0, 0, 20 * T0, 10 * T0, h, &per[k], &rng[k], &s2);
             if (ok[k]) check(c, n1, per[k], t_true, 0.03, "s");
             else fail_check(c, n1, t_true, 0.03, "s", s2.msg);
         }
@@ -260,14 +310,13 @@ static int verify_battery(LoadedRun *r, const cJSON *demo, const BatteryScenario
         if (ok[0] && ok[1]) check(c, "same cycle from both starts (range ratio)", rng[1] / rng[0], 1.0, 0.05, "");
         else fail_check(c, "same cycle from both starts (range ratio)", 1.0, 0.05, "", "a start did not reach a cycle");
     }
-    learned_ode_free(&lo);
     free(px), free(x);
     return 0;
 }
 
 int cmd_verify(int argc, char **argv) {
     if (cli_wants_help(argc, argv)) {
-        printf("usage: framelaw verify RUN_DIR\n\n"
+        printf("usage: framelaw verify [--law learned|canonical] RUN_DIR\n\n"
                "Check a run trained on a demo scenario (its data.frames folder holds the demo.json that\n"
                "`framelaw demo` wrote) against the physics that rendered it, with properties that do not\n"
                "depend on the latent coordinates the autoencoder chose:\n"
@@ -281,16 +330,27 @@ int cmd_verify(int argc, char **argv) {
                "  colony:     the eigenvalue at the stable fixed point (10%% of -r) and the area there (10%% of K);\n"
                "  pulse:      the period of the cycle reached from inside and from outside it (3%%), and that\n"
                "              both reach the same cycle (5%%). docs/battery.md gives the sources.\n"
-               "Prints one line per check, writes RUN_DIR/verify.json.\n\n"
+               "Prints one line per check, writes RUN_DIR/verify.json (RUN_DIR/verify-canonical.json for\n"
+               "--law canonical).\n\n"
                "options (default in brackets):\n"
+               "  --law L   the law to check: learned (the trained model's) or canonical (its sparsest\n"
+               "            form, framelaw canonical; the start states mapped by u = A z + b; the\n"
+               "            learned law when no sparser form was found, as equations.txt prints it) [learned]\n"
                "  --help    this text\n\n"
                "exit status: 0 every check passes, 1 a check fails or a runtime failure, 2 bad usage or\n"
                "bad input\n");
         return 0;
     }
     const char *dir = NULL;
+    int canon = 0;
     for (int i = 1, operands = 0; i < argc; i++) { /* after "--": RUN_DIR even when it starts with '-' */
         if (!operands && !strcmp(argv[i], "--")) operands = 1;
+        else if (!operands && !strcmp(argv[i], "--law")) {
+            const char *v = i + 1 < argc ? argv[++i] : "";
+            if (!strcmp(v, "learned")) canon = 0;
+            else if (!strcmp(v, "canonical")) canon = 1;
+            else return cli_error(2, "--law: '%s' is not one of learned, canonical", v);
+        }
         else if (!operands && argv[i][0] == '-')
             return cli_error(2, "%s: unknown option (framelaw verify --help)", argv[i]);
         else if (dir) return cli_error(2, "%s: one run folder only", argv[i]);
@@ -315,21 +375,45 @@ int cmd_verify(int argc, char **argv) {
     free(txt);
     const char *scenario = demo ? cJSON_GetStringValue(cJSON_GetObjectItem(demo, "scenario")) : NULL;
     Checks c = {cJSON_CreateArray(), 0, 0};
-    int rc;
+    /* the canonical form, found as at the end of training (seeded, so the same law) */
+    const Canonical *cf = NULL;
+    char law_name[96] = "learned";
+    int rc = canon ? run_canonical_get(&r, 1, &st) : 0;
+    if (!rc && canon) {
+        if (r.canon->c.status == CANON_FOUND) {
+            cf = &r.canon->c;
+            snprintf(law_name, sizeof law_name, "canonical");
+            printf("law: canonical, %ld terms (the learned law has %ld)\n", cf->active, cf->active_raw);
+        } else {
+            snprintf(law_name, sizeof law_name, "learned (canonical form %s)", canon_status_name(r.canon->c.status));
+            printf("law: learned: the canonical form is %s, no sparser law (%s)\n",
+                   canon_status_name(r.canon->c.status), r.canon->c.note);
+        }
+    }
+    Law L;
+    if (!rc) rc = law_open(&L, &r, cf, &st);
+    if (rc) {
+        cJSON_Delete(c.list);
+        cJSON_Delete(demo);
+        loaded_run_close(&r);
+        return cli_error(rc, "%s", st.msg);
+    }
     if (!scenario) rc = status_set(&st, ST_INPUT, "%s: no scenario named", path);
-    else if (!strcmp(scenario, "lantern")) rc = verify_lantern(&r, demo, &c, &st);
-    else if (!strcmp(scenario, "convection")) rc = verify_convection(&r, &c, &st);
-    else if (battery_find(scenario)) rc = verify_battery(&r, demo, battery_find(scenario), &c, &st);
+    else if (!strcmp(scenario, "lantern")) rc = verify_lantern(&r, &L, demo, &c, &st);
+    else if (!strcmp(scenario, "convection")) rc = verify_convection(&r, &L, &c, &st);
+    else if (battery_find(scenario)) rc = verify_battery(&r, &L, demo, battery_find(scenario), &c, &st);
     else rc = status_set(&st, ST_INPUT, "%s: unknown scenario '%s'", path, scenario);
+    law_close(&L);
     if (!rc) {
         cJSON *o = cJSON_CreateObject();
         cJSON_AddStringToObject(o, "scenario", scenario);
+        cJSON_AddStringToObject(o, "law", law_name);
         cJSON_AddNumberToObject(o, "passed", c.passed);
         cJSON_AddNumberToObject(o, "checks", c.total);
         cJSON_AddItemToObject(o, "results", c.list);
         c.list = NULL;
         char *out = cJSON_Print(o);
-        snprintf(path, sizeof path, "%s/verify.json", dir);
+        snprintf(path, sizeof path, "%s/%s", dir, canon ? "verify-canonical.json" : "verify.json");
         rc = atomic_write_bytes(path, out, strlen(out), &st);
         free(out);
         cJSON_Delete(o);
