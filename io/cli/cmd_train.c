@@ -104,9 +104,11 @@ static int run_training(Config *c, const char *run_dir, int resume, int quiet, i
         rundata_close(&data);
         return cli_error(rc, "%s", st.msg);
     }
+    int gram; /* pca_init decides the same way */
     if ((rc = rundata_memory_check(&data, c, &st)) ||
         (!resume && c->init != INIT_GLOROT &&
-         (rc = rundata_pca_fits(data.td.n_in, c, c->init == INIT_PCA ? "model.init pca" : "model.init isomap", &st)))) {
+         (rc = rundata_pca_fits(data.td.n_in, data.td.n_train, c, c->init == INIT_PCA ? "model.init pca" : "model.init isomap",
+                                &gram, &st)))) {
         rundata_close(&data);
         return cli_error(rc, "%s", st.msg);
     }

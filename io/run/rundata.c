@@ -67,10 +67,19 @@ int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st) {
 
 /* The principal directions of the training recordings' frames: q of them with their variances (vals)
  * and the total variance (pca_finish_total). x: (ds->n) work. */
-static int train_frames_pca(const Dataset *ds, const FrameStore *fs, int q, float *x, double *mean, double *vecs,
-                            double *vals, double *total, Status *st) {
+/* The training frames' count (the samples of their analysis). */
+static long train_frame_count(const Dataset *ds, const FrameStore *fs) {
+    long N = 0;
+    for (int r = 0; r < fs->n_rec; r++)
+        if (ds->rec_split[r] == SPLIT_TRAIN) N += fs->rec[r].count;
+    return N;
+}
+
+static int train_frames_pca(const Dataset *ds, const FrameStore *fs, int q, int gram, float *x, double *mean,
+                            double *vecs, double *vals, double *total, Status *st) {
     Pca p;
-    pca_begin(&p, (int)ds->n);
+    if (gram) pca_begin_gram(&p, (int)ds->n, train_frame_count(ds, fs));
+    else pca_begin(&p, (int)ds->n);
     for (int r = 0; r < fs->n_rec; r++)
         if (ds->rec_split[r] == SPLIT_TRAIN)
             for (long f = 0; f < fs->rec[r].count; f++) {
@@ -90,7 +99,7 @@ static double leading_share(const double *vals, int q, double total) {
 
 /* rundata_auto_stencil, and with share_q > 0 also rundata_plane_share's share of share_q directions
  * from the same pass over the frames (the stencil uses the leading three of them). */
-static int auto_stencil_share(const Dataset *ds, const FrameStore *fs, int order, FrameSettings *s,
+static int auto_stencil_share(const Dataset *ds, const FrameStore *fs, int order, int gram, FrameSettings *s,
                               double *theta_out, int share_q, double *share, Status *st) {
     long n = ds->n, N = 0;
     int nr = 0;
@@ -107,7 +116,7 @@ static int auto_stencil_share(const Dataset *ds, const FrameStore *fs, int order
         rc = status_set(st, ST_RUNTIME, "out of memory");
         goto done;
     }
-    if ((rc = train_frames_pca(ds, fs, qp, x, mean, vecs, vals, &total, st))) goto done;
+    if ((rc = train_frames_pca(ds, fs, qp, gram, x, mean, vecs, vals, &total, st))) goto done;
     if (share_q > 0) *share = leading_share(vals, share_q < qp ? share_q : qp, total);
     long i = 0;
     int k = 0;
@@ -151,7 +160,9 @@ done:
 
 int rundata_auto_stencil(const Dataset *ds, const FrameStore *fs, int order, FrameSettings *s, double *theta_out,
                          Status *st) {
-    return auto_stencil_share(ds, fs, order, s, theta_out, 0, NULL, st);
+    /* no budget here (framelaw frames): the Gram path where it is the cheaper on large frames */
+    return auto_stencil_share(ds, fs, order, pca_use_gram((int)ds->n, train_frame_count(ds, fs), HUGE_VAL), s,
+                              theta_out, 0, NULL, st);
 }
 
 static void set_blocks(RunData *d, const Config *c);
@@ -178,11 +189,13 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
     d->have_store = 1;
     if (dataset_init(&d->ds, &d->store, &s, st)) return st->code;
     d->have_ds = 1;
+    int gram = 0;
     if ((c->derivative == DERIV_AUTO || c->map == MAP_AUTO) &&
-        rundata_pca_fits(d->ds.n, c, c->derivative == DERIV_AUTO ? "data.derivative.method auto" : "model.map auto", st))
+        rundata_pca_fits(d->ds.n, train_frame_count(&d->ds, &d->store), c,
+                         c->derivative == DERIV_AUTO ? "data.derivative.method auto" : "model.map auto", &gram, st))
         return st->code;
     if (c->derivative == DERIV_AUTO) { /* the stencil from the data, then the samples again */
-        if (auto_stencil_share(&d->ds, &d->store, c->order, &s, &d->auto_theta, c->map == MAP_AUTO ? c->latent : 0,
+        if (auto_stencil_share(&d->ds, &d->store, c->order, gram, &s, &d->auto_theta, c->map == MAP_AUTO ? c->latent : 0,
                                &d->plane_share, st))
             return st->code;
         dataset_free(&d->ds);
@@ -191,7 +204,7 @@ int rundata_open(RunData *d, const Config *c, Status *st) {
         d->have_ds = 1;
         d->auto_window = s.sg_window, d->auto_degree = s.sg_degree;
     }
-    if (c->map == MAP_AUTO && c->derivative != DERIV_AUTO && rundata_plane_share(&d->ds, &d->store, c->latent, &d->plane_share, st)) {
+    if (c->map == MAP_AUTO && c->derivative != DERIV_AUTO && rundata_plane_share(&d->ds, &d->store, c->latent, gram, &d->plane_share, st)) {
         char why[sizeof st->msg];
         snprintf(why, sizeof why, "%s", st->msg);
         return status_set(st, st->code, "model.map auto: the frames' principal directions: %s (set model.map linear "
@@ -218,17 +231,23 @@ static void set_blocks(RunData *d, const Config *c) {
     td->ctx = d;
 }
 
-int rundata_pca_fits(long n, const Config *c, const char *why, Status *st) {
+int rundata_pca_fits(long n, long N, const Config *c, const char *why, int *gram, Status *st) {
     MemEstimate e;
     model_memory(c, n, 1, 1, &e);
-    double need = 8.0 * (double)n * (double)n;
+    *gram = pca_use_gram((int)n, N, e.budget);
+    double need = pca_bytes((int)n, N, *gram);
     if (need <= e.budget) return 0;
+    if (*gram)
+        return status_set(st, ST_INPUT, "frames of %ld values: %s analyses the %ld training frames in a %ld x %ld matrix "
+                          "and their copy, about %.3g GB, above train.memory_budget (%.3g GB): shrink the frames with "
+                          "data.size (e.g. [64, 64]) or data.crop, or raise the budget", n, why, N, N, N, need / 1e9,
+                          e.budget / 1e9);
     return status_set(st, ST_INPUT, "frames of %ld values: %s analyses them in a %ld x %ld matrix of about %.3g GB, "
                       "above train.memory_budget (%.3g GB): shrink the frames with data.size (e.g. [64, 64]) or "
                       "data.crop, or raise the budget", n, why, n, n, need / 1e9, e.budget / 1e9);
 }
 
-int rundata_plane_share(const Dataset *ds, const FrameStore *fs, int q, double *share, Status *st) {
+int rundata_plane_share(const Dataset *ds, const FrameStore *fs, int q, int gram, double *share, Status *st) {
     long n = ds->n;
     if (q > n) q = (int)n;
     float *x = malloc((size_t)n * sizeof *x);
@@ -239,7 +258,7 @@ int rundata_plane_share(const Dataset *ds, const FrameStore *fs, int q, double *
         rc = status_set(st, ST_RUNTIME, "out of memory");
         goto done;
     }
-    if ((rc = train_frames_pca(ds, fs, q, x, mean, vecs, vals, &total, st))) goto done;
+    if ((rc = train_frames_pca(ds, fs, q, gram, x, mean, vecs, vals, &total, st))) goto done;
     *share = leading_share(vals, q, total);
 done:
     free(x), free(mean), free(vecs), free(vals);

@@ -46,14 +46,16 @@ int rundata_auto_stencil(const Dataset *ds, const FrameStore *fs, int order, Fra
 int rundata_open(RunData *d, const Config *c, Status *st);
 
 /* The principal component analysis of the frames (data.derivative.method auto, model.map auto, the pca
- * and isomap starts) holds an n x n covariance of doubles: ST_INPUT naming `why` (the key that asks
- * for it), the size and data.size when that matrix would exceed train.memory_budget, before it is
- * built. */
-int rundata_pca_fits(long n, const Config *c, const char *why, Status *st);
+ * and isomap starts) of N samples of n values: *gram says which path it takes (nn/pca.h,
+ * pca_use_gram under train.memory_budget: the n x n covariance, or with fewer samples than values
+ * on large frames or when the covariance does not fit, the N x N Gram matrix and a copy of the
+ * samples). ST_INPUT naming `why` (the key that asks for it), the size and data.size when that path
+ * would exceed train.memory_budget, before anything is built. */
+int rundata_pca_fits(long n, long N, const Config *c, const char *why, int *gram, Status *st);
 
 /* The share of the training frames' variance (over the recordings ds trains on) that their leading q
  * principal directions carry, into *share (1 for frames that never change). */
-int rundata_plane_share(const Dataset *ds, const FrameStore *fs, int q, double *share, Status *st);
+int rundata_plane_share(const Dataset *ds, const FrameStore *fs, int q, int gram, double *share, Status *st);
 
 /* A fresh run's model.map: auto becomes linear or curved by plane_share (rundata_open measured it),
  * and config_apply_map sets the keys it decides; the samples' blocks follow model.derivatives. Then

@@ -475,8 +475,15 @@ static int pca_init(Run *r, const TrainData *ds, float *X, int Bmax, Status *st)
     Model *m = r->m;
     int n = ds->n_in, h = m->enc.widths[1];
     if (h > n) h = n;
+    MemEstimate e; /* the path rundata_pca_fits checked against the budget */
+    model_memory(r->cfg, n, 1, 1, &e);
     Pca p;
-    pca_begin(&p, n);
+    if (pca_use_gram(n, ds->n_train, e.budget)) {
+        pca_begin_gram(&p, n, ds->n_train);
+        if (h > ds->n_train - 1) h = (int)ds->n_train - 1; /* N samples span N - 1 directions; Glorot's for the rest */
+    } else {
+        pca_begin(&p, n);
+    }
     TrainBatches it;
     int got;
     batches_begin(&it, ds, 0, ds->n_train, ds->n_train, Bmax);
