@@ -3,8 +3,9 @@
 # each scenario of the battery (docs/battery.md), render the recordings once, train the scenario's
 # template config (configs/battery/<scenario>.json: data.frames, data.fps, model.latent,
 # model.order, and nothing else) over several seeds, and check each run with `framelaw verify`.
-# Prints a table (scenario, seeds passing every check, seconds per seed) and, for every seed that
-# fails, what verify measured. Passes when each scenario has at least its required count.
+# Prints a table (scenario, seeds passing every check, seconds per seed; and the seeds whose
+# canonical law, `framelaw verify --law canonical`, passes every check, reported only) and, for every
+# seed that fails, what verify measured. Passes when each scenario has at least its required count.
 #   SEEDS          seeds to train                                        [1 2 3 4 5]
 #   SCENARIOS      which scenarios             [spring colony pulse puck lantern convection]
 #   BATTERY_SET    extra --set KEY=VALUE overrides for every run, space separated      []
@@ -23,7 +24,7 @@ if [ -n "${KEEP:-}" ]; then work=$KEEP; mkdir -p "$work"; else
 sets=()
 for kv in $BATTERY_SET; do sets+=(--set "$kv"); done
 status=0
-table="scenario      pass  of  required  s/seed"
+table="scenario      pass  of  required  s/seed  canonical"
 for sc in $SCENARIOS; do
   up=$(echo "$sc" | tr a-z A-Z)
   render_var="RENDER_$up"; render=${!render_var:-}
@@ -33,7 +34,7 @@ for sc in $SCENARIOS; do
   esac
   # shellcheck disable=SC2086
   "$FRAMELAW" demo "$sc" "$work/$sc-data" --overwrite $render >/dev/null || exit 1
-  pass=0; n=0; start=$(date +%s)
+  pass=0; cpass=0; n=0; start=$(date +%s)
   for seed in $SEEDS; do
     n=$((n + 1))
     run="$work/$sc-run-$seed"
@@ -48,14 +49,16 @@ for sc in $SCENARIOS; do
         grep -v '^verify' "$run.verify" | sed 's/^/  /'
       fi
       grep -A1 '^learned equations' "$run.out" | tail -n 1 | sed 's/^/  law: /'
+      if "$FRAMELAW" verify --law canonical "$run" > "$run.verify-canonical" 2>&1; then cpass=$((cpass + 1)); fi
+      echo "  canonical: $(grep '^law:' "$run.verify-canonical" | cut -c6-); $(tail -n 1 "$run.verify-canonical")"
     else
       echo "$sc seed $seed: training failed: $(tail -n 1 "$run.out")"
     fi
   done
-  secs=$(( ($(date +%s) - start) / (n > 0 ? n : 1) ))
+  secs=$(( ($(date +%s) - start) / (n > 0 ? n : 1) )) # training and both verifies
   need_var="MIN_PASS_$up"; need=${!need_var:-$MIN_PASS}
   table="$table
-$(printf '%-12s %5d %3d %9d %7d' "$sc" "$pass" "$n" "$need" "$secs")"
+$(printf '%-12s %5d %3d %9d %7d %10d' "$sc" "$pass" "$n" "$need" "$secs" "$cpass")"
   [ "$pass" -ge "$need" ] || status=1
 done
 echo
