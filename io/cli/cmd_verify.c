@@ -1,6 +1,7 @@
-/* io/cli/cmd_verify.c: `framelaw verify RUN_DIR`: check a run trained on a demo scenario against the
- * physics that rendered it, with properties that survive any change of latent coordinates
- * (sparse/verify.h; docs/lantern.md and docs/convection.md give the targets). */
+/* io/cli/cmd_verify.c: `framelaw verify [--law learned|canonical] RUN_DIR`: check a run trained on a
+ * demo scenario against the physics that rendered it, with properties that survive any change of
+ * latent coordinates (sparse/verify.h; docs/lantern.md, docs/convection.md and docs/battery.md give
+ * the targets), on the learned law or on its canonical form (docs/canonical.md). */
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
