@@ -65,8 +65,6 @@ int frame_settings_from_config(const Config *c, FrameSettings *s, Status *st) {
 #define AUTO_STENCIL_TOL 0.02      /* responses within 2% of exact at that frequency */
 #define AUTO_STENCIL_MAX 13        /* frames per window at most (latent mode encodes each one) */
 
-/* The principal directions of the training recordings' frames: q of them with their variances (vals)
- * and the total variance (pca_finish_total). x: (ds->n) work. */
 /* The training frames' count (the samples of their analysis). */
 static long train_frame_count(const Dataset *ds, const FrameStore *fs) {
     long N = 0;
@@ -75,6 +73,9 @@ static long train_frame_count(const Dataset *ds, const FrameStore *fs) {
     return N;
 }
 
+/* The principal directions of the training recordings' frames: q of them with their variances (vals)
+ * and the total variance (pca_finish_total), by the covariance or (gram) the Gram path (nn/pca.h).
+ * x: (ds->n) work. */
 static int train_frames_pca(const Dataset *ds, const FrameStore *fs, int q, int gram, float *x, double *mean,
                             double *vecs, double *vals, double *total, Status *st) {
     Pca p;
