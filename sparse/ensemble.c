@@ -173,6 +173,60 @@ void ensemble_free(Ensemble *e) {
     memset(e, 0, sizeof *e);
 }
 
+/* The arrays of an ensemble of M members, T terms and d equations (coefficients, kept and offered
+ * flags zeroed). */
+static void ensemble_alloc(Ensemble *e, int M, int T, int d) {
+    long Td = (long)T * d;
+    e->coef = nn_calloc((size_t)M * Td, sizeof *e->coef);
+    e->kept = nn_calloc((size_t)M * Td, 1);
+    e->offered = nn_calloc((size_t)M * T, 1);
+    e->n_offered = nn_calloc((size_t)T, sizeof *e->n_offered);
+    e->prob = nn_calloc((size_t)Td, sizeof *e->prob);
+    e->median = nn_alloc((size_t)Td * sizeof *e->median);
+    e->q05 = nn_alloc((size_t)Td * sizeof *e->q05);
+    e->q95 = nn_alloc((size_t)Td * sizeof *e->q95);
+    e->xi = nn_calloc((size_t)Td, sizeof *e->xi);
+    e->mask = nn_calloc((size_t)Td, 1);
+}
+
+/* From the members' coefficients and kept terms in e: the inclusion probabilities, the medians and
+ * intervals, and the ensemble law refitted on every sample (theta (N, T), dx (N, d)). On failure e is
+ * freed. */
+static int summarize(Ensemble *e, const double *theta, const double *dx, long N, const EnsembleOptions *o,
+                     Status *st) {
+    int M = e->members, T = e->n_terms, d = e->n_out;
+    long Td = (long)T * d;
+    double *v = nn_alloc((size_t)M * sizeof *v); /* (M) one term's coefficients over members */
+    for (int t = 0; t < T; t++) {
+        for (int m = 0; m < M; m++) e->n_offered[t] += e->offered[(long)m * T + t];
+        for (int j = 0; j < d; j++) {
+            long tj = (long)t * d + j;
+            int n = 0, kept = 0;
+            for (int m = 0; m < M; m++) {
+                if (!e->offered[(long)m * T + t]) continue;
+                v[n++] = e->coef[(long)m * Td + tj];
+                kept += e->kept[(long)m * Td + tj] != 0;
+            }
+            e->prob[tj] = n ? (double)kept / n : 0.0;
+            e->median[tj] = ensemble_quantile(v, n, 0.5); /* sorts v; the next two reuse it sorted */
+            e->q05[tj] = ensemble_quantile(v, n, 0.05);
+            e->q95[tj] = ensemble_quantile(v, n, 0.95);
+        }
+    }
+    nn_free(v);
+
+    /* the ensemble law: the terms at or above the inclusion threshold, plain least squares on all samples */
+    uint8_t *allowed = nn_alloc((size_t)Td);
+    for (long tj = 0; tj < Td; tj++) allowed[tj] = e->prob[tj] >= o->inclusion;
+    ThreshLsqOptions ref = o->lsq;
+    ref.max_iter = 0;
+    ref.threshold = 0;
+    int code = thresh_lsq_fit(e->xi, e->mask, theta, dx, N, T, d, allowed, &ref, NULL, st);
+    nn_free(allowed);
+    if (code) ensemble_free(e);
+    return code;
+}
+
 int ensemble_fit_theta(Ensemble *e, const double *theta, const double *dx, const int *rec, const long *step,
                        long N, int T, int d, const EnsembleOptions *o, Rng *rng, Status *st) {
     memset(e, 0, sizeof *e);
@@ -201,16 +255,7 @@ int ensemble_fit_theta(Ensemble *e, const double *theta, const double *dx, const
     long Td = (long)T * d;
     e->members = M, e->n_terms = T, e->n_out = d, e->n_samples = N;
     e->segments = bp.n_seg, e->longest = bp.longest, e->unreachable = bp.unreachable;
-    e->coef = nn_calloc((size_t)M * Td, sizeof *e->coef);
-    e->kept = nn_calloc((size_t)M * Td, 1);
-    e->offered = nn_calloc((size_t)M * T, 1);
-    e->n_offered = nn_calloc((size_t)T, sizeof *e->n_offered);
-    e->prob = nn_calloc((size_t)Td, sizeof *e->prob);
-    e->median = nn_alloc((size_t)Td * sizeof *e->median);
-    e->q05 = nn_alloc((size_t)Td * sizeof *e->q05);
-    e->q95 = nn_alloc((size_t)Td * sizeof *e->q95);
-    e->xi = nn_calloc((size_t)Td, sizeof *e->xi);
-    e->mask = nn_calloc((size_t)Td, 1);
+    ensemble_alloc(e, M, T, d);
 
     long *idx = nn_alloc((size_t)N * sizeof *idx);              /* (N) one resample */
     double *th = nn_alloc((size_t)N * T * sizeof *th);          /* (N, T) its library rows */
@@ -257,38 +302,10 @@ int ensemble_fit_theta(Ensemble *e, const double *theta, const double *dx, const
         return code;
     }
 
-    double *v = nn_alloc((size_t)M * sizeof *v); /* (M) one term's coefficients over members */
-    for (int t = 0; t < T; t++) {
-        for (int m = 0; m < M; m++) e->n_offered[t] += e->offered[(long)m * T + t];
-        for (int j = 0; j < d; j++) {
-            long tj = (long)t * d + j;
-            int n = 0, kept = 0;
-            for (int m = 0; m < M; m++) {
-                if (!e->offered[(long)m * T + t]) continue;
-                v[n++] = e->coef[(long)m * Td + tj];
-                kept += e->kept[(long)m * Td + tj] != 0;
-            }
-            e->prob[tj] = n ? (double)kept / n : 0.0;
-            e->median[tj] = ensemble_quantile(v, n, 0.5); /* sorts v; the next two reuse it sorted */
-            e->q05[tj] = ensemble_quantile(v, n, 0.05);
-            e->q95[tj] = ensemble_quantile(v, n, 0.95);
-        }
-    }
-    nn_free(v);
-
-    /* the ensemble law: the terms at or above the inclusion threshold, plain least squares on all samples */
-    for (long tj = 0; tj < Td; tj++) allowed[tj] = e->prob[tj] >= o->inclusion;
-    ThreshLsqOptions ref = o->lsq;
-    ref.max_iter = 0;
-    ref.threshold = 0;
-    code = thresh_lsq_fit(e->xi, e->mask, theta, dx, N, T, d, allowed, &ref, NULL, st);
     nn_free(allowed);
-    if (code) {
-        ensemble_free(e);
-        return code;
-    }
-    status_ok(st);
-    return 0;
+    int rc = summarize(e, theta, dx, N, o, st);
+    if (!rc) status_ok(st);
+    return rc;
 }
 
 int ensemble_fit(Ensemble *e, const Library *lib, const double *s, const double *dx, const int *rec,
@@ -300,6 +317,34 @@ int ensemble_fit(Ensemble *e, const Library *lib, const double *s, const double 
     library_eval(lib, theta, s, N);
     int rc = ensemble_fit_theta(e, theta, dx, rec, step, N, T, lib->spec.n_latent, o, rng, st);
     nn_free(theta);
+    return rc;
+}
+
+int ensemble_fit_select(Ensemble *e, const Library *lib, const SelectData *D, const SelectOptions *so,
+                        const uint8_t *law_mask, int pool, const EnsembleOptions *o, Rng *rng, Status *st) {
+    memset(e, 0, sizeof *e);
+    if (ensemble_check_options(o, st)) return st->code;
+    if (o->library_bagging)
+        return status_set(st, ST_INPUT, "ensemble: library_bagging goes with members fitted by thresholding, not by selection");
+    int M = o->members, T = lib->n_terms, d = lib->spec.n_latent;
+    long N = D->N;
+    if (N < 1) return status_set(st, ST_INPUT, "ensemble: no samples");
+    e->members = M, e->n_terms = T, e->n_out = d, e->n_samples = N, e->by_selection = 1;
+    ensemble_alloc(e, M, T, d);
+    memset(e->offered, 1, (size_t)M * T);
+    int rc = select_bagged(lib, D, NULL, so, law_mask, pool, M, rng, e->coef, e->kept, &e->bag, st);
+    if (rc) {
+        ensemble_free(e);
+        return rc;
+    }
+    e->segments = e->bag.segments, e->unreachable = e->bag.uncovered;
+    for (int r = 0; r < D->n_rec; r++)
+        if (D->rec_start[r + 1] - D->rec_start[r] > e->longest) e->longest = D->rec_start[r + 1] - D->rec_start[r];
+    double *theta = nn_alloc((size_t)N * T * sizeof *theta); /* (N, T) */
+    library_eval(lib, theta, D->state, N);
+    rc = summarize(e, theta, D->target, N, o, st);
+    nn_free(theta);
+    if (!rc) status_ok(st);
     return rc;
 }
 

@@ -51,6 +51,7 @@
 #include "nn/rng.h"
 #include "sparse/integrate.h"
 #include "sparse/library.h"
+#include "sparse/select.h"
 #include "sparse/thresh_lsq.h"
 
 #define ENSEMBLE_MAX_MEMBERS 100000
@@ -121,6 +122,8 @@ typedef struct {
     int block_too_long;     /* after a failed fit: 1 when the block is longer than every run of
                                consecutive samples (longest says the longest), so that a caller can
                                name its own key for the block; else 0 */
+    int by_selection;       /* 1: fitted by ensemble_fit_select (bag says how) */
+    SelectBagReport bag;
 } Ensemble;
 
 /* The reason of a block longer than every run of consecutive samples, without a prefix ("block 200
@@ -138,6 +141,16 @@ int ensemble_fit_theta(Ensemble *e, const double *theta, const double *dx, const
 /* The same from the library's states s (N, lib->n_vars): theta = Theta(s). */
 int ensemble_fit(Ensemble *e, const Library *lib, const double *s, const double *dx, const int *rec,
                  const long *step, long N, const EnsembleOptions *o, Rng *rng, Status *st);
+
+/* The ensemble of the forecast-scored selection (select_bagged in sparse/select.h): each member is
+ * the selection bagged over its forecast segments, choosing among the `pool` best laws of the
+ * full-data path and law_mask (n_terms, d; the trained law, or NULL). The statistics and the
+ * ensemble law are then as above (theta = Theta(D->state), targets D->target); e->bag reports the
+ * pool, the segments and how many members chose the full-data selection and law_mask;
+ * e->unreachable counts the samples in no segment, e->segments the segments. Library bagging is not
+ * offered here (ST_INPUT naming library_bagging). */
+int ensemble_fit_select(Ensemble *e, const Library *lib, const SelectData *D, const SelectOptions *so,
+                        const uint8_t *law_mask, int pool, const EnsembleOptions *o, Rng *rng, Status *st);
 
 void ensemble_free(Ensemble *e);
 

@@ -115,53 +115,73 @@ static void component_scales(const SelectData *D, double *sdj) {
     for (int j = 0; j < D->d; j++) sdj[j] = sqrt(component_sq_dev(D, j) / (double)D->N);
 }
 
+/* The largest distance from 0 a forecast may reach before it counts as lost: 100 standard
+ * deviations beyond every state of the data. */
+static double lost_bound(const SelectData *D, double sd) {
+    double bound = 0;
+    for (long i = 0; i < D->N * D->n_vars; i++)
+        if (fabs(D->state[i]) > bound) bound = fabs(D->state[i]);
+    return bound + 100 * sd;
+}
+
+/* One segment's error: the law integrated (RK4, four steps per sample) from sample a + s0 over H
+ * samples against the data. *e receives the error pooled over the components relative to sd, ej (d)
+ * each component's relative to sdj[j], both capped at cap. theta (n_terms) is work. */
+static void segment_error(const Library *lib, const SelectData *D, const double *xi, const uint8_t *mask, long a,
+                          long s0, int H, double sd, const double *sdj, double cap, double bound, double *theta,
+                          double *e_out, double *ej) {
+    int nv = lib->n_vars, d = D->d;
+    double y[4 * LIB_MAX_VARS], k1[LIB_MAX_VARS], k2[LIB_MAX_VARS], k3[LIB_MAX_VARS], k4[LIB_MAX_VARS];
+    double *tmp = y + LIB_MAX_VARS;
+    const int sub = 4;
+    double h = D->dt / sub;
+    memcpy(y, D->state + (a + s0) * nv, (size_t)nv * sizeof *y);
+    double se = 0, sej[LIB_MAX_VARS] = {0};
+    int lost = 0;
+    for (int k = 1; k < H && !lost; k++) {
+        for (int u = 0; u < sub; u++) { /* classic RK4 */
+            law_rhs(lib, xi, mask, y, k1, theta);
+            for (int i = 0; i < nv; i++) tmp[i] = y[i] + 0.5 * h * k1[i];
+            law_rhs(lib, xi, mask, tmp, k2, theta);
+            for (int i = 0; i < nv; i++) tmp[i] = y[i] + 0.5 * h * k2[i];
+            law_rhs(lib, xi, mask, tmp, k3, theta);
+            for (int i = 0; i < nv; i++) tmp[i] = y[i] + h * k3[i];
+            law_rhs(lib, xi, mask, tmp, k4, theta);
+            for (int i = 0; i < nv; i++) y[i] += h / 6 * (k1[i] + 2 * k2[i] + 2 * k3[i] + k4[i]);
+        }
+        for (int i = 0; i < nv; i++)
+            if (!isfinite(y[i]) || fabs(y[i]) > bound) lost = 1;
+        const double *ref = D->state + (a + s0 + k) * nv;
+        for (int j = 0; j < d && !lost; j++) {
+            double q = (y[j] - ref[j]) * (y[j] - ref[j]);
+            se += q, sej[j] += q;
+        }
+    }
+    double e = lost ? cap : sqrt(se / ((double)(H - 1) * d)) / sd;
+    *e_out = e < cap ? e : cap;
+    for (int j = 0; j < d; j++) {
+        double q = lost || !(sdj[j] > 0) ? cap : sqrt(sej[j] / (double)(H - 1)) / sdj[j];
+        ej[j] = q < cap ? q : cap;
+    }
+}
+
 /* The mean segment error pooled over the components (returned), and per component in ej (d) when
  * not NULL: component j's error over a segment divided by its own standard deviation sdj[j], capped
  * like the pooled one. */
 static double forecast_error(const Library *lib, const SelectData *D, const double *xi, const uint8_t *mask, int H,
                              int S, double sd, const double *sdj, double cap, double *ej, int *n_seg) {
-    int nv = lib->n_vars, d = D->d;
+    int d = D->d;
     double *theta = malloc((size_t)lib->n_terms * sizeof *theta);
-    double y[4 * LIB_MAX_VARS], k1[LIB_MAX_VARS], k2[LIB_MAX_VARS], k3[LIB_MAX_VARS], k4[LIB_MAX_VARS];
-    double *tmp = y + LIB_MAX_VARS;
-    double bound = 0; /* a forecast further than 100 standard deviations from every state is lost */
-    for (long i = 0; i < D->N * nv; i++)
-        if (fabs(D->state[i]) > bound) bound = fabs(D->state[i]);
-    bound += 100 * sd;
-    const int sub = 4;
-    double h = D->dt / sub, total = 0, tj[LIB_MAX_VARS] = {0};
+    double bound = lost_bound(D, sd);
+    double total = 0, tj[LIB_MAX_VARS] = {0};
     int n = 0;
     for (int r = 0; r < D->n_rec; r++) {
         long a = D->rec_start[r], len = D->rec_start[r + 1] - a;
         for (long s0 = 0; s0 + H <= len; s0 += S) {
-            memcpy(y, D->state + (a + s0) * nv, (size_t)nv * sizeof *y);
-            double se = 0, sej[LIB_MAX_VARS] = {0};
-            int lost = 0;
-            for (int k = 1; k < H && !lost; k++) {
-                for (int u = 0; u < sub; u++) { /* classic RK4 */
-                    law_rhs(lib, xi, mask, y, k1, theta);
-                    for (int i = 0; i < nv; i++) tmp[i] = y[i] + 0.5 * h * k1[i];
-                    law_rhs(lib, xi, mask, tmp, k2, theta);
-                    for (int i = 0; i < nv; i++) tmp[i] = y[i] + 0.5 * h * k2[i];
-                    law_rhs(lib, xi, mask, tmp, k3, theta);
-                    for (int i = 0; i < nv; i++) tmp[i] = y[i] + h * k3[i];
-                    law_rhs(lib, xi, mask, tmp, k4, theta);
-                    for (int i = 0; i < nv; i++) y[i] += h / 6 * (k1[i] + 2 * k2[i] + 2 * k3[i] + k4[i]);
-                }
-                for (int i = 0; i < nv; i++)
-                    if (!isfinite(y[i]) || fabs(y[i]) > bound) lost = 1;
-                const double *ref = D->state + (a + s0 + k) * nv;
-                for (int j = 0; j < d && !lost; j++) {
-                    double q = (y[j] - ref[j]) * (y[j] - ref[j]);
-                    se += q, sej[j] += q;
-                }
-            }
-            double e = lost ? cap : sqrt(se / ((double)(H - 1) * d)) / sd;
-            total += e < cap ? e : cap;
-            for (int j = 0; j < d; j++) {
-                double q = lost || !(sdj[j] > 0) ? cap : sqrt(sej[j] / (double)(H - 1)) / sdj[j];
-                tj[j] += q < cap ? q : cap;
-            }
+            double e, eg[LIB_MAX_VARS];
+            segment_error(lib, D, xi, mask, a, s0, H, sd, sdj, cap, bound, theta, &e, eg);
+            total += e;
+            for (int j = 0; j < d; j++) tj[j] += eg[j];
             n++;
         }
     }
@@ -375,5 +395,144 @@ done:
     free(theta), free(allow), free(m), free(x);
     if (!rc && out) *out = p;
     else select_path_free(&p);
+    return rc;
+}
+
+/* ---- the selection, bagged ------------------------------------------------------------------------ */
+
+/* Indices 0..n-1 ordered by ascending score, ties by index (insertion sort: paths are short). */
+static void order_by_score(const SelectPath *p, int *ord) {
+    for (int i = 0; i < p->n; i++) {
+        int k = i;
+        while (k > 0 && p->e[ord[k - 1]].score > p->e[i].score) ord[k] = ord[k - 1], k--;
+        ord[k] = i;
+    }
+}
+
+int select_bagged(const Library *lib, const SelectData *D, const uint8_t *allowed, const SelectOptions *o,
+                  const uint8_t *extra, int pool, int members, Rng *rng, double *coef, uint8_t *kept,
+                  SelectBagReport *rep, Status *st) {
+    memset(rep, 0, sizeof *rep);
+    if (pool < 1 || members < 1)
+        return status_set(st, ST_INPUT, "selection bagging: pool %d and members %d must be >= 1", pool, members);
+    int T = lib->n_terms, d = D->d, nv = lib->n_vars;
+    long w = (long)T * d, N = D->N;
+    double *xi_sel = malloc((size_t)w * sizeof *xi_sel);
+    uint8_t *m_sel = malloc((size_t)w);
+    SelectPath p = {0};
+    if (!xi_sel || !m_sel) {
+        free(xi_sel), free(m_sel);
+        return status_set(st, ST_RUNTIME, "out of memory");
+    }
+    int rc = select_law(lib, D, allowed, o, xi_sel, m_sel, &p, st);
+    free(xi_sel);
+    if (rc) {
+        free(m_sel);
+        return rc;
+    }
+    int H, S;
+    double sd, sdj[LIB_MAX_VARS];
+    resolve_horizon(lib, D, o, &H, &S, &sd, st); /* succeeded inside select_law */
+    component_scales(D, sdj);
+    double bound = lost_bound(D, sd);
+
+    /* the pool: the best laws of the path, then extra */
+    int *ord = malloc((size_t)p.n * sizeof *ord);
+    int K = p.n < pool ? p.n : pool;
+    uint8_t *pm = malloc((size_t)(K + 1) * w);
+    int G = 0;
+    for (int r = 0; r < D->n_rec; r++) {
+        long len = D->rec_start[r + 1] - D->rec_start[r];
+        for (long s0 = 0; s0 + H <= len; s0 += S) G++;
+    }
+    long *seg_a = malloc((size_t)(G > 0 ? G : 1) * sizeof *seg_a);
+    int *cnt = malloc((size_t)(G > 0 ? G : 1) * sizeof *cnt);
+    double *wt = malloc((size_t)N * sizeof *wt), *theta = malloc((size_t)N * T * sizeof *theta);
+    double *thw = malloc((size_t)N * T * sizeof *thw), *yw = malloc((size_t)N * d * sizeof *yw);
+    double *x = malloc((size_t)w * sizeof *x), *best_x = malloc((size_t)w * sizeof *best_x);
+    double *th1 = malloc((size_t)T * sizeof *th1);
+    uint8_t *m2 = malloc((size_t)w);
+    if (!ord || !pm || !seg_a || !cnt || !wt || !theta || !thw || !yw || !x || !best_x || !th1 || !m2) {
+        rc = status_set(st, ST_RUNTIME, "out of memory");
+        goto done;
+    }
+    order_by_score(&p, ord);
+    for (int k = 0; k < K; k++) memcpy(pm + k * w, p.mask + (long)ord[k] * w, (size_t)w);
+    rep->selected = -1, rep->extra = -1;
+    for (int k = 0; k < K; k++) {
+        if (!memcmp(pm + k * w, m_sel, (size_t)w)) rep->selected = k;
+        if (extra && !memcmp(pm + k * w, extra, (size_t)w)) rep->extra = k;
+    }
+    if (extra && rep->extra < 0) {
+        long act = 0;
+        for (long i = 0; i < w; i++) act += extra[i] != 0;
+        if (act) {
+            for (long i = 0; i < w; i++) pm[K * w + i] = extra[i] != 0;
+            rep->extra = K++;
+        }
+    }
+    G = 0;
+    long covered_to = 0, uncovered = 0;
+    for (int r = 0; r < D->n_rec; r++) {
+        long a = D->rec_start[r], len = D->rec_start[r + 1] - a;
+        covered_to = 0;
+        for (long s0 = 0; s0 + H <= len; s0 += S) seg_a[G++] = a + s0, covered_to = s0 + H;
+        uncovered += len - covered_to;
+    }
+    rep->candidates = K, rep->segments = G, rep->horizon = H, rep->uncovered = uncovered;
+    for (long i = 0; i < N; i++) library_eval(lib, theta + i * T, D->state + i * nv, 1);
+    ThreshLsqOptions lo = thresh_lsq_defaults();
+    lo.threshold = 0; /* plain least squares on the candidate's terms, as select_law refits */
+    lo.max_iter = 0;
+    for (int m = 0; m < members; m++) {
+        memset(cnt, 0, (size_t)G * sizeof *cnt);
+        for (int k = 0; k < G; k++) cnt[rng_below(rng, (uint64_t)G)]++;
+        memset(wt, 0, (size_t)N * sizeof *wt);
+        for (int g = 0; g < G; g++)
+            for (long i = 0; i < H && cnt[g]; i++) wt[seg_a[g] + i] += cnt[g];
+        long n_rows = 0;
+        for (long i = 0; i < N; i++) {
+            if (!(wt[i] > 0)) continue;
+            double s = sqrt(wt[i]);
+            for (int t = 0; t < T; t++) thw[n_rows * T + t] = s * theta[i * T + t];
+            for (int j = 0; j < d; j++) yw[n_rows * d + j] = s * D->target[i * d + j];
+            n_rows++;
+        }
+        int best = -1;
+        double best_score = INFINITY;
+        for (int c = 0; c < K; c++) {
+            const uint8_t *mc = pm + c * w;
+            Status s2;
+            if (thresh_lsq_fit(x, m2, thw, yw, n_rows, T, d, mc, &lo, NULL, &s2)) {
+                rep->failed_fits++;
+                continue;
+            }
+            double tot = 0, tj[LIB_MAX_VARS] = {0};
+            for (int g = 0; g < G; g++) {
+                if (!cnt[g]) continue;
+                double e, ej[LIB_MAX_VARS];
+                segment_error(lib, D, x, mc, seg_a[g], 0, H, sd, sdj, o->cap, bound, th1, &e, ej);
+                tot += cnt[g] * e;
+                for (int j = 0; j < d; j++) tj[j] += cnt[g] * ej[j];
+            }
+            for (int j = 0; j < d; j++) tj[j] /= G;
+            double sc = score_of(lib, o, tot / G, tj, mc, d);
+            if (sc < best_score) best_score = sc, best = c, memcpy(best_x, x, (size_t)w * sizeof *x);
+        }
+        double *cm = coef + (long)m * w;
+        uint8_t *km = kept + (long)m * w;
+        memset(km, 0, (size_t)w);
+        for (long i = 0; i < w; i++) cm[i] = 0;
+        if (best < 0) continue;
+        for (long i = 0; i < w; i++)
+            if (pm[best * w + i]) km[i] = 1, cm[i] = best_x[i];
+        rep->agree_selected += best == rep->selected;
+        rep->agree_extra += best == rep->extra;
+    }
+    status_ok(st);
+done:
+    free(m_sel), free(ord), free(pm), free(seg_a), free(cnt), free(wt), free(theta), free(thw), free(yw), free(x);
+    free(best_x), free(th1), free(m2);
+    select_path_free(&p);
     return rc;
 }

@@ -44,6 +44,7 @@
 #include <stdint.h>
 
 #include "nn/core.h"
+#include "nn/rng.h"
 #include "sparse/library.h"
 
 /* An encoded data set: N samples in recording order, consecutive samples of one recording dt
@@ -109,5 +110,39 @@ int select_law(const Library *lib, const SelectData *data, const uint8_t *allowe
  * *segments receives the number of segments (may be NULL). */
 int select_forecast_error(const Library *lib, const SelectData *data, const double *xi, const uint8_t *mask,
                           const SelectOptions *opt, double *err, int *segments, Status *st);
+
+/* ---- the selection, bagged -----------------------------------------------------------------------
+ *
+ * How firmly do the data ask for the law that selection chose? Bag the selection's own units: its
+ * forecast segments. Each of `members` members draws as many segments as there are, uniformly with
+ * replacement (a block bootstrap whose blocks are the segments; "The jackknife and the bootstrap for
+ * general stationary observations", The Annals of Statistics, 1989, cited from memory), refits every
+ * candidate of a pool by least squares on the drawn segments' samples (a sample counts once per
+ * drawn segment that holds it), integrates each refitted candidate over the drawn segments, scores
+ * it with the same rule as select_law (the mean over the draws of the segment errors, then the
+ * parsimony factors), and keeps the best. The pool: the `pool` best laws of select_law's path on the
+ * whole data set (by score), and the law `extra` when given and not among them (the trained law,
+ * which joint training may have moved away from the path). No stepwise moves per member: the pool
+ * holds the laws the full-data search met near its optimum.
+ *
+ * Draws: per member, `segments` draws rng_below(segments), member after member, in one thread;
+ * deterministic. */
+typedef struct {
+    int candidates;             /* laws in the pool */
+    int segments, horizon;      /* the units drawn, and their length in samples */
+    int selected;               /* index in the pool of select_law's choice on all the data (0) */
+    int extra;                  /* index in the pool of extra (-1: none given) */
+    int agree_selected;         /* members whose choice is select_law's choice */
+    int agree_extra;            /* members whose choice is extra */
+    long uncovered;             /* samples in no segment */
+    int failed_fits;            /* candidate refits that failed (that candidate skipped for the member) */
+} SelectBagReport;
+
+/* coef (members, n_terms, d) and kept (members, n_terms, d) receive each member's choice and its
+ * refitted coefficients (0 off its terms). extra (n_terms, d) or NULL. pool >= 1, members >= 1.
+ * ST_INPUT as select_law. */
+int select_bagged(const Library *lib, const SelectData *data, const uint8_t *allowed, const SelectOptions *opt,
+                  const uint8_t *extra, int pool, int members, Rng *rng, double *coef, uint8_t *kept,
+                  SelectBagReport *rep, Status *st);
 
 #endif

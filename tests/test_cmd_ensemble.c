@@ -236,6 +236,48 @@ static void test_set_members(void **state) {
     free(eq), free(fc), free(cfg);
 }
 
+/* ensemble.method: the run trains with threshold.select none, so auto fits the members by
+ * thresholding; selection bags the forecast-scored selection and says so in equations.json (the
+ * pool, the segments, how many members chose the trained law); library bagging with selection and a
+ * pool of 0 laws exit 2 naming the key. */
+static void test_method(void **state) {
+    (void)state;
+    char args[800], out[16384];
+    snprintf(args, sizeof args,
+             "ensemble '%s/run' --quiet --set ensemble.method=selection --set ensemble.library_bagging=false "
+             "--set ensemble.candidates=5 --set ensemble.members=12",
+             tmp);
+    int rc = test_run_capture(args, out, sizeof out);
+    if (rc) fail_msg("exit %d:\n%s", rc, out);
+    char *eq = run_file("equations.json");
+    cJSON *root = cJSON_Parse(eq), *e = cJSON_GetObjectItem(root, "ensemble");
+    assert_string_equal(cJSON_GetObjectItem(e, "fit")->valuestring, "selection");
+    int cand = cJSON_GetObjectItem(e, "candidates")->valueint, chose = cJSON_GetObjectItem(e, "chose_trained_law")->valueint;
+    assert_true(cand >= 1 && cand <= 6); /* the 5 best of the path, and the trained law if not among them */
+    assert_true(chose >= 0 && chose <= 12);
+    /* three periods (3 pi s) are longer than the recordings (4 s), so each training recording is one
+     * segment of its whole length */
+    int segs = cJSON_GetObjectItem(e, "segments")->valueint;
+    assert_true(segs >= 2 && segs <= 4);
+    assert_int_equal(cJSON_GetObjectItem(e, "block")->valueint, 118);
+    assert_null(cJSON_GetObjectItem(e, "threshold"));
+    cJSON_Delete(root);
+    free(eq);
+    snprintf(args, sizeof args, "ensemble '%s/run' --quiet --set ensemble.method=auto", tmp);
+    rc = test_run_capture(args, out, sizeof out);
+    if (rc) fail_msg("exit %d:\n%s", rc, out);
+    eq = run_file("equations.json");
+    root = cJSON_Parse(eq), e = cJSON_GetObjectItem(root, "ensemble");
+    assert_string_equal(cJSON_GetObjectItem(e, "fit")->valuestring, "thresholding");
+    assert_non_null(cJSON_GetObjectItem(e, "threshold"));
+    cJSON_Delete(root);
+    free(eq);
+    expect_exit2("ensemble '%s/run' --set ensemble.method=selection --set ensemble.library_bagging=true",
+                 "ensemble.library_bagging");
+    expect_exit2("ensemble '%s/run' --set ensemble.candidates=0", "ensemble.candidates");
+    expect_exit2("ensemble '%s/run' --set ensemble.method=vote", "ensemble.method");
+}
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_equations_json),
@@ -244,6 +286,7 @@ int main(void) {
         cmocka_unit_test(test_bad_input),
         cmocka_unit_test(test_unfinished),
         cmocka_unit_test(test_set_members),
+        cmocka_unit_test(test_method),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }

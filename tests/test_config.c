@@ -37,8 +37,9 @@ static const char *FULL =
     "  \"threshold\": {\"value\": 0.05, \"measure\": \"coefficient\", \"select\": \"first\", \"every\": 300, \"refine_epochs\": 5000},\n"
     "  \"checkpoint\": {\"every\": 25, \"keep\": 7},\n"
     "  \"forecast\": {\"bound\": 0.2, \"method\": \"rk4\", \"tolerance\": 1e-6},\n"
-    "  \"ensemble\": {\"members\": 40, \"block\": 12, \"block_seconds\": 0.5, \"library_bagging\": true,\n"
-    "               \"drop_fraction\": 0.3, \"inclusion\": 0.7, \"band_members\": 20},\n"
+    "  \"ensemble\": {\"members\": 40, \"method\": \"thresholding\", \"candidates\": 9, \"block\": 12,\n"
+    "               \"block_seconds\": 0.5, \"library_bagging\": true, \"drop_fraction\": 0.3, \"inclusion\": 0.7,\n"
+    "               \"band_members\": 20},\n"
     "  \"canonical\": {\"tolerance\": 0.1, \"cond_max\": 500},\n"
     "  \"output\": \"runs/full\"\n"
     "}\n";
@@ -359,7 +360,8 @@ static void test_digest(void **state) {
     static const char *const safe[] = {"train.epochs=9", "train.threads=3", "train.validate_every=7",
                                        "checkpoint.every=11", "checkpoint.keep=9", "output=elsewhere",
                                        "forecast.bound=0.3", "forecast.method=rk4", "forecast.tolerance=1e-6",
-                                       "ensemble.members=7", "ensemble.block=3", "ensemble.block_seconds=2",
+                                       "ensemble.members=7", "ensemble.method=selection", "ensemble.candidates=3",
+                                       "ensemble.block=3", "ensemble.block_seconds=2",
                                        "ensemble.library_bagging=true", "ensemble.drop_fraction=0.5",
                                        "ensemble.inclusion=0.9", "ensemble.band_members=5",
                                        "canonical.tolerance=0.1", "canonical.cond_max=50", "train.memory_budget=3",
@@ -398,7 +400,7 @@ static void test_digest(void **state) {
         for (int i = 0; config_key_path(i); i++) found |= !strcmp(config_key_path(i), config_resume_safe_keys[n]);
         if (!found) fail_msg("resume-safe key %s is not in the table", config_resume_safe_keys[n]);
     }
-    assert_int_equal(n, 20);
+    assert_int_equal(n, 22);
 }
 
 /* The bad configs: each with the substring its message must hold. The origin prefixes every one. */
@@ -558,6 +560,7 @@ static const char *map_name(int v) { return frames_map_names[v]; }
 static const char *sched_name(int v) { return lr_schedule_names[v]; }
 static const char *measure_name(int v) { return thresh_measure_names[v]; }
 static const char *select_name(int v) { return thresh_select_names[v]; }
+static const char *ensfit_name(int v) { return ensemble_fit_names[v]; }
 static const char *ode_name(int v) { return ode_method_names[v]; }
 
 static const struct {
@@ -576,6 +579,7 @@ static const struct {
     {"optimizer.schedule", offsetof(Config, schedule), sched_name, 0, SCHED_COUNT},
     {"threshold.measure", offsetof(Config, threshold_measure), measure_name, 0, MEASURE_COUNT},
     {"threshold.select", offsetof(Config, threshold_select), select_name, 0, SELECT_COUNT},
+    {"ensemble.method", offsetof(Config, ens_method), ensfit_name, 0, ENSFIT_COUNT},
     {"forecast.method", offsetof(Config, fc_method), ode_name, 0, ODE_METHOD_COUNT},
 };
 

@@ -176,6 +176,18 @@ static long lorenz_data(double noise, double **s_out, double **dx_out, int **rec
     return N;
 }
 
+/* The published law's coefficients (10 terms of degree <= 2, 3 equations). */
+static void lorenz_truth(const Library *lib, double *truth) {
+    for (int i = 0; i < 30; i++) truth[i] = 0;
+    truth[library_find(lib, "z1") * 3 + 0] = -SIGMA;
+    truth[library_find(lib, "z2") * 3 + 0] = SIGMA;
+    truth[library_find(lib, "z1") * 3 + 1] = RHO;
+    truth[library_find(lib, "z2") * 3 + 1] = -1;
+    truth[library_find(lib, "z1*z3") * 3 + 1] = -1;
+    truth[library_find(lib, "z3") * 3 + 2] = -BETA;
+    truth[library_find(lib, "z1*z2") * 3 + 2] = 1;
+}
+
 /* Four recordings of 5 s sampled every 0.005 s, Gaussian noise of standard deviation 0.1 on every
  * state (about 1.2% of the states' standard deviation, printed), blocks of 25 samples (a little
  * over two stencil windows: the derivative errors of samples closer than a window are
@@ -194,14 +206,8 @@ static void test_lorenz_inclusion(void **state) {
     Status st;
     assert_int_equal(library_init(&lib, &spec, &st), 0);
     assert_int_equal(lib.n_terms, 10);
-    double truth[30] = {0};
-    truth[library_find(&lib, "z1") * 3 + 0] = -SIGMA;
-    truth[library_find(&lib, "z2") * 3 + 0] = SIGMA;
-    truth[library_find(&lib, "z1") * 3 + 1] = RHO;
-    truth[library_find(&lib, "z2") * 3 + 1] = -1;
-    truth[library_find(&lib, "z1*z3") * 3 + 1] = -1;
-    truth[library_find(&lib, "z3") * 3 + 2] = -BETA;
-    truth[library_find(&lib, "z1*z2") * 3 + 2] = 1;
+    double truth[30];
+    lorenz_truth(&lib, truth);
     EnsembleOptions o = ensemble_defaults();
     o.members = 100;
     o.block = 25;
@@ -237,6 +243,63 @@ static void test_lorenz_inclusion(void **state) {
         }
     }
     ensemble_free(&e);
+    library_free(&lib);
+    free(s), free(dx), free(rec), free(step);
+}
+
+/* The same recordings, the members fitted by the selection bagged over its forecast segments
+ * (ensemble_fit_select; segments of 100 samples, half a time unit: chaos separates longer forecasts
+ * whatever the law), 30 members among the 8 best laws of the path: the same outside check as
+ * thresholding (the 7 terms of the published law with inclusion >= 0.9, every other <= 0.2, the
+ * ensemble law within 3%), the statistics those of the members' choices, and library bagging
+ * refused by name. */
+static void test_lorenz_inclusion_by_selection(void **state) {
+    (void)state;
+    double *s, *dx;
+    int *rec;
+    long *step;
+    long N = lorenz_data(0.1, &s, &dx, &rec, &step);
+    LibrarySpec spec = library_spec_default(3, 1);
+    Library lib;
+    Status st;
+    assert_int_equal(library_init(&lib, &spec, &st), 0);
+    double truth[30];
+    lorenz_truth(&lib, truth);
+    long rs[LZ_REC + 1];
+    int nr = 0;
+    for (long i = 0; i < N; i++) /* the samples are in recording order, consecutive within each */
+        if (i == 0 || rec[i] != rec[i - 1]) rs[nr++] = i;
+    rs[nr] = N;
+    assert_int_equal(nr, LZ_REC);
+    SelectData D = {N, 3, 3, s, dx, nr, rs, 0.005};
+    SelectOptions so = select_defaults();
+    so.horizon = 100;
+    EnsembleOptions o = ensemble_defaults();
+    o.members = 30;
+    Rng r;
+    rng_seed(&r, 3);
+    Ensemble e;
+    if (ensemble_fit_select(&e, &lib, &D, &so, NULL, 8, &o, &r, &st)) fail_msg("%s", st.msg);
+    assert_true(e.by_selection);
+    assert_int_equal(e.segments, e.bag.segments);
+    assert_int_equal(e.bag.horizon, 100);
+    for (int tj = 0; tj < 30; tj++) {
+        int kept = 0;
+        for (int m = 0; m < e.members; m++) kept += e.kept[(long)m * 30 + tj];
+        assert_true(e.prob[tj] == (double)kept / e.members);
+        if (truth[tj] != 0) {
+            if (e.prob[tj] < 0.9) fail_msg("true term %s (eq %d) has inclusion %.2f < 0.9", lib.names[tj / 3], tj % 3 + 1, e.prob[tj]);
+            assert_int_equal(e.mask[tj], 1);
+            assert_close(e.xi[tj], truth[tj], 0, 0.03);
+        } else {
+            if (e.prob[tj] > 0.2) fail_msg("term %s (eq %d) has inclusion %.2f > 0.2", lib.names[tj / 3], tj % 3 + 1, e.prob[tj]);
+            assert_int_equal(e.mask[tj], 0);
+        }
+    }
+    ensemble_free(&e);
+    o.library_bagging = 1;
+    assert_int_equal(ensemble_fit_select(&e, &lib, &D, &so, NULL, 8, &o, &r, &st), ST_INPUT);
+    assert_non_null(strstr(st.msg, "library_bagging"));
     library_free(&lib);
     free(s), free(dx), free(rec), free(step);
 }
@@ -546,6 +609,7 @@ int main(void) {
         cmocka_unit_test(test_library_bagging),
         cmocka_unit_test(test_bands),
         cmocka_unit_test(test_lorenz_inclusion),
+        cmocka_unit_test(test_lorenz_inclusion_by_selection),
         cmocka_unit_test(test_coverage_white_noise),
         cmocka_unit_test(test_coverage_correlated_noise),
     };

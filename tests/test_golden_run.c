@@ -5,7 +5,8 @@
  * in its commit (GOLDEN_WRITE=1 build/tests/test_golden_run records them). Re-recorded when the
  * texts in the JSON took the digits of equations.txt (4, was 6), and for the equations JSON version 2
  * (products written with '*', "multipliers"): every number as before, only "digits", the version,
- * those names and the texts changed.
+ * those names and the texts changed. Re-recorded when the ensemble object gained "fit" (how its
+ * members were fitted): one line more, every number as before.
  *
  * The runs cover both derivative modes and every start-up: an image run (the lantern demo at 20 px,
  * Isomap start, derivatives in latent space, loss.normalize) and a numeric run (CSV recordings of a

@@ -35,6 +35,17 @@ static void oscillator(double w0, double sg, double dt, double *state, double *t
     rs[NREC] = (long)NREC * NT;
 }
 
+/* The oscillator's data seen in the coordinate u = z + 0.3 z^2: u' = (1 + 0.6 z) z',
+ * u'' = 0.6 z'^2 + (1 + 0.6 z) z''. */
+static void warp(double *state, double *target) {
+    for (long k = 0; k < NREC * NT; k++) {
+        double a = 0.3, z = state[2 * k], v = state[2 * k + 1], acc = target[k];
+        state[2 * k] = z + a * z * z;
+        state[2 * k + 1] = (1 + 2 * a * z) * v;
+        target[k] = 2 * a * v * v + (1 + 2 * a * z) * acc;
+    }
+}
+
 static Library make_lib(int latent, int order, int degree, int trig) {
     LibrarySpec sp = library_spec_default(latent, order);
     sp.degree = degree;
@@ -89,12 +100,7 @@ static void test_warped_coordinate(void **state_) {
     static double state[2 * NREC * NT], target[NREC * NT];
     long rs[NREC + 1];
     oscillator(w0, sg, dt, state, target, rs);
-    for (long k = 0; k < NREC * NT; k++) { /* u = z + a z^2, u' = (1 + 2 a z) z', u'' = 2 a z'^2 + (1 + 2 a z) z'' */
-        double a = 0.3, z = state[2 * k], v = state[2 * k + 1], acc = target[k];
-        state[2 * k] = z + a * z * z;
-        state[2 * k + 1] = (1 + 2 * a * z) * v;
-        target[k] = 2 * a * v * v + (1 + 2 * a * z) * acc;
-    }
+    warp(state, target);
     Library lib = make_lib(1, 2, 3, 0);
     SelectData D = {NREC * NT, 2, 1, state, target, NREC, rs, dt};
     SelectOptions o = select_defaults();
@@ -271,6 +277,125 @@ static void test_weak_term_of_one_equation(void **state_) {
     library_free(&lib);
 }
 
+/* ---- the selection, bagged (select_bagged) ---------------------------------------------------- */
+
+/* The damped oscillator (closed form as in test_linear_oscillator, Thornton and Marion 2004, sec.
+ * 3.5) with white noise of 3% of the targets' rms on z'' (as a derivative stencil leaves): every
+ * member must choose the two true terms, with coefficient intervals that hold the closed-form values
+ * -w0^2 and -2 sigma; the trained law given as `extra` is chosen by every member when it is the true
+ * one, and by none when it is a stand-in (z^3 alone), which joins the pool all the same. Same seed,
+ * same bits; another seed, other coefficients. */
+static void test_bagged_oscillator(void **state_) {
+    (void)state_;
+    double dt = 0.04, w0 = 8.27, sg = 0.25;
+    static double state[2 * NREC * NT], target[NREC * NT];
+    long rs[NREC + 1];
+    oscillator(w0, sg, dt, state, target, rs);
+    double rms = 0;
+    for (long k = 0; k < NREC * NT; k++) rms += target[k] * target[k];
+    rms = sqrt(rms / (NREC * NT));
+    uint64_t gs = 7;
+    for (long k = 0; k < NREC * NT; k++) target[k] += 0.03 * rms * gauss(&gs);
+    Library lib = make_lib(1, 2, 3, 1);
+    int T = lib.n_terms, M = 60;
+    SelectData D = {NREC * NT, 2, 1, state, target, NREC, rs, dt};
+    SelectOptions o = select_defaults();
+    int iz = library_find(&lib, "z1"), iv = library_find(&lib, "dz1/dt"), i3 = library_find(&lib, "z1^3");
+    assert_true(iz >= 0 && iv >= 0 && i3 >= 0);
+    uint8_t truth[64] = {0}, standin[64] = {0};
+    truth[iz] = truth[iv] = 1;
+    standin[i3] = 1;
+    double *coef = malloc((size_t)M * T * sizeof *coef), *coef2 = malloc((size_t)M * T * sizeof *coef2);
+    uint8_t *kept = malloc((size_t)M * T), *kept2 = malloc((size_t)M * T);
+    SelectBagReport rep, rep2;
+    Status st;
+    Rng rng;
+    rng_seed(&rng, 11);
+    assert_int_equal(select_bagged(&lib, &D, NULL, &o, truth, 8, M, &rng, coef, kept, &rep, &st), 0);
+    assert_int_equal(rep.agree_extra, M);
+    assert_int_equal(rep.agree_selected, M);
+    assert_int_equal(rep.selected, 0); /* the full-data choice is the best of the pool */
+    assert_true(rep.segments >= NREC && rep.horizon >= 8 && rep.candidates <= 8 && rep.failed_fits == 0);
+    double cz[200], cv[200];
+    for (int m = 0; m < M; m++) {
+        for (int t = 0; t < T; t++) assert_int_equal(kept[(long)m * T + t], t == iz || t == iv);
+        cz[m] = coef[(long)m * T + iz], cv[m] = coef[(long)m * T + iv];
+    }
+    /* the range of the members' coefficients holds the closed-form values (the noise is white, so
+     * the refits on drawn segments scatter around them) */
+    double lo_z = cz[0], hi_z = cz[0], lo_v = cv[0], hi_v = cv[0];
+    for (int m = 1; m < M; m++) {
+        lo_z = fmin(lo_z, cz[m]), hi_z = fmax(hi_z, cz[m]);
+        lo_v = fmin(lo_v, cv[m]), hi_v = fmax(hi_v, cv[m]);
+    }
+    assert_true(lo_z <= -w0 * w0 && -w0 * w0 <= hi_z);
+    assert_true(lo_v <= -2 * sg && -2 * sg <= hi_v);
+    assert_true(hi_z - lo_z < 0.01 * w0 * w0);         /* and they are tight: 3% noise, 800 samples */
+    /* determinism */
+    rng_seed(&rng, 11);
+    assert_int_equal(select_bagged(&lib, &D, NULL, &o, truth, 8, M, &rng, coef2, kept2, &rep2, &st), 0);
+    assert_memory_equal(coef, coef2, (size_t)M * T * sizeof *coef);
+    assert_memory_equal(kept, kept2, (size_t)M * T);
+    rng_seed(&rng, 12);
+    assert_int_equal(select_bagged(&lib, &D, NULL, &o, truth, 8, M, &rng, coef2, kept2, &rep2, &st), 0);
+    assert_true(memcmp(coef, coef2, (size_t)M * T * sizeof *coef) != 0);
+    /* a stand-in law as the trained one: in the pool, chosen by no member */
+    rng_seed(&rng, 11);
+    assert_int_equal(select_bagged(&lib, &D, NULL, &o, standin, 8, M, &rng, coef2, kept2, &rep2, &st), 0);
+    assert_int_equal(rep2.extra, rep2.candidates - 1);
+    assert_int_equal(rep2.agree_extra, 0);
+    assert_int_equal(rep2.agree_selected, M);
+    /* bad arguments */
+    assert_int_equal(select_bagged(&lib, &D, NULL, &o, NULL, 0, M, &rng, coef2, kept2, &rep2, &st), ST_INPUT);
+    assert_non_null(strstr(st.msg, "pool"));
+    assert_int_equal(select_bagged(&lib, &D, NULL, &o, NULL, 4, 0, &rng, coef2, kept2, &rep2, &st), ST_INPUT);
+    free(coef), free(coef2), free(kept), free(kept2);
+    library_free(&lib);
+}
+
+/* The oscillator seen through the warped coordinate u = z + 0.3 z^2 (test_warped_coordinate): no
+ * law of the library is exact, several forecast about alike, and members may differ. Whatever they
+ * choose must be one of the K best laws of the full-data path (by score), never an empty law. */
+static void test_bagged_members_choose_from_the_pool(void **state_) {
+    (void)state_;
+    double dt = 0.04, w0 = 8.27, sg = 0.25;
+    static double state[2 * NREC * NT], target[NREC * NT];
+    long rs[NREC + 1];
+    oscillator(w0, sg, dt, state, target, rs);
+    warp(state, target);
+    Library lib = make_lib(1, 2, 3, 0);
+    int T = lib.n_terms, M = 30, K = 6;
+    SelectData D = {NREC * NT, 2, 1, state, target, NREC, rs, dt};
+    SelectOptions o = select_defaults();
+    double xi[64];
+    uint8_t mask[64];
+    SelectPath p;
+    Status st;
+    assert_int_equal(select_law(&lib, &D, NULL, &o, xi, mask, &p, &st), 0);
+    double *coef = malloc((size_t)M * T * sizeof *coef);
+    uint8_t *kept = malloc((size_t)M * T);
+    SelectBagReport rep;
+    Rng rng;
+    rng_seed(&rng, 5);
+    assert_int_equal(select_bagged(&lib, &D, NULL, &o, NULL, K, M, &rng, coef, kept, &rep, &st), 0);
+    assert_int_equal(rep.candidates, p.n < K ? p.n : K);
+    assert_int_equal(rep.extra, -1);
+    for (int m = 0; m < M; m++) {
+        int in_pool = 0, any = 0;
+        for (int c = 0; c < p.n && !in_pool; c++) {
+            int rank = 0; /* candidates of the path scoring better than c */
+            for (int c2 = 0; c2 < p.n; c2++)
+                rank += p.e[c2].score < p.e[c].score || (p.e[c2].score == p.e[c].score && c2 < c);
+            in_pool = rank < K && !memcmp(p.mask + (long)c * T, kept + (long)m * T, (size_t)T);
+        }
+        for (int t = 0; t < T; t++) any |= kept[(long)m * T + t];
+        assert_true(in_pool && any);
+    }
+    free(coef), free(kept);
+    select_path_free(&p);
+    library_free(&lib);
+}
+
 static void test_boundaries_and_bad_input(void **state_) {
     (void)state_;
     double dt = 0.04, w0 = 8.27, sg = 0.25;
@@ -318,6 +443,8 @@ int main(void) {
         cmocka_unit_test(test_lorenz),
         cmocka_unit_test(test_weak_term_of_one_equation),
         cmocka_unit_test(test_boundaries_and_bad_input),
+        cmocka_unit_test(test_bagged_oscillator),
+        cmocka_unit_test(test_bagged_members_choose_from_the_pool),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -79,18 +79,34 @@ int report_section_ensemble(Report *r, const PageEquations *pe) {
         return status_set(r->st, ST_INPUT, "%s: an ensemble equation whose arrays do not match the %d terms", path, T);
     double thr = page_json_num(e, "inclusion_threshold"), block_s = page_json_num(e, "block_seconds");
     char a[32], b[32], c[32], d[32], g[32];
+    const char *fit = page_json_str(e, "fit");
+    if (fit && !strcmp(fit, "selection")) {
+        char h[32], k[32];
+        fprintf(r->f,
+                "<p>The law was chosen again, by the same forecast-scored selection that chose it in training, on %s "
+                "resamples of its forecast segments (segments of %s samples, %s s, drawn with replacement): each "
+                "resample refits the %s best laws of the selection on all the training data (and the trained law) "
+                "on the drawn segments and keeps the one that forecasts them best for its number of terms. %s of "
+                "%s resamples chose the trained law. ",
+                page_num4(b, sizeof b, page_json_num(e, "members")), page_num4(c, sizeof c, page_json_num(e, "block")),
+                page_num4(d, sizeof d, block_s), page_num4(h, sizeof h, page_json_num(e, "candidates")),
+                page_num4(k, sizeof k, page_json_num(e, "chose_trained_law")),
+                page_num4(a, sizeof a, page_json_num(e, "members")));
+    } else {
+        fprintf(r->f,
+                "<p>The law was fitted again (thresholded least squares at threshold %s) on %s resamples of the "
+                "encoded training set, each made of blocks of %s consecutive samples (%s s) drawn with replacement%s. ",
+                page_num4(a, sizeof a, page_json_num(e, "threshold")), page_num4(b, sizeof b, page_json_num(e, "members")),
+                page_num4(c, sizeof c, page_json_num(e, "block")), page_num4(d, sizeof d, block_s),
+                cJSON_IsTrue(cJSON_GetObjectItemCaseSensitive(e, "library_bagging")) ? ", each also dropping a fraction "
+                                                                                        "of the library's terms"
+                                                                                      : "");
+    }
     fprintf(r->f,
-            "<p>The law was fitted again (thresholded least squares at threshold %s) on %s resamples of the encoded "
-            "training set, each made of blocks of %s consecutive samples (%s s) drawn with replacement%s. "
             "<b>Inclusion</b> is the fraction of fits that kept a term: near 1 the data ask for it, near 0 they "
             "do not, in between they cannot decide. The <b>interval</b> holds the middle 90%% of the fitted "
-            "coefficients (a fit that pruned the term counts as 0). The <b>ensemble law</b> keeps the terms "
+            "coefficients (a fit that left the term out counts as 0). The <b>ensemble law</b> keeps the terms "
             "with inclusion at or above %s, refit on all samples. Terms that no fit kept are not listed.</p>\n",
-            page_num4(a, sizeof a, page_json_num(e, "threshold")), page_num4(b, sizeof b, page_json_num(e, "members")),
-            page_num4(c, sizeof c, page_json_num(e, "block")), page_num4(d, sizeof d, block_s),
-            cJSON_IsTrue(cJSON_GetObjectItemCaseSensitive(e, "library_bagging")) ? ", each also dropping a fraction of "
-                                                                                    "the library's terms"
-                                                                                  : "",
             page_num4(g, sizeof g, thr));
     cJSON_ArrayForEach(q, eqs) {
         const char *lhs = page_json_str(q, "lhs");

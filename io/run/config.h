@@ -32,6 +32,7 @@ typedef enum { MAP_AUTO, MAP_LINEAR, MAP_CURVED, MAP_COUNT } FramesMap;         
 typedef enum { SCHED_CONSTANT, SCHED_STEP, SCHED_COSINE, SCHED_COUNT } LrSchedule;          /* optimizer.schedule */
 typedef enum { MEASURE_COEFFICIENT, MEASURE_CONTRIBUTION, MEASURE_COUNT } ThreshMeasure;    /* threshold.measure */
 typedef enum { SELECT_NONE, SELECT_FIRST, SELECT_EVERY, SELECT_COUNT } ThreshSelect;        /* threshold.select */
+typedef enum { ENSFIT_AUTO, ENSFIT_SELECTION, ENSFIT_THRESHOLDING, ENSFIT_COUNT } EnsembleFit; /* ensemble.method */
 
 /* The names of those enums' values, indexed by value ("central", "savgol", "auto"; ...). */
 extern const char *const deriv_method_names[];    /* (DERIV_METHOD_COUNT) */
@@ -41,6 +42,7 @@ extern const char *const frames_map_names[];      /* (MAP_COUNT) */
 extern const char *const lr_schedule_names[];     /* (SCHED_COUNT) */
 extern const char *const thresh_measure_names[];  /* (MEASURE_COUNT) */
 extern const char *const thresh_select_names[];   /* (SELECT_COUNT) */
+extern const char *const ensemble_fit_names[];    /* (ENSFIT_COUNT) */
 #define CFG_MAX_LIST 16
 #define CFG_NAME_MAX 96
 
@@ -121,6 +123,8 @@ typedef struct {
     double fc_tol;                  /* forecast.tolerance: dopri5 relative tolerance             [1e-8] */
     /* ensemble by bagging after training (safe to change on resume; docs/ensembles.md) */
     int ens_members;                /* ensemble.members                                           [100] */
+    EnsembleFit ens_method;         /* ensemble.method: "auto" | "selection" | "thresholding"     [auto] */
+    int ens_candidates;             /* ensemble.candidates: laws of the selection's path per member [16] */
     long ens_block;                 /* ensemble.block: samples per block; 0 = automatic             [0] */
     double ens_block_seconds;       /* ensemble.block_seconds: > 0 overrides ensemble.block         [0] */
     int ens_bagging;                /* ensemble.library_bagging                                 [false] */

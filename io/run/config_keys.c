@@ -44,6 +44,8 @@ const char *const thresh_measure_names[] = {"coefficient", "contribution"};
 _Static_assert(sizeof thresh_measure_names / sizeof thresh_measure_names[0] == MEASURE_COUNT, "thresh_measure_names");
 const char *const thresh_select_names[] = {"none", "first", "every"};
 _Static_assert(sizeof thresh_select_names / sizeof thresh_select_names[0] == SELECT_COUNT, "thresh_select_names");
+const char *const ensemble_fit_names[] = {"auto", "selection", "thresholding"};
+_Static_assert(sizeof ensemble_fit_names / sizeof ensemble_fit_names[0] == ENSFIT_COUNT, "ensemble_fit_names");
 
 /* Keys that hold a module's enum list its names in the config's own order (the order the docs and
  * the messages give), each with its value; tests/test_config.c checks that every name is the
@@ -246,6 +248,14 @@ const KeyDef config_keys[] = {
     /* ensemble */
     K_INT("ensemble.members", ens_members, "100", 1, ENSEMBLE_MAX_MEMBERS, NULL,
           "fits of the ensemble by bagging on the encoded training set after training (docs/ensembles.md)"),
+    K_CHOICE("ensemble.method", ens_method, "\"auto\"", ensemble_fit_names, NULL,
+          "how each member is fitted: selection = the law's forecast-scored selection bagged over its forecast "
+          "segments (members choose among ensemble.candidates laws); thresholding = thresholded least squares "
+          "at threshold.value on blocks of samples; auto = selection when threshold.select is not none and "
+          "library bagging is off, else thresholding"),
+    K_INT("ensemble.candidates", ens_candidates, "16", 1, 1000, NULL,
+          "ensemble.method selection: the laws each member chooses among (the best of the selection's "
+          "candidates on all the training data, and the trained law)"),
     K_INT("ensemble.block", ens_block, "0", 0, NOMAX, NULL,
           "samples per resampled block of consecutive samples; 0 = automatic: twice the derivative "
           "stencil's window, at least 10"),
@@ -276,7 +286,8 @@ const int config_n_keys = (int)(sizeof config_keys / sizeof config_keys[0]);
 
 const char *const config_resume_safe_keys[] = {
     "train.epochs", "train.threads", "train.validate_every", "checkpoint.every", "checkpoint.keep",
-    "output", "forecast.bound", "forecast.method", "forecast.tolerance", "ensemble.members", "ensemble.block",
+    "output", "forecast.bound", "forecast.method", "forecast.tolerance", "ensemble.members", "ensemble.method",
+    "ensemble.candidates", "ensemble.block",
     "ensemble.block_seconds", "ensemble.library_bagging", "ensemble.drop_fraction", "ensemble.inclusion",
     "ensemble.band_members", "canonical.tolerance", "canonical.cond_max", "train.memory_budget", "data.store", NULL,
 };

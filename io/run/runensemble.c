@@ -37,6 +37,11 @@ int run_ensemble_options(const Config *c, double dt, int m, EnsembleOptions *o, 
     return 0;
 }
 
+int run_ensemble_by_selection(const Config *c) {
+    if (c->ens_method == ENSFIT_AUTO) return c->threshold_select != SELECT_NONE && !c->ens_bagging;
+    return c->ens_method == ENSFIT_SELECTION;
+}
+
 void run_ensemble_free(RunEnsemble *re) {
     if (!re) return;
     ensemble_free(&re->e);
@@ -61,7 +66,27 @@ int run_ensemble_get(LoadedRun *r, int quiet, Status *st) {
     }
     Rng rng;
     rng_seed(&rng, re->seed ^ ENSEMBLE_SEED_MIX);
-    int rc = ensemble_fit(&re->e, &r->m.lib, es.state, es.target, es.rec, es.step, es.N, &re->opt, &rng, st);
+    int rc;
+    re->by_selection = run_ensemble_by_selection(&r->cfg);
+    if (re->by_selection) {
+        /* the selection's data: the samples in training order, a new recording at every gap */
+        long *rs = nn_alloc((size_t)(es.N + 1) * sizeof *rs);
+        int nr = 0;
+        for (long i = 0; i < es.N; i++)
+            if (i == 0 || es.rec[i] != es.rec[i - 1] || es.step[i] != es.step[i - 1] + 1) rs[nr++] = i;
+        rs[nr] = es.N;
+        SelectData D = {es.N, es.n_vars, es.d, es.state, es.target, nr, rs, ds->dt};
+        SelectOptions so = select_defaults();
+        rc = ensemble_fit_select(&re->e, &r->m.lib, &D, &so, r->m.mask, r->cfg.ens_candidates, &re->opt, &rng, st);
+        nn_free(rs);
+        if (rc == ST_INPUT) {
+            char msg[sizeof st->msg];
+            snprintf(msg, sizeof msg, "%s", st->msg);
+            status_set(st, ST_INPUT, "%s: %s", r->cfg.ens_bagging ? "ensemble.library_bagging" : "ensemble.method", msg);
+        }
+    } else {
+        rc = ensemble_fit(&re->e, &r->m.lib, es.state, es.target, es.rec, es.step, es.N, &re->opt, &rng, st);
+    }
     encoded_set_free(&es);
     if (rc) {
         if (re->e.block_too_long) { /* name the key the block came from */
@@ -74,7 +99,16 @@ int run_ensemble_get(LoadedRun *r, int quiet, Status *st) {
     }
     re->fit_seconds = clock_seconds() - t0;
     r->ens = re;
-    if (!quiet) {
+    if (!quiet && re->by_selection) {
+        const SelectBagReport *b = &re->e.bag;
+        fprintf(stderr,
+                "framelaw: ensemble: %d members, each the selection among %d laws, scored on the %d forecast segments "
+                "(%d samples each) drawn with replacement, %.2f s; %d chose the trained law\n",
+                re->e.members, b->candidates, b->segments, b->horizon, re->fit_seconds, b->agree_extra);
+        if (re->e.unreachable)
+            fprintf(stderr, "framelaw: ensemble: %ld samples lie in no forecast segment and are never drawn\n",
+                    re->e.unreachable);
+    } else if (!quiet) {
         fprintf(stderr, "framelaw: ensemble: %d members on %ld training samples (blocks of %ld%s), %.2f s\n",
                 re->e.members, re->e.n_samples, re->opt.block, re->opt.library_bagging ? ", library bagging" : "",
                 re->fit_seconds);
@@ -99,16 +133,24 @@ cJSON *run_ensemble_json(const LoadedRun *r, int digits) {
     const Ensemble *e = &re->e;
     int T = e->n_terms, d = e->n_out;
     cJSON *o = cJSON_CreateObject();
+    long block = re->by_selection ? e->bag.horizon : re->opt.block;
     cJSON_AddStringToObject(o, "method", "bagging");
+    cJSON_AddStringToObject(o, "fit", re->by_selection ? "selection" : "thresholding");
     cJSON_AddNumberToObject(o, "members", e->members);
     cJSON_AddNumberToObject(o, "samples", (double)e->n_samples);
-    cJSON_AddNumberToObject(o, "block", (double)re->opt.block);
-    cJSON_AddNumberToObject(o, "block_seconds", (double)re->opt.block * r->data.ds.dt);
+    cJSON_AddNumberToObject(o, "block", (double)block);
+    cJSON_AddNumberToObject(o, "block_seconds", (double)block * r->data.ds.dt);
+    if (re->by_selection) {
+        cJSON_AddNumberToObject(o, "segments", e->bag.segments);
+        cJSON_AddNumberToObject(o, "candidates", e->bag.candidates);
+        cJSON_AddNumberToObject(o, "chose_trained_law", e->bag.agree_extra);
+        cJSON_AddNumberToObject(o, "chose_selected_law", e->bag.agree_selected);
+    }
     cJSON_AddNumberToObject(o, "unreachable_samples", (double)e->unreachable);
     cJSON_AddBoolToObject(o, "library_bagging", re->opt.library_bagging);
     cJSON_AddNumberToObject(o, "drop_fraction", re->opt.library_bagging ? re->opt.drop_fraction : 0);
     cJSON_AddNumberToObject(o, "inclusion_threshold", re->opt.inclusion);
-    cJSON_AddNumberToObject(o, "threshold", re->opt.lsq.threshold);
+    if (!re->by_selection) cJSON_AddNumberToObject(o, "threshold", re->opt.lsq.threshold);
     cJSON_AddNumberToObject(o, "seed", (double)re->seed);
     cJSON_AddNumberToObject(o, "interval", 0.9);
     cJSON *law = equation_json(&r->m.lib, e->xi, e->mask, digits);
@@ -140,8 +182,14 @@ void run_ensemble_print(FILE *f, const LoadedRun *r) {
     const Ensemble *e = &re->e;
     const Library *lib = &r->m.lib;
     int T = e->n_terms, d = e->n_out;
-    fprintf(f, "ensemble: %d members, blocks of %ld samples; per term: inclusion probability, median [5%%, 95%%]\n",
-            e->members, re->opt.block);
+    if (re->by_selection)
+        fprintf(f,
+                "ensemble: %d members, each the law selected on forecast segments of %d samples drawn with "
+                "replacement (%d of %d chose the trained law); per term: inclusion probability, median [5%%, 95%%]\n",
+                e->members, e->bag.horizon, e->bag.agree_extra, e->members);
+    else
+        fprintf(f, "ensemble: %d members, blocks of %ld samples; per term: inclusion probability, median [5%%, 95%%]\n",
+                e->members, re->opt.block);
     for (int j = 0; j < d; j++) {
         fprintf(f, "  %s%d:\n", lib->spec.order == 2 ? "d2z" : "dz", j + 1);
         for (int t = 0; t < T; t++) {

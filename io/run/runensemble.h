@@ -21,6 +21,7 @@ typedef struct RunEnsemble {
     Ensemble e;
     EnsembleOptions opt;
     int block_from_seconds;     /* 1 when ensemble.block_seconds set the block */
+    int by_selection;           /* 1: members fitted by the selection bagged (ensemble.method) */
     uint64_t seed;              /* train.seed */
     double fit_seconds;         /* wall time: encoding the training set and fitting the members */
     double band_seconds;        /* wall time of the bands integrated so far */
@@ -29,6 +30,10 @@ typedef struct RunEnsemble {
 /* The ensemble options of a config for samples dt seconds apart and a stencil of half-width m
  * (the automatic block). ST_INPUT naming the key for a value the config parser cannot check alone. */
 int run_ensemble_options(const Config *c, double dt, int m, EnsembleOptions *o, int *from_seconds, Status *st);
+
+/* 1 when the config's ensemble is fitted by the selection bagged (ensemble.method selection, or auto
+ * with threshold.select not none and no library bagging), 0 for thresholded least squares. */
+int run_ensemble_by_selection(const Config *c);
 
 /* Fit the ensemble of r once (later calls return at once); r->ens holds it. Prints one summary line
  * on stderr unless quiet. ST_INPUT naming the key (e.g. ensemble.block longer than every
