@@ -238,13 +238,14 @@ static void test_set_members(void **state) {
 
 /* ensemble.method: the run trains with threshold.select none, so auto fits the members by
  * thresholding; selection bags the forecast-scored selection and says so in equations.json (the
- * pool, the segments, how many members chose the trained law); library bagging with selection and a
+ * pool, the segments, how many members chose the trained law) and in the term table (with a note
+ * when fewer than half chose it); library bagging with selection and a
  * pool of 0 laws exit 2 naming the key. */
 static void test_method(void **state) {
     (void)state;
     char args[800], out[16384];
     snprintf(args, sizeof args,
-             "ensemble '%s/run' --quiet --set ensemble.method=selection --set ensemble.library_bagging=false "
+             "ensemble '%s/run' --set ensemble.method=selection --set ensemble.library_bagging=false "
              "--set ensemble.candidates=5 --set ensemble.members=12",
              tmp);
     int rc = test_run_capture(args, out, sizeof out);
@@ -255,6 +256,11 @@ static void test_method(void **state) {
     int cand = cJSON_GetObjectItem(e, "candidates")->valueint, chose = cJSON_GetObjectItem(e, "chose_trained_law")->valueint;
     assert_true(cand >= 1 && cand <= 6); /* the 5 best of the path, and the trained law if not among them */
     assert_true(chose >= 0 && chose <= 12);
+    /* the term table says so when fewer than half of the members chose the trained law */
+    assert_true((strstr(out, "fewer than half of the members chose the trained law") != NULL) == (2 * chose < 12));
+    char want[64];
+    snprintf(want, sizeof want, "(%d of 12 chose the trained law)", chose);
+    assert_non_null(strstr(out, want));
     /* three periods (3 pi s) are longer than the recordings (4 s), so each training recording is one
      * segment of its whole length */
     int segs = cJSON_GetObjectItem(e, "segments")->valueint;

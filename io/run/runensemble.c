@@ -187,6 +187,10 @@ void run_ensemble_print(FILE *f, const LoadedRun *r) {
                 "ensemble: %d members, each the law selected on forecast segments of %d samples drawn with "
                 "replacement (%d of %d chose the trained law); per term: inclusion probability, median [5%%, 95%%]\n",
                 e->members, e->bag.horizon, e->bag.agree_extra, e->members);
+    if (re->by_selection && 2 * e->bag.agree_extra < e->members)
+        fprintf(f,
+                "  fewer than half of the members chose the trained law: the data, in the final latent coordinates, "
+                "do not settle its terms; doubt the terms of inclusion well below 1\n");
     else
         fprintf(f, "ensemble: %d members, blocks of %ld samples; per term: inclusion probability, median [5%%, 95%%]\n",
                 e->members, re->opt.block);
