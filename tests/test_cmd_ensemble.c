@@ -9,6 +9,7 @@
 
 #include <cjson/cJSON.h>
 
+#include "io/run/runensemble.h"
 #include "tests/testutil.h"
 
 static const char CFG[] =
@@ -261,6 +262,7 @@ static void test_method(void **state) {
     char want[64];
     snprintf(want, sizeof want, "(%d of 12 chose the trained law)", chose);
     assert_non_null(strstr(out, want));
+    assert_null(strstr(out, "blocks of")); /* one header, the selection's */
     /* three periods (3 pi s) are longer than the recordings (4 s), so each training recording is one
      * segment of its whole length */
     int segs = cJSON_GetObjectItem(e, "segments")->valueint;
@@ -284,6 +286,44 @@ static void test_method(void **state) {
     expect_exit2("ensemble '%s/run' --set ensemble.method=vote", "ensemble.method");
 }
 
+/* The term table's header, alone: with members by selection it counts the members that chose the
+ * trained law and warns under it when fewer than half did; with thresholding it names the block.
+ * One header line either way. */
+static void test_header(void **state) {
+    (void)state;
+    RunEnsemble re;
+    memset(&re, 0, sizeof re);
+    re.by_selection = 1;
+    re.e.members = 10;
+    re.e.bag.horizon = 58;
+    int agree[3] = {10, 5, 4}, warned[3] = {0, 0, 1};
+    for (int k = 0; k < 3; k++) {
+        re.e.bag.agree_extra = agree[k];
+        char *buf = NULL;
+        size_t n = 0;
+        FILE *f = open_memstream(&buf, &n);
+        assert_non_null(f);
+        run_ensemble_print_header(f, &re);
+        fclose(f);
+        char want[64];
+        snprintf(want, sizeof want, "(%d of 10 chose the trained law)", agree[k]);
+        assert_non_null(strstr(buf, want));
+        assert_int_equal(strstr(buf, "fewer than half") != NULL, warned[k]);
+        assert_null(strstr(buf, "blocks of"));
+        free(buf);
+    }
+    re.by_selection = 0;
+    re.opt.block = 18;
+    char *buf = NULL;
+    size_t n = 0;
+    FILE *f = open_memstream(&buf, &n);
+    run_ensemble_print_header(f, &re);
+    fclose(f);
+    assert_non_null(strstr(buf, "blocks of 18 samples"));
+    assert_null(strstr(buf, "chose"));
+    free(buf);
+}
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_equations_json),
@@ -293,6 +333,7 @@ int main(void) {
         cmocka_unit_test(test_unfinished),
         cmocka_unit_test(test_set_members),
         cmocka_unit_test(test_method),
+        cmocka_unit_test(test_header),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }

@@ -176,24 +176,29 @@ cJSON *run_ensemble_json(const LoadedRun *r, int digits) {
     return o;
 }
 
+void run_ensemble_print_header(FILE *f, const RunEnsemble *re) {
+    const Ensemble *e = &re->e;
+    if (re->by_selection) {
+        fprintf(f,
+                "ensemble: %d members, each the law selected on forecast segments of %d samples drawn with "
+                "replacement (%d of %d chose the trained law); per term: inclusion probability, median [5%%, 95%%]\n",
+                e->members, e->bag.horizon, e->bag.agree_extra, e->members);
+        if (2 * e->bag.agree_extra < e->members)
+            fprintf(f,
+                    "  fewer than half of the members chose the trained law: the data, in the final latent "
+                    "coordinates, do not settle its terms; doubt the terms of inclusion well below 1\n");
+    } else
+        fprintf(f, "ensemble: %d members, blocks of %ld samples; per term: inclusion probability, median [5%%, 95%%]\n",
+                e->members, re->opt.block);
+}
+
 void run_ensemble_print(FILE *f, const LoadedRun *r) {
     const RunEnsemble *re = r->ens;
     if (!re) return;
     const Ensemble *e = &re->e;
     const Library *lib = &r->m.lib;
     int T = e->n_terms, d = e->n_out;
-    if (re->by_selection)
-        fprintf(f,
-                "ensemble: %d members, each the law selected on forecast segments of %d samples drawn with "
-                "replacement (%d of %d chose the trained law); per term: inclusion probability, median [5%%, 95%%]\n",
-                e->members, e->bag.horizon, e->bag.agree_extra, e->members);
-    if (re->by_selection && 2 * e->bag.agree_extra < e->members)
-        fprintf(f,
-                "  fewer than half of the members chose the trained law: the data, in the final latent coordinates, "
-                "do not settle its terms; doubt the terms of inclusion well below 1\n");
-    else
-        fprintf(f, "ensemble: %d members, blocks of %ld samples; per term: inclusion probability, median [5%%, 95%%]\n",
-                e->members, re->opt.block);
+    run_ensemble_print_header(f, re);
     for (int j = 0; j < d; j++) {
         fprintf(f, "  %s%d:\n", lib->spec.order == 2 ? "d2z" : "dz", j + 1);
         for (int t = 0; t < T; t++) {

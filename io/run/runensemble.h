@@ -44,6 +44,10 @@ void run_ensemble_free(RunEnsemble *re);
 /* The "ensemble" object of equations.json (docs/formats.md); NULL when r has no ensemble. */
 cJSON *run_ensemble_json(const LoadedRun *r, int digits);
 
+/* The term table's header: how the members were fitted; with selection, how many chose the trained
+ * law, and a line of warning under it when fewer than half did. */
+void run_ensemble_print_header(FILE *f, const RunEnsemble *re);
+
 /* Print the term table (inclusion, median, interval) and the ensemble law to f. */
 void run_ensemble_print(FILE *f, const LoadedRun *r);
 
