@@ -5,7 +5,8 @@
 # model.order, and nothing else) over several seeds, and check each run with `framelaw verify`.
 # Prints a table (scenario, seeds passing every check, seconds per seed; and the seeds whose
 # canonical law, `framelaw verify --law canonical`, passes every check, reported only) and, for every
-# seed that fails, what verify measured. Passes when each scenario has at least its required count.
+# seed that fails, what verify measured; per seed, the law and how many ensemble members chose it.
+# Passes when each scenario has at least its required count.
 #   SEEDS          seeds to train                                        [1 2 3 4 5]
 #   SCENARIOS      which scenarios             [spring colony pulse puck lantern convection]
 #   BATTERY_SET    extra --set KEY=VALUE overrides for every run, space separated      []
@@ -49,6 +50,9 @@ for sc in $SCENARIOS; do
         grep -v '^verify' "$run.verify" | sed 's/^/  /'
       fi
       grep -A1 '^learned equations' "$run.out" | tail -n 1 | sed 's/^/  law: /'
+      chose=$(grep -o '"chose_trained_law":[[:space:]]*[0-9]*' "$run/equations.json" | grep -o '[0-9]*$')
+      members=$(grep -o '"members":[[:space:]]*[0-9]*' "$run/equations.json" | head -n 1 | grep -o '[0-9]*$')
+      [ -n "$chose" ] && echo "  ensemble: $chose of $members members chose the trained law"
       if "$FRAMELAW" verify --law canonical "$run" > "$run.verify-canonical" 2>&1; then cpass=$((cpass + 1)); fi
       echo "  canonical: $(grep '^law:' "$run.verify-canonical" | cut -c6-); $(tail -n 1 "$run.verify-canonical")"
     else
