@@ -262,6 +262,19 @@ static double score_of(const Library *lib, const SelectOptions *o, double foreca
     return exp(lf / d);
 }
 
+int select_score(const Library *lib, const SelectData *data, const double *xi, const uint8_t *mask,
+                 const SelectOptions *opt, double *score, double *err, Status *st) {
+    int H, S, n;
+    double sd;
+    if (check_data(lib, data, st) || resolve_horizon(lib, data, opt, &H, &S, &sd, st)) return st->code;
+    double sdj[LIB_MAX_VARS], ej[LIB_MAX_VARS];
+    component_scales(data, sdj);
+    double e = forecast_error(lib, data, xi, mask, H, S, sd, sdj, opt->cap, ej, &n);
+    if (err) *err = e;
+    *score = score_of(lib, opt, e, ej, mask, data->d);
+    return 0;
+}
+
 /* Refit the active set m by least squares (x receives the coefficients), score it and append it to
  * the path unless the same set is there already. *idx: the candidate's index in the path (-1 for an
  * empty set or a failed fit). */

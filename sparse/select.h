@@ -111,6 +111,12 @@ int select_law(const Library *lib, const SelectData *data, const uint8_t *allowe
 int select_forecast_error(const Library *lib, const SelectData *data, const double *xi, const uint8_t *mask,
                           const SelectOptions *opt, double *err, int *segments, Status *st);
 
+/* The score select_law gives the law (xi, mask) on data (see above: the forecast error, per equation
+ * with several latent variables, times the parsimony factors of its terms); *err (may be NULL)
+ * receives the pooled forecast error. xi is used as given (no refit). */
+int select_score(const Library *lib, const SelectData *data, const double *xi, const uint8_t *mask,
+                 const SelectOptions *opt, double *score, double *err, Status *st);
+
 /* ---- the selection, bagged -----------------------------------------------------------------------
  *
  * How firmly do the data ask for the law that selection chose? Bag the selection's own units: its

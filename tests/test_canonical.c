@@ -8,6 +8,7 @@
 
 #include "nn/rng.h"
 #include "sparse/canonical.h"
+#include "sparse/canonical_select.h"
 #include "sparse/integrate.h"
 #include "sparse/library.h"
 #include "sparse/optim.h"
@@ -285,17 +286,13 @@ static void pendulum(double t, const double *s, double *d, void *ctx) {
     d[1] = -(G0 / LEN) * sin(s[0]) - DAMP * s[1];
 }
 
-/* Swings from 0.3 to 2.6 rad seen in z = (theta - b) / a (a = 0.6, b = 0.4), z'' with 0.5% noise,
- * the lantern's library (second order, degree 3, no constant, sin and cos of z). In z the library
- * has sin(z) but the law needs sin(0.6 z + 0.4): the learned law is a dense approximation. The
- * canonical step must return exactly sin(w u) and du/dt, with w c_sin = -g/L within 1% and the
- * damping coefficient -c within 2% (both unchanged by any scale or offset of the angle: w u is the
- * angle up to a shift, and d2u/dt2 = a_u theta'' keeps the ratio of the terms). With 0.5% noise on
- * 4000 samples the least-squares errors of both are below 0.1%, so the bounds test the map. */
-static void test_pendulum(void **state) {
-    (void)state;
-    const double a = 0.6, b = 0.4, dt = 0.01, amps[5] = {0.3, 0.9, 1.5, 2.1, 2.6};
-    const int per = 800, n = 5 * per;
+static const double PEND_A = 0.6, PEND_B = 0.4, PEND_DT = 0.01;
+enum { PEND_REC = 5, PEND_PER = 800 };
+
+/* The samples (PEND_REC recordings of PEND_PER, state (n, 2) and target (n)) of the test below. */
+static void pendulum_data(double **s_out, double **y_out) {
+    const double a = PEND_A, b = PEND_B, dt = PEND_DT, amps[PEND_REC] = {0.3, 0.9, 1.5, 2.1, 2.6};
+    const int per = PEND_PER, n = PEND_REC * per;
     double *s = malloc(sizeof(double) * n * 2), *y = malloc(sizeof(double) * n);
     Rng rng;
     rng_seed(&rng, 11);
@@ -316,18 +313,41 @@ static void test_pendulum(void **state) {
     }
     rms = sqrt(rms / n);
     for (int q = 0; q < n; q++) y[q] += 0.005 * rms * rng_normal(&rng);
+    *s_out = s, *y_out = y;
+}
+
+/* The samples above, the lantern's library (second order, degree 3, no constant, sin and cos of z)
+ * and the learned law on it (thresholded least squares at 1e-3). */
+static void pendulum_law(Library *lib, double **s, double **y, double **xi, uint8_t **mask) {
+    pendulum_data(s, y);
     LibrarySpec sp = library_spec_default(1, 2);
     sp.degree = 3;
     sp.constant = 0;
     sp.trig = 1;
     sp.trig_velocity = 0;
+    Status st;
+    assert_int_equal(library_init(lib, &sp, &st), 0);
+    *xi = malloc(sizeof(double) * lib->n_terms);
+    *mask = malloc((size_t)lib->n_terms);
+    fit_law(lib, *s, *y, PEND_REC * PEND_PER, 1e-3, *xi, *mask);
+}
+
+/* Swings from 0.3 to 2.6 rad seen in z = (theta - b) / a (a = 0.6, b = 0.4), z'' with 0.5% noise,
+ * the lantern's library (second order, degree 3, no constant, sin and cos of z). In z the library
+ * has sin(z) but the law needs sin(0.6 z + 0.4): the learned law is a dense approximation. The
+ * canonical step must return exactly sin(w u) and du/dt, with w c_sin = -g/L within 1% and the
+ * damping coefficient -c within 2% (both unchanged by any scale or offset of the angle: w u is the
+ * angle up to a shift, and d2u/dt2 = a_u theta'' keeps the ratio of the terms). With 0.5% noise on
+ * 4000 samples the least-squares errors of both are below 0.1%, so the bounds test the map. */
+static void test_pendulum(void **state) {
+    (void)state;
+    const double a = PEND_A, b = PEND_B;
+    const int n = PEND_REC * PEND_PER;
+    double *s, *y, *xi;
+    uint8_t *mask;
     Library lib;
     Status st;
-    assert_int_equal(library_init(&lib, &sp, &st), 0);
-    int p = lib.n_terms;
-    double *xi = malloc(sizeof(double) * p);
-    uint8_t *mask = malloc((size_t)p);
-    fit_law(&lib, s, y, n, 1e-3, xi, mask);
+    pendulum_law(&lib, &s, &y, &xi, &mask);
     char buf[2048];
     equation_format(buf, sizeof buf, EQ_TEXT, &lib, xi, mask, 5);
     print_message("learned: %s", buf);
@@ -358,6 +378,58 @@ static void test_pendulum(void **state) {
     assert_close(per_u, per_true, 0, 0.01);
     canonical_ode_free(&co);
     canonical_free(&c);
+    free(s), free(y), free(xi), free(mask);
+    library_free(&lib);
+}
+
+/* The forecast choice (sparse/canonical_select.h) on the pendulum's samples above: canonical_find at
+ * tolerance 0 keeps every term that improves the fit at all (a dense law in u); the backward
+ * elimination by the selection's forecast score, with the sine's frequency refitted, must come back
+ * to exactly sin(w u) and du/dt, with w c_sin = -g/L within 1%, the damping -c within 2% and w
+ * within 1% of the angle's scale (the same bounds as the test above, for the same reasons), so the
+ * weak damping (damping ratio c / (2 sqrt(g/L)) = 0.034) is not left out. The score must fall, and
+ * the result must not depend on running it twice (deterministic). */
+static void test_pendulum_forecast_choice(void **state) {
+    (void)state;
+    const int n = PEND_REC * PEND_PER;
+    double *s, *y, *xi;
+    uint8_t *mask;
+    Library lib;
+    Status st;
+    pendulum_law(&lib, &s, &y, &xi, &mask);
+    CanonOptions o = canon_defaults();
+    o.tolerance = 0;
+    long rs[PEND_REC + 1];
+    for (int r = 0; r <= PEND_REC; r++) rs[r] = (long)r * PEND_PER;
+    SelectData D = {n, 2, 1, s, y, PEND_REC, rs, PEND_DT};
+    SelectOptions so = select_defaults();
+    double first[2] = {0, 0};
+    for (int run = 0; run < 2; run++) {
+        Canonical c;
+        assert_int_equal(canonical_find(&c, &lib, xi, mask, s, y, n, &o, &st), 0);
+        print_canonical(&c, &lib);
+        long dense = c.active;
+        CanonSelectReport rep;
+        assert_int_equal(canonical_select(&c, &lib, &D, &so, &rep, &st), 0);
+        print_canonical(&c, &lib);
+        print_message("forecast choice: %ld -> %ld terms, score %.4g -> %.4g, %d laws scored\n", dense, c.active,
+                      rep.score_start, rep.score, rep.steps);
+        assert_true(dense > 2);
+        assert_int_equal(rep.changed, 1);
+        assert_true(rep.score < rep.score_start);
+        assert_int_equal(c.status, CANON_FOUND);
+        assert_int_equal(c.active, 2);
+        double cs = canon_coef(&c, &lib, "sin(z1)", 0), cd = canon_coef(&c, &lib, "dz1/dt", 0);
+        assert_true(cs != 0 && cd != 0);
+        print_message("w c_sin = %.6g (-g/L = %.6g), damping %.6g (-c = %.6g), w %.6g\n", cs * c.w[0], -G0 / LEN, cd,
+                      -DAMP, c.w[0]);
+        assert_close(cs * c.w[0], -G0 / LEN, 0, 0.01);
+        assert_close(cd, -DAMP, 0, 0.02);
+        assert_close(c.w[0], PEND_A, 0, 0.01);
+        if (run == 0) first[0] = cs, first[1] = cd;
+        else assert_true(first[0] == cs && first[1] == cd);
+        canonical_free(&c);
+    }
     free(s), free(y), free(xi), free(mask);
     library_free(&lib);
 }
@@ -594,6 +666,7 @@ int main(void) {
         cmocka_unit_test(test_lorenz),
         cmocka_unit_test(test_monotone_in_tolerance),
         cmocka_unit_test(test_pendulum),
+        cmocka_unit_test(test_pendulum_forecast_choice),
         cmocka_unit_test(test_linear_modal),
         cmocka_unit_test(test_condition_bound),
         cmocka_unit_test(test_cubic_offset),

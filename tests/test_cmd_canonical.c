@@ -207,11 +207,31 @@ static void test_command(void **state) {
     char *cfg = run_file("config.json");
     assert_non_null(strstr(cfg, "\"tolerance\":\t0.1"));
     free(cfg);
+    /* the forecast choice (sparse/canonical_select.h): each equation of the rotation has one term,
+     * which it must keep, so the law stays; equations.json says what the choice did */
+    snprintf(args, sizeof args, "canonical '%s/run' --set canonical.choose=forecast --quiet", tmp);
+    assert_int_equal(test_run_capture(args, out, sizeof out), 0);
+    cfg = run_file("config.json");
+    assert_non_null(strstr(cfg, "\"choose\":\t\"forecast\""));
+    free(cfg);
+    char *eq = run_file("equations.json");
+    cJSON *ej = cJSON_Parse(eq);
+    free(eq);
+    assert_non_null(ej);
+    const cJSON *fc = cJSON_GetObjectItem(cJSON_GetObjectItem(ej, "canonical"), "forecast_choice");
+    assert_non_null(fc);
+    assert_true(cJSON_IsFalse(cJSON_GetObjectItem(fc, "changed")));
+    assert_int_equal(cJSON_GetObjectItem(fc, "terms_before")->valueint, 2);
+    assert_true(cJSON_GetObjectItem(fc, "score")->valuedouble > 0);
+    const cJSON *fit = cJSON_GetObjectItem(cJSON_GetObjectItem(ej, "canonical"), "fit");
+    assert_int_equal(cJSON_GetObjectItem(fit, "active")->valueint, 2);
+    cJSON_Delete(ej);
     static const struct {
         const char *args, *msg;
     } bad[] = {
         {"canonical '%s/run' --set train.epochs=5", "only canonical.* keys may change here"},
         {"canonical '%s/run' --set canonical.cond_max=0.5", "canonical.cond_max: must be a number >= 1"},
+        {"canonical '%s/run' --set canonical.choose=best", "canonical.choose: must be one of fit, forecast"},
         {"canonical '%s/nowhere'", "no such run folder"},
         {"canonical", "missing RUN_DIR"},
         {"canonical '%s/run' --bogus", "--bogus: unknown option"},

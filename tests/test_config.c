@@ -40,7 +40,7 @@ static const char *FULL =
     "  \"ensemble\": {\"members\": 40, \"method\": \"thresholding\", \"candidates\": 9, \"block\": 12,\n"
     "               \"block_seconds\": 0.5, \"library_bagging\": true, \"drop_fraction\": 0.3, \"inclusion\": 0.7,\n"
     "               \"band_members\": 20},\n"
-    "  \"canonical\": {\"tolerance\": 0.1, \"cond_max\": 500},\n"
+    "  \"canonical\": {\"tolerance\": 0.1, \"cond_max\": 500, \"choose\": \"forecast\"},\n"
     "  \"output\": \"runs/full\"\n"
     "}\n";
 
@@ -364,7 +364,8 @@ static void test_digest(void **state) {
                                        "ensemble.block=3", "ensemble.block_seconds=2",
                                        "ensemble.library_bagging=true", "ensemble.drop_fraction=0.5",
                                        "ensemble.inclusion=0.9", "ensemble.band_members=5",
-                                       "canonical.tolerance=0.1", "canonical.cond_max=50", "train.memory_budget=3",
+                                       "canonical.tolerance=0.1", "canonical.cond_max=50", "canonical.choose=forecast",
+                                       "train.memory_budget=3",
                                        "data.store=/elsewhere/s.store"};
     Config s = c;
     for (size_t i = 0; i < sizeof safe / sizeof safe[0]; i++) {
@@ -400,7 +401,7 @@ static void test_digest(void **state) {
         for (int i = 0; config_key_path(i); i++) found |= !strcmp(config_key_path(i), config_resume_safe_keys[n]);
         if (!found) fail_msg("resume-safe key %s is not in the table", config_resume_safe_keys[n]);
     }
-    assert_int_equal(n, 22);
+    assert_int_equal(n, 23);
 }
 
 /* The bad configs: each with the substring its message must hold. The origin prefixes every one. */
@@ -561,6 +562,7 @@ static const char *sched_name(int v) { return lr_schedule_names[v]; }
 static const char *measure_name(int v) { return thresh_measure_names[v]; }
 static const char *select_name(int v) { return thresh_select_names[v]; }
 static const char *ensfit_name(int v) { return ensemble_fit_names[v]; }
+static const char *canon_choose_name(int v) { return canon_choose_names[v]; }
 static const char *ode_name(int v) { return ode_method_names[v]; }
 
 static const struct {
@@ -580,6 +582,7 @@ static const struct {
     {"threshold.measure", offsetof(Config, threshold_measure), measure_name, 0, MEASURE_COUNT},
     {"threshold.select", offsetof(Config, threshold_select), select_name, 0, SELECT_COUNT},
     {"ensemble.method", offsetof(Config, ens_method), ensfit_name, 0, ENSFIT_COUNT},
+    {"canonical.choose", offsetof(Config, canon_choose), canon_choose_name, 0, CANON_CHOOSE_COUNT},
     {"forecast.method", offsetof(Config, fc_method), ode_name, 0, ODE_METHOD_COUNT},
 };
 

@@ -33,6 +33,7 @@ typedef enum { SCHED_CONSTANT, SCHED_STEP, SCHED_COSINE, SCHED_COUNT } LrSchedul
 typedef enum { MEASURE_COEFFICIENT, MEASURE_CONTRIBUTION, MEASURE_COUNT } ThreshMeasure;    /* threshold.measure */
 typedef enum { SELECT_NONE, SELECT_FIRST, SELECT_EVERY, SELECT_COUNT } ThreshSelect;        /* threshold.select */
 typedef enum { ENSFIT_AUTO, ENSFIT_SELECTION, ENSFIT_THRESHOLDING, ENSFIT_COUNT } EnsembleFit; /* ensemble.method */
+typedef enum { CANON_CHOOSE_FIT, CANON_CHOOSE_FORECAST, CANON_CHOOSE_COUNT } CanonChoose; /* canonical.choose */
 
 /* The names of those enums' values, indexed by value ("central", "savgol", "auto"; ...). */
 extern const char *const deriv_method_names[];    /* (DERIV_METHOD_COUNT) */
@@ -43,6 +44,7 @@ extern const char *const lr_schedule_names[];     /* (SCHED_COUNT) */
 extern const char *const thresh_measure_names[];  /* (MEASURE_COUNT) */
 extern const char *const thresh_select_names[];   /* (SELECT_COUNT) */
 extern const char *const ensemble_fit_names[];    /* (ENSFIT_COUNT) */
+extern const char *const canon_choose_names[];    /* (CANON_CHOOSE_COUNT) */
 #define CFG_MAX_LIST 16
 #define CFG_NAME_MAX 96
 
@@ -134,6 +136,7 @@ typedef struct {
     /* canonical (docs/canonical.md) */
     double canon_tolerance;         /* canonical.tolerance: allowed growth of the fit error       [0.05] */
     double canon_cond_max;          /* canonical.cond_max: bound on the map's condition number    [1000] */
+    CanonChoose canon_choose;       /* canonical.choose: "fit" | "forecast"                      [fit] */
     /* output */
     char output[CFG_PATH_MAX];      /* output: run directory                       [runs/<config name>] */
     unsigned char given[16];        /* bit i: key i of the table was given (file, --set), not defaulted */

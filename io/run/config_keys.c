@@ -46,6 +46,8 @@ const char *const thresh_select_names[] = {"none", "first", "every"};
 _Static_assert(sizeof thresh_select_names / sizeof thresh_select_names[0] == SELECT_COUNT, "thresh_select_names");
 const char *const ensemble_fit_names[] = {"auto", "selection", "thresholding"};
 _Static_assert(sizeof ensemble_fit_names / sizeof ensemble_fit_names[0] == ENSFIT_COUNT, "ensemble_fit_names");
+const char *const canon_choose_names[] = {"fit", "forecast"};
+_Static_assert(sizeof canon_choose_names / sizeof canon_choose_names[0] == CANON_CHOOSE_COUNT, "canon_choose_names");
 
 /* Keys that hold a module's enum list its names in the config's own order (the order the docs and
  * the messages give), each with its value; tests/test_config.c checks that every name is the
@@ -278,6 +280,10 @@ const KeyDef config_keys[] = {
     K_NUM("canonical.cond_max", canon_cond_max, "1000", 1, INFINITY, 0,
           "bound on the condition number of the map to canonical coordinates, between standardised "
           "coordinates; a map beyond it is never reported"),
+    K_CHOICE("canonical.choose", canon_choose, "\"fit\"", canon_choose_names, NULL,
+          "how the canonical law's terms are chosen: fit = the fewest terms within canonical.tolerance of the fit "
+          "error; forecast = then leave out terms (and refit the sine frequencies) by the selection's forecast "
+          "score in the canonical coordinates (docs/canonical.md)"),
     /* output */
     K_PATH("output", output, "`runs/<config file stem>`",
            "run directory, relative to the current directory"),
@@ -289,7 +295,7 @@ const char *const config_resume_safe_keys[] = {
     "output", "forecast.bound", "forecast.method", "forecast.tolerance", "ensemble.members", "ensemble.method",
     "ensemble.candidates", "ensemble.block",
     "ensemble.block_seconds", "ensemble.library_bagging", "ensemble.drop_fraction", "ensemble.inclusion",
-    "ensemble.band_members", "canonical.tolerance", "canonical.cond_max", "train.memory_budget", "data.store", NULL,
+    "ensemble.band_members", "canonical.tolerance", "canonical.cond_max", "canonical.choose", "train.memory_budget", "data.store", NULL,
 };
 
 void config_safe_keys_text(char *buf, size_t n) {

@@ -33,6 +33,19 @@ int run_canonical_get(LoadedRun *r, int quiet, Status *st) {
         return st->code;
     }
     int code = canonical_find(&rc->c, &r->m.lib, r->coef.xi, r->coef.mask, es.state, es.target, es.N, &o, st);
+    if (!code && r->cfg.canon_choose == CANON_CHOOSE_FORECAST) {
+        /* the selection's data: the samples in training order, a new recording at every gap */
+        long *rs = nn_alloc((size_t)(es.N + 1) * sizeof *rs);
+        int nr = 0;
+        for (long i = 0; i < es.N; i++)
+            if (i == 0 || es.rec[i] != es.rec[i - 1] || es.step[i] != es.step[i - 1] + 1) rs[nr++] = i;
+        rs[nr] = es.N;
+        SelectData D = {es.N, es.n_vars, es.d, es.state, es.target, nr, rs, r->data.ds.dt};
+        SelectOptions so = select_defaults();
+        code = canonical_select(&rc->c, &r->m.lib, &D, &so, &rc->sel, st);
+        rc->by_forecast = 1;
+        nn_free(rs);
+    }
     encoded_set_free(&es);
     if (code) {
         if (code == ST_INPUT) {
@@ -53,7 +66,18 @@ int run_canonical_get(LoadedRun *r, int quiet, Status *st) {
 
 cJSON *run_canonical_json(const LoadedRun *r, int digits) {
     if (!r->canon) return NULL;
-    return canonical_json(&r->canon->c, &r->m.lib, digits);
+    cJSON *j = canonical_json(&r->canon->c, &r->m.lib, digits);
+    if (j && r->canon->by_forecast) {
+        const CanonSelectReport *s = &r->canon->sel;
+        cJSON *f = cJSON_AddObjectToObject(j, "forecast_choice");
+        cJSON_AddBoolToObject(f, "changed", s->changed);
+        cJSON_AddNumberToObject(f, "terms_before", (double)s->active_start);
+        cJSON_AddNumberToObject(f, "score_before", s->score_start);
+        cJSON_AddNumberToObject(f, "score", s->score);
+        cJSON_AddNumberToObject(f, "forecast_error", s->forecast);
+        cJSON_AddNumberToObject(f, "laws_scored", s->steps);
+    }
+    return j;
 }
 
 /* Text with every line prefixed (the map inside a LaTeX file is a comment). */

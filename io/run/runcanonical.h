@@ -15,13 +15,17 @@
 
 #include "io/run/results.h"
 #include "sparse/canonical.h"
+#include "sparse/canonical_select.h"
 
 typedef struct RunCanonical {
     Canonical c;
+    int by_forecast;            /* canonical.choose forecast: sel holds what the forecast choice did */
+    CanonSelectReport sel;
     double seconds;             /* wall time: encoding the training set and the search */
 } RunCanonical;
 
-/* The search's options from the config (canonical.tolerance, canonical.cond_max). */
+/* The search's options from the config (canonical.tolerance, canonical.cond_max); canonical.choose
+ * forecast adds canonical_select (sparse/canonical_select.h) after the search. */
 CanonOptions run_canonical_options(const Config *c);
 
 /* Find the canonical form of r's law once (later calls return at once); r->canon holds it. Prints one

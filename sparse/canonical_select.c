@@ -1,0 +1,239 @@
+/* sparse/canonical_select.c: the canonical law's terms chosen by the forecast score (see
+ * canonical_select.h). */
+#include "sparse/canonical_select.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "sparse/optim.h"
+#include "sparse/thresh_lsq.h"
+
+enum { GRID = 17, FINE = 9 };
+#define SPAN 3.0
+
+typedef struct {
+    const Library *lib;
+    const SelectData *D;
+    const SelectOptions *o;
+    long N;
+    int k, nv, T;
+    double *us, *uy;            /* (N, nv), (N, k): the samples in u */
+    double *vs, *vy, *theta;    /* work: the samples in v, the library on them */
+    uint8_t *m2;
+} Ctx;
+
+/* The variable (0..k-1) whose w scales term t, -1 for a term without trig. */
+static int trig_var(const Ctx *C, int t) {
+    const Term *tm = &C->lib->terms[t];
+    if (tm->kind != TERM_SIN && tm->kind != TERM_COS) return -1;
+    return tm->var[0] % C->k;
+}
+
+/* Fit (least squares on mask's terms, in v) and score the law at frequencies w; xv (T, k) receives
+ * the coefficients in v. INFINITY when the fit fails. */
+static double trial(Ctx *C, const double *w, const uint8_t *mask, double *xv, double *err) {
+    int k = C->k, nv = C->nv, T = C->T;
+    for (long r = 0; r < C->N; r++) {
+        for (int j = 0; j < nv; j++) C->vs[r * nv + j] = w[j % k] * C->us[r * nv + j];
+        for (int i = 0; i < k; i++) C->vy[r * k + i] = w[i] * C->uy[r * k + i];
+    }
+    library_eval(C->lib, C->theta, C->vs, C->N);
+    ThreshLsqOptions lo = thresh_lsq_defaults();
+    lo.threshold = 0; /* plain least squares on the law's terms, as select_law refits */
+    lo.max_iter = 0;
+    Status s2;
+    if (thresh_lsq_fit(xv, C->m2, C->theta, C->vy, C->N, T, k, mask, &lo, NULL, &s2)) return INFINITY;
+    for (long q = 0; q < (long)T * k; q++)
+        if (!mask[q]) xv[q] = 0;
+    SelectData Dv = *C->D;
+    Dv.state = C->vs, Dv.target = C->vy;
+    double sc, e;
+    if (select_score(C->lib, &Dv, xv, mask, C->o, &sc, &e, &s2)) return INFINITY;
+    if (err) *err = e;
+    return sc;
+}
+
+/* The frequencies for mask: w (k) in: the start, out: the best found; xv the best law's
+ * coefficients. Returns its score. */
+static double fit_w(Ctx *C, const uint8_t *mask, double *w, double *xv, double *err) {
+    int k = C->k, T = C->T;
+    int has[CANON_MAX_K] = {0}, n_trig = 0;
+    for (int t = 0; t < T; t++) {
+        int v = trig_var(C, t);
+        if (v < 0) continue;
+        for (int i = 0; i < k; i++)
+            if (mask[(long)t * k + i]) has[v] = 1;
+    }
+    for (int i = 0; i < k; i++) n_trig += has[i];
+    double *x = nn_alloc((size_t)T * k * sizeof *x), e;
+    double best = trial(C, w, mask, xv, err);
+    for (int sweep = 0; sweep < (n_trig > 1 ? 2 : n_trig); sweep++)
+        for (int i = 0; i < k; i++) {
+            if (!has[i]) continue;
+            double wt[CANON_MAX_K];
+            memcpy(wt, w, sizeof wt);
+            double c0 = log(w[i]), half = log(SPAN), at = c0;
+            /* the grid, then two finer ones around the best point */
+            for (int level = 0; level < 3; level++) {
+                int n = level ? FINE : GRID;
+                double lo = at - half, step = 2 * half / (n - 1);
+                for (int g = 0; g < n; g++) {
+                    wt[i] = exp(lo + step * g);
+                    double s = trial(C, wt, mask, x, &e);
+                    if (s < best) {
+                        best = s, w[i] = wt[i];
+                        memcpy(xv, x, (size_t)T * k * sizeof *x);
+                        if (err) *err = e;
+                    }
+                }
+                at = log(w[i]);
+                half = step;
+            }
+        }
+    nn_free(x);
+    return best;
+}
+
+/* Coefficients in v to coefficients in u: xu = xv g_t / w_i, g_t = prod w^p over a monomial's
+ * variables (1 for the constant and trig terms). */
+static void to_u(const Ctx *C, const double *w, const double *xv, double *xu) {
+    int k = C->k;
+    for (int t = 0; t < C->T; t++) {
+        const Term *tm = &C->lib->terms[t];
+        double g = 1;
+        if (tm->kind == TERM_MONO)
+            for (int f = 0; f < tm->n_fac; f++) g *= pow(w[tm->var[f] % k], tm->pow[f]);
+        for (int i = 0; i < k; i++) xu[(long)t * k + i] = xv[(long)t * k + i] * g / w[i];
+    }
+}
+
+/* c's relative residual per equation (in u) and in total (in z) for its current law. */
+static void refresh_errors(Canonical *c, const Library *lib, const Ctx *C, const SelectData *D) {
+    int k = c->k, T = C->T;
+    double *th = nn_alloc((size_t)T * sizeof *th), Ai[CANON_MAX_K * CANON_MAX_K];
+    la_inverse(Ai, c->A, k);
+    double a[CANON_MAX_K] = {0}, e[CANON_MAX_K] = {0}, az = 0, ez = 0;
+    for (long r = 0; r < C->N; r++) {
+        canonical_eval(c, lib, th, C->us + r * C->nv, 1);
+        double ru[CANON_MAX_K];
+        for (int i = 0; i < k; i++) {
+            double p = 0;
+            for (int t = 0; t < T; t++)
+                if (c->mask[(long)t * k + i]) p += c->xi[(long)t * k + i] * th[t];
+            ru[i] = C->uy[r * k + i] - p;
+            a[i] += C->uy[r * k + i] * C->uy[r * k + i], e[i] += ru[i] * ru[i];
+        }
+        for (int j = 0; j < k; j++) {
+            double rz = 0;
+            for (int i = 0; i < k; i++) rz += Ai[j * k + i] * ru[i];
+            ez += rz * rz, az += D->target[r * k + j] * D->target[r * k + j];
+        }
+    }
+    for (int i = 0; i < k; i++) c->err[i] = a[i] > 0 ? sqrt(e[i] / a[i]) : 0;
+    c->err_total = az > 0 ? sqrt(ez / az) : 0;
+    nn_free(th);
+}
+
+int canonical_select(Canonical *c, const Library *lib, const SelectData *data, const SelectOptions *opt,
+                     CanonSelectReport *rep, Status *st) {
+    memset(rep, 0, sizeof *rep);
+    rep->active_start = c->active;
+    if (c->status != CANON_FOUND && c->status != CANON_UNCHANGED) {
+        status_ok(st);
+        return 0;
+    }
+    int k = c->k, nv = lib->n_vars, T = lib->n_terms;
+    long N = data->N, W = (long)T * k;
+    if (data->d != k || data->n_vars != nv || T != c->n_terms)
+        return status_set(st, ST_INPUT, "canonical selection: the data has %d state values and %d targets, the law %d and %d",
+                          data->n_vars, data->d, nv, k);
+    Ctx C = {lib, data, opt, N, k, nv, T, NULL, NULL, NULL, NULL, NULL, NULL};
+    C.us = nn_alloc((size_t)N * nv * sizeof *C.us);
+    C.uy = nn_alloc((size_t)N * k * sizeof *C.uy);
+    C.vs = nn_alloc((size_t)N * nv * sizeof *C.vs);
+    C.vy = nn_alloc((size_t)N * k * sizeof *C.vy);
+    C.theta = nn_alloc((size_t)N * T * sizeof *C.theta);
+    C.m2 = nn_alloc((size_t)W);
+    canonical_map_state(c, C.us, data->state, N);
+    for (long r = 0; r < N; r++)
+        for (int i = 0; i < k; i++) {
+            double a = 0;
+            for (int j = 0; j < k; j++) a += c->A[i * k + j] * data->target[r * k + j];
+            C.uy[r * k + i] = a;
+        }
+    uint8_t *cur = nn_alloc((size_t)W), *best_m = nn_alloc((size_t)W), *trial_m = nn_alloc((size_t)W);
+    uint8_t *step_m = nn_alloc((size_t)W);
+    double *xv = nn_alloc((size_t)W * sizeof *xv), *best_x = nn_alloc((size_t)W * sizeof *best_x);
+    double *step_x = nn_alloc((size_t)W * sizeof *step_x);
+    double w[CANON_MAX_K], best_w[CANON_MAX_K], e, best_e = 0;
+    for (long q = 0; q < W; q++) cur[q] = c->mask[q] != 0;
+    memcpy(w, c->w, sizeof w);
+    int rc = 0;
+    double s0 = trial(&C, w, cur, xv, &e);
+    if (!isfinite(s0)) {
+        /* the selection refuses the data (say, a segment longer than every recording): say why */
+        SelectData Dv = *data;
+        double sc;
+        rc = select_score(lib, &Dv, c->xi, cur, opt, &sc, NULL, st);
+        if (!rc) rc = status_set(st, ST_RUNTIME, "canonical selection: the canonical law could not be refitted");
+        goto done;
+    }
+    rep->score_start = s0;
+    double best = fit_w(&C, cur, w, best_x, &best_e);
+    memcpy(best_m, cur, (size_t)W);
+    memcpy(best_w, w, sizeof w);
+    long best_n = 0;
+    for (long q = 0; q < W; q++) best_n += cur[q];
+    rep->steps = 1;
+    for (;;) {
+        int cnt[CANON_MAX_K] = {0};
+        for (int t = 0; t < T; t++)
+            for (int i = 0; i < k; i++) cnt[i] += cur[(long)t * k + i];
+        double step_s = INFINITY, step_e = 0, step_w[CANON_MAX_K];
+        for (long q = 0; q < W; q++) {
+            if (!cur[q] || cnt[q % k] < 2) continue;
+            memcpy(trial_m, cur, (size_t)W);
+            trial_m[q] = 0;
+            double wt[CANON_MAX_K];
+            memcpy(wt, w, sizeof wt);
+            double s = fit_w(&C, trial_m, wt, xv, &e);
+            rep->steps++;
+            if (s < step_s) {
+                step_s = s, step_e = e;
+                memcpy(step_m, trial_m, (size_t)W);
+                memcpy(step_x, xv, (size_t)W * sizeof *xv);
+                memcpy(step_w, wt, sizeof wt);
+            }
+        }
+        if (!isfinite(step_s)) break;
+        memcpy(cur, step_m, (size_t)W);
+        memcpy(w, step_w, sizeof w);
+        if (step_s < best) {
+            best = step_s, best_e = step_e;
+            memcpy(best_m, step_m, (size_t)W);
+            memcpy(best_x, step_x, (size_t)W * sizeof *step_x);
+            memcpy(best_w, step_w, sizeof w);
+            best_n = 0;
+            for (long q = 0; q < W; q++) best_n += step_m[q];
+        }
+    }
+    rep->score = best, rep->forecast = best_e;
+    if (best_n < c->active) {
+        to_u(&C, best_w, best_x, c->xi);
+        memcpy(c->mask, best_m, (size_t)W);
+        memcpy(c->w, best_w, sizeof c->w);
+        c->active = best_n;
+        refresh_errors(c, lib, &C, data);
+        /* fewer terms than c's law, so fewer than the learned law's */
+        snprintf(c->note, sizeof c->note, "%ld terms instead of %ld, chosen by the forecast score%s", c->active,
+                 c->active_raw, c->status == CANON_FOUND ? "" : " (the learned coordinates)");
+        c->status = CANON_FOUND;
+        rep->changed = 1;
+    }
+    status_ok(st);
+done:
+    nn_free(C.us), nn_free(C.uy), nn_free(C.vs), nn_free(C.vy), nn_free(C.theta), nn_free(C.m2);
+    nn_free(cur), nn_free(best_m), nn_free(trial_m), nn_free(step_m), nn_free(xv), nn_free(best_x), nn_free(step_x);
+    return rc;
+}

@@ -1,0 +1,47 @@
+/* sparse/canonical_select.h: the canonical law's terms chosen by the forecast score of model selection.
+ *
+ * canonical_find (sparse/canonical.h) keeps a term when leaving it out costs more than the tolerance
+ * in fit error. A fit error cannot tell a weak but real term (a small damping) from a term that only
+ * pays for a warp of the learned coordinate, and the latter is what keeps the lantern's canonical law
+ * at four or five terms (docs/canonical.md). canonical_select judges the terms the way the training's
+ * selection judges a law (sparse/select.h): by the forecast of the law integrated over segments of
+ * the recordings, times the parsimony factors of its terms.
+ *
+ * In the canonical coordinates of c (the map A, b is kept): starting from c's law, backward
+ * elimination by that score: at each step every law with one term fewer (every equation keeps at
+ * least one term) is refitted by least squares on the samples and scored, and the best is taken; the
+ * step goes on to a single term per equation. Each law's trig frequencies w_i are fitted by the
+ * score too (a log grid of 17 values over [w / 3, 3 w] around the parent's w_i, then two finer
+ * grids around the best; coordinate by coordinate, two sweeps with several trig variables): leaving
+ * out a linear term moves the frequency of the sine that remains. The law of smallest score along
+ * the path is reported when it has fewer terms than c's law; else c is left as it was.
+ *
+ * Why a law in u with sin(f w u) can use the selection unchanged: in v_i = w_i u_i the canonical
+ * trig terms are the library's sin(f v_i), every monomial of u is a monomial of v times a constant
+ * (prod w^p), and the target is w_i u_i''; the law is fitted and scored in v, its coefficients mapped
+ * back to u. The score does not depend on the scale of a variable (errors relative to its standard
+ * deviation), so w only acts through the trig terms.
+ *
+ * Pure computation, deterministic. */
+#ifndef SPARSE_CANONICAL_SELECT_H
+#define SPARSE_CANONICAL_SELECT_H
+
+#include "sparse/canonical.h"
+#include "sparse/select.h"
+
+typedef struct {
+    int steps;                  /* laws scored along the path (each with its frequency scan) */
+    double score_start;         /* the score of c's law as canonical_find gave it (its w) */
+    double score, forecast;     /* the chosen law's score and forecast error */
+    long active_start;          /* c's terms before */
+    int changed;                /* 1: c now holds the law chosen by the score */
+} CanonSelectReport;
+
+/* c: a result of canonical_find (status found or unchanged; others are left alone); lib the
+ * library it was found with; data the encoded samples in the learned coordinates z (the same
+ * samples canonical_find saw, in recording order, with their recordings and time step); opt the
+ * selection's options. Returns 0 (rep filled), ST_INPUT for data the selection refuses, ST_RUNTIME. */
+int canonical_select(Canonical *c, const Library *lib, const SelectData *data, const SelectOptions *opt,
+                     CanonSelectReport *rep, Status *st);
+
+#endif
