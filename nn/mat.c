@@ -52,5 +52,10 @@ void nn_set_threads(int n) {
     par_set_threads(n);
 }
 int nn_get_threads(void) { return openblas_get_num_threads(); }
+int nn_set_blas_threads(int n) {
+    int was = openblas_get_num_threads();
+    openblas_set_num_threads(n < 1 ? 1 : n);
+    return was;
+}
 const char *nn_blas_corename(void) { return openblas_get_corename(); }
 const char *nn_blas_config(void) { return openblas_get_config(); }

@@ -21,6 +21,10 @@ void mat_gemm_ref(int trans_a, int trans_b, float alpha, Mat a, Mat b, float bet
 /* Threads used by the matrix products (OpenBLAS). */
 void nn_set_threads(int n);
 int nn_get_threads(void);
+/* Threads of the matrix products alone (OpenBLAS; the pool of nn/par.h keeps its size): 1 around a
+ * par_for whose chunks call BLAS or LAPACK themselves, so that those calls do not split again.
+ * Returns the previous count. */
+int nn_set_blas_threads(int n);
 const char *nn_blas_corename(void);
 const char *nn_blas_config(void);   /* OpenBLAS's build configuration line */
 

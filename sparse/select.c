@@ -5,6 +5,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "nn/mat.h"
+#include "nn/par.h"
 #include "sparse/thresh_lsq.h"
 
 SelectOptions select_defaults(void) {
@@ -422,6 +424,89 @@ static void order_by_score(const SelectPath *p, int *ord) {
     }
 }
 
+/* What the members of select_bagged share, and where each puts its choice. */
+typedef struct {
+    const Library *lib;
+    const SelectData *D;
+    const SelectOptions *o;
+    const uint8_t *pm;          /* (K, T, d) the pool's masks */
+    int K, G, H;
+    double sd;
+    const double *sdj;
+    double bound;
+    const long *seg_a;          /* (G) first sample of each segment */
+    const int *cnt;             /* (members, G) times each member drew each segment */
+    const double *theta;        /* (N, T) the library on the data */
+    double *coef;               /* (members, T, d) */
+    uint8_t *kept;              /* (members, T, d) */
+    int *best_of, *failed;      /* (members) the pool index chosen (-1: none; -2: no memory), failed refits */
+} BagCtx;
+
+/* Members [lo, hi): each refits every law of the pool on its drawn segments' samples, scores it on
+ * those segments and keeps the best. Work of its own per call. */
+static void bag_members(void *ctx, long lo, long hi) {
+    BagCtx *b = ctx;
+    const SelectData *D = b->D;
+    int T = b->lib->n_terms, d = D->d, G = b->G, H = b->H;
+    long w = (long)T * d, N = D->N;
+    double *wt = malloc((size_t)N * sizeof *wt), *thw = malloc((size_t)N * T * sizeof *thw);
+    double *yw = malloc((size_t)N * d * sizeof *yw), *x = malloc((size_t)w * sizeof *x);
+    double *best_x = malloc((size_t)w * sizeof *best_x), *th1 = malloc((size_t)T * sizeof *th1);
+    uint8_t *m2 = malloc((size_t)w);
+    if (!wt || !thw || !yw || !x || !best_x || !th1 || !m2) {
+        for (long m = lo; m < hi; m++) b->best_of[m] = -2, b->failed[m] = 0;
+        goto done;
+    }
+    ThreshLsqOptions lo_opt = thresh_lsq_defaults();
+    lo_opt.threshold = 0; /* plain least squares on the candidate's terms, as select_law refits */
+    lo_opt.max_iter = 0;
+    for (long m = lo; m < hi; m++) {
+        const int *cnt = b->cnt + m * G;
+        memset(wt, 0, (size_t)N * sizeof *wt);
+        for (int g = 0; g < G; g++)
+            for (long i = 0; i < H && cnt[g]; i++) wt[b->seg_a[g] + i] += cnt[g];
+        long n_rows = 0;
+        for (long i = 0; i < N; i++) {
+            if (!(wt[i] > 0)) continue;
+            double s = sqrt(wt[i]);
+            for (int t = 0; t < T; t++) thw[n_rows * T + t] = s * b->theta[i * T + t];
+            for (int j = 0; j < d; j++) yw[n_rows * d + j] = s * D->target[i * d + j];
+            n_rows++;
+        }
+        int best = -1, failed = 0;
+        double best_score = INFINITY;
+        for (int c = 0; c < b->K; c++) {
+            const uint8_t *mc = b->pm + c * w;
+            Status s2;
+            if (thresh_lsq_fit(x, m2, thw, yw, n_rows, T, d, mc, &lo_opt, NULL, &s2)) {
+                failed++;
+                continue;
+            }
+            double tot = 0, tj[LIB_MAX_VARS] = {0};
+            for (int g = 0; g < G; g++) {
+                if (!cnt[g]) continue;
+                double e, ej[LIB_MAX_VARS];
+                segment_error(b->lib, D, x, mc, b->seg_a[g], 0, H, b->sd, b->sdj, b->o->cap, b->bound, th1, &e, ej);
+                tot += cnt[g] * e;
+                for (int j = 0; j < d; j++) tj[j] += cnt[g] * ej[j];
+            }
+            for (int j = 0; j < d; j++) tj[j] /= G;
+            double sc = score_of(b->lib, b->o, tot / G, tj, mc, d);
+            if (sc < best_score) best_score = sc, best = c, memcpy(best_x, x, (size_t)w * sizeof *x);
+        }
+        double *cm = b->coef + m * w;
+        uint8_t *km = b->kept + m * w;
+        memset(km, 0, (size_t)w);
+        for (long i = 0; i < w; i++) cm[i] = 0;
+        if (best >= 0)
+            for (long i = 0; i < w; i++)
+                if (b->pm[best * w + i]) km[i] = 1, cm[i] = best_x[i];
+        b->best_of[m] = best, b->failed[m] = failed;
+    }
+done:
+    free(wt), free(thw), free(yw), free(x), free(best_x), free(th1), free(m2);
+}
+
 int select_bagged(const Library *lib, const SelectData *D, const uint8_t *allowed, const SelectOptions *o,
                   const uint8_t *extra, int pool, int members, Rng *rng, double *coef, uint8_t *kept,
                   SelectBagReport *rep, Status *st) {
@@ -459,13 +544,10 @@ int select_bagged(const Library *lib, const SelectData *D, const uint8_t *allowe
         for (long s0 = 0; s0 + H <= len; s0 += S) G++;
     }
     long *seg_a = malloc((size_t)(G > 0 ? G : 1) * sizeof *seg_a);
-    int *cnt = malloc((size_t)(G > 0 ? G : 1) * sizeof *cnt);
-    double *wt = malloc((size_t)N * sizeof *wt), *theta = malloc((size_t)N * T * sizeof *theta);
-    double *thw = malloc((size_t)N * T * sizeof *thw), *yw = malloc((size_t)N * d * sizeof *yw);
-    double *x = malloc((size_t)w * sizeof *x), *best_x = malloc((size_t)w * sizeof *best_x);
-    double *th1 = malloc((size_t)T * sizeof *th1);
-    uint8_t *m2 = malloc((size_t)w);
-    if (!ord || !pm || !seg_a || !cnt || !wt || !theta || !thw || !yw || !x || !best_x || !th1 || !m2) {
+    int *cnt = malloc((size_t)members * (G > 0 ? G : 1) * sizeof *cnt);
+    double *theta = malloc((size_t)N * T * sizeof *theta);
+    int *best_of = malloc((size_t)members * sizeof *best_of), *failed = malloc((size_t)members * sizeof *failed);
+    if (!ord || !pm || !seg_a || !cnt || !theta || !best_of || !failed) {
         rc = status_set(st, ST_RUNTIME, "out of memory");
         goto done;
     }
@@ -494,58 +576,31 @@ int select_bagged(const Library *lib, const SelectData *D, const uint8_t *allowe
     }
     rep->candidates = K, rep->segments = G, rep->horizon = H, rep->uncovered = uncovered;
     for (long i = 0; i < N; i++) library_eval(lib, theta + i * T, D->state + i * nv, 1);
-    ThreshLsqOptions lo = thresh_lsq_defaults();
-    lo.threshold = 0; /* plain least squares on the candidate's terms, as select_law refits */
-    lo.max_iter = 0;
+    /* the draws first, member after member (the bits do not depend on the threads), then the
+     * members in parallel, each with its own work; BLAS and LAPACK single-threaded inside */
     for (int m = 0; m < members; m++) {
-        memset(cnt, 0, (size_t)G * sizeof *cnt);
-        for (int k = 0; k < G; k++) cnt[rng_below(rng, (uint64_t)G)]++;
-        memset(wt, 0, (size_t)N * sizeof *wt);
-        for (int g = 0; g < G; g++)
-            for (long i = 0; i < H && cnt[g]; i++) wt[seg_a[g] + i] += cnt[g];
-        long n_rows = 0;
-        for (long i = 0; i < N; i++) {
-            if (!(wt[i] > 0)) continue;
-            double s = sqrt(wt[i]);
-            for (int t = 0; t < T; t++) thw[n_rows * T + t] = s * theta[i * T + t];
-            for (int j = 0; j < d; j++) yw[n_rows * d + j] = s * D->target[i * d + j];
-            n_rows++;
+        int *cm = cnt + (long)m * G;
+        memset(cm, 0, (size_t)G * sizeof *cm);
+        for (int k = 0; k < G; k++) cm[rng_below(rng, (uint64_t)G)]++;
+    }
+    BagCtx bc = {lib, D, o, pm, K, G, H, sd, sdj, bound, seg_a, cnt, theta, coef, kept, best_of, failed};
+    int blas = nn_set_blas_threads(1);
+    par_for(members, 1, bag_members, &bc);
+    nn_set_blas_threads(blas);
+    for (int m = 0; m < members; m++)
+        if (best_of[m] == -2) {
+            rc = status_set(st, ST_RUNTIME, "out of memory");
+            goto done;
         }
-        int best = -1;
-        double best_score = INFINITY;
-        for (int c = 0; c < K; c++) {
-            const uint8_t *mc = pm + c * w;
-            Status s2;
-            if (thresh_lsq_fit(x, m2, thw, yw, n_rows, T, d, mc, &lo, NULL, &s2)) {
-                rep->failed_fits++;
-                continue;
-            }
-            double tot = 0, tj[LIB_MAX_VARS] = {0};
-            for (int g = 0; g < G; g++) {
-                if (!cnt[g]) continue;
-                double e, ej[LIB_MAX_VARS];
-                segment_error(lib, D, x, mc, seg_a[g], 0, H, sd, sdj, o->cap, bound, th1, &e, ej);
-                tot += cnt[g] * e;
-                for (int j = 0; j < d; j++) tj[j] += cnt[g] * ej[j];
-            }
-            for (int j = 0; j < d; j++) tj[j] /= G;
-            double sc = score_of(lib, o, tot / G, tj, mc, d);
-            if (sc < best_score) best_score = sc, best = c, memcpy(best_x, x, (size_t)w * sizeof *x);
-        }
-        double *cm = coef + (long)m * w;
-        uint8_t *km = kept + (long)m * w;
-        memset(km, 0, (size_t)w);
-        for (long i = 0; i < w; i++) cm[i] = 0;
-        if (best < 0) continue;
-        for (long i = 0; i < w; i++)
-            if (pm[best * w + i]) km[i] = 1, cm[i] = best_x[i];
-        rep->agree_selected += best == rep->selected;
-        rep->agree_extra += best == rep->extra;
+    for (int m = 0; m < members; m++) {
+        rep->failed_fits += failed[m];
+        if (best_of[m] < 0) continue;
+        rep->agree_selected += best_of[m] == rep->selected;
+        rep->agree_extra += best_of[m] == rep->extra;
     }
     status_ok(st);
 done:
-    free(m_sel), free(ord), free(pm), free(seg_a), free(cnt), free(wt), free(theta), free(thw), free(yw), free(x);
-    free(best_x), free(th1), free(m2);
+    free(m_sel), free(ord), free(pm), free(seg_a), free(cnt), free(theta), free(best_of), free(failed);
     select_path_free(&p);
     return rc;
 }

@@ -5,6 +5,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include <cjson/cJSON.h>
 
@@ -14,6 +15,7 @@
 #include "io/data/series.h"
 #include "io/run/runcanonical.h"
 #include "io/run/runensemble.h"
+#include "nn/mat.h"
 #include "sparse/equation.h"
 #include "sparse/integrate.h"
 
@@ -40,6 +42,9 @@ int loaded_run_open(LoadedRun *r, const char *run_dir, Status *st) {
     memset(r, 0, sizeof *r);
     snprintf(r->dir, sizeof r->dir, "%s", run_dir);
     if (run_config_load(run_dir, &r->cfg, st) || run_frames_reachable(run_dir, &r->cfg, "export", st)) return st->code;
+    /* the run's threads, as training set them (train.threads, 0: every core): the encoding, the
+     * ensemble's members; the results do not depend on them */
+    nn_set_threads(r->cfg.threads > 0 ? r->cfg.threads : (int)sysconf(_SC_NPROCESSORS_ONLN));
     if (rundata_open(&r->data, &r->cfg, st)) {
         rundata_close(&r->data);
         return st->code;
