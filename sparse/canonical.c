@@ -1779,6 +1779,30 @@ void canonical_map_state(const Canonical *c, double *sigma, const double *s, lon
     memcpy(m.b, c->b, sizeof m.b);
     memcpy(m.w, c->w, sizeof m.w);
     map_state(c->k, c->order, &m, sigma, s, B);
+    if (c->k != 1 || c->c3[0] == 0) return;
+    int nv = c->k * c->order;
+    for (long r = 0; r < B; r++) {
+        double z = s[r * nv];
+        sigma[r * nv] += c->c3[0] * z * z * z;
+        if (c->order == 2) sigma[r * nv + 1] += 3 * c->c3[0] * z * z * s[r * nv + 1];
+    }
+}
+
+void canonical_map_target(const Canonical *c, double *yu, const double *s, const double *y, long B) {
+    int k = c->k, nv = k * c->order;
+    for (long r = 0; r < B; r++) {
+        if (k == 1 && c->c3[0] != 0) {
+            double z = s[r * nv], g1 = c->A[0] + 3 * c->c3[0] * z * z;
+            yu[r] = g1 * y[r];
+            if (c->order == 2) yu[r] += 6 * c->c3[0] * z * s[r * nv + 1] * s[r * nv + 1];
+            continue;
+        }
+        for (int i = 0; i < k; i++) {
+            double a = 0;
+            for (int j = 0; j < k; j++) a += c->A[i * k + j] * y[r * k + j];
+            yu[r * k + i] = a;
+        }
+    }
 }
 
 void canonical_eval(const Canonical *c, const Library *lib, double *theta, const double *sigma, long B) {
@@ -1898,20 +1922,28 @@ static int map_term_name(const void *vctx, int t, EqStyle style, char *buf, size
         snprintf(buf, n, "1");
         return 1;
     }
+    if (t == ctx->k + 1) { /* the cubic warp of one variable */
+        char z[24];
+        library_symbol_name('z', 0, 0, name_style(style), z, sizeof z);
+        snprintf(buf, n, style == EQ_LATEX ? "%s^{3}" : "%s^3", z);
+        return 0;
+    }
     library_symbol_name('z', t, 0, name_style(style), buf, n);
     return 0;
 }
 
 /* Row i of the map as "u1 = 0.5*z1 - 0.2*z2 + 1.3" (text) or LaTeX. */
 static size_t map_line(char *buf, size_t n, EqStyle style, const Canonical *c, int i, int digits) {
-    double row[KMAX + 1];
+    double row[KMAX + 2];
     for (int j = 0; j < c->k; j++) row[j] = c->A[i * c->k + j];
     row[c->k] = c->b[i];
+    int warp = c->k == 1 && c->c3[0] != 0;
+    row[c->k + 1] = warp ? c->c3[0] : 0;
     char u[32], lhs[40];
     library_symbol_name('u', i, 0, name_style(style), u, sizeof u);
     snprintf(lhs, sizeof lhs, style == EQ_LATEX ? "%s &=" : "%s =", u);
     MapNameCtx ctx = {c->k};
-    return equation_line_with(buf, n, style, lhs, c->k + 1, map_term_name, &ctx, row, NULL, 1, digits);
+    return equation_line_with(buf, n, style, lhs, c->k + 1 + warp, map_term_name, &ctx, row, NULL, 1, digits);
 }
 
 size_t canonical_format_map(char *buf, size_t n, const Canonical *c, int digits) {
@@ -1968,6 +2000,7 @@ cJSON *canonical_json(const Canonical *c, const Library *lib, int digits) {
     for (int i = 0; i < k; i++) cJSON_AddItemToArray(A, exact_array(c->A + i * k, k));
     cJSON_AddItemToObject(mp, "b", exact_array(c->b, k));
     cJSON_AddItemToObject(mp, "w", exact_array(c->w, k));
+    if (k == 1 && c->c3[0] != 0) cJSON_AddItemToObject(mp, "c3", exact_array(c->c3, k));
     cJSON_AddItemToObject(mp, "cond", equation_exact_number(c->cond));
     cJSON *mt = cJSON_AddArrayToObject(mp, "text");
     for (int i = 0; i < k; i++) {

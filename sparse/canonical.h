@@ -85,6 +85,8 @@ typedef struct {
     double A[CANON_MAX_K * CANON_MAX_K];   /* (k, k) u = A z + b */
     double b[CANON_MAX_K];   /* (k) */
     double w[CANON_MAX_K];   /* (k) frequency factor of the trig terms of u_i (and du_i/dt): sin(f w_i u_i) */
+    double c3[CANON_MAX_K];  /* (k) cubic warp of the map, one latent variable only: u = A z + b + c3 z^3
+                              * (0 unless canonical_select chose one, sparse/canonical_select.h) */
     double cond;             /* condition number of A between standardised coordinates (1 for A = I) */
     double *xi;              /* (n_terms, k) the canonical law on the library's terms, in u */
     uint8_t *mask;           /* (n_terms, k) */
@@ -103,8 +105,12 @@ int canonical_find(Canonical *out, const Library *lib, const double *xi, const u
                    const double *y, long N, const CanonOptions *opt, Status *st);
 void canonical_free(Canonical *c);
 
-/* The canonical state sigma (B, n_vars) of learned states s (B, n_vars): u = A z + b, u' = A z'. */
+/* The canonical state sigma (B, n_vars) of learned states s (B, n_vars): u = g(z) = A z + b (+ c3 z^3),
+ * u' = g'(z) z' (A z' without the warp). */
 void canonical_map_state(const Canonical *c, double *sigma, const double *s, long B);
+/* The canonical target yu (B, k) of learned states s and targets y (B, k): u' = g'(z) z' (first
+ * order), u'' = g'(z) z'' + g''(z) z'^2 (second); A y without the warp. */
+void canonical_map_target(const Canonical *c, double *yu, const double *s, const double *y, long B);
 /* The canonical library theta (B, n_terms) at canonical states sigma (B, n_vars): the library's
  * terms with sin(f x) and cos(f x) of variable i taken at f w_i x. */
 void canonical_eval(const Canonical *c, const Library *lib, double *theta, const double *sigma, long B);

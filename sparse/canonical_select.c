@@ -11,6 +11,8 @@
 
 enum { GRID = 17, FINE = 9 };
 #define SPAN 3.0
+#define W_SPAN_MIN 1.5
+#define W_SPAN_MAX 20.0
 
 typedef struct {
     const Library *lib;
@@ -21,6 +23,7 @@ typedef struct {
     double *us, *uy;            /* (N, nv), (N, k): the samples in u */
     double *vs, *vy, *theta;    /* work: the samples in v, the library on them */
     uint8_t *m2;
+    double umax[CANON_MAX_K];   /* largest |u_i| over the samples: the frequencies' range */
 } Ctx;
 
 /* The variable (0..k-1) whose w scales term t, -1 for a term without trig. */
@@ -80,6 +83,10 @@ static double fit_w(Ctx *C, const uint8_t *mask, double *w, double *xv, double *
                 double lo = at - half, step = 2 * half / (n - 1);
                 for (int g = 0; g < n; g++) {
                     wt[i] = exp(lo + step * g);
+                    /* a sine whose argument spans less than 1.5 radians over the data is nearly a
+                     * polynomial in disguise (u - sin(e u) / e ~ e^2 u^3 / 6); beyond 20 radians
+                     * it resolves no shape the samples show */
+                    if (wt[i] * C->umax[i] < W_SPAN_MIN || wt[i] * C->umax[i] > W_SPAN_MAX) continue;
                     double s = trial(C, wt, mask, x, &e);
                     if (s < best) {
                         best = s, w[i] = wt[i];
@@ -108,7 +115,8 @@ static void to_u(const Ctx *C, const double *w, const double *xv, double *xu) {
     }
 }
 
-/* c's relative residual per equation (in u) and in total (in z) for its current law. */
+/* c's relative residual per equation (in u) and in total (in z: A^-1 r_u, or r_u / g'(z) with a
+ * cubic warp) for its current law. */
 static void refresh_errors(Canonical *c, const Library *lib, const Ctx *C, const SelectData *D) {
     int k = c->k, T = C->T;
     double *th = nn_alloc((size_t)T * sizeof *th), Ai[CANON_MAX_K * CANON_MAX_K];
@@ -127,12 +135,89 @@ static void refresh_errors(Canonical *c, const Library *lib, const Ctx *C, const
         for (int j = 0; j < k; j++) {
             double rz = 0;
             for (int i = 0; i < k; i++) rz += Ai[j * k + i] * ru[i];
+            if (k == 1 && c->c3[0] != 0) {
+                double z = D->state[r * C->nv];
+                rz = ru[0] / (c->A[0] + 3 * c->c3[0] * z * z);
+            }
             ez += rz * rz, az += D->target[r * k + j] * D->target[r * k + j];
         }
     }
     for (int i = 0; i < k; i++) c->err[i] = a[i] > 0 ? sqrt(e[i] / a[i]) : 0;
     c->err_total = az > 0 ? sqrt(ez / az) : 0;
     nn_free(th);
+}
+
+/* The best law of one elimination path. */
+typedef struct {
+    double score, forecast;
+    double w[CANON_MAX_K];
+    uint8_t *m;                 /* (T, k) */
+    double *x;                  /* (T, k) in v */
+    long n;
+} Best;
+
+/* The samples in u for the map of c (its warp included). */
+static void set_samples(Ctx *C, const Canonical *c) {
+    canonical_map_state(c, C->us, C->D->state, C->N);
+    canonical_map_target(c, C->uy, C->D->state, C->D->target, C->N);
+    for (int i = 0; i < C->k; i++) {
+        C->umax[i] = 0;
+        for (long r = 0; r < C->N; r++) C->umax[i] = fmax(C->umax[i], fabs(C->us[r * C->nv + i]));
+    }
+}
+
+/* Backward elimination by the score from m0 (frequencies from w0), each score times pen; the best
+ * law along the way in *b (when better than b->score). Returns the laws scored. */
+static int eliminate(Ctx *C, const uint8_t *m0, const double *w0, double pen, Best *b) {
+    int k = C->k, T = C->T, steps = 0;
+    long W = (long)T * k;
+    uint8_t *cur = nn_alloc((size_t)W), *trial_m = nn_alloc((size_t)W), *step_m = nn_alloc((size_t)W);
+    double *xv = nn_alloc((size_t)W * sizeof *xv), *step_x = nn_alloc((size_t)W * sizeof *step_x);
+    double w[CANON_MAX_K], e;
+    memcpy(cur, m0, (size_t)W);
+    memcpy(w, w0, sizeof w);
+    double s = pen * fit_w(C, cur, w, xv, &e);
+    steps++;
+    for (;;) {
+        if (s < b->score) {
+            b->score = s, b->forecast = e, b->n = 0;
+            memcpy(b->m, cur, (size_t)W);
+            memcpy(b->x, xv, (size_t)W * sizeof *xv);
+            memcpy(b->w, w, sizeof w);
+            for (long q = 0; q < W; q++) b->n += cur[q];
+        }
+        int cnt[CANON_MAX_K] = {0};
+        for (int t = 0; t < T; t++)
+            for (int i = 0; i < k; i++) cnt[i] += cur[(long)t * k + i];
+        double step_s = INFINITY, step_e = 0, step_w[CANON_MAX_K];
+        for (long q = 0; q < W; q++) {
+            if (!cur[q] || cnt[q % k] < 2) continue;
+            memcpy(trial_m, cur, (size_t)W);
+            trial_m[q] = 0;
+            double wt[CANON_MAX_K];
+            memcpy(wt, w, sizeof wt);
+            double st = pen * fit_w(C, trial_m, wt, xv, &e);
+            steps++;
+            if (st < step_s) {
+                step_s = st, step_e = e;
+                memcpy(step_m, trial_m, (size_t)W);
+                memcpy(step_x, xv, (size_t)W * sizeof *xv);
+                memcpy(step_w, wt, sizeof wt);
+            }
+        }
+        if (!isfinite(step_s)) break;
+        memcpy(cur, step_m, (size_t)W);
+        memcpy(xv, step_x, (size_t)W * sizeof *xv);
+        memcpy(w, step_w, sizeof w);
+        s = step_s, e = step_e;
+    }
+    nn_free(cur), nn_free(trial_m), nn_free(step_m), nn_free(xv), nn_free(step_x);
+    return steps;
+}
+
+/* 1 when u = A z + b + a z^3 is increasing over the data's z, with a margin: g' >= A / 5. */
+static int warp_ok(const Canonical *c, double a, double zmax) {
+    return c->A[0] + 3 * a * zmax * zmax >= 0.2 * c->A[0] && (a >= 0 || c->A[0] > 0);
 }
 
 int canonical_select(Canonical *c, const Library *lib, const SelectData *data, const SelectOptions *opt,
@@ -148,92 +233,92 @@ int canonical_select(Canonical *c, const Library *lib, const SelectData *data, c
     if (data->d != k || data->n_vars != nv || T != c->n_terms)
         return status_set(st, ST_INPUT, "canonical selection: the data has %d state values and %d targets, the law %d and %d",
                           data->n_vars, data->d, nv, k);
-    Ctx C = {lib, data, opt, N, k, nv, T, NULL, NULL, NULL, NULL, NULL, NULL};
+    Ctx C = {lib, data, opt, N, k, nv, T, NULL, NULL, NULL, NULL, NULL, NULL, {0}};
     C.us = nn_alloc((size_t)N * nv * sizeof *C.us);
     C.uy = nn_alloc((size_t)N * k * sizeof *C.uy);
     C.vs = nn_alloc((size_t)N * nv * sizeof *C.vs);
     C.vy = nn_alloc((size_t)N * k * sizeof *C.vy);
     C.theta = nn_alloc((size_t)N * T * sizeof *C.theta);
     C.m2 = nn_alloc((size_t)W);
-    canonical_map_state(c, C.us, data->state, N);
-    for (long r = 0; r < N; r++)
-        for (int i = 0; i < k; i++) {
-            double a = 0;
-            for (int j = 0; j < k; j++) a += c->A[i * k + j] * data->target[r * k + j];
-            C.uy[r * k + i] = a;
-        }
-    uint8_t *cur = nn_alloc((size_t)W), *best_m = nn_alloc((size_t)W), *trial_m = nn_alloc((size_t)W);
-    uint8_t *step_m = nn_alloc((size_t)W);
-    double *xv = nn_alloc((size_t)W * sizeof *xv), *best_x = nn_alloc((size_t)W * sizeof *best_x);
-    double *step_x = nn_alloc((size_t)W * sizeof *step_x);
-    double w[CANON_MAX_K], best_w[CANON_MAX_K], e, best_e = 0;
-    for (long q = 0; q < W; q++) cur[q] = c->mask[q] != 0;
-    memcpy(w, c->w, sizeof w);
+    Canonical cw = *c; /* the map with a trial warp (shares c's arrays, which map_* do not read) */
+    cw.c3[0] = 0;
+    set_samples(&C, &cw);
+    uint8_t *m0 = nn_alloc((size_t)W);
+    double *xv = nn_alloc((size_t)W * sizeof *xv), e;
+    Best b = {INFINITY, 0, {0}, nn_alloc((size_t)W), nn_alloc((size_t)W * sizeof(double)), 0};
+    for (long q = 0; q < W; q++) m0[q] = c->mask[q] != 0;
     int rc = 0;
-    double s0 = trial(&C, w, cur, xv, &e);
+    double s0 = trial(&C, c->w, m0, xv, &e);
     if (!isfinite(s0)) {
         /* the selection refuses the data (say, a segment longer than every recording): say why */
-        SelectData Dv = *data;
         double sc;
-        rc = select_score(lib, &Dv, c->xi, cur, opt, &sc, NULL, st);
+        rc = select_score(lib, data, c->xi, m0, opt, &sc, NULL, st);
         if (!rc) rc = status_set(st, ST_RUNTIME, "canonical selection: the canonical law could not be refitted");
         goto done;
     }
     rep->score_start = s0;
-    double best = fit_w(&C, cur, w, best_x, &best_e);
-    memcpy(best_m, cur, (size_t)W);
-    memcpy(best_w, w, sizeof w);
-    long best_n = 0;
-    for (long q = 0; q < W; q++) best_n += cur[q];
-    rep->steps = 1;
-    for (;;) {
-        int cnt[CANON_MAX_K] = {0};
-        for (int t = 0; t < T; t++)
-            for (int i = 0; i < k; i++) cnt[i] += cur[(long)t * k + i];
-        double step_s = INFINITY, step_e = 0, step_w[CANON_MAX_K];
-        for (long q = 0; q < W; q++) {
-            if (!cur[q] || cnt[q % k] < 2) continue;
-            memcpy(trial_m, cur, (size_t)W);
-            trial_m[q] = 0;
-            double wt[CANON_MAX_K];
-            memcpy(wt, w, sizeof wt);
-            double s = fit_w(&C, trial_m, wt, xv, &e);
-            rep->steps++;
-            if (s < step_s) {
-                step_s = s, step_e = e;
-                memcpy(step_m, trial_m, (size_t)W);
-                memcpy(step_x, xv, (size_t)W * sizeof *xv);
-                memcpy(step_w, wt, sizeof wt);
+    rep->steps = eliminate(&C, m0, c->w, 1, &b);
+    double best_a = 0;
+    if (k == 1) {
+        /* the cubic warp: a coarse grid of a z_rms^2, an elimination at each, then two finer grids
+         * with the best law's terms; the warp costs what a cubic term costs */
+        double zq = 0, zmax = 0;
+        for (long r = 0; r < N; r++) {
+            double z = data->state[r * nv];
+            zq += z * z, zmax = fmax(zmax, fabs(z));
+        }
+        double zr2 = zq / (double)N, pen = 1 + 3 * opt->tol;
+        static const double R[] = {-0.15, -0.11, -0.08, -0.06, -0.04, -0.03, -0.02, -0.015, -0.01, -0.0075, -0.005, -0.0025,
+                                   0.0025, 0.005, 0.0075, 0.01, 0.015, 0.02, 0.03, 0.04, 0.06, 0.08, 0.11, 0.15};
+        for (size_t g = 0; zr2 > 0 && g < sizeof R / sizeof R[0]; g++) {
+            cw.c3[0] = R[g] / zr2;
+            if (!warp_ok(c, cw.c3[0], zmax)) continue;
+            set_samples(&C, &cw);
+            double before = b.score;
+            rep->steps += eliminate(&C, m0, c->w, pen, &b);
+            if (b.score < before) best_a = cw.c3[0];
+        }
+        if (best_a != 0) {
+            double half = 0.5 * fabs(best_a);
+            for (int level = 0; level < 2; level++, half /= 4) {
+                double centre = best_a;
+                for (int g = -4; g <= 4; g++) {
+                    cw.c3[0] = centre + half * g / 4;
+                    if (g == 0 || cw.c3[0] == 0 || !warp_ok(c, cw.c3[0], zmax)) continue;
+                    set_samples(&C, &cw);
+                    double wt[CANON_MAX_K];
+                    memcpy(wt, b.w, sizeof wt);
+                    double s = pen * fit_w(&C, b.m, wt, xv, &e);
+                    rep->steps++;
+                    if (s < b.score) {
+                        b.score = s, b.forecast = e, best_a = cw.c3[0];
+                        memcpy(b.x, xv, (size_t)W * sizeof *xv);
+                        memcpy(b.w, wt, sizeof wt);
+                    }
+                }
             }
         }
-        if (!isfinite(step_s)) break;
-        memcpy(cur, step_m, (size_t)W);
-        memcpy(w, step_w, sizeof w);
-        if (step_s < best) {
-            best = step_s, best_e = step_e;
-            memcpy(best_m, step_m, (size_t)W);
-            memcpy(best_x, step_x, (size_t)W * sizeof *step_x);
-            memcpy(best_w, step_w, sizeof w);
-            best_n = 0;
-            for (long q = 0; q < W; q++) best_n += step_m[q];
-        }
     }
-    rep->score = best, rep->forecast = best_e;
-    if (best_n < c->active) {
-        to_u(&C, best_w, best_x, c->xi);
-        memcpy(c->mask, best_m, (size_t)W);
-        memcpy(c->w, best_w, sizeof c->w);
-        c->active = best_n;
+    rep->score = b.score, rep->forecast = b.forecast, rep->warp = best_a;
+    if (b.n < c->active) {
+        cw.c3[0] = best_a;
+        set_samples(&C, &cw);
+        to_u(&C, b.w, b.x, c->xi);
+        memcpy(c->mask, b.m, (size_t)W);
+        memcpy(c->w, b.w, sizeof c->w);
+        if (k == 1) c->c3[0] = best_a;
+        c->active = b.n;
         refresh_errors(c, lib, &C, data);
         /* fewer terms than c's law, so fewer than the learned law's */
-        snprintf(c->note, sizeof c->note, "%ld terms instead of %ld, chosen by the forecast score%s", c->active,
-                 c->active_raw, c->status == CANON_FOUND ? "" : " (the learned coordinates)");
+        snprintf(c->note, sizeof c->note, "%ld terms instead of %ld, chosen by the forecast score%s%s", c->active,
+                 c->active_raw, best_a != 0 ? " with a cubic warp of the map" : "",
+                 c->status == CANON_FOUND || best_a != 0 ? "" : " (the learned coordinates)");
         c->status = CANON_FOUND;
         rep->changed = 1;
     }
     status_ok(st);
 done:
     nn_free(C.us), nn_free(C.uy), nn_free(C.vs), nn_free(C.vy), nn_free(C.theta), nn_free(C.m2);
-    nn_free(cur), nn_free(best_m), nn_free(trial_m), nn_free(step_m), nn_free(xv), nn_free(best_x), nn_free(step_x);
+    nn_free(m0), nn_free(xv), nn_free(b.m), nn_free(b.x);
     return rc;
 }

@@ -16,6 +16,15 @@
  * out a linear term moves the frequency of the sine that remains. The law of smallest score along
  * the path is reported when it has fewer terms than c's law; else c is left as it was.
  *
+ * One latent variable: the map may also bend, u = A z + b + a z^3 (c->c3): a warp of the learned
+ * coordinate shows in its law as extra terms (z = theta + e theta^3 turns theta'' = f(theta, theta')
+ * into one with a term in z (z')^2, besides the sine turned into z and sin z), which no affine map
+ * removes. The elimination is repeated at a coarse grid of a z_rms^2 in +-{0.005, 0.01, 0.02, 0.04,
+ * 0.08, 0.15} (only maps with g' >= A / 5 over the data), a then refined on two finer grids with the
+ * best law's terms; the warp costs the parsimony factor of a cubic term (1 + 3 tol). The state maps
+ * to u = g(z), u' = g'(z) z', the target to u'' = g'(z) z'' + g''(z) z'^2 (canonical_map_state,
+ * canonical_map_target).
+ *
  * Why a law in u with sin(f w u) can use the selection unchanged: in v_i = w_i u_i the canonical
  * trig terms are the library's sin(f v_i), every monomial of u is a monomial of v times a constant
  * (prod w^p), and the target is w_i u_i''; the law is fitted and scored in v, its coefficients mapped
@@ -34,6 +43,7 @@ typedef struct {
     double score_start;         /* the score of c's law as canonical_find gave it (its w) */
     double score, forecast;     /* the chosen law's score and forecast error */
     long active_start;          /* c's terms before */
+    double warp;                /* one latent variable: the cubic warp chosen (c->c3; 0: none) */
     int changed;                /* 1: c now holds the law chosen by the score */
 } CanonSelectReport;
 

@@ -92,6 +92,7 @@ static double law_extent(const Law *L, const double *ext, int d) {
         else {
             acc = fabs(L->c->b[i]);
             for (int j = 0; j < d; j++) acc += fabs(L->c->A[i * d + j]) * ext[j];
+            if (d == 1) acc += fabs(L->c->c3[0]) * ext[0] * ext[0] * ext[0];
         }
         e = fmax(e, acc);
     }

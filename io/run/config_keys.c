@@ -282,8 +282,9 @@ const KeyDef config_keys[] = {
           "coordinates; a map beyond it is never reported"),
     K_CHOICE("canonical.choose", canon_choose, "\"fit\"", canon_choose_names, NULL,
           "how the canonical law's terms are chosen: fit = the fewest terms within canonical.tolerance of the fit "
-          "error; forecast = then leave out terms (and refit the sine frequencies) by the selection's forecast "
-          "score in the canonical coordinates (docs/canonical.md)"),
+          "error; forecast = then leave out terms (and refit the sine frequencies, and with one latent variable "
+          "a cubic warp of the map) by the selection's forecast score in the canonical coordinates "
+          "(docs/canonical.md)"),
     /* output */
     K_PATH("output", output, "`runs/<config file stem>`",
            "run directory, relative to the current directory"),

@@ -211,7 +211,8 @@ static int trajectory_cols(const LoadedRun *r) {
     return 1 + (found_canonical(r) ? 2 : 1) * (r->m.order + 2) * r->m.n_latent;
 }
 
-/* The canonical blocks of a row that holds t, z, z' (, z''): u = A z + b, u' = A z', u'' = A z'',
+/* The canonical blocks of a row that holds t, z, z' (, z''): u = A z + b, u' = A z', u'' = A z''
+ * (with a cubic warp, its derivatives: canonical_map_state, canonical_map_target),
  * and the canonical law's prediction of u' (or u''). */
 static void canonical_columns(const LoadedRun *r, const Canonical *c, double *row, double *theta) {
     int d = r->m.n_latent, order = r->m.order, k = order + 1;
@@ -219,12 +220,7 @@ static void canonical_columns(const LoadedRun *r, const Canonical *c, double *ro
     double *u = row + 1 + (k + 1) * d, sigma[LIB_MAX_VARS];
     canonical_map_state(c, sigma, z, 1); /* u (and u') from z (and z') */
     for (int j = 0; j < order * d; j++) u[j] = sigma[j];
-    for (int blk = order; blk < k; blk++) /* the highest derivative: no offset */
-        for (int i = 0; i < d; i++) {
-            double acc = 0;
-            for (int j = 0; j < d; j++) acc += c->A[i * d + j] * z[blk * d + j];
-            u[blk * d + i] = acc;
-        }
+    canonical_map_target(c, u + order * d, z, z + order * d, 1); /* the highest derivative */
     canonical_eval(c, &r->m.lib, theta, sigma, 1);
     for (int i = 0; i < d; i++) {
         double acc = 0;

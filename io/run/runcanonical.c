@@ -75,6 +75,7 @@ cJSON *run_canonical_json(const LoadedRun *r, int digits) {
         cJSON_AddNumberToObject(f, "score_before", s->score_start);
         cJSON_AddNumberToObject(f, "score", s->score);
         cJSON_AddNumberToObject(f, "forecast_error", s->forecast);
+        cJSON_AddNumberToObject(f, "warp", s->warp);
         cJSON_AddNumberToObject(f, "laws_scored", s->steps);
     }
     return j;

@@ -193,6 +193,9 @@ int run_refine(LoadedRun *r, const RefineOptions *o, RefineResult *res, Status *
     if (c->status != CANON_FOUND && c->status != CANON_UNCHANGED)
         return status_set(st, ST_INPUT, "%s: nothing to refine: canonical form %s (%s)", r->dir,
                           canon_status_name(c->status), c->note);
+    if (c->k == 1 && c->c3[0] != 0)
+        return status_set(st, ST_INPUT, "%s: the canonical map has a cubic warp, which the refinement cannot fold into "
+                          "the network: refine with canonical.choose fit", r->dir);
     int T = r->m.lib.n_terms, d = r->m.n_latent, nv = r->m.lib.n_vars;
     long nm = (long)T * d;
     Ctx x = {.r = r, .o = o, .c = c};
@@ -203,12 +206,7 @@ int run_refine(LoadedRun *r, const RefineOptions *o, RefineResult *res, Status *
     double *sigma = nn_alloc((size_t)es.N * nv * sizeof *sigma), *yc = nn_alloc((size_t)es.N * d * sizeof *yc);
     double *theta = nn_alloc((size_t)es.N * T * sizeof *theta);
     canonical_map_state(c, sigma, es.state, es.N);
-    for (long i = 0; i < es.N; i++) /* u' = A z' (u'' = A z''): the offset does not move */
-        for (int j = 0; j < d; j++) {
-            double s = 0;
-            for (int q = 0; q < d; q++) s += c->A[j * d + q] * es.target[i * d + q];
-            yc[i * d + j] = s;
-        }
+    canonical_map_target(c, yc, es.state, es.target, es.N); /* u' = A z' (u'' = A z''): no offset */
     canonical_eval(c, &r->m.lib, theta, sigma, es.N);
     encoded_set_free(&es);
     nn_free(sigma);
