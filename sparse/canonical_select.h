@@ -12,15 +12,16 @@
  * least one term) is refitted by least squares on the samples and scored, and the best is taken; the
  * step goes on to a single term per equation. Each law's trig frequencies w_i are fitted by the
  * score too (a log grid of 17 values over [w / 3, 3 w] around the parent's w_i, then two finer
- * grids around the best; coordinate by coordinate, two sweeps with several trig variables): leaving
- * out a linear term moves the frequency of the sine that remains. The law of smallest score along
+ * grids around the best; coordinate by coordinate, two sweeps with several trig variables; only
+ * where w_i max|u_i| is 1.5 to 20 radians, below which a sine is nearly a cubic): leaving out a
+ * linear term moves the frequency of the sine that remains. The law of smallest score along
  * the path is reported when it has fewer terms than c's law; else c is left as it was.
  *
  * One latent variable: the map may also bend, u = A z + b + a z^3 (c->c3): a warp of the learned
  * coordinate shows in its law as extra terms (z = theta + e theta^3 turns theta'' = f(theta, theta')
  * into one with a term in z (z')^2, besides the sine turned into z and sin z), which no affine map
- * removes. The elimination is repeated at a coarse grid of a z_rms^2 in +-{0.005, 0.01, 0.02, 0.04,
- * 0.08, 0.15} (only maps with g' >= A / 5 over the data), a then refined on two finer grids with the
+ * removes. The elimination is repeated at a coarse grid of 24 values of a z_rms^2 from +-0.0025 to
+ * +-0.15 (only maps with g' >= A / 5 over the data), a then refined on two finer grids with the
  * best law's terms; the warp costs the parsimony factor of a cubic term (1 + 3 tol). The state maps
  * to u = g(z), u' = g'(z) z', the target to u'' = g'(z) z'' + g''(z) z'^2 (canonical_map_state,
  * canonical_map_target).

@@ -430,6 +430,23 @@ static void test_pendulum_forecast_choice(void **state) {
         else assert_true(first[0] == cs && first[1] == cd);
         canonical_free(&c);
     }
+    /* recordings of one sample each (no forecast fits; a segment is capped at the longest
+     * recording, so only this refuses): the choice is refused as bad input and leaves the search's
+     * law as it was */
+    long *rs1 = malloc(sizeof(long) * (n + 1));
+    for (int r = 0; r <= n; r++) rs1[r] = r;
+    SelectData D1 = {n, 2, 1, s, y, n, rs1, PEND_DT};
+    Canonical c;
+    assert_int_equal(canonical_find(&c, &lib, xi, mask, s, y, n, &o, &st), 0);
+    long before = c.active;
+    CanonSelectReport rep;
+    assert_int_equal(canonical_select(&c, &lib, &D1, &so, &rep, &st), ST_INPUT);
+    print_message("one-sample recordings: %s\n", st.msg);
+    assert_non_null(strstr(st.msg, "forecast segment"));
+    assert_int_equal(c.active, before);
+    assert_int_equal(rep.changed, 0);
+    canonical_free(&c);
+    free(rs1);
     free(s), free(y), free(xi), free(mask);
     library_free(&lib);
 }

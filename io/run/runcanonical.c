@@ -43,8 +43,14 @@ int run_canonical_get(LoadedRun *r, int quiet, Status *st) {
         SelectData D = {es.N, es.n_vars, es.d, es.state, es.target, nr, rs, r->data.ds.dt};
         SelectOptions so = select_defaults();
         code = canonical_select(&rc->c, &r->m.lib, &D, &so, &rc->sel, st);
-        rc->by_forecast = 1;
         nn_free(rs);
+        if (code == ST_INPUT) { /* no forecast fits (one-sample recordings, a constant latent): the fit choice stands */
+            if (!quiet) fprintf(stderr, "framelaw: canonical form: canonical.choose forecast skipped: %s\n", st->msg);
+            code = 0;
+            status_ok(st);
+        } else {
+            rc->by_forecast = 1;
+        }
     }
     encoded_set_free(&es);
     if (code) {
