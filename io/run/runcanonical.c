@@ -105,8 +105,8 @@ size_t run_canonical_format(char *buf, size_t n, EqStyle style, const LoadedRun 
     const Canonical *c = &r->canon->c;
     const char *com = style == EQ_LATEX ? "% " : "# ";
     size_t len = 0;
-    int k = snprintf(buf, n, "%scanonical law (%ld terms; the learned law below has %ld), in u = A z + b:\n", com,
-                     c->active, c->active_raw);
+    int k = snprintf(buf, n, "%scanonical law (%ld terms; the learned law below has %ld), in u = A z + b%s:\n", com,
+                     c->active, c->active_raw, c->k == 1 && c->c3[0] != 0 ? " + c3 z^3" : "");
     len += k > 0 ? (size_t)k : 0;
     size_t need = canonical_format(NULL, 0, style, c, &r->m.lib, digits) + 1;
     size_t mneed = canonical_format_map(NULL, 0, c, digits) + 1;
@@ -136,7 +136,8 @@ void run_canonical_print(FILE *f, const LoadedRun *r) {
     if (law && map) {
         canonical_format(law, need, EQ_TEXT, c, &r->m.lib, EQ_DIGITS);
         canonical_format_map(map, mneed, c, EQ_DIGITS);
-        fprintf(f, "canonical law (%ld active terms), in u = A z + b:\n%s", c->active, law);
+        fprintf(f, "canonical law (%ld active terms), in u = A z + b%s:\n%s", c->active,
+                c->k == 1 && c->c3[0] != 0 ? " + c3 z^3" : "", law);
         fprintf(f, "where\n%s", map);
     }
     free(law), free(map);
