@@ -382,6 +382,26 @@ static void test_pendulum(void **state) {
     library_free(&lib);
 }
 
+/* canonical_find at `tolerance` on the pendulum's samples (s, y; its PEND_REC recordings), then the
+ * forecast choice with the selection's defaults; both laws printed. *before: the search's terms. */
+static void find_and_choose(const Library *lib, const double *s, const double *y, const double *xi,
+                            const uint8_t *mask, double tolerance, Canonical *c, CanonSelectReport *rep,
+                            long *before) {
+    const int n = PEND_REC * PEND_PER;
+    CanonOptions o = canon_defaults();
+    o.tolerance = tolerance;
+    long rs[PEND_REC + 1];
+    for (int r = 0; r <= PEND_REC; r++) rs[r] = (long)r * PEND_PER;
+    SelectData D = {n, 2, 1, s, y, PEND_REC, rs, PEND_DT};
+    SelectOptions so = select_defaults();
+    Status st;
+    assert_int_equal(canonical_find(c, lib, xi, mask, s, y, n, &o, &st), 0);
+    print_canonical(c, lib);
+    *before = c->active;
+    assert_int_equal(canonical_select(c, lib, &D, &so, rep, &st), 0);
+    print_canonical(c, lib);
+}
+
 /* The forecast choice (sparse/canonical_select.h) on the pendulum's samples above: canonical_find at
  * tolerance 0 keeps every term that improves the fit at all (a dense law in u); the backward
  * elimination by the selection's forecast score, with the sine's frequency refitted, must come back
@@ -398,20 +418,11 @@ static void test_pendulum_forecast_choice(void **state) {
     Library lib;
     Status st;
     pendulum_law(&lib, &s, &y, &xi, &mask);
-    CanonOptions o = canon_defaults();
-    o.tolerance = 0;
-    long rs[PEND_REC + 1];
-    for (int r = 0; r <= PEND_REC; r++) rs[r] = (long)r * PEND_PER;
-    SelectData D = {n, 2, 1, s, y, PEND_REC, rs, PEND_DT};
-    SelectOptions so = select_defaults();
     {
         Canonical c;
-        assert_int_equal(canonical_find(&c, &lib, xi, mask, s, y, n, &o, &st), 0);
-        print_canonical(&c, &lib);
-        long dense = c.active;
         CanonSelectReport rep;
-        assert_int_equal(canonical_select(&c, &lib, &D, &so, &rep, &st), 0);
-        print_canonical(&c, &lib);
+        long dense;
+        find_and_choose(&lib, s, y, xi, mask, 0, &c, &rep, &dense);
         print_message("forecast choice: %ld -> %ld terms, score %.4g -> %.4g, %d laws scored\n", dense, c.active,
                       rep.score_start, rep.score, rep.steps);
         assert_true(dense > 2);
@@ -434,6 +445,9 @@ static void test_pendulum_forecast_choice(void **state) {
     long *rs1 = malloc(sizeof(long) * (n + 1));
     for (int r = 0; r <= n; r++) rs1[r] = r;
     SelectData D1 = {n, 2, 1, s, y, n, rs1, PEND_DT};
+    CanonOptions o = canon_defaults();
+    o.tolerance = 0;
+    SelectOptions so = select_defaults();
     Canonical c;
     assert_int_equal(canonical_find(&c, &lib, xi, mask, s, y, n, &o, &st), 0);
     long before = c.active;
@@ -473,18 +487,10 @@ static void test_pendulum_warp(void **state) {
         s[2 * q] = z, s[2 * q + 1] = dz;
     }
     fit_law(&lib, s, y, n, 1e-3, xi, mask);
-    CanonOptions o = canon_defaults();
-    long rs[PEND_REC + 1];
-    for (int r = 0; r <= PEND_REC; r++) rs[r] = (long)r * PEND_PER;
-    SelectData D = {n, 2, 1, s, y, PEND_REC, rs, PEND_DT};
-    SelectOptions so = select_defaults();
     Canonical c;
-    assert_int_equal(canonical_find(&c, &lib, xi, mask, s, y, n, &o, &st), 0);
-    print_canonical(&c, &lib);
-    long affine = c.active;
     CanonSelectReport rep;
-    assert_int_equal(canonical_select(&c, &lib, &D, &so, &rep, &st), 0);
-    print_canonical(&c, &lib);
+    long affine;
+    find_and_choose(&lib, s, y, xi, mask, canon_defaults().tolerance, &c, &rep, &affine);
     print_message("forecast choice: %ld -> %ld terms, warp %.6g (c = %.6g), %d laws scored\n", affine, c.active,
                   c.c3[0], cw, rep.steps);
     assert_true(affine > 2);

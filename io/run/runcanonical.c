@@ -35,11 +35,8 @@ int run_canonical_get(LoadedRun *r, int quiet, Status *st) {
     int code = canonical_find(&rc->c, &r->m.lib, r->coef.xi, r->coef.mask, es.state, es.target, es.N, &o, st);
     if (!code && r->cfg.canon_choose == CANON_CHOOSE_FORECAST) {
         /* the selection's data: the samples in training order, a new recording at every gap */
-        long *rs = nn_alloc((size_t)(es.N + 1) * sizeof *rs);
-        int nr = 0;
-        for (long i = 0; i < es.N; i++)
-            if (i == 0 || es.rec[i] != es.rec[i - 1] || es.step[i] != es.step[i - 1] + 1) rs[nr++] = i;
-        rs[nr] = es.N;
+        int nr;
+        long *rs = encoded_set_runs(&es, &nr);
         SelectData D = {es.N, es.n_vars, es.d, es.state, es.target, nr, rs, r->data.ds.dt};
         SelectOptions so = select_defaults();
         code = canonical_select(&rc->c, &r->m.lib, &D, &so, &rc->sel, st);

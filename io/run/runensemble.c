@@ -70,11 +70,8 @@ int run_ensemble_get(LoadedRun *r, int quiet, Status *st) {
     re->by_selection = run_ensemble_by_selection(&r->cfg);
     if (re->by_selection) {
         /* the selection's data: the samples in training order, a new recording at every gap */
-        long *rs = nn_alloc((size_t)(es.N + 1) * sizeof *rs);
-        int nr = 0;
-        for (long i = 0; i < es.N; i++)
-            if (i == 0 || es.rec[i] != es.rec[i - 1] || es.step[i] != es.step[i - 1] + 1) rs[nr++] = i;
-        rs[nr] = es.N;
+        int nr;
+        long *rs = encoded_set_runs(&es, &nr);
         SelectData D = {es.N, es.n_vars, es.d, es.state, es.target, nr, rs, ds->dt};
         SelectOptions so = select_defaults();
         rc = ensemble_fit_select(&re->e, &r->m.lib, &D, &so, r->m.mask, r->cfg.ens_candidates, &re->opt, &rng, st);

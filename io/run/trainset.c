@@ -11,6 +11,16 @@ void encoded_set_free(EncodedSet *es) {
     memset(es, 0, sizeof *es);
 }
 
+long *encoded_set_runs(const EncodedSet *es, int *n_runs) {
+    long *rs = nn_alloc((size_t)(es->N + 1) * sizeof *rs);
+    int nr = 0;
+    for (long i = 0; i < es->N; i++)
+        if (i == 0 || es->rec[i] != es->rec[i - 1] || es->step[i] != es->step[i - 1] + 1) rs[nr++] = i;
+    rs[nr] = es->N;
+    *n_runs = nr;
+    return rs;
+}
+
 int encoded_training_set(EncodedSet *es, const Model *m, ParamSet *ps, RunData *data, Tape *tape, Status *st) {
     memset(es, 0, sizeof *es);
     const TrainData *td = &data->td;

@@ -25,4 +25,9 @@ typedef struct {
 int encoded_training_set(EncodedSet *es, const Model *m, ParamSet *ps, RunData *data, Tape *tape, Status *st);
 void encoded_set_free(EncodedSet *es);
 
+/* The first sample of each run of consecutive samples (a new one at every change of recording or
+ * gap in its frames), then es->N: (n_runs + 1) values, nn_free'd by the caller; *n_runs receives
+ * their number. The recording boundaries the selection's forecasts respect (sparse/select.h). */
+long *encoded_set_runs(const EncodedSet *es, int *n_runs);
+
 #endif
