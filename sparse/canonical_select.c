@@ -6,6 +6,8 @@
 #include <stdio.h>
 #include <string.h>
 
+#include "nn/mat.h"
+#include "nn/par.h"
 #include "sparse/optim.h"
 #include "sparse/thresh_lsq.h"
 
@@ -220,6 +222,42 @@ static int warp_ok(const Canonical *c, double a, double zmax) {
     return c->A[0] + 3 * a * zmax * zmax >= 0.2 * c->A[0] && (a >= 0 || c->A[0] > 0);
 }
 
+/* The eliminations at the maps of a grid, one path each, in parallel: path g uses the warp a[g]
+ * (0: the affine map) with its score times pen[g]; its best law goes to best[g], its count of laws
+ * scored to steps[g]. Each path has work of its own and a Best of its own (score INFINITY at the
+ * start), so the paths are independent; the caller takes the best in grid order, which is what one
+ * thread running the paths one after the other would have kept. */
+typedef struct {
+    const Canonical *c;
+    const Library *lib;
+    const SelectData *D;
+    const SelectOptions *o;
+    const uint8_t *m0;
+    const double *a, *pen;
+    Best *best;
+    int *steps;
+} PathJob;
+
+static void path_run(void *ctx, long lo, long hi) {
+    PathJob *J = ctx;
+    int k = J->c->k, nv = J->lib->n_vars, T = J->lib->n_terms;
+    long N = J->D->N;
+    Ctx C = {J->lib, J->D, J->o, N, k, nv, T, NULL, NULL, NULL, NULL, NULL, NULL, {0}};
+    C.us = nn_alloc((size_t)N * nv * sizeof *C.us);
+    C.uy = nn_alloc((size_t)N * k * sizeof *C.uy);
+    C.vs = nn_alloc((size_t)N * nv * sizeof *C.vs);
+    C.vy = nn_alloc((size_t)N * k * sizeof *C.vy);
+    C.theta = nn_alloc((size_t)N * T * sizeof *C.theta);
+    C.m2 = nn_alloc((size_t)T * k);
+    for (long g = lo; g < hi; g++) {
+        Canonical cw = *J->c; /* shares c's arrays, which map_* do not read */
+        cw.c3[0] = J->a[g];
+        set_samples(&C, &cw);
+        J->steps[g] = eliminate(&C, J->m0, J->c->w, J->pen[g], &J->best[g]);
+    }
+    nn_free(C.us), nn_free(C.uy), nn_free(C.vs), nn_free(C.vy), nn_free(C.theta), nn_free(C.m2);
+}
+
 int canonical_select(Canonical *c, const Library *lib, const SelectData *data, const SelectOptions *opt,
                      CanonSelectReport *rep, Status *st) {
     memset(rep, 0, sizeof *rep);
@@ -257,44 +295,57 @@ int canonical_select(Canonical *c, const Library *lib, const SelectData *data, c
         goto done;
     }
     rep->score_start = s0;
-    rep->steps = eliminate(&C, m0, c->w, 1, &b);
-    double best_a = 0;
-    if (k == 1) {
-        /* the cubic warp: a coarse grid of a z_rms^2, an elimination at each, then two finer grids
-         * with the best law's terms; the warp costs what a cubic term costs */
-        double zq = 0, zmax = 0;
-        for (long r = 0; r < N; r++) {
-            double z = data->state[r * nv];
-            zq += z * z, zmax = fmax(zmax, fabs(z));
+    /* path 0: the map as found; one latent variable: the cubic warp, a coarse grid of a z_rms^2 with
+     * an elimination at each (then two finer grids with the best law's terms, below); the warp costs
+     * what a cubic term costs */
+    static const double R[] = {-0.15, -0.11, -0.08, -0.06, -0.04, -0.03, -0.02, -0.015, -0.01, -0.0075, -0.005, -0.0025,
+                               0.0025, 0.005, 0.0075, 0.01, 0.015, 0.02, 0.03, 0.04, 0.06, 0.08, 0.11, 0.15};
+    enum { NR = sizeof R / sizeof R[0] };
+    double zq = 0, zmax = 0;
+    for (long r = 0; k == 1 && r < N; r++) {
+        double z = data->state[r * nv];
+        zq += z * z, zmax = fmax(zmax, fabs(z));
+    }
+    double zr2 = zq / (double)N, wpen = 1 + 3 * opt->tol;
+    double pa[1 + NR] = {0}, ppen[1 + NR] = {1};
+    int n_path = 1;
+    for (int g = 0; k == 1 && zr2 > 0 && g < NR; g++)
+        if (warp_ok(c, R[g] / zr2, zmax)) pa[n_path] = R[g] / zr2, ppen[n_path++] = wpen;
+    Best pb[1 + NR];
+    int psteps[1 + NR];
+    for (int g = 0; g < n_path; g++)
+        pb[g] = (Best){INFINITY, 0, {0}, nn_alloc((size_t)W), nn_alloc((size_t)W * sizeof(double)), 0};
+    PathJob job = {c, lib, data, opt, m0, pa, ppen, pb, psteps};
+    int blas = nn_set_blas_threads(1);
+    par_for(n_path, 1, path_run, &job);
+    nn_set_blas_threads(blas);
+    double best_a = 0, pen = wpen;
+    for (int g = 0; g < n_path; g++) {
+        rep->steps += psteps[g];
+        if (pb[g].score < b.score) {
+            b.score = pb[g].score, b.forecast = pb[g].forecast, b.n = pb[g].n, best_a = pa[g];
+            memcpy(b.m, pb[g].m, (size_t)W);
+            memcpy(b.x, pb[g].x, (size_t)W * sizeof(double));
+            memcpy(b.w, pb[g].w, sizeof b.w);
         }
-        double zr2 = zq / (double)N, pen = 1 + 3 * opt->tol;
-        static const double R[] = {-0.15, -0.11, -0.08, -0.06, -0.04, -0.03, -0.02, -0.015, -0.01, -0.0075, -0.005, -0.0025,
-                                   0.0025, 0.005, 0.0075, 0.01, 0.015, 0.02, 0.03, 0.04, 0.06, 0.08, 0.11, 0.15};
-        for (size_t g = 0; zr2 > 0 && g < sizeof R / sizeof R[0]; g++) {
-            cw.c3[0] = R[g] / zr2;
-            if (!warp_ok(c, cw.c3[0], zmax)) continue;
-            set_samples(&C, &cw);
-            double before = b.score;
-            rep->steps += eliminate(&C, m0, c->w, pen, &b);
-            if (b.score < before) best_a = cw.c3[0];
-        }
-        if (best_a != 0) {
-            double half = 0.5 * fabs(best_a);
-            for (int level = 0; level < 2; level++, half /= 4) {
-                double centre = best_a;
-                for (int g = -4; g <= 4; g++) {
-                    cw.c3[0] = centre + half * g / 4;
-                    if (g == 0 || cw.c3[0] == 0 || !warp_ok(c, cw.c3[0], zmax)) continue;
-                    set_samples(&C, &cw);
-                    double wt[CANON_MAX_K];
-                    memcpy(wt, b.w, sizeof wt);
-                    double s = pen * fit_w(&C, b.m, wt, xv, &e);
-                    rep->steps++;
-                    if (s < b.score) {
-                        b.score = s, b.forecast = e, best_a = cw.c3[0];
-                        memcpy(b.x, xv, (size_t)W * sizeof *xv);
-                        memcpy(b.w, wt, sizeof wt);
-                    }
+        nn_free(pb[g].m), nn_free(pb[g].x);
+    }
+    if (best_a != 0) {
+        double half = 0.5 * fabs(best_a);
+        for (int level = 0; level < 2; level++, half /= 4) {
+            double centre = best_a;
+            for (int g = -4; g <= 4; g++) {
+                cw.c3[0] = centre + half * g / 4;
+                if (g == 0 || cw.c3[0] == 0 || !warp_ok(c, cw.c3[0], zmax)) continue;
+                set_samples(&C, &cw);
+                double wt[CANON_MAX_K];
+                memcpy(wt, b.w, sizeof wt);
+                double s = pen * fit_w(&C, b.m, wt, xv, &e);
+                rep->steps++;
+                if (s < b.score) {
+                    b.score = s, b.forecast = e, best_a = cw.c3[0];
+                    memcpy(b.x, xv, (size_t)W * sizeof *xv);
+                    memcpy(b.w, wt, sizeof wt);
                 }
             }
         }

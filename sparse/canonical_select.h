@@ -32,6 +32,10 @@
  * back to u. The score does not depend on the scale of a variable (errors relative to its standard
  * deviation), so w only acts through the trig terms.
  *
+ * The eliminations (the affine map's and one per trial warp) are independent: they run in parallel
+ * over par_threads() (OpenBLAS single-threaded inside each) and are merged in grid order, so the
+ * result has the same bits at every thread count.
+ *
  * Pure computation, deterministic. */
 #ifndef SPARSE_CANONICAL_SELECT_H
 #define SPARSE_CANONICAL_SELECT_H

@@ -605,6 +605,13 @@ void library_eval(const Library *lib, double *theta, const double *s, long B) {
     for (long b = 0; b < B; b++) eval_row(lib, theta + b * lib->n_terms, s + b * lib->n_vars);
 }
 
+void library_eval_terms(const Library *lib, double *theta, const double *s, const int *terms, int n) {
+    for (int i = 0; i < n; i++) {
+        const Term *term = &lib->terms[terms[i]];
+        theta[terms[i]] = term_rows[term->kind].eval(term, s);
+    }
+}
+
 void library_grad(const Library *lib, double *ds, const double *dtheta, const double *s, long B) {
     for (long b = 0; b < B; b++)
         grad_row(lib, ds + b * lib->n_vars, dtheta + b * lib->n_terms, s + b * lib->n_vars);

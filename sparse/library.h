@@ -147,6 +147,9 @@ int library_name_old_form(const char *name, char *fixed, size_t n);
 
 /* Plain evaluation in double: theta (B, n_terms) = Theta(s (B, n_vars)). */
 void library_eval(const Library *lib, double *theta, const double *s, long B);
+/* One row, only the n terms listed (indices into lib->terms): theta[terms[i]] = Theta_terms[i](s);
+ * theta's other entries are left as they were. What a law with few active terms needs. */
+void library_eval_terms(const Library *lib, double *theta, const double *s, const int *terms, int n);
 /* Gradient in double: ds (B, n_vars) += dtheta (B, n_terms) dTheta/ds at s (B, n_vars). */
 void library_grad(const Library *lib, double *ds, const double *dtheta, const double *s, long B);
 /* The same in float32 (each row computed in double, stored as float): the training path. */

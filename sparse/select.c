@@ -93,11 +93,23 @@ static int resolve_horizon(const Library *lib, const SelectData *D, const Select
     return 0;
 }
 
-/* f(s) for a law: ds (n_vars); theta (n_terms) work. */
-static void law_rhs(const Library *lib, const double *xi, const uint8_t *mask, const double *s, double *ds,
-                    double *theta) {
-    int d = lib->spec.n_latent, T = lib->n_terms, nv = lib->n_vars;
-    library_eval(lib, theta, s, 1);
+/* The terms a law uses, ascending: those mask keeps in some equation, every term when mask is
+ * NULL. act (n_terms) receives them; returns their number. */
+static int law_terms(const Library *lib, const uint8_t *mask, int d, int *act) {
+    int n = 0;
+    for (int t = 0; t < lib->n_terms; t++) {
+        int on = !mask;
+        for (int j = 0; j < d && !on; j++) on = mask[(long)t * d + j] != 0;
+        if (on) act[n++] = t;
+    }
+    return n;
+}
+
+/* f(s) for a law whose terms are act (n_act, from law_terms): ds (n_vars); theta (n_terms) work. */
+static void law_rhs(const Library *lib, const double *xi, const uint8_t *mask, const int *act, int n_act,
+                    const double *s, double *ds, double *theta) {
+    int d = lib->spec.n_latent;
+    library_eval_terms(lib, theta, s, act, n_act);
     int off = 0;
     if (lib->spec.order == 2) { /* s = (z, z'): z' first */
         for (int j = 0; j < d; j++) ds[j] = s[d + j];
@@ -105,11 +117,12 @@ static void law_rhs(const Library *lib, const double *xi, const uint8_t *mask, c
     }
     for (int j = 0; j < d; j++) {
         double a = 0;
-        for (int t = 0; t < T; t++)
+        for (int q = 0; q < n_act; q++) {
+            int t = act[q];
             if (!mask || mask[(long)t * d + j]) a += xi[(long)t * d + j] * theta[t];
+        }
         ds[off + j] = a;
     }
-    (void)nv;
 }
 
 /* The standard deviation of each latent component over the data set (sdj (d)). */
@@ -128,9 +141,10 @@ static double lost_bound(const SelectData *D, double sd) {
 
 /* One segment's error: the law integrated (RK4, four steps per sample) from sample a + s0 over H
  * samples against the data. *e receives the error pooled over the components relative to sd, ej (d)
- * each component's relative to sdj[j], both capped at cap. theta (n_terms) is work. */
-static void segment_error(const Library *lib, const SelectData *D, const double *xi, const uint8_t *mask, long a,
-                          long s0, int H, double sd, const double *sdj, double cap, double bound, double *theta,
+ * each component's relative to sdj[j], both capped at cap. act (n_act): the law's terms (law_terms);
+ * theta (n_terms) is work. */
+static void segment_error(const Library *lib, const SelectData *D, const double *xi, const uint8_t *mask,
+                          const int *act, int n_act, long a, long s0, int H, double sd, const double *sdj, double cap, double bound, double *theta,
                           double *e_out, double *ej) {
     int nv = lib->n_vars, d = D->d;
     double y[4 * LIB_MAX_VARS], k1[LIB_MAX_VARS], k2[LIB_MAX_VARS], k3[LIB_MAX_VARS], k4[LIB_MAX_VARS];
@@ -142,13 +156,13 @@ static void segment_error(const Library *lib, const SelectData *D, const double 
     int lost = 0;
     for (int k = 1; k < H && !lost; k++) {
         for (int u = 0; u < sub; u++) { /* classic RK4 */
-            law_rhs(lib, xi, mask, y, k1, theta);
+            law_rhs(lib, xi, mask, act, n_act, y, k1, theta);
             for (int i = 0; i < nv; i++) tmp[i] = y[i] + 0.5 * h * k1[i];
-            law_rhs(lib, xi, mask, tmp, k2, theta);
+            law_rhs(lib, xi, mask, act, n_act, tmp, k2, theta);
             for (int i = 0; i < nv; i++) tmp[i] = y[i] + 0.5 * h * k2[i];
-            law_rhs(lib, xi, mask, tmp, k3, theta);
+            law_rhs(lib, xi, mask, act, n_act, tmp, k3, theta);
             for (int i = 0; i < nv; i++) tmp[i] = y[i] + h * k3[i];
-            law_rhs(lib, xi, mask, tmp, k4, theta);
+            law_rhs(lib, xi, mask, act, n_act, tmp, k4, theta);
             for (int i = 0; i < nv; i++) y[i] += h / 6 * (k1[i] + 2 * k2[i] + 2 * k3[i] + k4[i]);
         }
         for (int i = 0; i < nv; i++)
@@ -173,7 +187,9 @@ static void segment_error(const Library *lib, const SelectData *D, const double 
 static double forecast_error(const Library *lib, const SelectData *D, const double *xi, const uint8_t *mask, int H,
                              int S, double sd, const double *sdj, double cap, double *ej, int *n_seg) {
     int d = D->d;
-    double *theta = malloc((size_t)lib->n_terms * sizeof *theta);
+    double *theta = nn_alloc((size_t)lib->n_terms * sizeof *theta);
+    int *act = nn_alloc((size_t)lib->n_terms * sizeof *act);
+    int n_act = law_terms(lib, mask, d, act);
     double bound = lost_bound(D, sd);
     double total = 0, tj[LIB_MAX_VARS] = {0};
     int n = 0;
@@ -181,13 +197,13 @@ static double forecast_error(const Library *lib, const SelectData *D, const doub
         long a = D->rec_start[r], len = D->rec_start[r + 1] - a;
         for (long s0 = 0; s0 + H <= len; s0 += S) {
             double e, eg[LIB_MAX_VARS];
-            segment_error(lib, D, xi, mask, a, s0, H, sd, sdj, cap, bound, theta, &e, eg);
+            segment_error(lib, D, xi, mask, act, n_act, a, s0, H, sd, sdj, cap, bound, theta, &e, eg);
             total += e;
             for (int j = 0; j < d; j++) tj[j] += eg[j];
             n++;
         }
     }
-    free(theta);
+    nn_free(theta), nn_free(act);
     *n_seg = n;
     if (ej)
         for (int j = 0; j < d; j++) ej[j] = n ? tj[j] / n : cap;
@@ -453,7 +469,8 @@ static void bag_members(void *ctx, long lo, long hi) {
     double *yw = malloc((size_t)N * d * sizeof *yw), *x = malloc((size_t)w * sizeof *x);
     double *best_x = malloc((size_t)w * sizeof *best_x), *th1 = malloc((size_t)T * sizeof *th1);
     uint8_t *m2 = malloc((size_t)w);
-    if (!wt || !thw || !yw || !x || !best_x || !th1 || !m2) {
+    int *act = malloc((size_t)T * sizeof *act);
+    if (!wt || !thw || !yw || !x || !best_x || !th1 || !m2 || !act) {
         for (long m = lo; m < hi; m++) b->best_of[m] = -2, b->failed[m] = 0;
         goto done;
     }
@@ -483,10 +500,11 @@ static void bag_members(void *ctx, long lo, long hi) {
                 continue;
             }
             double tot = 0, tj[LIB_MAX_VARS] = {0};
+            int n_act = law_terms(b->lib, mc, d, act);
             for (int g = 0; g < G; g++) {
                 if (!cnt[g]) continue;
                 double e, ej[LIB_MAX_VARS];
-                segment_error(b->lib, D, x, mc, b->seg_a[g], 0, H, b->sd, b->sdj, b->o->cap, b->bound, th1, &e, ej);
+                segment_error(b->lib, D, x, mc, act, n_act, b->seg_a[g], 0, H, b->sd, b->sdj, b->o->cap, b->bound, th1, &e, ej);
                 tot += cnt[g] * e;
                 for (int j = 0; j < d; j++) tj[j] += cnt[g] * ej[j];
             }
@@ -504,7 +522,7 @@ static void bag_members(void *ctx, long lo, long hi) {
         b->best_of[m] = best, b->failed[m] = failed;
     }
 done:
-    free(wt), free(thw), free(yw), free(x), free(best_x), free(th1), free(m2);
+    free(wt), free(thw), free(yw), free(x), free(best_x), free(th1), free(m2), free(act);
 }
 
 int select_bagged(const Library *lib, const SelectData *D, const uint8_t *allowed, const SelectOptions *o,

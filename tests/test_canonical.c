@@ -6,6 +6,7 @@
  * a law with no terms and bad options. */
 #include <float.h>
 
+#include "nn/mat.h"
 #include "nn/rng.h"
 #include "sparse/canonical.h"
 #include "sparse/canonical_select.h"
@@ -408,8 +409,8 @@ static void find_and_choose(const Library *lib, const double *s, const double *y
  * to exactly sin(w u) and du/dt, with w c_sin = -g/L within 1%, the damping -c within 2% and w
  * within 1% of the angle's scale (the same bounds as the test above, for the same reasons), so the
  * weak damping (damping ratio c / (2 sqrt(g/L)) = 0.034) is not left out. The score must fall, and
- * the choice must say it changed the law. (No random draw enters it: the same data give the same
- * bits; not repeated here, the choice is the costliest step of this suite.) */
+ * the choice must say it changed the law. Its eliminations (one per trial warp) run in parallel and
+ * are merged in grid order, so two threads must give the bits of one. */
 static void test_pendulum_forecast_choice(void **state) {
     (void)state;
     const int n = PEND_REC * PEND_PER;
@@ -419,10 +420,20 @@ static void test_pendulum_forecast_choice(void **state) {
     Status st;
     pendulum_law(&lib, &s, &y, &xi, &mask);
     {
-        Canonical c;
-        CanonSelectReport rep;
+        Canonical c, c1;
+        CanonSelectReport rep, rep1;
         long dense;
+        nn_set_threads(1);
+        find_and_choose(&lib, s, y, xi, mask, 0, &c1, &rep1, &dense);
+        nn_set_threads(2);
         find_and_choose(&lib, s, y, xi, mask, 0, &c, &rep, &dense);
+        assert_int_equal(c.active, c1.active);
+        assert_memory_equal(c.mask, c1.mask, (size_t)lib.n_terms);
+        assert_memory_equal(c.xi, c1.xi, (size_t)lib.n_terms * sizeof *c.xi);
+        assert_memory_equal(c.w, c1.w, sizeof c.w);
+        assert_memory_equal(&rep.score, &rep1.score, sizeof rep.score);
+        assert_int_equal(rep.steps, rep1.steps);
+        canonical_free(&c1);
         print_message("forecast choice: %ld -> %ld terms, score %.4g -> %.4g, %d laws scored\n", dense, c.active,
                       rep.score_start, rep.score, rep.steps);
         assert_true(dense > 2);
@@ -766,6 +777,7 @@ static void test_nothing_and_bad_input(void **state) {
 }
 
 int main(void) {
+    nn_set_threads(2); /* the forecast choice's eliminations run in parallel */
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_polymap_exact),
         cmocka_unit_test(test_lorenz),
