@@ -156,6 +156,7 @@ typedef struct {
     uint8_t *m;                 /* (T, k) */
     double *x;                  /* (T, k) in v */
     long n;
+    double a;                   /* the cubic warp it was scored with */
 } Best;
 
 /* The samples in u for the map of c (its warp included). */
@@ -224,9 +225,11 @@ static int warp_ok(const Canonical *c, double a, double zmax) {
 
 /* The eliminations at the maps of a grid, one path each, in parallel: path g uses the warp a[g]
  * (0: the affine map) with its score times pen[g]; its best law goes to best[g], its count of laws
- * scored to steps[g]. Each path has work of its own and a Best of its own (score INFINITY at the
- * start), so the paths are independent; the caller takes the best in grid order, which is what one
- * thread running the paths one after the other would have kept. */
+ * scored to steps[g]. Then, for the warped paths whose best law is not bettered by another path
+ * with the same terms, the warp is refined for that law (two finer grids around a[g]: a law of few
+ * terms is the one most sensitive to it), again in parallel. Each path has work of its own and a
+ * Best of its own (score INFINITY at the start), so the paths are independent; the caller takes the
+ * best in grid order, which is what one thread running the paths one after the other would keep. */
 typedef struct {
     const Canonical *c;
     const Library *lib;
@@ -234,12 +237,14 @@ typedef struct {
     const SelectOptions *o;
     const uint8_t *m0;
     const double *a, *pen;
+    double zmax;                /* largest |z| over the data (warp_ok) */
     Best *best;
     int *steps;
+    const int *refine;          /* the refinement's paths (phase 2) */
 } PathJob;
 
-static void path_run(void *ctx, long lo, long hi) {
-    PathJob *J = ctx;
+/* Work of one thread: a Ctx on the data with buffers of its own. */
+static Ctx path_ctx(const PathJob *J) {
     int k = J->c->k, nv = J->lib->n_vars, T = J->lib->n_terms;
     long N = J->D->N;
     Ctx C = {J->lib, J->D, J->o, N, k, nv, T, NULL, NULL, NULL, NULL, NULL, NULL, {0}};
@@ -249,13 +254,56 @@ static void path_run(void *ctx, long lo, long hi) {
     C.vy = nn_alloc((size_t)N * k * sizeof *C.vy);
     C.theta = nn_alloc((size_t)N * T * sizeof *C.theta);
     C.m2 = nn_alloc((size_t)T * k);
+    return C;
+}
+
+static void ctx_free(Ctx *C) {
+    nn_free(C->us), nn_free(C->uy), nn_free(C->vs), nn_free(C->vy), nn_free(C->theta), nn_free(C->m2);
+}
+
+static void path_eliminate(void *ctx, long lo, long hi) {
+    PathJob *J = ctx;
+    Ctx C = path_ctx(J);
     for (long g = lo; g < hi; g++) {
         Canonical cw = *J->c; /* shares c's arrays, which map_* do not read */
         cw.c3[0] = J->a[g];
         set_samples(&C, &cw);
         J->steps[g] = eliminate(&C, J->m0, J->c->w, J->pen[g], &J->best[g]);
+        J->best[g].a = J->a[g];
     }
-    nn_free(C.us), nn_free(C.uy), nn_free(C.vs), nn_free(C.vy), nn_free(C.theta), nn_free(C.m2);
+    ctx_free(&C);
+}
+
+static void path_refine(void *ctx, long lo, long hi) {
+    PathJob *J = ctx;
+    Ctx C = path_ctx(J);
+    long W = (long)C.T * C.k;
+    double *xv = nn_alloc((size_t)W * sizeof *xv), e;
+    for (long i = lo; i < hi; i++) {
+        int g = J->refine[i];
+        Best *b = &J->best[g];
+        Canonical cw = *J->c;
+        double half = 0.5 * fabs(J->a[g]);
+        for (int level = 0; level < 2; level++, half /= 4) {
+            double centre = b->a;
+            for (int q = -4; q <= 4; q++) {
+                cw.c3[0] = centre + half * q / 4;
+                if (q == 0 || cw.c3[0] == 0 || !warp_ok(J->c, cw.c3[0], J->zmax)) continue;
+                set_samples(&C, &cw);
+                double wt[CANON_MAX_K];
+                memcpy(wt, b->w, sizeof wt);
+                double sc = J->pen[g] * fit_w(&C, b->m, wt, xv, &e);
+                J->steps[g]++;
+                if (sc < b->score) {
+                    b->score = sc, b->forecast = e, b->a = cw.c3[0];
+                    memcpy(b->x, xv, (size_t)W * sizeof *xv);
+                    memcpy(b->w, wt, sizeof wt);
+                }
+            }
+        }
+    }
+    nn_free(xv);
+    ctx_free(&C);
 }
 
 int canonical_select(Canonical *c, const Library *lib, const SelectData *data, const SelectOptions *opt,
@@ -283,7 +331,7 @@ int canonical_select(Canonical *c, const Library *lib, const SelectData *data, c
     set_samples(&C, &cw);
     uint8_t *m0 = nn_alloc((size_t)W);
     double *xv = nn_alloc((size_t)W * sizeof *xv), e;
-    Best b = {INFINITY, 0, {0}, nn_alloc((size_t)W), nn_alloc((size_t)W * sizeof(double)), 0};
+    Best b = {INFINITY, 0, {0}, nn_alloc((size_t)W), nn_alloc((size_t)W * sizeof(double)), 0, 0};
     for (long q = 0; q < W; q++) m0[q] = c->mask[q] != 0;
     int rc = 0;
     double s0 = trial(&C, c->w, m0, xv, &e);
@@ -314,41 +362,30 @@ int canonical_select(Canonical *c, const Library *lib, const SelectData *data, c
     Best pb[1 + NR];
     int psteps[1 + NR];
     for (int g = 0; g < n_path; g++)
-        pb[g] = (Best){INFINITY, 0, {0}, nn_alloc((size_t)W), nn_alloc((size_t)W * sizeof(double)), 0};
-    PathJob job = {c, lib, data, opt, m0, pa, ppen, pb, psteps};
+        pb[g] = (Best){INFINITY, 0, {0}, nn_alloc((size_t)W), nn_alloc((size_t)W * sizeof(double)), 0, 0};
+    int refine[1 + NR], n_refine = 0;
+    PathJob job = {c, lib, data, opt, m0, pa, ppen, zmax, pb, psteps, refine};
     int blas = nn_set_blas_threads(1);
-    par_for(n_path, 1, path_run, &job);
+    par_for(n_path, 1, path_eliminate, &job);
+    for (int g = 1; g < n_path; g++) {
+        int beaten = !isfinite(pb[g].score);
+        for (int h = 1; h < n_path && !beaten; h++)
+            beaten = h != g && !memcmp(pb[h].m, pb[g].m, (size_t)W) &&
+                     (pb[h].score < pb[g].score || (pb[h].score == pb[g].score && h < g));
+        if (!beaten) refine[n_refine++] = g;
+    }
+    par_for(n_refine, 1, path_refine, &job);
     nn_set_blas_threads(blas);
-    double best_a = 0, pen = wpen;
+    double best_a = 0;
     for (int g = 0; g < n_path; g++) {
         rep->steps += psteps[g];
         if (pb[g].score < b.score) {
-            b.score = pb[g].score, b.forecast = pb[g].forecast, b.n = pb[g].n, best_a = pa[g];
+            b.score = pb[g].score, b.forecast = pb[g].forecast, b.n = pb[g].n, best_a = pb[g].a;
             memcpy(b.m, pb[g].m, (size_t)W);
             memcpy(b.x, pb[g].x, (size_t)W * sizeof(double));
             memcpy(b.w, pb[g].w, sizeof b.w);
         }
         nn_free(pb[g].m), nn_free(pb[g].x);
-    }
-    if (best_a != 0) {
-        double half = 0.5 * fabs(best_a);
-        for (int level = 0; level < 2; level++, half /= 4) {
-            double centre = best_a;
-            for (int g = -4; g <= 4; g++) {
-                cw.c3[0] = centre + half * g / 4;
-                if (g == 0 || cw.c3[0] == 0 || !warp_ok(c, cw.c3[0], zmax)) continue;
-                set_samples(&C, &cw);
-                double wt[CANON_MAX_K];
-                memcpy(wt, b.w, sizeof wt);
-                double s = pen * fit_w(&C, b.m, wt, xv, &e);
-                rep->steps++;
-                if (s < b.score) {
-                    b.score = s, b.forecast = e, best_a = cw.c3[0];
-                    memcpy(b.x, xv, (size_t)W * sizeof *xv);
-                    memcpy(b.w, wt, sizeof wt);
-                }
-            }
-        }
     }
     rep->score = b.score, rep->forecast = b.forecast, rep->warp = best_a;
     if (b.n < c->active) {

@@ -21,8 +21,11 @@
  * coordinate shows in its law as extra terms (z = theta + e theta^3 turns theta'' = f(theta, theta')
  * into one with a term in z (z')^2, besides the sine turned into z and sin z), which no affine map
  * removes. The elimination is repeated at a coarse grid of 24 values of a z_rms^2 from +-0.0025 to
- * +-0.15 (only maps with g' >= A / 5 over the data), a then refined on two finer grids with the
- * best law's terms; the warp costs the parsimony factor of a cubic term (1 + 3 tol). The state maps
+ * +-0.15 (only maps with g' >= A / 5 over the data); then, for each set of terms that is the best law
+ * of some warped path, a is refined on two finer grids around the warp of the path that scored it
+ * best (a law of few terms is the one most sensitive to the warp: on one lantern run the two-term
+ * law's forecast error fell from 4.9% to 1.5% of the spread). The warp costs the parsimony factor
+ * of a cubic term (1 + 3 tol). The state maps
  * to u = g(z), u' = g'(z) z', the target to u'' = g'(z) z'' + g''(z) z'^2 (canonical_map_state,
  * canonical_map_target).
  *

@@ -231,7 +231,7 @@ static void test_command(void **state) {
     } bad[] = {
         {"canonical '%s/run' --set train.epochs=5", "only canonical.* keys may change here"},
         {"canonical '%s/run' --set canonical.cond_max=0.5", "canonical.cond_max: must be a number >= 1"},
-        {"canonical '%s/run' --set canonical.choose=best", "canonical.choose: must be one of fit, forecast"},
+        {"canonical '%s/run' --set canonical.choose=best", "canonical.choose: must be one of fit, forecast, auto"},
         {"canonical '%s/nowhere'", "no such run folder"},
         {"canonical", "missing RUN_DIR"},
         {"canonical '%s/run' --bogus", "--bogus: unknown option"},

@@ -33,7 +33,7 @@ typedef enum { SCHED_CONSTANT, SCHED_STEP, SCHED_COSINE, SCHED_COUNT } LrSchedul
 typedef enum { MEASURE_COEFFICIENT, MEASURE_CONTRIBUTION, MEASURE_COUNT } ThreshMeasure;    /* threshold.measure */
 typedef enum { SELECT_NONE, SELECT_FIRST, SELECT_EVERY, SELECT_COUNT } ThreshSelect;        /* threshold.select */
 typedef enum { ENSFIT_AUTO, ENSFIT_SELECTION, ENSFIT_THRESHOLDING, ENSFIT_COUNT } EnsembleFit; /* ensemble.method */
-typedef enum { CANON_CHOOSE_FIT, CANON_CHOOSE_FORECAST, CANON_CHOOSE_COUNT } CanonChoose; /* canonical.choose */
+typedef enum { CANON_CHOOSE_FIT, CANON_CHOOSE_FORECAST, CANON_CHOOSE_AUTO, CANON_CHOOSE_COUNT } CanonChoose; /* canonical.choose */
 
 /* The names of those enums' values, indexed by value ("central", "savgol", "auto"; ...). */
 extern const char *const deriv_method_names[];    /* (DERIV_METHOD_COUNT) */
@@ -136,7 +136,7 @@ typedef struct {
     /* canonical (docs/canonical.md) */
     double canon_tolerance;         /* canonical.tolerance: allowed growth of the fit error       [0.05] */
     double canon_cond_max;          /* canonical.cond_max: bound on the map's condition number    [1000] */
-    CanonChoose canon_choose;       /* canonical.choose: "fit" | "forecast"                      [fit] */
+    CanonChoose canon_choose;       /* canonical.choose: "fit" | "forecast" | "auto"            [auto] */
     /* output */
     char output[CFG_PATH_MAX];      /* output: run directory                       [runs/<config name>] */
     unsigned char given[16];        /* bit i: key i of the table was given (file, --set), not defaulted */

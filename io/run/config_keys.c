@@ -46,7 +46,7 @@ const char *const thresh_select_names[] = {"none", "first", "every"};
 _Static_assert(sizeof thresh_select_names / sizeof thresh_select_names[0] == SELECT_COUNT, "thresh_select_names");
 const char *const ensemble_fit_names[] = {"auto", "selection", "thresholding"};
 _Static_assert(sizeof ensemble_fit_names / sizeof ensemble_fit_names[0] == ENSFIT_COUNT, "ensemble_fit_names");
-const char *const canon_choose_names[] = {"fit", "forecast"};
+const char *const canon_choose_names[] = {"fit", "forecast", "auto"};
 _Static_assert(sizeof canon_choose_names / sizeof canon_choose_names[0] == CANON_CHOOSE_COUNT, "canon_choose_names");
 
 /* Keys that hold a module's enum list its names in the config's own order (the order the docs and
@@ -280,11 +280,11 @@ const KeyDef config_keys[] = {
     K_NUM("canonical.cond_max", canon_cond_max, "1000", 1, INFINITY, 0,
           "bound on the condition number of the map to canonical coordinates, between standardised "
           "coordinates; a map beyond it is never reported"),
-    K_CHOICE("canonical.choose", canon_choose, "\"fit\"", canon_choose_names, NULL,
+    K_CHOICE("canonical.choose", canon_choose, "\"auto\"", canon_choose_names, NULL,
           "how the canonical law's terms are chosen: fit = the fewest terms within canonical.tolerance of the fit "
           "error; forecast = then leave out terms (and refit the sine frequencies, and with one latent variable "
-          "a cubic warp of the map) by the selection's forecast score in the canonical coordinates "
-          "(docs/canonical.md)"),
+          "a cubic warp of the map) by the selection's forecast score in the canonical coordinates; auto = "
+          "forecast with one latent variable, fit with several (docs/canonical.md)"),
     /* output */
     K_PATH("output", output, "`runs/<config file stem>`",
            "run directory, relative to the current directory"),

@@ -33,7 +33,10 @@ int run_canonical_get(LoadedRun *r, int quiet, Status *st) {
         return st->code;
     }
     int code = canonical_find(&rc->c, &r->m.lib, r->coef.xi, r->coef.mask, es.state, es.target, es.N, &o, st);
-    if (!code && r->cfg.canon_choose == CANON_CHOOSE_FORECAST) {
+    /* auto: the forecast choice with one latent variable; with several it cost the convection cell
+     * its chaos on one seed of five (docs/canonical.md, "The forecast choice") */
+    int by_forecast = r->cfg.canon_choose == CANON_CHOOSE_FORECAST || (r->cfg.canon_choose == CANON_CHOOSE_AUTO && es.d == 1);
+    if (!code && by_forecast) {
         /* the selection's data: the samples in training order, a new recording at every gap */
         int nr;
         long *rs = encoded_set_runs(&es, &nr);
