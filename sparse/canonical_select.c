@@ -344,8 +344,8 @@ int canonical_select(Canonical *c, const Library *lib, const SelectData *data, c
     }
     rep->score_start = s0;
     /* path 0: the map as found; one latent variable: the cubic warp, a coarse grid of a z_rms^2 with
-     * an elimination at each (then two finer grids with the best law's terms, below); the warp costs
-     * what a cubic term costs */
+     * an elimination at each, then the warp refined for the paths' laws (PathJob above); the warp
+     * costs what a cubic term costs */
     static const double R[] = {-0.15, -0.11, -0.08, -0.06, -0.04, -0.03, -0.02, -0.015, -0.01, -0.0075, -0.005, -0.0025,
                                0.0025, 0.005, 0.0075, 0.01, 0.015, 0.02, 0.03, 0.04, 0.06, 0.08, 0.11, 0.15};
     enum { NR = sizeof R / sizeof R[0] };

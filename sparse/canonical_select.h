@@ -25,9 +25,8 @@
  * of some warped path, a is refined on two finer grids around the warp of the path that scored it
  * best (a law of few terms is the one most sensitive to the warp: on one lantern run the two-term
  * law's forecast error fell from 4.9% to 1.5% of the spread). The warp costs the parsimony factor
- * of a cubic term (1 + 3 tol). The state maps
- * to u = g(z), u' = g'(z) z', the target to u'' = g'(z) z'' + g''(z) z'^2 (canonical_map_state,
- * canonical_map_target).
+ * of a cubic term (1 + 3 tol). The state maps to u = g(z), u' = g'(z) z', the target to
+ * u'' = g'(z) z'' + g''(z) z'^2 (canonical_map_state, canonical_map_target).
  *
  * Why a law in u with sin(f w u) can use the selection unchanged: in v_i = w_i u_i the canonical
  * trig terms are the library's sin(f v_i), every monomial of u is a monomial of v times a constant
