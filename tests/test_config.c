@@ -342,11 +342,13 @@ static void test_digest(void **state) {
     assert_int_equal(c.map, MAP_CURVED);
     assert_int_equal(c.threshold_measure, MEASURE_COEFFICIENT);
     assert_int_equal(c.threshold_select, SELECT_NONE);
+    assert_int_equal(c.canon_choose, CANON_CHOOSE_FIT); /* resume-safe, so outside the digest */
     assert_true(config_digest(&c) == 0x0742f5f2c47c9cf7ull);
     /* read as a user's config, the keys it lacks take today's defaults: another digest */
     Config u0;
     assert_int_equal(config_load(&u0, path, &lst), 0);
     assert_int_equal(u0.derivatives, DERIVS_LATENT);
+    assert_int_equal(u0.canon_choose, CANON_CHOOSE_AUTO);
     assert_true(config_digest(&u0) != 0x0742f5f2c47c9cf7ull);
     test_rmtree(tmp);
     config_defaults(&c);
