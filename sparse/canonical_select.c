@@ -243,11 +243,11 @@ typedef struct {
     const int *refine;          /* the refinement's paths (phase 2) */
 } PathJob;
 
-/* Work of one thread: a Ctx on the data with buffers of its own. */
-static Ctx path_ctx(const PathJob *J) {
-    int k = J->c->k, nv = J->lib->n_vars, T = J->lib->n_terms;
-    long N = J->D->N;
-    Ctx C = {J->lib, J->D, J->o, N, k, nv, T, NULL, NULL, NULL, NULL, NULL, NULL, {0}};
+/* A Ctx on the data with work buffers of its own (one per thread; ctx_free releases them). */
+static Ctx ctx_new(const Library *lib, const SelectData *D, const SelectOptions *o, int k) {
+    int nv = lib->n_vars, T = lib->n_terms;
+    long N = D->N;
+    Ctx C = {lib, D, o, N, k, nv, T, NULL, NULL, NULL, NULL, NULL, NULL, {0}};
     C.us = nn_alloc((size_t)N * nv * sizeof *C.us);
     C.uy = nn_alloc((size_t)N * k * sizeof *C.uy);
     C.vs = nn_alloc((size_t)N * nv * sizeof *C.vs);
@@ -263,7 +263,7 @@ static void ctx_free(Ctx *C) {
 
 static void path_eliminate(void *ctx, long lo, long hi) {
     PathJob *J = ctx;
-    Ctx C = path_ctx(J);
+    Ctx C = ctx_new(J->lib, J->D, J->o, J->c->k);
     for (long g = lo; g < hi; g++) {
         Canonical cw = *J->c; /* shares c's arrays, which map_* do not read */
         cw.c3[0] = J->a[g];
@@ -276,7 +276,7 @@ static void path_eliminate(void *ctx, long lo, long hi) {
 
 static void path_refine(void *ctx, long lo, long hi) {
     PathJob *J = ctx;
-    Ctx C = path_ctx(J);
+    Ctx C = ctx_new(J->lib, J->D, J->o, J->c->k);
     long W = (long)C.T * C.k;
     double *xv = nn_alloc((size_t)W * sizeof *xv), e;
     for (long i = lo; i < hi; i++) {
@@ -319,13 +319,7 @@ int canonical_select(Canonical *c, const Library *lib, const SelectData *data, c
     if (data->d != k || data->n_vars != nv || T != c->n_terms)
         return status_set(st, ST_INPUT, "canonical selection: the data has %d state values and %d targets, the law %d and %d",
                           data->n_vars, data->d, nv, k);
-    Ctx C = {lib, data, opt, N, k, nv, T, NULL, NULL, NULL, NULL, NULL, NULL, {0}};
-    C.us = nn_alloc((size_t)N * nv * sizeof *C.us);
-    C.uy = nn_alloc((size_t)N * k * sizeof *C.uy);
-    C.vs = nn_alloc((size_t)N * nv * sizeof *C.vs);
-    C.vy = nn_alloc((size_t)N * k * sizeof *C.vy);
-    C.theta = nn_alloc((size_t)N * T * sizeof *C.theta);
-    C.m2 = nn_alloc((size_t)W);
+    Ctx C = ctx_new(lib, data, opt, k);
     Canonical cw = *c; /* the map with a trial warp (shares c's arrays, which map_* do not read) */
     cw.c3[0] = 0;
     set_samples(&C, &cw);
@@ -406,7 +400,7 @@ int canonical_select(Canonical *c, const Library *lib, const SelectData *data, c
     }
     status_ok(st);
 done:
-    nn_free(C.us), nn_free(C.uy), nn_free(C.vs), nn_free(C.vy), nn_free(C.theta), nn_free(C.m2);
+    ctx_free(&C);
     nn_free(m0), nn_free(xv), nn_free(b.m), nn_free(b.x);
     return rc;
 }
