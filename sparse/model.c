@@ -109,6 +109,49 @@ static Node *window(Tape *t, Node *a, const float *w, int win) {
     return c;
 }
 
+/* Frame sharing (model_loss_shared): the codes za (U, d) of the batch's distinct frames and a map
+ * (win B) of rows, map[j B + b] the row of the frame at offset j - m of sample b. ctx: a WindowMap. */
+typedef struct {
+    const float *w; /* (win) the stencil's weights; NULL: the map's rows at offset c (a gather) */
+    const int *map; /* (win B) */
+    int win;
+} WindowMap;
+
+/* c (B, d) = sum_j w_j za[map[j B + b]]; backward dza[map[j B + b]] += w_j dc[b], in the order of
+ * j, then b (one thread: the same bits on every run). */
+static void window_map_backward(Tape *t, Node *c) {
+    (void)t;
+    Node *a = c->in[0];
+    if (!a->grad) return;
+    const WindowMap *wm = c->ctx;
+    int B = c->val.rows, d = c->val.cols;
+    for (int j = 0; j < wm->win; j++)
+        for (int b = 0; b < B; b++) {
+            float *ga = a->grad + (long)wm->map[(long)j * B + b] * d;
+            const float *gc = c->grad + (long)b * d;
+            float wj = wm->w ? wm->w[j] : 1.0f;
+            for (int i = 0; i < d; i++) ga[i] += wj * gc[i];
+        }
+}
+
+static const CustomOp WINDOW_MAP_OP = {"window_map", window_map_backward};
+
+/* The stencil (w != NULL, win terms) or the gather of one offset (w == NULL: map already points at
+ * the offset's B entries and win is 1) over the codes za (U, d). */
+static Node *window_map(Tape *t, Node *za, const float *w, int win, const int *map, int B) {
+    int d = za->val.cols;
+    WindowMap *wm = arena_alloc(&t->arena, sizeof *wm);
+    *wm = (WindowMap){w, map, win};
+    Node *c = nn_custom(t, &WINDOW_MAP_OP, wm, &za, 1, B, d);
+    for (int b = 0; b < B; b++)
+        for (int i = 0; i < d; i++) {
+            float acc = 0;
+            for (int j = 0; j < win; j++) acc += (w ? w[j] : 1.0f) * za->val.d[(long)map[(long)j * B + b] * d + i];
+            c->val.d[(long)b * d + i] = acc;
+        }
+    return c;
+}
+
 /* The L1 term. With m->l1_contribution each coefficient is weighed by rms(Theta_t) / rms(target_i)
  * over the batch (theta (B, T) and target (B, d) as recorded): a constant of the step. */
 static Node *l1_term(Tape *t, const Model *m, Node *xi, const Node *theta, const Node *target) {
@@ -132,15 +175,28 @@ static Node *weighted(Tape *t, Node *acc, Node *term, float w) {
     return acc ? nn_add(t, acc, x) : x;
 }
 
-/* The loss with derivatives in latent space (model_set_window). */
-static Node *model_loss_window(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const LossWeights *w,
-                               LossParts *parts) {
+/* The loss with derivatives in latent space (model_set_window). map == NULL: X holds the win
+ * frames of every sample (U = win B rows); else X (U, n_in) holds the batch's distinct frames and
+ * map (win B) places them (model_loss_shared). */
+static Node *model_loss_window(Tape *t, const Model *m, ParamSet *ps, float *X, int U, const int *map, int B,
+                               const LossWeights *w, LossParts *parts) {
     int win = m->win, c = win / 2;
-    Node *x = nn_input(t, X, win * B, m->n_in);                 /* (win B, n_in) */
-    Node *za = mlp_forward(t, &m->enc, ps, x, 1);               /* (win B, d) codes of every frame */
-    Node *z0 = nn_rows(t, za, c * B, B);                        /* the centre frame's */
-    Node *z1 = m->order == 2 ? window(t, za, m->lw1, win) : NULL;
-    Node *zt = window(t, za, m->order == 2 ? m->lw2 : m->lw1, win); /* z'' or z' */
+    Node *x = nn_input(t, X, U, m->n_in);                       /* (U, n_in) */
+    Node *za = mlp_forward(t, &m->enc, ps, x, 1);               /* (U, d) codes of every frame */
+    Node *z0, *z1 = NULL, *zt;
+    float *Xc = X + (long)c * B * m->n_in;                      /* (B, n_in) the centre frames */
+    if (!map) {
+        z0 = nn_rows(t, za, c * B, B);                          /* the centre frame's */
+        if (m->order == 2) z1 = window(t, za, m->lw1, win);
+        zt = window(t, za, m->order == 2 ? m->lw2 : m->lw1, win); /* z'' or z' */
+    } else {
+        z0 = window_map(t, za, NULL, 1, map + (long)c * B, B);
+        if (m->order == 2) z1 = window_map(t, za, m->lw1, win, map, B);
+        zt = window_map(t, za, m->order == 2 ? m->lw2 : m->lw1, win, map, B);
+        Xc = arena_alloc(&t->arena, (size_t)B * m->n_in * sizeof *Xc);
+        for (int b = 0; b < B; b++)
+            memcpy(Xc + (long)b * m->n_in, X + (long)map[(long)c * B + b] * m->n_in, (size_t)m->n_in * sizeof *Xc);
+    }
     Node *s = m->order == 1 ? z0 : nn_hstack(t, z0, z1);
     Node *theta = library_op(t, &m->lib, s);
     Node *xi = nn_mul(t, nn_param(t, ps, m->xi), nn_input(t, m->maskf, m->lib.n_terms, m->n_latent));
@@ -148,7 +204,7 @@ static Node *model_loss_window(Tape *t, const Model *m, ParamSet *ps, float *X, 
     int L = m->dec.n_layers - 1, blocks[1] = {0};
     float wx[1] = {w->rec};
     Node *hd = mlp_forward_hidden(t, &m->dec, ps, z0, 1, L);
-    Node *xc = nn_input(t, X + (long)c * B * m->n_in, B, m->n_in);
+    Node *xc = nn_input(t, Xc, B, m->n_in);
     Node *rx = nn_dense_sq_err(t, hd, nn_param(t, ps, m->dec.W[L]), nn_param(t, ps, m->dec.b[L]), xc, 1, 1, blocks, wx);
     Node *ddz = nn_mean_sq(t, nn_sub(t, zt, pred));
     if (m->dz_relative) ddz = ratio(t, ddz, nn_mean_sq(t, zt));
@@ -167,7 +223,7 @@ static Node *model_loss_window(Tape *t, const Model *m, ParamSet *ps, float *X, 
 
 Node *model_loss(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const LossWeights *w,
                  LossParts *parts) {
-    if (m->win) return model_loss_window(t, m, ps, X, B, w, parts);
+    if (m->win) return model_loss_window(t, m, ps, X, m->win * B, NULL, B, w, parts);
     int k = m->order + 1, d = m->n_latent;
     Node *x = nn_input(t, X, k * B, m->n_in);                   /* (kB, n_in) */
     Node *z = mlp_forward(t, &m->enc, ps, x, k);                /* (kB, d) */
@@ -202,6 +258,12 @@ Node *model_loss(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const L
         parts->total = loss->val.d[0];
     }
     return loss;
+}
+
+Node *model_loss_shared(Tape *t, const Model *m, ParamSet *ps, float *X, int U, const int *map, int B,
+                        const LossWeights *w, LossParts *parts) {
+    NN_CHECK(m->win > 0, "model_loss_shared: the model has no stencil window (model_set_window)");
+    return model_loss_window(t, m, ps, X, U, map, B, w, parts);
 }
 
 void model_encode(Tape *t, const Model *m, ParamSet *ps, float *X, int B, int k, float *out) {

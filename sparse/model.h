@@ -87,6 +87,14 @@ void model_init_params(Model *m, ParamSet *ps, Rng *rng);
 Node *model_loss(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const LossWeights *w,
                  LossParts *parts);
 
+/* model_loss with derivatives in latent space (win > 0) when the batch's samples share frames:
+ * X (U, n_in) holds each distinct frame once and map (win B) places them, map[j B + b] the row of X
+ * holding the frame at offset j - m of sample b. Each frame goes through the encoder once and its
+ * code's gradient is the sum over the places it fills. The same loss and gradients as model_loss on
+ * the expanded batch, to float rounding. */
+Node *model_loss_shared(Tape *t, const Model *m, ParamSet *ps, float *X, int U, const int *map, int B,
+                        const LossWeights *w, LossParts *parts);
+
 /* Encode only: z (k B, n_latent) rows copied to out; returns out. For trajectories and forecasts. */
 void model_encode(Tape *t, const Model *m, ParamSet *ps, float *X, int B, int k, float *out);
 

@@ -374,7 +374,7 @@ static int child_main(const Workload *w, int threads, const char *store_path, co
     c.refine_epochs = 0;
     c.ckpt_every = 0;
     c.ckpt_keep = 1;
-    TrainData td = {(int)d.ds.n, d.k, d.ds.count[SPLIT_TRAIN], 0, d.ds.dt, data_gather, &d, NULL, NULL, NULL};
+    TrainData td = {(int)d.ds.n, d.k, d.ds.count[SPLIT_TRAIN], 0, d.ds.dt, data_gather, &d, NULL, NULL, NULL, NULL};
     TrainOpts o = {&c, run_dir, 0, 1, NULL, 0, NULL, NULL};
     Model m;
     ParamSet ps;

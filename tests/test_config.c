@@ -32,7 +32,7 @@ static const char *FULL =
     "  \"loss\": {\"reconstruction\": 0.5, \"dx\": 0.001, \"dz\": 1e-6, \"l1\": 0.1, \"normalize\": false},\n"
     "  \"optimizer\": {\"lr\": 3e-4, \"beta1\": 0.8, \"beta2\": 0.99, \"eps\": 1e-7, \"schedule\": \"cosine\",\n"
     "                \"decay_every\": 50, \"decay_factor\": 0.25, \"lr_min\": 1e-5},\n"
-    "  \"train\": {\"batch\": 64, \"epochs\": 20000, \"seed\": 9007199254740991, \"threads\": 4,\n"
+    "  \"train\": {\"batch\": 64, \"run_length\": 16, \"epochs\": 20000, \"seed\": 9007199254740991, \"threads\": 4,\n"
     "            \"validate_every\": 5, \"warmup_epochs\": 50, \"warmup_fit\": false, \"memory_budget\": 2.5},\n"
     "  \"threshold\": {\"value\": 0.05, \"measure\": \"coefficient\", \"select\": \"first\", \"every\": 300, \"refine_epochs\": 5000},\n"
     "  \"checkpoint\": {\"every\": 25, \"keep\": 7},\n"

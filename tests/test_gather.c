@@ -154,6 +154,46 @@ static void test_gather_numeric(void **state) {
     rm_rf(dir);
 }
 
+/* The shared gather (each distinct frame once, and a map) places the same rows as the window
+ * gather, bit for bit, and holds each frame once: a whole recording's samples in any order need
+ * its frames and no more (common practice: a gather's result does not depend on its order). */
+static void test_gather_window_shared(void **state) {
+    (void)state;
+    char dir[256];
+    assert_non_null(test_tmpdir(dir, sizeof dir));
+    int lens[2] = {40, 30};
+    write_numeric(dir, lens, 2, 3, 0.05);
+    FrameSettings s = frame_settings_default();
+    s.fps = 20, s.val_last = 1, s.stencil = STENCIL_SAVGOL, s.sg_window = 7, s.sg_degree = 3;
+    FrameStore fs;
+    Dataset ds;
+    Status st;
+    open_all(dir, &s, &fs, &ds, &st, 0);
+    int win = 2 * ds.sten.m + 1;
+    assert_int_equal(win, 7);
+    for (int sp = 0; sp < SPLIT_COUNT; sp++) {
+        int B = (int)ds.count[sp];
+        long *idx = malloc(sizeof *idx * (size_t)B), *work = malloc(sizeof *work * 2 * (size_t)win * B);
+        float *xw = malloc(sizeof(float) * (size_t)win * B * 3), *xu = malloc(sizeof(float) * (size_t)win * B * 3);
+        int *map = malloc(sizeof *map * (size_t)win * B);
+        for (int b = 0; b < B; b++) idx[b] = (b * 7) % B; /* any order (7 is prime to 34 and 24) */
+        dataset_gather_window(&ds, (SplitId)sp, idx, B, xw);
+        int U = dataset_gather_window_shared(&ds, (SplitId)sp, idx, B, xu, map, work);
+        assert_int_equal(U, B + win - 1); /* the recording's frames, each once */
+        for (long i = 0; i < (long)win * B; i++) {
+            assert_true(map[i] >= 0 && map[i] < U);
+            assert_memory_equal(xu + (long)map[i] * 3, xw + i * 3, 3 * sizeof(float));
+        }
+        /* two samples, far apart: nothing to share */
+        long two[2] = {0, B - 1};
+        assert_int_equal(dataset_gather_window_shared(&ds, (SplitId)sp, two, 2, xu, map, work), 2 * win);
+        free(idx), free(work), free(xw), free(xu), free(map);
+    }
+    dataset_free(&ds);
+    store_close(&fs);
+    rm_rf(dir);
+}
+
 /* 8-bit frames: x = q / 255 and x' = (q[f+1] - q[f-1]) / (2 dt 255), x'' = (q[f+1] - 2 q[f] +
  * q[f-1]) / (dt^2 255) (second-order central differences; common practice). dx and ddx may be
  * NULL. */
@@ -240,6 +280,7 @@ static void test_standardize(void **state) {
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_samples_and_split), cmocka_unit_test(test_gather_numeric),
+        cmocka_unit_test(test_gather_window_shared),
         cmocka_unit_test(test_gather_images),     cmocka_unit_test(test_standardize),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

@@ -209,6 +209,73 @@ static void test_window_gradients_second_order(void **state) { (void)state; chec
 static void test_first_order_model_gradients(void **state) { (void)state; check_model(1); }
 static void test_second_order_model_gradients(void **state) { (void)state; check_model(2); }
 
+/* Frame sharing (model_loss_shared): a batch whose samples overlap in time (neighbours, a repeat
+ * and a far one) as its distinct frames once plus a map gives the loss and every parameter's
+ * gradient of the expanded batch (each sample's win frames), to float rounding. Reference: the
+ * expanded loss, checked against finite differences above; a shared input's gradient is the sum
+ * over its uses (common practice: the multivariable chain rule). */
+static void check_shared(int order) {
+    enum { N_IN = 6, F = 16, WIN = 5, B = 7 };
+    Model m;
+    ParamSet ps;
+    Rng r;
+    small_model(&m, &ps, &r, N_IN, 2, order, 4, 3, 131 + order);
+    Status st;
+    Stencil sten;
+    assert_int_equal(stencil_savgol(&sten, WIN, 3, &st), 0);
+    model_set_window(&m, &sten, 0.5);
+    static float frames[F * N_IN], Xe[WIN * B * N_IN], Xu[WIN * B * N_IN];
+    for (int f = 0; f < F; f++) /* a smooth recording: sines of time per value */
+        for (int i = 0; i < N_IN; i++) frames[f * N_IN + i] = (float)(0.6 * sin(0.3 * f * (1 + 0.2 * i) + i));
+    const int centre[B] = {4, 5, 6, 7, 5, 12, 2}; /* 5 twice; 12 shares nothing with the others' windows */
+    int map[WIN * B], U = 0, row_of[F];
+    for (int f = 0; f < F; f++) row_of[f] = -1;
+    for (int j = 0; j < WIN; j++)
+        for (int b = 0; b < B; b++) {
+            int f = centre[b] - WIN / 2 + j;
+            memcpy(Xe + ((long)j * B + b) * N_IN, frames + f * N_IN, N_IN * sizeof(float));
+            if (row_of[f] < 0) {
+                row_of[f] = U;
+                memcpy(Xu + (long)U * N_IN, frames + f * N_IN, N_IN * sizeof(float));
+                U++;
+            }
+            map[j * B + b] = row_of[f];
+        }
+    assert_int_equal(U, 15); /* frames 0..14: fewer rows than the expanded 35 */
+    LossWeights w = {1.0f, 0.0f, 0.7f, 0.01f};
+    Tape t;
+    tape_init(&t, 128, 1 << 16);
+    for (int rel = 0; rel < 2; rel++) {
+        m.dz_relative = rel;
+        LossParts pe, pu;
+        params_zero_grad(&ps);
+        tape_backward(&t, model_loss(&t, &m, &ps, Xe, B, &w, &pe));
+        float *ge = malloc(ps.n * sizeof *ge);
+        memcpy(ge, ps.grad, ps.n * sizeof *ge);
+        tape_reset(&t);
+        params_zero_grad(&ps);
+        tape_backward(&t, model_loss_shared(&t, &m, &ps, Xu, U, map, B, &w, &pu));
+        tape_reset(&t);
+        /* float32 sums in another order: a few units of rounding of the largest terms */
+        assert_close(pu.total, pe.total, 1e-5, 1e-7);
+        assert_close(pu.rec, pe.rec, 1e-5, 1e-7);
+        assert_close(pu.dz, pe.dz, 1e-5, 1e-7);
+        assert_close(pu.l1, pe.l1, 1e-6, 0);
+        double gmax = 0;
+        for (size_t i = 0; i < ps.n; i++) gmax = fmax(gmax, fabs(ge[i]));
+        assert_true(gmax > 0);
+        for (size_t i = 0; i < ps.n; i++)
+            if (fabs(ps.grad[i] - ge[i]) > 1e-5 * gmax) fail_msg("order %d: grad %zu shared %g expanded %g", order, i, ps.grad[i], ge[i]);
+        free(ge);
+    }
+    tape_free(&t);
+    model_free(&m);
+    params_free(&ps);
+}
+
+static void test_shared_frames_first_order(void **state) { (void)state; check_shared(1); }
+static void test_shared_frames_second_order(void **state) { (void)state; check_shared(2); }
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_first_order_model_gradients),
@@ -216,6 +283,8 @@ int main(void) {
         cmocka_unit_test(test_window_gradients_first_order),
         cmocka_unit_test(test_window_gradients_second_order),
         cmocka_unit_test(test_window_matches_tangents_for_linear_encoder),
+        cmocka_unit_test(test_shared_frames_first_order),
+        cmocka_unit_test(test_shared_frames_second_order),
     };
     return cmocka_run_group_tests_name("joint model", tests, NULL, NULL);
 }

@@ -55,7 +55,7 @@ static int osc_gather(void *ctx, int split, const long *idx, int B, float *X, St
 }
 
 static TrainData osc_dataset(Osc *o) {
-    TrainData ds = {NCH, 2, (long)(NREC - 1) * NT, NT, o->dt, osc_gather, o, NULL, NULL, NULL};
+    TrainData ds = {NCH, 2, (long)(NREC - 1) * NT, NT, o->dt, osc_gather, o, NULL, NULL, NULL, NULL};
     return ds;
 }
 
@@ -171,8 +171,7 @@ static int same_params(const ParamSet *a, const ParamSet *b) {
 
 /* 2N epochs straight == N epochs, resume, N epochs, bit for bit (same thread count); and a stop in
  * the middle of an epoch resumes to the same result too. */
-static void test_resume_is_bit_exact(void **state) {
-    (void)state;
+static void resume_bit_exact(int run_length) {
     char d1[256], d2[256], d3[256];
     assert_non_null(test_tmpdir(d1, sizeof d1));
     assert_non_null(test_tmpdir(d2, sizeof d2));
@@ -182,10 +181,12 @@ static void test_resume_is_bit_exact(void **state) {
     ParamSet p1, p2, p3;
     TrainResult res;
     small_config(&c, d1);
+    c.run_length = run_length;
     assert_int_equal(run(&c, d1, 0, 0, &m1, &p1, &res), 0);
     assert_int_equal(res.epochs_done, 6);
 
     small_config(&c, d2); /* stopped after 30 steps: the end of epoch 3 (10 batches an epoch) */
+    c.run_length = run_length;
     assert_int_equal(run(&c, d2, 0, 30, &m2, &p2, &res), 0);
     assert_true(res.interrupted);
     assert_int_equal(res.epochs_done, 3);
@@ -196,6 +197,7 @@ static void test_resume_is_bit_exact(void **state) {
     assert_memory_equal(m1.mask, m2.mask, (size_t)m1.lib.n_terms * 2);
 
     small_config(&c, d3); /* stopped after 17 steps: inside the second epoch */
+    c.run_length = run_length;
     assert_int_equal(run(&c, d3, 0, 17, &m3, &p3, &res), 0);
     assert_true(res.interrupted);
     assert_int_equal(res.epochs_done, 1);
@@ -212,6 +214,81 @@ static void test_resume_is_bit_exact(void **state) {
     test_rmtree(d1);
     test_rmtree(d2);
     test_rmtree(d3);
+}
+
+static void test_resume_is_bit_exact(void **state) {
+    (void)state;
+    resume_bit_exact(1);
+}
+
+/* The same with train.run_length 8 (an epoch deals runs of 8 consecutive samples): the order a
+ * checkpoint keeps gives the next epoch's runs after a resume. */
+static void test_resume_is_bit_exact_in_runs(void **state) {
+    (void)state;
+    resume_bit_exact(8);
+}
+
+/* train.run_length R: every epoch's training batches hold each training sample once, in runs
+ * [k R, (k + 1) R) laid out whole and shuffled (common practice: a shuffle of blocks), and two
+ * epochs deal different orders. */
+typedef struct {
+    Osc o;
+    long seen[6 * (NREC - 1) * NT];
+    long n_seen;
+} RecordOsc;
+
+static int record_gather(void *ctx, int split, const long *idx, int B, float *X, Status *st) {
+    RecordOsc *p = ctx;
+    if (!split)
+        for (int b = 0; b < B; b++) {
+            assert_true(p->n_seen < (long)(sizeof p->seen / sizeof p->seen[0]));
+            p->seen[p->n_seen++] = idx[b];
+        }
+    return osc_gather(&p->o, split, idx, B, X, st);
+}
+
+static void test_run_length_deals_runs(void **state) {
+    (void)state;
+    enum { R = 8, N = (NREC - 1) * NT };
+    char d[256];
+    assert_non_null(test_tmpdir(d, sizeof d));
+    Config c;
+    small_config(&c, d);
+    c.run_length = R;
+    c.w_l1 = 0; /* the mechanics only */
+    static RecordOsc ro;
+    memset(&ro, 0, sizeof ro);
+    osc_init(&ro.o);
+    TrainData ds = osc_dataset(&ro.o);
+    ds.gather = record_gather, ds.ctx = &ro;
+    TrainOpts opts = {&c, d, 0, 1, NULL, 0, NULL, NULL};
+    Model m;
+    ParamSet ps;
+    TrainResult res;
+    Status st;
+    assert_int_equal(train_run(&opts, &ds, &m, &ps, &res, &st), 0);
+    assert_int_equal(ro.n_seen, 6L * N); /* six epochs, the training set each */
+    static char hit[N];
+    int in_order_epochs = 0;
+    for (int e = 0; e < 6; e++) {
+        const long *o = ro.seen + (long)e * N;
+        memset(hit, 0, sizeof hit);
+        int in_order = 1;
+        for (long i = 0; i < N; i++) {
+            assert_true(o[i] >= 0 && o[i] < N);
+            assert_int_equal(hit[o[i]], 0);
+            hit[o[i]] = 1;
+            if (o[i] % R) assert_int_equal(o[i], o[i - 1] + 1); /* inside a run: its predecessor */
+            else if (i % R) fail_msg("epoch %d: a run starts at %ld, inside the layout's run", e, i);
+            if (i && o[i] != o[i - 1] + 1) in_order = 0;
+        }
+        in_order_epochs += in_order;
+        if (e) assert_true(memcmp(o, o - N, N * sizeof *o) != 0);
+    }
+    assert_int_equal(in_order_epochs, 0);
+    model_free(&m);
+    params_free(&ps);
+    test_rmtree(d);
 }
 
 /* A stop request that comes with the last step of an epoch: the end-of-epoch passes (a thresholding
@@ -462,7 +539,7 @@ static void ring_config(Config *c, const char *dir, ModelInit init) {
     c->init_epochs = 300;
 }
 
-static const TrainData RING_DATA = {RING, 2, RING_N, 0, 0.01, ring_gather, NULL, NULL, NULL, NULL};
+static const TrainData RING_DATA = {RING, 2, RING_N, 0, 0.01, ring_gather, NULL, NULL, NULL, NULL, NULL};
 
 static double ring_rank_correlation(ModelInit init) {
     char dir[256];
@@ -609,6 +686,8 @@ int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_loss_falls_and_thresholding_keeps_linear_terms),
         cmocka_unit_test(test_resume_is_bit_exact),
+        cmocka_unit_test(test_resume_is_bit_exact_in_runs),
+        cmocka_unit_test(test_run_length_deals_runs),
         cmocka_unit_test(test_corrupt_checkpoints_are_refused),
         cmocka_unit_test(test_divergence_stops_and_keeps_checkpoints),
         cmocka_unit_test(test_warmup_then_fit),

@@ -327,3 +327,46 @@ int dataset_recording_of(const Dataset *ds, long frame) {
     }
     return lo;
 }
+
+static int cmp_long(const void *a, const void *b) {
+    long x = *(const long *)a, y = *(const long *)b;
+    return (x > y) - (x < y);
+}
+
+typedef struct {
+    const Dataset *ds;
+    const long *frames;
+    float *x;
+} FramesJob;
+
+static void frames_range(void *ctx, long lo, long hi) {
+    const FramesJob *j = ctx;
+    for (long u = lo; u < hi; u++) dataset_frame(j->ds, j->frames[u], j->x + u * j->ds->n);
+}
+
+int dataset_gather_window_shared(const Dataset *ds, SplitId split, const long *idx, int B, float *x, int *map,
+                                 long *work) {
+    int m = ds->sten.m, win = 2 * m + 1;
+    long nw = (long)win * B, *all = work, *uniq = work + nw;
+    for (int b = 0; b < B; b++) {
+        long f = ds->samples[split][idx[b]];
+        for (int k = 0; k < win; k++) all[(long)k * B + b] = f - m + k;
+    }
+    memcpy(uniq, all, (size_t)nw * sizeof *uniq);
+    qsort(uniq, (size_t)nw, sizeof *uniq, cmp_long);
+    long U = 0;
+    for (long i = 0; i < nw; i++)
+        if (i == 0 || uniq[i] != uniq[U - 1]) uniq[U++] = uniq[i];
+    for (long i = 0; i < nw; i++) {
+        long lo = 0, hi = U - 1; /* uniq[lo..hi] holds all[i] */
+        while (lo < hi) {
+            long mid = (lo + hi) / 2;
+            if (uniq[mid] < all[i]) lo = mid + 1;
+            else hi = mid;
+        }
+        map[i] = (int)lo;
+    }
+    FramesJob j = {ds, uniq, x};
+    par_for(U, 8, frames_range, &j);
+    return (int)U;
+}

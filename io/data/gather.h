@@ -50,6 +50,13 @@ void dataset_gather(const Dataset *ds, SplitId split, const long *idx, int B, fl
  * offset j - m of each sample (model.derivatives latent). */
 void dataset_gather_window(const Dataset *ds, SplitId split, const long *idx, int B, float *x);
 
+/* The same with each distinct frame once (samples that are neighbours share most of their
+ * stencil's frames): x (U, n) the distinct frames in frame order, map (2m+1) B the row of x that
+ * holds the frame at offset j - m of sample b at map[j B + b]; returns U (at most (2m+1) B). work:
+ * 2 (2m+1) B longs of scratch. The rows are those dataset_gather_window would give, bit for bit. */
+int dataset_gather_window_shared(const Dataset *ds, SplitId split, const long *idx, int B, float *x, int *map,
+                                 long *work);
+
 /* The same from frame indices (each a valid sample of its recording). */
 void dataset_gather_frames(const Dataset *ds, const long *frames, int B, float *x, float *dx, float *ddx);
 

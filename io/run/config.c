@@ -411,7 +411,8 @@ static const struct {
 } late_keys[] = {{"model.derivatives", "\"frames\""},       {"model.init_epochs", "200"},
                  {"model.init_frames", "2000"},            {"threshold.measure", "\"coefficient\""},
                  {"threshold.select", "\"none\""},       {"data.store", "\"\""},
-                 {"model.map", "\"curved\""},           {"canonical.choose", "\"fit\""}};
+                 {"model.map", "\"curved\""},           {"canonical.choose", "\"fit\""},
+                 {"train.run_length", "1"}};
 
 static const char *late_compat(const char *path) {
     for (size_t i = 0; i < sizeof late_keys / sizeof late_keys[0]; i++)

@@ -103,6 +103,7 @@ typedef struct {
     double lr_min;                  /* optimizer.lr_min: floor of the cosine schedule               [0] */
     /* train */
     int batch;                      /* train.batch                                                [256] */
+    int run_length;                 /* train.run_length: samples per run of an epoch's order        [1] */
     long epochs;                    /* train.epochs: total, refinement included                  [1500] */
     uint64_t seed;                  /* train.seed                                                   [1] */
     int threads;                    /* train.threads: 0 = all cores                                 [0] */

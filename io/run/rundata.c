@@ -26,6 +26,16 @@ static int gather(void *ctx, int split, const long *idx, int B, float *X, Status
     return 0;
 }
 
+static int gather_shared(void *ctx, int split, const long *idx, int B, float *X, int *map, int *U, Status *st) {
+    RunData *d = ctx;
+    if (B > d->batch) return status_set(st, ST_RUNTIME, "gather: batch of %d exceeds %d", B, d->batch);
+    long *work = malloc((size_t)2 * d->k * B * sizeof *work);
+    if (!work) return status_set(st, ST_RUNTIME, "gather: out of memory");
+    *U = dataset_gather_window_shared(&d->ds, split ? SPLIT_VAL : SPLIT_TRAIN, idx, B, X, map, work);
+    free(work);
+    return 0;
+}
+
 void rundata_close(RunData *d) {
     if (d->have_ds) dataset_free(&d->ds);
     if (d->have_store) store_close(&d->store);
@@ -229,6 +239,7 @@ static void set_blocks(RunData *d, const Config *c) {
     td->sample_frame = d->ds.samples[SPLIT_TRAIN];
     td->sten = latent ? &d->ds.sten : NULL;
     td->gather = gather;
+    td->gather_shared = latent ? gather_shared : NULL;
     td->ctx = d;
 }
 

@@ -710,6 +710,21 @@ static void law_free(LawCopy *c) {
 
 /* ---- the loop -------------------------------------------------------------------------------- */
 
+/* The next epoch's order in runs of R consecutive samples (train.run_length): the runs [k R, (k + 1)
+ * R) (the last one shorter) in the order they hold in `order`, which holds whole runs (the first
+ * epoch's identity or the last epoch's runs, also after a resume), shuffled and laid out again.
+ * blk: ceil(n / R) longs of scratch. */
+static void shuffle_runs(Rng *rng, long *order, long n, long R, long *blk) {
+    long nb = 0;
+    for (long i = 0; i < n; i++)
+        if (order[i] % R == 0) blk[nb++] = order[i] / R;
+    NN_CHECK(nb == (n + R - 1) / R, "shuffle_runs: %ld run starts among %ld samples in runs of %ld", nb, n, R);
+    rng_shuffle(rng, blk, nb);
+    long pos = 0;
+    for (long k = 0; k < nb; k++)
+        for (long s = blk[k] * R; s < n && s < (blk[k] + 1) * R; s++) order[pos++] = s;
+}
+
 int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, TrainResult *res, Status *st) {
     const Config *c = o->cfg;
     memset(res, 0, sizeof *res);
@@ -739,6 +754,11 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     int B = c->batch < ds->n_train ? c->batch : (int)ds->n_train;
     long n_batches = (ds->n_train + B - 1) / B;
     float *X = nn_alloc((size_t)ds->k * B * ds->n_in * sizeof(float)); /* (k B, n_in) */
+    /* train.run_length > 1: batches of runs; with the stencil's window, each distinct frame once */
+    long R = c->run_length > 1 ? c->run_length : 1;
+    long *blk = R > 1 ? nn_alloc((size_t)((ds->n_train + R - 1) / R) * sizeof *blk) : NULL;
+    int shared = R > 1 && m->win && ds->gather_shared;
+    int *map = shared ? nn_alloc((size_t)ds->k * B * sizeof *map) : NULL; /* (k B) */
     int fresh = ps->step == 0, use_pca = c->init == INIT_PCA || c->init == INIT_ISOMAP;
     if (fresh && o->start) { /* a given start (refinement): its values and mask instead of model.init */
         NN_CHECK(o->start->n == ps->n, "train_run: a start of %zu parameters for a model of %zu", o->start->n, ps->n);
@@ -793,18 +813,24 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
         ad.lr = (float)lr_at(c, epoch);
         double t_epoch = clock_seconds();
         if (r.meta.batch == 0) {
-            rng_shuffle(&r.meta.rng, r.order, ds->n_train);
+            if (R > 1) shuffle_runs(&r.meta.rng, r.order, ds->n_train, R, blk);
+            else rng_shuffle(&r.meta.rng, r.order, ds->n_train);
             memset(r.meta.acc, 0, sizeof r.meta.acc);
             r.meta.acc_n = 0;
         }
         for (long b = r.meta.batch; b < n_batches; b++) {
             long s0 = b * B;
             int nb = (int)(ds->n_train - s0 < B ? ds->n_train - s0 : B);
-            if (ds->gather(ds->ctx, 0, r.order + s0, nb, X, st)) { rc = st->code; goto out; }
+            int U = 0;
+            if (shared ? ds->gather_shared(ds->ctx, 0, r.order + s0, nb, X, map, &U, st)
+                       : ds->gather(ds->ctx, 0, r.order + s0, nb, X, st)) {
+                rc = st->code;
+                goto out;
+            }
             tape_reset(&t);
             params_zero_grad(ps);
             LossParts p;
-            Node *loss = model_loss(&t, m, ps, X, nb, &w, &p);
+            Node *loss = shared ? model_loss_shared(&t, m, ps, X, U, map, nb, &w, &p) : model_loss(&t, m, ps, X, nb, &w, &p);
             if (!isfinite(p.total)) {
                 rc = status_set(st, ST_RUNTIME,
                                 "training diverged at epoch %ld (the loss is not finite); a lower optimizer.lr, "
@@ -907,6 +933,8 @@ out:
     res->active = model_active(m);
     tape_free(&t);
     nn_free(X);
+    nn_free(map);
+    nn_free(blk);
     nn_free(r.order);
     return rc;
 }

@@ -33,6 +33,9 @@ typedef struct {
                              * 2m+1 frames around each sample as k = 2m+1 blocks */
     volatile sig_atomic_t *stop; /* NULL, or a stop request (a signal): a pass over a split ends at its
                              * next batch (batches_next returns TRAIN_STOPPED) */
+    /* NULL, or (with sten) the same batch with each distinct frame once: X (U, n_in) and map (k B)
+     * as model_loss_shared takes them; training uses it when train.run_length > 1 */
+    int (*gather_shared)(void *ctx, int split, const long *idx, int B, float *X, int *map, int *U, Status *st);
 } TrainData;
 
 /* The passes over a whole split (the data's scales, the start-ups, the thresholding and selection
