@@ -1,7 +1,7 @@
 /* tests/bench_compare.c: training throughput and peak memory against the same model in PyTorch, and
  * the sgemm ceiling (`make bench`, never part of `make test`). docs/performance.md shows the table.
  *
- * Two workloads, each at 1 and 2 threads:
+ * Four workloads, each at 1 and 2 threads:
  *   V  video, second order: 48x48 frames (2304 pixels), encoder 2304-64-32-1 (framelaw's default
  *      hidden widths), mirrored decoder, sigmoid hidden layers; library: the constant and every
  *      monomial of (z, z') up to degree 3, plus sin(z) and sin(z'); batch 256 (framelaw's default);
@@ -11,7 +11,15 @@
  *   S  signal, first order: 128 channels, encoder 128-64-32-3, mirrored decoder, sigmoid; the
  *      constant and every monomial of (z1, z2, z3) up to degree 3; batch 256; 51,200 samples
  *      (10 recordings of 5,122 frames).
- * Both sample counts are whole multiples of the batch (40 and 200 steps an epoch), so every step
+ *   L1, L16  the lantern's quick config as README recommends it: 51x51 frames (2601 pixels), encoder
+ *      2601-64-32-1, mirrored decoder, sigmoid; derivatives in latent space (model.derivatives latent:
+ *      the codes of the 9 frames around each sample, a Savitzky-Golay stencil of degree 3 applied to
+ *      them; the decoder reconstructs the centre frame), loss.normalize; library: every monomial of
+ *      (z, z') of degree 1..3 and sin z, cos z, no constant; batch 256; 1,536 samples (8 recordings of
+ *      200 frames). L1 deals shuffled samples (train.run_length 1, the default: 2304 frames through
+ *      the encoder a step), L16 runs of 16 (each distinct frame once: 384 a step). No sgemm-only
+ *      ceiling for them.
+ * Every sample count is a whole multiple of the batch (40, 200 and 6 steps an epoch), so every step
  * runs on a full batch, as the sgemm-only ceiling assumes.
  * The frames are synthetic (a swinging Gaussian spot; 128 fixed nonlinear mixtures of a Lorenz
  * trajectory), 8-bit, written once to a frame store and to a raw file for the reference.
@@ -34,7 +42,9 @@
  * The framelaw row at t threads is compared with PyTorch at t threads under the default policy,
  * and with PyTorch's best over the policies and the thread counts up to t; the targets printed at
  * the end are issue 16's (V at least 2.0x PyTorch's best at 2 threads and 1.4x at 1, S 2.0x at both
- * and faster at 2 threads than at 1, peak memory at most 1/4 of PyTorch's).
+ * and faster at 2 threads than at 1, L 2.0x at both and L16's epoch 3x shorter than L1's, peak memory
+ * at most 1/4 of PyTorch's). The reference runs L in its latent mode (--window 9, --run 1 or 16:
+ * with runs it encodes each distinct frame of a batch once too, through torch.unique).
  *
  * Analytic count (multiply-adds count 2): a layer n_in -> n_out over R = k B stacked rows costs
  * 2 R n_in n_out forward and 4 R n_in n_out backward (dW and dh), less 2 R n_in n_out for the first
@@ -44,7 +54,8 @@
  * operations per pixel and row, against 2 x 64 in the first layer's forward product alone). The
  * sgemm-only ceiling runs exactly these products (wl_products).
  *
- * Options: --epochs N (timed epochs, default 5 for V, 7 for S), --only V|S, --no-torch,
+ * Options: --epochs N (timed epochs, default 5 for V and L, 7 for S), --only V|S|L|L1|L16 (L: both L
+ * workloads), --no-torch,
  * --unset-coretype (a second table with OPENBLAS_CORETYPE and OPENBLAS_L2_SIZE unset for both
  * tools), --unset-only (that table alone), --script PATH (default tests/reference/bench_torch.py),
  * --keep (leave the data). */
@@ -83,24 +94,38 @@ typedef struct {
     int order, latent;
     int width, height;          /* n = width * height values per frame */
     int n_hidden, hidden[3];    /* encoder hidden widths; the decoder mirrors them */
-    int degree, trig;           /* library: constant, monomials up to degree, sin of each variable */
+    int degree, trig;           /* library: monomials up to degree; trig 1: the constant and sin of each
+                                 * variable; 2 (latent mode): no constant, sin and cos of z */
     int recordings, per_rec;    /* frames per recording */
     double fps;
     double w[4];                /* loss weights rec, dx, dz, l1 */
     int epochs;                 /* timed epochs (after one warm-up epoch) */
     int sgemm_reps;             /* epochs' worth of sgemm-only products */
+    int window;                 /* 0: derivatives of the frames by tangents (central stencil); > 0: in
+                                 * latent space, the Savitzky-Golay stencil of this width and degree 3
+                                 * applied to the codes (model.derivatives latent) */
+    int run_length;             /* train.run_length: 1 shuffled samples; > 1 runs, each frame encoded once */
 } Workload;
 
-static const Workload WORKLOADS[2] = {
+/* L is the lantern's quick config as README recommends it (latent derivatives, a 9-frame stencil,
+ * no constant, sin and cos of z only, loss.normalize) on 8 recordings of 200 frames of 51x51 px,
+ * with runs of 1 (L1: shuffled samples, today's default) and 16 (L16). */
+#define WL_L(name, what, run) \
+    {name, what, 2, 1, 51, 51, 2, {64, 32}, 3, 2, 8, 200, 30.0, {1, 0, 1, 1e-4}, 5, 0, 9, run}
+static const Workload WORKLOADS[] = {
     {"V", "video, 2nd order, 48x48 px, 2304-64-32-1, 10,240 samples", 2, 1, 48, 48, 2, {64, 32}, 3, 1, 10, 1026,
-     30.0, {1, 1e-4, 1e-3, 1e-5}, 5, 5},
+     30.0, {1, 1e-4, 1e-3, 1e-5}, 5, 5, 0, 1},
     {"S", "signal, 1st order, 128 ch, 128-64-32-3, 51,200 samples", 1, 3, 128, 1, 2, {64, 32}, 3, 0, 10, 5122,
-     100.0, {1, 1e-4, 1e-3, 1e-5}, 7, 7},
+     100.0, {1, 1e-4, 1e-3, 1e-5}, 7, 7, 0, 1},
+    WL_L("L1", "lantern quick, latent derivatives (9 frames), 51x51 px, 2601-64-32-1, 1,536 samples, shuffled", 1),
+    WL_L("L16", "the same in runs of 16 samples (train.run_length 16): each frame encoded once a step", 16),
 };
-enum { BATCH = 256, WARMUP = 1 };
+enum { N_WORKLOADS = (int)(sizeof WORKLOADS / sizeof WORKLOADS[0]), BATCH = 256, WARMUP = 1 };
 
 static long wl_n(const Workload *w) { return (long)w->width * w->height; }
-static long wl_samples(const Workload *w) { return (long)w->recordings * (w->per_rec - 2); }
+static long wl_samples(const Workload *w) {
+    return (long)w->recordings * (w->per_rec - (w->window ? w->window - 1 : 2));
+}
 static long wl_frames(const Workload *w) { return (long)w->recordings * w->per_rec; }
 
 /* Layer widths: encoder n, hidden..., latent; decoder latent, hidden reversed..., n. */
@@ -129,6 +154,15 @@ static int wl_products(const Workload *w, Product *p) {
         for (int l = 0; l < nl; l++) {
             int ni = widths[s][l], no = widths[s][l + 1];
             int last = s == 1 && l == nl - 1;
+            if (w->window) { /* latent mode: the encoder over the frames it codes, the decoder over B rows */
+                int rows = s == 1 ? BATCH
+                                  : w->run_length > 1 ? BATCH / w->run_length * (w->run_length + w->window - 1)
+                                                      : w->window * BATCH;
+                p[np++] = (Product){0, 0, rows, no, ni, 0.0f};
+                bwd[nb++] = (Product){1, 0, ni, no, rows, 1.0f};
+                if (!(s == 0 && l == 0)) bwd[nb++] = (Product){0, 1, rows, ni, no, 1.0f};
+                continue;
+            }
             if (last && w->order == 2) { /* blocks 0 and 2 of 3: one product per block each way */
                 for (int j = 0; j < 2; j++) {
                     p[np++] = (Product){0, 0, BATCH, no, ni, 0.0f};
@@ -271,6 +305,23 @@ static int data_gather(void *ctx, int split, const long *idx, int B, float *X, S
     return 0;
 }
 
+/* Latent mode: the stencil's frames of each sample, or each distinct frame once with its map. */
+static int data_gather_window(void *ctx, int split, const long *idx, int B, float *X, Status *st) {
+    (void)st;
+    Data *d = ctx;
+    dataset_gather_window(&d->ds, split ? SPLIT_VAL : SPLIT_TRAIN, idx, B, X);
+    return 0;
+}
+
+static int data_gather_shared(void *ctx, int split, const long *idx, int B, float *X, int *map, int *U, Status *st) {
+    Data *d = ctx;
+    long *work = malloc((size_t)2 * d->k * B * sizeof *work);
+    if (!work) return status_set(st, ST_RUNTIME, "out of memory");
+    *U = dataset_gather_window_shared(&d->ds, split ? SPLIT_VAL : SPLIT_TRAIN, idx, B, X, map, work);
+    free(work);
+    return 0;
+}
+
 static long vm_hwm_kb(void) {
     FILE *f = fopen("/proc/self/status", "r");
     char line[256];
@@ -330,10 +381,11 @@ static int child_main(const Workload *w, int threads, const char *store_path, co
     FrameSettings s = frame_settings_default();
     s.fps = w->fps;
     s.val_last = 0;
+    if (w->window) s.stencil = STENCIL_SAVGOL, s.sg_window = w->window, s.sg_degree = 3;
     Data d;
     memset(&d, 0, sizeof d);
     if (dataset_init(&d.ds, &fs, &s, &st)) { fprintf(stderr, "bench: %s\n", st.msg); return 1; }
-    d.k = w->order + 1;
+    d.k = w->window ? w->window : w->order + 1;
     Config c;
     config_defaults(&c);
     c.fps = w->fps;
@@ -355,12 +407,18 @@ static int child_main(const Workload *w, int threads, const char *store_path, co
     c.warmup_epochs = 0;
     c.lib_degree = w->degree;
     c.lib_constant = 1;
-    c.lib_trig = w->trig;
+    c.lib_trig = w->trig != 0;
     c.lib_trig_velocity = 1;
     c.n_lib_freq = 1;
     c.lib_freq[0] = 1;
     c.n_lib_exclude = 0;
-    if (w->trig) /* sin only */
+    if (w->window) { /* the lantern quick config: latent derivatives, relative terms, no constant, sin/cos of z */
+        c.derivatives = DERIVS_LATENT;
+        c.loss_normalize = 1;
+        c.lib_constant = 0;
+        c.lib_trig_velocity = 0;
+        c.run_length = w->run_length;
+    } else if (w->trig) /* sin only */
         for (int v = 0; v < w->order * w->latent; v++) {
             if (v < w->latent) snprintf(c.lib_exclude[c.n_lib_exclude++], CFG_NAME_MAX, "cos(z%d)", v + 1);
             else snprintf(c.lib_exclude[c.n_lib_exclude++], CFG_NAME_MAX, "cos(dz%d/dt)", v - w->latent + 1);
@@ -375,6 +433,7 @@ static int child_main(const Workload *w, int threads, const char *store_path, co
     c.ckpt_every = 0;
     c.ckpt_keep = 1;
     TrainData td = {(int)d.ds.n, d.k, d.ds.count[SPLIT_TRAIN], 0, d.ds.dt, data_gather, &d, NULL, NULL, NULL, NULL};
+    if (w->window) td.gather = data_gather_window, td.gather_shared = data_gather_shared, td.sten = &d.ds.sten;
     TrainOpts o = {&c, run_dir, 0, 1, NULL, 0, NULL, NULL};
     Model m;
     ParamSet ps;
@@ -593,7 +652,9 @@ static void run_all(const Workload *wls, int n_wl, int epochs_opt, int no_torch,
         snprintf(buf[3], 64, "%d", w->order);
         snprintf(buf[4], 64, "%d", w->latent);
         snprintf(buf[5], 64, "%g,%g,%g,%g", w->w[0], w->w[1], w->w[2], w->w[3]);
-        char fps[32], deg[8], trig[8], bat[16];
+        char fps[32], deg[8], trig[8], bat[16], win[8], rl[8];
+        snprintf(win, sizeof win, "%d", w->window);
+        snprintf(rl, sizeof rl, "%d", w->run_length);
         snprintf(fps, sizeof fps, "%g", w->fps);
         snprintf(bat, sizeof bat, "%d", BATCH);
         snprintf(deg, sizeof deg, "%d", w->degree);
@@ -604,7 +665,8 @@ static void run_all(const Workload *wls, int n_wl, int epochs_opt, int no_torch,
                 char *argv[] = {PYTHON, (char *)script, "--data", raw, "--frames", buf[0], "--n", buf[1],
                                 "--recordings", buf[2], "--order", buf[3], "--latent", buf[4], "--widths", hid,
                                 "--degree", deg, "--trig", trig, "--fps", fps, "--w", buf[5], "--batch", bat,
-                                "--epochs", ep_s, "--threads", th_s, "--max-seconds", "40", NULL};
+                                "--epochs", ep_s, "--threads", th_s, "--max-seconds", "40", "--window", win,
+                                "--run", rl, NULL};
                 char obt[32], omt[32], pass[32] = "OMP_WAIT_POLICY=passive";
                 snprintf(obt, sizeof obt, "OPENBLAS_NUM_THREADS=%d", t);
                 snprintf(omt, sizeof omt, "OMP_NUM_THREADS=%d", t);
@@ -637,8 +699,9 @@ static void print_table(const Workload *wls, int n_wl, const Runs *runs, int uns
             printf("| %s | %d | ", w->name, t);
             if (!f->ok) { printf("failed | | | | | | | | |\n"); continue; }
             Stat s = stat_of(f->epoch, f->n_epoch), g = stat_of(f->sgemm, f->n_sgemm);
-            printf("%.3f (%.3f-%.3f) | %.1f | %.3f | %.1f | %.0f%% | ", s.med, s.min, s.max, flops / s.med * 1e-9, g.med,
-                   flops / g.med * 1e-9, 100 * g.med / s.med);
+            if (f->n_sgemm) printf("%.3f (%.3f-%.3f) | %.1f | %.3f | %.1f | %.0f%% | ", s.med, s.min, s.max,
+                                   flops / s.med * 1e-9, g.med, flops / g.med * 1e-9, 100 * g.med / s.med);
+            else printf("%.3f (%.3f-%.3f) | %.1f | n/a | n/a | n/a | ", s.med, s.min, s.max, flops / s.med * 1e-9);
             const Result *d = &runs[wi].th[t - 1][0];
             if (!d->ok) { printf("n/a | n/a | n/a | %.0f / n/a |\n", f->peak_kb / 1024.0); continue; }
             Stat ds = stat_of(d->epoch, d->n_epoch);
@@ -685,7 +748,7 @@ static void print_table(const Workload *wls, int n_wl, const Runs *runs, int uns
                     double med = r->ok ? stat_of(r->epoch, r->n_epoch).med : INFINITY;
                     if (med < best) best = med, best_rss = r->maxrss_kb;
                 }
-            double need = w->order == 2 && t == 1 ? 1.4 : 2.0;
+            double need = w->order == 2 && t == 1 && !w->window ? 1.4 : 2.0;
             if (isfinite(best)) {
                 printf("  %s, %d thread(s): %.2fx faster than PyTorch's best (target %.1fx): %s\n", w->name, t,
                        best / s.med, need, best / s.med >= need ? "met" : "MISSED");
@@ -693,10 +756,21 @@ static void print_table(const Workload *wls, int n_wl, const Runs *runs, int uns
                        w->name, t, f->peak_kb / 1024.0, (double)best_rss / f->peak_kb, best_rss / 1024.0,
                        best_rss >= 4 * f->peak_kb ? "met" : "MISSED");
             }
-            if (w->order == 2 && t == 2) {
+            if (w->order == 2 && t == 2 && f->n_sgemm) {
                 Stat g = stat_of(f->sgemm, f->n_sgemm);
                 printf("  %s, 2 threads: %.0f%% of the sgemm rate (target 80%%): %s\n", w->name, 100 * g.med / s.med,
                        g.med / s.med >= 0.8 ? "met" : "MISSED");
+            }
+        }
+        /* L: runs of 16 against shuffled samples, framelaw at the same thread count and batch */
+        for (int wj = 0; wj < n_wl && w->window && w->run_length > 1; wj++) {
+            if (!wls[wj].window || wls[wj].run_length != 1) continue;
+            for (int t = 1; t <= 2; t++) {
+                const Result *a = &runs[wj].fl[t - 1], *b = &runs[wi].fl[t - 1];
+                if (!a->ok || !b->ok) continue;
+                double sa = stat_of(a->epoch, a->n_epoch).med, sb = stat_of(b->epoch, b->n_epoch).med;
+                printf("  %s against %s, %d thread(s): epoch %.2fx shorter (%.3f s against %.3f s; target 3x): %s\n",
+                       w->name, wls[wj].name, t, sa / sb, sb, sa, sa >= 3 * sb ? "met" : "MISSED");
             }
         }
         if (w->order == 1 && runs[wi].fl[0].ok && runs[wi].fl[1].ok) {
@@ -710,7 +784,10 @@ static void print_table(const Workload *wls, int n_wl, const Runs *runs, int uns
 
 int main(int argc, char **argv) {
     if ((argc == 7 || argc == 8) && !strcmp(argv[1], "--child")) { /* --child W THREADS STORE RUN EPOCHS [SGEMM_REPS] */
-        const Workload *w = !strcmp(argv[2], "V") ? &WORKLOADS[0] : &WORKLOADS[1];
+        const Workload *w = NULL;
+        for (int i = 0; i < N_WORKLOADS; i++)
+            if (!strcmp(argv[2], WORKLOADS[i].name)) w = &WORKLOADS[i];
+        if (!w) return 2;
         return child_main(w, atoi(argv[3]), argv[4], argv[5], atoi(argv[6]), argc == 8 ? atoi(argv[7]) : w->sgemm_reps);
     }
     int epochs = 0, no_torch = 0, unset_core = 0, keep = 0;
@@ -724,17 +801,22 @@ int main(int argc, char **argv) {
         else if (!strcmp(argv[i], "--unset-only")) unset_core = 2;
         else if (!strcmp(argv[i], "--keep")) keep = 1;
         else {
-            fprintf(stderr, "usage: bench_compare [--epochs N] [--only V|S] [--no-torch] [--unset-coretype | --unset-only] "
+            fprintf(stderr, "usage: bench_compare [--epochs N] [--only V|S|L|L1|L16] [--no-torch] [--unset-coretype | --unset-only] "
                             "[--script PATH] [--keep]\n");
             return 2;
         }
     }
     if (epochs > MAX_EPOCHS - 1) epochs = MAX_EPOCHS - 1;
-    Workload wls[2];
+    Workload wls[N_WORKLOADS];
     int n_wl = 0;
-    for (int i = 0; i < 2; i++)
-        if (!only || !strcmp(only, WORKLOADS[i].name)) wls[n_wl++] = WORKLOADS[i];
-    for (int i = 0; i < 2; i++)
+    for (int i = 0; i < N_WORKLOADS; i++) /* --only L: both L workloads */
+        if (!only || !strcmp(only, WORKLOADS[i].name) || (!strcmp(only, "L") && WORKLOADS[i].window))
+            wls[n_wl++] = WORKLOADS[i];
+    if (!n_wl) {
+        fprintf(stderr, "bench: --only %s: no such workload (V, S, L, L1, L16)\n", only);
+        return 2;
+    }
+    for (int i = 0; i < N_WORKLOADS; i++)
         if (wl_samples(&WORKLOADS[i]) % BATCH) { /* the sgemm ceiling and the FLOP count assume full batches */
             fprintf(stderr, "bench: %s has %ld samples, not a multiple of the batch %d\n", WORKLOADS[i].name,
                     wl_samples(&WORKLOADS[i]), BATCH);
@@ -768,7 +850,7 @@ int main(int argc, char **argv) {
         if (make_data(&wls[i], store, raw)) return 1;
     }
     double t0 = now();
-    static Runs runs[2], runs_u[2];
+    static Runs runs[N_WORKLOADS], runs_u[N_WORKLOADS];
     if (unset_core < 2) run_all(wls, n_wl, epochs, no_torch, 0, script, dir, runs);
     if (unset_core) run_all(wls, n_wl, epochs, no_torch, 1, script, dir, runs_u);
     const char *ver = NULL;

@@ -99,6 +99,12 @@ def parse():
     p.add_argument("--layer", choices=["function", "autograd"], default="function",
                    help="sigmoid layers with tangents: hand-written backward, or plain autograd")
     p.add_argument("--flat", type=int, default=1, help="1: parameters and gradients in one flat buffer")
+    p.add_argument("--window", type=int, default=0,
+                   help="0: the frames' derivatives by tangents; W > 0: latent mode, the Savitzky-Golay "
+                        "stencil of W frames and degree 3 applied to the codes (see latent_main)")
+    p.add_argument("--run", type=int, default=1,
+                   help="latent mode: samples per run of an epoch's order; > 1 encodes each distinct frame "
+                        "of a batch once (torch.unique)")
     p.add_argument("--selftest", action="store_true", help="check the layer's backward and exit")
     a = p.parse_args()
     if not a.selftest:
@@ -201,6 +207,117 @@ def library_columns(n_vars, degree):
     return torch.tensor(idx, dtype=torch.long).T.contiguous()
 
 
+def savgol_weights(window, degree, dt):
+    """Weights (window,) of the least-squares polynomial's first and second derivative at the centre
+    (A. Savitzky, M. J. E. Golay, Analytical Chemistry 36, 1964): the rows 1 and 2 of the
+    pseudo-inverse of the Vandermonde matrix of the offsets, times 1 / dt and 2 / dt^2."""
+    m = window // 2
+    V = np.vander(np.arange(-m, m + 1, dtype=np.float64), degree + 1, increasing=True)
+    P = np.linalg.pinv(V)
+    return P[1] / dt, 2 * P[2] / (dt * dt)
+
+
+def adam_params(params, flat_buffer, lr):
+    """Adam over params, as one flat buffer of views (flat_buffer 1) or foreach."""
+    adam = dict(lr=lr, betas=(0.9, 0.999), eps=1e-8)
+    if not flat_buffer:
+        return torch.optim.Adam(params, foreach=True, **adam)
+    flat = torch.zeros(sum(p.numel() for p in params), requires_grad=True)
+    flat.grad = torch.zeros_like(flat)
+    o = 0
+    with torch.no_grad():
+        for p in params:
+            m = p.numel()
+            flat[o:o + m] = p.reshape(-1)
+            p.data = flat.data[o:o + m].view(p.shape)
+            p.grad = flat.grad[o:o + m].view(p.shape)   # backward adds into it in place
+            o += m
+    return torch.optim.Adam([flat], **adam)
+
+
+def latent_main(a, q, gen):
+    """Latent mode (framelaw's model.derivatives latent with loss.normalize, second order): every
+    frame of the W-frame window around a sample is encoded (sigmoid hidden layers, plain autograd),
+    z = the centre frame's code, z' and z'' the Savitzky-Golay stencil applied to the codes; library
+    Theta(z, z'): every monomial of degree 1..degree (no constant) and sin z, cos z; the decoder
+    reconstructs the centre frame only. Loss: w_rec |x - x_hat|^2 / var(x) + w_dz |z'' - Theta Xi|^2 /
+    mean(z''^2) + w_l1 |Xi|_1, var(x) the pixels' mean variance over the training frames (as
+    framelaw's loss.normalize). With --run R > 1 the epoch deals runs of R consecutive samples and
+    each distinct frame of a batch is encoded once (torch.unique, the codes gathered back)."""
+    assert a.order == 2 and a.latent >= 1
+    W, m = a.window, a.window // 2
+    per = a.frames // a.recordings
+    valid = torch.tensor([r * per + f for r in range(a.recordings) for f in range(m, per - m)], dtype=torch.long)
+    w1, w2 = (torch.tensor(w, dtype=torch.float32) for w in savgol_weights(W, 3, 1.0 / a.fps))
+    offs = torch.arange(-m, m + 1, dtype=torch.long)
+    xs = q[valid].double() / 255
+    rec_norm = 1.0 / xs.var(0, unbiased=False).mean().item()
+    del xs
+    w_rec, _, w_dz, w_l1 = (float(v) for v in a.w.split(","))
+    hidden = [int(v) for v in a.widths.split(",")]
+    ew = [a.n] + hidden + [a.latent]
+    dw = ew[::-1]
+    L = len(ew) - 1
+    eW = [glorot(ew[l], ew[l + 1], gen) for l in range(L)]
+    eb = [torch.zeros(ew[l + 1], requires_grad=True) for l in range(L)]
+    dW = [glorot(dw[l], dw[l + 1], gen) for l in range(L)]
+    db = [torch.zeros(dw[l + 1], requires_grad=True) for l in range(L)]
+    d = a.latent
+    cols = library_columns(2 * d, a.degree)[:, 1:]      # no constant
+    n_terms = cols.shape[1] + 2 * d
+    xi = torch.zeros(n_terms, d, requires_grad=True)
+    mask = torch.ones(n_terms, d)
+    opt = adam_params(eW + eb + dW + db + [xi], a.flat, a.lr)
+
+    def theta(s):
+        one_s = torch.cat([torch.ones(s.shape[0], 1), s], dim=1)
+        th = one_s[:, cols[0]] * one_s[:, cols[1]] * one_s[:, cols[2]]
+        z = s[:, :d]
+        return torch.cat([th, torch.sin(z), torch.cos(z)], dim=1)
+
+    def step(f):
+        B = len(f)
+        fw = (offs[:, None] + f[None, :]).reshape(-1)   # (W B): offset-major, as framelaw's blocks
+        if a.run > 1:
+            uniq, inv = torch.unique(fw, return_inverse=True)
+            X = q[uniq].float().mul_(1.0 / 255)
+        else:
+            X = q[fw].float().mul_(1.0 / 255)
+        H = X
+        for l in range(L - 1):
+            H = torch.sigmoid(torch.addmm(eb[l], H, eW[l]))
+        Z = torch.addmm(eb[L - 1], H, eW[L - 1])
+        Zw = (Z[inv] if a.run > 1 else Z).view(W, B, d)
+        z = Zw[m]
+        z1 = torch.tensordot(w1, Zw, dims=1)
+        z2 = torch.tensordot(w2, Zw, dims=1)
+        xim = xi * mask
+        pred = theta(torch.cat([z, z1], dim=1)) @ xim
+        H = z
+        for l in range(L - 1):
+            H = torch.sigmoid(torch.addmm(db[l], H, dW[l]))
+        xc = X[inv[m * B:(m + 1) * B]] if a.run > 1 else X[m * B:(m + 1) * B]
+        l_rec = F.mse_loss(torch.addmm(db[L - 1], H, dW[L - 1]), xc)
+        l_dz = F.mse_loss(pred, z2) / ((z2 * z2).mean() + 1e-12)
+        loss = w_rec * rec_norm * l_rec + w_dz * l_dz + w_l1 * xim.abs().sum()
+        opt.zero_grad(set_to_none=not a.flat)
+        loss.backward()
+        opt.step()
+        return loss.detach()
+
+    R = max(a.run, 1)
+    n_runs = (len(valid) + R - 1) // R
+
+    def epoch_order():
+        if R == 1:
+            return valid[torch.randperm(len(valid))]
+        runs = torch.randperm(n_runs)
+        pos = (runs[:, None] * R + torch.arange(R)[None, :]).reshape(-1)
+        return valid[pos[pos < len(valid)]]
+
+    return step, epoch_order
+
+
 def main():
     a = parse()
     if a.selftest:
@@ -211,6 +328,10 @@ def main():
     gen = torch.Generator().manual_seed(a.seed)
     torch.manual_seed(a.seed)
     q = torch.from_numpy(np.fromfile(a.data, dtype=np.uint8).reshape(a.frames, a.n))
+    if a.window:
+        step, epoch_order = latent_main(a, q, gen)
+        run_epochs(a, step, epoch_order)
+        return
     per = a.frames // a.recordings
     valid = torch.tensor([r * per + f for r in range(a.recordings) for f in range(1, per - 1)], dtype=torch.long)
     dt = 1.0 / a.fps
@@ -230,22 +351,7 @@ def main():
     n_terms = cols.shape[1] + (n_vars if a.trig else 0)
     xi = torch.zeros(n_terms, a.latent, requires_grad=True)
     mask = torch.ones(n_terms, a.latent)
-    params = eW + eb + dW + db + [xi]
-    adam = dict(lr=a.lr, betas=(0.9, 0.999), eps=1e-8)
-    if a.flat:
-        flat = torch.zeros(sum(p.numel() for p in params), requires_grad=True)
-        flat.grad = torch.zeros_like(flat)
-        o = 0
-        with torch.no_grad():
-            for p in params:
-                m = p.numel()
-                flat[o:o + m] = p.reshape(-1)
-                p.data = flat.data[o:o + m].view(p.shape)
-                p.grad = flat.grad[o:o + m].view(p.shape)   # backward adds into it in place
-                o += m
-        opt = torch.optim.Adam([flat], **adam)
-    else:
-        opt = torch.optim.Adam(params, foreach=True, **adam)
+    opt = adam_params(eW + eb + dW + db + [xi], a.flat, a.lr)
     layer = SigTangent.apply if a.layer == "function" else sig_tangent_autograd
     k = a.order + 1
     xbuf = torch.empty(k * a.batch, a.n)    # (k B, n): x; x'; x''
@@ -292,6 +398,10 @@ def main():
         opt.step()
         return loss.detach()
 
+    run_epochs(a, step, lambda: valid[torch.randperm(len(valid))])
+
+
+def run_epochs(a, step, epoch_order):
     print("torch", torch.__version__, flush=True)
     print("threads", torch.get_num_threads(), flush=True)
     losses = []
@@ -300,7 +410,7 @@ def main():
         if a.max_seconds > 0 and e >= a.warmup + 3 and timed > a.max_seconds:
             break  # a setting this slow is not the reference's best; 3 epochs give its median
         t0 = time.perf_counter()
-        order = valid[torch.randperm(len(valid))]
+        order = epoch_order()
         total = torch.zeros((), dtype=torch.float64)
         for b0 in range(0, len(order), a.batch):
             f = order[b0:b0 + a.batch]
