@@ -561,6 +561,99 @@ static void dense_t_backward(Tape *t, Node *c) {
     if (h->grad) mat_gemm(0, 1, 1.0f, dAm, W->val, 1.0f, grad_mat(h));
 }
 
+/* ---- the first layer over shared frames ------------------------------------------------------- */
+
+typedef struct {
+    const int *map;         /* (win B) */
+    const float *w1, *w2;   /* (win) stencil weights of x' and x'' */
+    int win, B;
+} DenseMap;
+
+/* A (k B, n_out) from the products P (U, n_out) of the distinct frames: the centre frame's row, then
+ * the stencils' sums over the window, in the order of j (one thread: the same bits on every run) */
+static void dense_map_rows(const DenseMap *dm, int k, int n, const float *P, float *A) {
+    int B = dm->B, c = dm->win / 2;
+    long nb = (long)B * n;
+    for (int b = 0; b < B; b++) {
+        memcpy(A + (long)b * n, P + (long)dm->map[(long)c * B + b] * n, (size_t)n * sizeof *A);
+        for (int q = 1; q < k; q++) {
+            const float *w = q == 1 ? dm->w1 : dm->w2;
+            float *restrict a = A + q * nb + (long)b * n;
+            for (int i = 0; i < n; i++) a[i] = 0;
+            for (int j = 0; j < dm->win; j++) {
+                const float *restrict p = P + (long)dm->map[(long)j * B + b] * n;
+                float wj = w[j];
+                for (int i = 0; i < n; i++) a[i] += wj * p[i];
+            }
+        }
+    }
+}
+
+/* backward (see nn_dense_t_map in tape.h): dA as dense_t's, then dP = the transpose of the map's
+ * sums (in the order of j, then b), dW += F^T dP, dF += dP W^T */
+static void dense_map_backward(Tape *t, Node *c) {
+    Node *F = c->in[0], *W = c->in[1], *b = c->in[2];
+    const DenseMap *dm = c->ctx;
+    int rows = c->val.rows, n = c->val.cols, k = c->k, B = rows / k, U = F->val.rows, m = dm->win / 2;
+    float *dA;
+    if (c->act == ACT_NONE) {
+        dA = c->grad;
+    } else {
+        dA = c->saved;
+        DenseRows dr = {c->saved, c->val.d, c->grad, NULL, (long)B * n, n, k, c->act};
+        par_for(B, row_grain(n, PAR_HEAVY), c->act == ACT_SIGMOID ? sigmoid_bwd_rows : dense_bwd_rows, &dr);
+    }
+    if (b->grad) colsum_add(t, b->grad, dA, B, n);
+    float *dP = arena_floats(&t->arena, (long)U * n);
+    memset(dP, 0, (size_t)U * n * sizeof *dP);
+    long nb = (long)B * n;
+    for (int j = 0; j < dm->win; j++)
+        for (int r = 0; r < B; r++) {
+            float *restrict p = dP + (long)dm->map[(long)j * B + r] * n;
+            const float *restrict a = dA + (long)r * n;
+            if (j == m)
+                for (int i = 0; i < n; i++) p[i] += a[i];
+            for (int q = 1; q < k; q++) {
+                float wj = (q == 1 ? dm->w1 : dm->w2)[j];
+                const float *restrict g = a + q * nb;
+                for (int i = 0; i < n; i++) p[i] += wj * g[i];
+            }
+        }
+    Mat dPm = mat_view(dP, U, n);
+    if (W->grad) mat_gemm(1, 0, 1.0f, F->val, dPm, 1.0f, grad_mat(W));
+    if (F->grad) mat_gemm(0, 1, 1.0f, dPm, W->val, 1.0f, grad_mat(F));
+}
+
+static const CustomOp DENSE_MAP_OP = {"dense_t_map", dense_map_backward};
+
+Node *nn_dense_t_map(Tape *t, Node *F, Node *W, Node *b, int k, ActId act, const int *map, int win, const float *w1,
+                     const float *w2, int B) {
+    int U = F->val.rows, n_out = W->val.cols;
+    NN_CHECK(k >= 1 && k <= 3 && win >= 1 && win % 2 == 1 && B >= 1, "dense_t_map: k %d, window %d, %d samples", k,
+             win, B);
+    NN_CHECK(F->val.cols == W->val.rows, "dense_t_map: F (%d,%d) x W (%d,%d)", U, F->val.cols, W->val.rows, n_out);
+    NN_CHECK(b->val.rows == 1 && b->val.cols == n_out, "dense_t_map: bias (%d,%d) for %d outputs", b->val.rows,
+             b->val.cols, n_out);
+    NN_CHECK(act >= 0 && act < ACT_COUNT, "dense_t_map: bad activation %d", (int)act);
+    for (long i = 0; i < (long)win * B; i++)
+        NN_CHECK(map[i] >= 0 && map[i] < U, "dense_t_map: map[%ld] = %d of %d frames", i, map[i], U);
+    DenseMap *dm = arena_alloc(&t->arena, sizeof *dm);
+    *dm = (DenseMap){map, w1, w2, win, B};
+    Node *in[3] = {F, W, b};
+    Node *c = nn_custom(t, &DENSE_MAP_OP, dm, in, 3, k * B, n_out);
+    c->k = k;
+    c->act = act;
+    float *P = arena_floats(&t->arena, (long)U * n_out);
+    mat_gemm(0, 0, 1.0f, F->val, W->val, 0.0f, mat_view(P, U, n_out));
+    float *A = act == ACT_NONE ? c->val.d : arena_floats(&t->arena, (long)k * B * n_out);
+    c->saved = A;
+    dense_map_rows(dm, k, n_out, P, A);
+    DenseRows dr = {A, c->val.d, NULL, b->val.d, (long)B * n_out, n_out, k, act};
+    par_for(B, row_grain(n_out, act == ACT_NONE ? PAR_LIGHT : PAR_HEAVY),
+            act == ACT_NONE ? bias_rows : act == ACT_SIGMOID ? sigmoid_fwd_rows : dense_fwd_rows, &dr);
+    return c;
+}
+
 /* ---- a linear output layer fused with squared errors ------------------------------------------ */
 
 typedef struct {

@@ -114,6 +114,18 @@ Node *nn_hstack(Tape *t, Node *a, Node *b);
  * act = ACT_NONE gives the linear layer (out = A, bias on the primal rows only). */
 Node *nn_dense_t(Tape *t, Node *h, Node *W, Node *b, int k, ActId act);
 
+/* nn_dense_t over frames shared by the batch's samples (frame sharing in frames mode): F (U, n_in)
+ * holds each distinct frame once, map (win B) places them (map[j B + b] the row of the frame at
+ * offset j - win/2 of sample b) and w1, w2 (win) are the stencil's weights of x' and x''. The layer
+ * is linear before its activation, so the tangents' products are the stencil over the frames'
+ * products: with P = F W (one product over the U distinct frames),
+ *   A[0:B] = P[map[c B + b]],  A[B:2B] = sum_j w1[j] P[map[j B + b]],  A[2B:3B] = the same with w2
+ * and then exactly nn_dense_t's bias, activation and tangents; the output is nn_dense_t's on the
+ * expanded h = (x, x', x'') to float rounding. Backward: dW = F^T dP with dP the map's transpose
+ * applied to dA (one product back). map, w1 and w2 must outlive the backward pass. */
+Node *nn_dense_t_map(Tape *t, Node *F, Node *W, Node *b, int k, ActId act, const int *map, int win, const float *w1,
+                     const float *w2, int B);
+
 /* A linear output layer fused with weighted squared errors against targets, over chosen blocks of
  * the k stacked ones (the decoder's last layer and the reconstruction loss in one op; its output
  * is never a node, and blocks that are not chosen are not computed):

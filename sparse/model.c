@@ -83,6 +83,13 @@ void model_set_window(Model *m, const Stencil *s, double dt) {
     for (int j = 0; j < m->win; j++) m->lw1[j] = (float)(s->w1[j] / dt), m->lw2[j] = (float)(s->w2[j] / (dt * dt));
 }
 
+void model_set_frame_stencil(Model *m, const Stencil *s, double dt) {
+    memset(m->fw1, 0, sizeof m->fw1);
+    memset(m->fw2, 0, sizeof m->fw2);
+    m->fwin = s ? 2 * s->m + 1 : 0;
+    for (int j = 0; j < m->fwin; j++) m->fw1[j] = (float)(s->w1[j] / dt), m->fw2[j] = (float)(s->w2[j] / (dt * dt));
+}
+
 /* window: c (B, d) = sum_j w_j a[j B + b] over the win blocks of a (win B, d); backward
  * da[j B + b] += w_j dc[b]. ctx: the weights (win floats, owned by the model). */
 static void window_backward(Tape *t, Node *c) {
@@ -221,12 +228,10 @@ static Node *model_loss_window(Tape *t, const Model *m, ParamSet *ps, float *X, 
     return loss;
 }
 
-Node *model_loss(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const LossWeights *w,
-                 LossParts *parts) {
-    if (m->win) return model_loss_window(t, m, ps, X, m->win * B, NULL, B, w, parts);
+/* The loss with derivatives by tangents from the codes z (kB, d) of x (kB, n_in), the targets. */
+static Node *model_loss_codes(Tape *t, const Model *m, ParamSet *ps, Node *x, Node *z, int B, const LossWeights *w,
+                              LossParts *parts) {
     int k = m->order + 1, d = m->n_latent;
-    Node *x = nn_input(t, X, k * B, m->n_in);                   /* (kB, n_in) */
-    Node *z = mlp_forward(t, &m->enc, ps, x, k);                /* (kB, d) */
     Node *z0 = nn_rows(t, z, 0, B), *z1 = nn_rows(t, z, B, B);  /* (B, d) each */
     Node *s = m->order == 1 ? z0 : nn_hstack(t, z0, z1);        /* (B, n_vars) */
     Node *theta = library_op(t, &m->lib, s);                    /* (B, n_terms) */
@@ -258,6 +263,29 @@ Node *model_loss(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const L
         parts->total = loss->val.d[0];
     }
     return loss;
+}
+
+Node *model_loss(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const LossWeights *w,
+                 LossParts *parts) {
+    if (m->win) return model_loss_window(t, m, ps, X, m->win * B, NULL, B, w, parts);
+    int k = m->order + 1;
+    Node *x = nn_input(t, X, k * B, m->n_in);                   /* (kB, n_in) */
+    Node *z = mlp_forward(t, &m->enc, ps, x, k);                /* (kB, d) */
+    return model_loss_codes(t, m, ps, x, z, B, w, parts);
+}
+
+Node *model_loss_frames_shared(Tape *t, const Model *m, ParamSet *ps, float *X, float *F, int U, const int *map,
+                               int B, const LossWeights *w, LossParts *parts) {
+    NN_CHECK(!m->win && m->fwin > 0, "model_loss_frames_shared: no frame stencil (model_set_frame_stencil)");
+    int k = m->order + 1, L = m->enc.n_layers;
+    Node *x = nn_input(t, X, k * B, m->n_in);                   /* (kB, n_in) the targets */
+    Node *f = nn_input(t, F, U, m->n_in);                       /* (U, n_in) the distinct frames */
+    Node *z = nn_dense_t_map(t, f, nn_param(t, ps, m->enc.W[0]), nn_param(t, ps, m->enc.b[0]), k,
+                             L == 1 ? ACT_NONE : m->enc.act, map, m->fwin, m->fw1, m->fw2, B);
+    for (int l = 1; l < L; l++) /* as mlp_forward: hidden layers with the activation, the last linear */
+        z = nn_dense_t(t, z, nn_param(t, ps, m->enc.W[l]), nn_param(t, ps, m->enc.b[l]), k,
+                       l == L - 1 ? ACT_NONE : m->enc.act);
+    return model_loss_codes(t, m, ps, x, z, B, w, parts);
 }
 
 Node *model_loss_shared(Tape *t, const Model *m, ParamSet *ps, float *X, int U, const int *map, int B,

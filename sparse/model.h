@@ -57,6 +57,8 @@ typedef struct {
                                  * by tangents; > 0: the input holds the win frames of a derivative stencil
                                  * around each sample, and z', z'' are the stencil applied to their codes */
     float lw1[STENCIL_MAX_LEN], lw2[STENCIL_MAX_LEN]; /* win > 0: the stencil's weights / dt, / dt^2 */
+    int fwin;                   /* win == 0: the frames' derivative stencil's length (0: not set), and */
+    float fw1[STENCIL_MAX_LEN], fw2[STENCIL_MAX_LEN]; /* its weights / dt, / dt^2 (model_set_frame_stencil) */
 } Model;
 
 typedef struct {
@@ -76,6 +78,10 @@ typedef struct {
  * is the reconstruction of the centre frame alone (w->dx is not used). */
 void model_set_window(Model *m, const Stencil *s, double dt);
 
+/* Derivatives by tangents (win == 0): the stencil s (at sample spacing dt) that formed the frames'
+ * x' and x'', for model_loss_frames_shared. */
+void model_set_frame_stencil(Model *m, const Stencil *s, double dt);
+
 /* Declare the model's parameters in ps (call params_alloc after). ST_INPUT for a bad library. */
 int model_init(Model *m, ParamSet *ps, const ModelSpec *spec, Status *st);
 void model_free(Model *m);
@@ -94,6 +100,15 @@ Node *model_loss(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const L
  * the expanded batch, to float rounding. */
 Node *model_loss_shared(Tape *t, const Model *m, ParamSet *ps, float *X, int U, const int *map, int B,
                         const LossWeights *w, LossParts *parts);
+
+/* model_loss with derivatives by tangents (win == 0, model_set_frame_stencil) when the batch's
+ * samples share frames: X (k B, n_in) as model_loss takes it (the targets of the reconstruction
+ * terms), F (U, n_in) each distinct frame of the samples' stencil windows once and map (fwin B)
+ * placing them. The encoder's first layer takes the frames' products F W once and forms the
+ * tangents' products x' W, x'' W by the stencil over them (nn_dense_t_map). The same loss and
+ * gradients as model_loss on X, to float rounding. */
+Node *model_loss_frames_shared(Tape *t, const Model *m, ParamSet *ps, float *X, float *F, int U, const int *map,
+                               int B, const LossWeights *w, LossParts *parts);
 
 /* Encode only: z (k B, n_latent) rows copied to out; returns out. For trajectories and forecasts. */
 void model_encode(Tape *t, const Model *m, ParamSet *ps, float *X, int B, int k, float *out);

@@ -29,7 +29,7 @@ static void small_model(Model *m, ParamSet *ps, Rng *r, int n_in, int d, int ord
     sp.n_in = n_in;
     sp.n_latent = d;
     sp.order = order;
-    sp.n_enc = 1;
+    sp.n_enc = hidden > 0; /* hidden 0: a linear encoder */
     sp.enc_widths[0] = hidden;
     sp.dec_mirror = 1;
     sp.act = ACT_TANH;
@@ -273,6 +273,107 @@ static void check_shared(int order) {
     params_free(&ps);
 }
 
+/* Frame sharing in frames mode (model_loss_frames_shared): the encoder's first layer over the
+ * batch's distinct frames, its tangent rows the stencil over their products, gives the loss and
+ * every parameter's gradient of model_loss on the expanded x, x' (, x'') to float rounding.
+ * Reference: model_loss, checked against finite differences above; the first layer is linear
+ * before its activation, so (sum_j w_j x_j) W = sum_j w_j (x_j W) (common practice: linearity of
+ * the product), and a shared input's gradient is the sum over its uses (the chain rule). */
+static void check_frames_shared(int order, int hidden, ActId act, int window) {
+    enum { N_IN = 6, NF = 20, B = 7, MAXW = 7 };
+    Model m;
+    ParamSet ps;
+    Rng r;
+    small_model(&m, &ps, &r, N_IN, 2, order, hidden, 3, 151 + order + hidden + window);
+    m.enc.act = m.dec.act = act;
+    Status st;
+    Stencil sten;
+    if (window == 3) stencil_central(&sten);
+    else assert_int_equal(stencil_savgol(&sten, window, 3, &st), 0);
+    model_set_frame_stencil(&m, &sten, 0.25);
+    assert_int_equal(m.fwin, window);
+    int k = order + 1, h = window / 2;
+    static float frames[NF * N_IN], X[3 * B * N_IN], F[MAXW * B * N_IN];
+    for (int f = 0; f < NF; f++)
+        for (int i = 0; i < N_IN; i++) frames[f * N_IN + i] = (float)(0.6 * sin(0.3 * f * (1 + 0.2 * i) + i));
+    const int centre[B] = {5, 6, 7, 8, 6, 15, 4}; /* 6 twice; 15 shares nothing with the others */
+    int map[MAXW * B], U = 0, row_of[NF];
+    for (int f = 0; f < NF; f++) row_of[f] = -1;
+    for (int j = 0; j < window; j++)
+        for (int b = 0; b < B; b++) {
+            int f = centre[b] - h + j;
+            if (row_of[f] < 0) {
+                row_of[f] = U;
+                memcpy(F + (long)U * N_IN, frames + f * N_IN, N_IN * sizeof(float));
+                U++;
+            }
+            map[j * B + b] = row_of[f];
+        }
+    assert_true(U < window * B);
+    for (int b = 0; b < B; b++) /* the expanded batch: the frame and the stencil's derivatives */
+        for (int i = 0; i < N_IN; i++) {
+            double d1 = 0, d2 = 0;
+            for (int j = 0; j < window; j++) {
+                double v = frames[(centre[b] - h + j) * N_IN + i];
+                d1 += m.fw1[j] * v, d2 += m.fw2[j] * v;
+            }
+            X[(long)b * N_IN + i] = frames[centre[b] * N_IN + i];
+            X[((long)B + b) * N_IN + i] = (float)d1;
+            if (k == 3) X[(2L * B + b) * N_IN + i] = (float)d2;
+        }
+    LossWeights w = {1.0f, 0.3f, 0.7f, 0.01f};
+    Tape t;
+    tape_init(&t, 128, 1 << 16);
+    for (int warm = 0; warm < 2; warm++) {
+        m.warmup = warm;
+        LossParts pe, pu;
+        params_zero_grad(&ps);
+        tape_backward(&t, model_loss(&t, &m, &ps, X, B, &w, &pe));
+        float *ge = malloc(ps.n * sizeof *ge);
+        memcpy(ge, ps.grad, ps.n * sizeof *ge);
+        tape_reset(&t);
+        params_zero_grad(&ps);
+        tape_backward(&t, model_loss_frames_shared(&t, &m, &ps, X, F, U, map, B, &w, &pu));
+        tape_reset(&t);
+        /* the stencil over products cancels the frames' common part: a few units of rounding of
+         * the products, relative to the derivatives' smaller size */
+        assert_close(pu.total, pe.total, 1e-4, 1e-6);
+        assert_close(pu.rec, pe.rec, 1e-5, 1e-7);
+        assert_close(pu.dx, pe.dx, 1e-4, 1e-6);
+        assert_close(pu.dz, pe.dz, 1e-4, 1e-6);
+        assert_close(pu.l1, pe.l1, 1e-6, 0);
+        double gmax = 0;
+        for (size_t i = 0; i < ps.n; i++) gmax = fmax(gmax, fabs(ge[i]));
+        assert_true(gmax > 0);
+        for (size_t i = 0; i < ps.n; i++)
+            if (fabs(ps.grad[i] - ge[i]) > 1e-4 * gmax)
+                fail_msg("order %d window %d: grad %zu shared %g expanded %g", order, window, i, ps.grad[i], ge[i]);
+        free(ge);
+    }
+    tape_free(&t);
+    model_free(&m);
+    params_free(&ps);
+}
+
+static void test_frames_shared_first_order(void **state) {
+    (void)state;
+    check_frames_shared(1, 4, ACT_TANH, 3);
+    check_frames_shared(1, 4, ACT_SIGMOID, 5);
+}
+
+static void test_frames_shared_second_order(void **state) {
+    (void)state;
+    check_frames_shared(2, 4, ACT_TANH, 3);
+    check_frames_shared(2, 4, ACT_SIGMOID, 7);
+}
+
+/* a linear encoder (no hidden layer): the shared layer is the encoder's only one */
+static void test_frames_shared_linear_encoder(void **state) {
+    (void)state;
+    check_frames_shared(1, 0, ACT_SIGMOID, 5);
+    check_frames_shared(2, 0, ACT_TANH, 3);
+}
+
 static void test_shared_frames_first_order(void **state) { (void)state; check_shared(1); }
 static void test_shared_frames_second_order(void **state) { (void)state; check_shared(2); }
 
@@ -285,6 +386,9 @@ int main(void) {
         cmocka_unit_test(test_window_matches_tangents_for_linear_encoder),
         cmocka_unit_test(test_shared_frames_first_order),
         cmocka_unit_test(test_shared_frames_second_order),
+        cmocka_unit_test(test_frames_shared_first_order),
+        cmocka_unit_test(test_frames_shared_second_order),
+        cmocka_unit_test(test_frames_shared_linear_encoder),
     };
     return cmocka_run_group_tests_name("joint model", tests, NULL, NULL);
 }

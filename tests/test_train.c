@@ -55,7 +55,7 @@ static int osc_gather(void *ctx, int split, const long *idx, int B, float *X, St
 }
 
 static TrainData osc_dataset(Osc *o) {
-    TrainData ds = {NCH, 2, (long)(NREC - 1) * NT, NT, o->dt, osc_gather, o, NULL, NULL, NULL, NULL};
+    TrainData ds = {NCH, 2, (long)(NREC - 1) * NT, NT, o->dt, osc_gather, o, NULL, NULL, NULL, NULL, NULL};
     return ds;
 }
 
@@ -226,6 +226,134 @@ static void test_resume_is_bit_exact(void **state) {
 static void test_resume_is_bit_exact_in_runs(void **state) {
     (void)state;
     resume_bit_exact(8);
+}
+
+/* Frame sharing in frames mode: the oscillator's channels as frames, NT + 2 a recording (a central
+ * stencil's margin); sample s of a recording is its frame s + 1, x' the stencil over its
+ * neighbours. gather gives x, x' per sample; gather_shared the distinct frames and the map. */
+typedef struct {
+    Osc o;
+    Stencil sten;
+    float *frames;  /* (NREC (NT + 2), NCH) */
+    int *row_of;    /* (NREC (NT + 2)) work */
+    long shared_calls;
+} FrameOsc;
+
+static long frame_osc_frame(int split, long s) {
+    int rec = split ? NREC - 1 : (int)(s / NT);
+    return (long)rec * (NT + 2) + s % NT + 1;
+}
+
+static int frame_osc_gather(void *ctx, int split, const long *idx, int B, float *X, Status *st) {
+    (void)st;
+    FrameOsc *p = ctx;
+    for (int b = 0; b < B; b++) {
+        long f = frame_osc_frame(split, idx[b]);
+        for (int c = 0; c < NCH; c++) {
+            double d1 = 0;
+            for (int j = 0; j < 3; j++) d1 += p->sten.w1[j] / p->o.dt * p->frames[(f - 1 + j) * NCH + c];
+            X[(long)b * NCH + c] = p->frames[f * NCH + c];
+            X[((long)B + b) * NCH + c] = (float)d1;
+        }
+    }
+    return 0;
+}
+
+static int frame_osc_gather_shared(void *ctx, int split, const long *idx, int B, float *X, int *map, int *U,
+                                   Status *st) {
+    (void)st;
+    FrameOsc *p = ctx;
+    p->shared_calls++;
+    for (long f = 0; f < (long)NREC * (NT + 2); f++) p->row_of[f] = -1;
+    int u = 0;
+    for (int j = 0; j < 3; j++)
+        for (int b = 0; b < B; b++) {
+            long f = frame_osc_frame(split, idx[b]) - 1 + j;
+            if (p->row_of[f] < 0) {
+                p->row_of[f] = u;
+                memcpy(X + (long)u * NCH, p->frames + f * NCH, NCH * sizeof(float));
+                u++;
+            }
+            map[j * B + b] = p->row_of[f];
+        }
+    *U = u;
+    return 0;
+}
+
+static void frame_osc_init(FrameOsc *p) {
+    osc_init(&p->o);
+    stencil_central(&p->sten);
+    p->frames = malloc((size_t)NREC * (NT + 2) * NCH * sizeof *p->frames);
+    p->row_of = malloc((size_t)NREC * (NT + 2) * sizeof *p->row_of);
+    assert_non_null(p->frames);
+    assert_non_null(p->row_of);
+    p->shared_calls = 0;
+    for (int rec = 0; rec < NREC; rec++)
+        for (int f = 0; f < NT + 2; f++) {
+            double t = (f - 1) * p->o.dt, a = p->o.amp[rec], ph = p->o.phase[rec];
+            double z[2] = {a * sin(p->o.w * t + ph), a * cos(p->o.w * t + ph)};
+            for (int c = 0; c < NCH; c++) {
+                double pz = p->o.P[c * 2] * z[0] + p->o.P[c * 2 + 1] * z[1];
+                p->frames[((long)rec * (NT + 2) + f) * NCH + c] = (float)(pz + 0.1 * pz * pz);
+            }
+        }
+}
+
+static int frame_osc_run(Config *c, const char *dir, int shared, Model *m, ParamSet *ps, FrameOsc *p) {
+    TrainData ds = {NCH, 2, (long)(NREC - 1) * NT, NT, p->o.dt, frame_osc_gather, p, NULL, NULL, NULL,
+                    shared ? frame_osc_gather_shared : NULL, &p->sten};
+    TrainOpts opts = {c, dir, 0, 1, NULL, 0, NULL, NULL};
+    TrainResult res;
+    Status st;
+    int rc = train_run(&opts, &ds, m, ps, &res, &st);
+    if (rc) fprintf(stderr, "train_run: %s\n", st.msg);
+    return rc;
+}
+
+/* Derivatives by tangents with train.run_length 8: training on the shared frames (each distinct
+ * frame through the first layer once, model_loss_frames_shared) ends where training on the
+ * expanded x, x' does, from the same start and order, to float rounding over its steps; and it is
+ * deterministic. Reference: the expanded path (model_loss), and tests/test_model.c's check of the
+ * shared loss and gradients against it. */
+static void test_frames_mode_sharing_trains_as_expanded(void **state) {
+    (void)state;
+    char d1[256], d2[256], d3[256];
+    assert_non_null(test_tmpdir(d1, sizeof d1));
+    assert_non_null(test_tmpdir(d2, sizeof d2));
+    assert_non_null(test_tmpdir(d3, sizeof d3));
+    static FrameOsc fo;
+    frame_osc_init(&fo);
+    Config c;
+    Model me, ms, ms2;
+    ParamSet pe, pss, ps2;
+    small_config(&c, d1);
+    c.run_length = 8;
+    c.epochs = 3;
+    c.refine_epochs = 0;
+    c.threshold = 0; /* no coefficient near a threshold to flip between the two */
+    assert_int_equal(frame_osc_run(&c, d1, 0, &me, &pe, &fo), 0);
+    assert_int_equal(fo.shared_calls, 0);
+    small_config(&c, d2);
+    c.run_length = 8, c.epochs = 3, c.refine_epochs = 0, c.threshold = 0;
+    assert_int_equal(frame_osc_run(&c, d2, 1, &ms, &pss, &fo), 0);
+    assert_int_equal(fo.shared_calls, 3 * 10); /* every training step: 1000 samples, batches of 100 */
+    assert_int_equal(pe.step, pss.step);
+    double pmax = 0, dmax = 0;
+    for (size_t i = 0; i < pe.n; i++) pmax = fmax(pmax, fabs(pe.val[i])), dmax = fmax(dmax, fabs(pe.val[i] - pss.val[i]));
+    assert_true(pmax > 0);
+    /* 30 Adam steps of lr 1e-3 from the same start: rounding moves a weight by far less than a step */
+    if (dmax > 1e-5) fail_msg("shared and expanded training differ by %g (largest weight %g)", dmax, pmax);
+    small_config(&c, d3);
+    c.run_length = 8, c.epochs = 3, c.refine_epochs = 0, c.threshold = 0;
+    assert_int_equal(frame_osc_run(&c, d3, 1, &ms2, &ps2, &fo), 0);
+    assert_true(same_params(&pss, &ps2));
+    model_free(&me), model_free(&ms), model_free(&ms2);
+    params_free(&pe), params_free(&pss), params_free(&ps2);
+    free(fo.frames);
+    free(fo.row_of);
+    test_rmtree(d1);
+    test_rmtree(d2);
+    test_rmtree(d3);
 }
 
 /* train.run_length R: every epoch's training batches hold each training sample once, in runs
@@ -539,7 +667,7 @@ static void ring_config(Config *c, const char *dir, ModelInit init) {
     c->init_epochs = 300;
 }
 
-static const TrainData RING_DATA = {RING, 2, RING_N, 0, 0.01, ring_gather, NULL, NULL, NULL, NULL, NULL};
+static const TrainData RING_DATA = {RING, 2, RING_N, 0, 0.01, ring_gather, NULL, NULL, NULL, NULL, NULL, NULL};
 
 static double ring_rank_correlation(ModelInit init) {
     char dir[256];
@@ -688,6 +816,7 @@ int main(void) {
         cmocka_unit_test(test_resume_is_bit_exact),
         cmocka_unit_test(test_resume_is_bit_exact_in_runs),
         cmocka_unit_test(test_run_length_deals_runs),
+        cmocka_unit_test(test_frames_mode_sharing_trains_as_expanded),
         cmocka_unit_test(test_corrupt_checkpoints_are_refused),
         cmocka_unit_test(test_divergence_stops_and_keeps_checkpoints),
         cmocka_unit_test(test_warmup_then_fit),

@@ -29,7 +29,7 @@ static int gather(void *ctx, int split, const long *idx, int B, float *X, Status
 static int gather_shared(void *ctx, int split, const long *idx, int B, float *X, int *map, int *U, Status *st) {
     RunData *d = ctx;
     if (B > d->batch) return status_set(st, ST_RUNTIME, "gather: batch of %d exceeds %d", B, d->batch);
-    long *work = malloc((size_t)2 * d->k * B * sizeof *work);
+    long *work = malloc((size_t)2 * (2 * d->ds.sten.m + 1) * B * sizeof *work); /* the stencil's window */
     if (!work) return status_set(st, ST_RUNTIME, "gather: out of memory");
     *U = dataset_gather_window_shared(&d->ds, split ? SPLIT_VAL : SPLIT_TRAIN, idx, B, X, map, work);
     free(work);
@@ -239,7 +239,8 @@ static void set_blocks(RunData *d, const Config *c) {
     td->sample_frame = d->ds.samples[SPLIT_TRAIN];
     td->sten = latent ? &d->ds.sten : NULL;
     td->gather = gather;
-    td->gather_shared = latent ? gather_shared : NULL;
+    td->gather_shared = gather_shared;
+    td->frame_sten = latent ? NULL : &d->ds.sten;
     td->ctx = d;
 }
 

@@ -644,6 +644,7 @@ static int setup(Run *r, const Config *cfg, const TrainData *ds, const char *run
                           m->lib.n_terms, ds->n_train);
     }
     if (ds->sten) model_set_window(m, ds->sten, ds->dt);
+    else if (ds->frame_sten) model_set_frame_stencil(m, ds->frame_sten, ds->dt);
     rng_seed(&r->meta.rng, cfg->seed);
     model_init_params(m, ps, &r->meta.rng);
     r->order = nn_alloc((size_t)(ds->n_train > 0 ? ds->n_train : 1) * sizeof *r->order);
@@ -757,8 +758,10 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     /* train.run_length > 1: batches of runs; with the stencil's window, each distinct frame once */
     long R = c->run_length > 1 ? c->run_length : 1;
     long *blk = R > 1 ? nn_alloc((size_t)((ds->n_train + R - 1) / R) * sizeof *blk) : NULL;
-    int shared = R > 1 && m->win && ds->gather_shared;
-    int *map = shared ? nn_alloc((size_t)ds->k * B * sizeof *map) : NULL; /* (k B) */
+    int shared = R > 1 && (m->win || m->fwin) && ds->gather_shared, fshared = shared && !m->win;
+    int *map = shared ? nn_alloc((size_t)(m->win ? m->win : m->fwin) * B * sizeof *map) : NULL; /* (win B) */
+    /* frames mode: the distinct frames apart from X, which holds the targets x, x' (, x'') */
+    float *F = fshared ? nn_alloc((size_t)m->fwin * B * ds->n_in * sizeof *F) : NULL;
     int fresh = ps->step == 0, use_pca = c->init == INIT_PCA || c->init == INIT_ISOMAP;
     if (fresh && o->start) { /* a given start (refinement): its values and mask instead of model.init */
         NN_CHECK(o->start->n == ps->n, "train_run: a start of %zu parameters for a model of %zu", o->start->n, ps->n);
@@ -822,15 +825,18 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
             long s0 = b * B;
             int nb = (int)(ds->n_train - s0 < B ? ds->n_train - s0 : B);
             int U = 0;
-            if (shared ? ds->gather_shared(ds->ctx, 0, r.order + s0, nb, X, map, &U, st)
-                       : ds->gather(ds->ctx, 0, r.order + s0, nb, X, st)) {
+            if ((fshared && ds->gather_shared(ds->ctx, 0, r.order + s0, nb, F, map, &U, st)) ||
+                (shared && !fshared ? ds->gather_shared(ds->ctx, 0, r.order + s0, nb, X, map, &U, st)
+                                    : ds->gather(ds->ctx, 0, r.order + s0, nb, X, st))) {
                 rc = st->code;
                 goto out;
             }
             tape_reset(&t);
             params_zero_grad(ps);
             LossParts p;
-            Node *loss = shared ? model_loss_shared(&t, m, ps, X, U, map, nb, &w, &p) : model_loss(&t, m, ps, X, nb, &w, &p);
+            Node *loss = fshared  ? model_loss_frames_shared(&t, m, ps, X, F, U, map, nb, &w, &p)
+                         : shared ? model_loss_shared(&t, m, ps, X, U, map, nb, &w, &p)
+                                  : model_loss(&t, m, ps, X, nb, &w, &p);
             if (!isfinite(p.total)) {
                 rc = status_set(st, ST_RUNTIME,
                                 "training diverged at epoch %ld (the loss is not finite); a lower optimizer.lr, "
@@ -934,6 +940,7 @@ out:
     tape_free(&t);
     nn_free(X);
     nn_free(map);
+    nn_free(F);
     nn_free(blk);
     nn_free(r.order);
     return rc;

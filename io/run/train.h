@@ -33,9 +33,11 @@ typedef struct {
                              * 2m+1 frames around each sample as k = 2m+1 blocks */
     volatile sig_atomic_t *stop; /* NULL, or a stop request (a signal): a pass over a split ends at its
                              * next batch (batches_next returns TRAIN_STOPPED) */
-    /* NULL, or (with sten) the same batch with each distinct frame once: X (U, n_in) and map (k B)
-     * as model_loss_shared takes them; training uses it when train.run_length > 1 */
+    /* NULL, or the frames of the batch's stencil windows with each distinct frame once: X (U, n_in)
+     * and map ((2m+1) B) as model_loss_shared (with sten) or model_loss_frames_shared (with
+     * frame_sten) take them; training uses it when train.run_length > 1 */
     int (*gather_shared)(void *ctx, int split, const long *idx, int B, float *X, int *map, int *U, Status *st);
+    const Stencil *frame_sten; /* NULL, or (derivatives by tangents) the stencil of the frames' x', x'' */
 } TrainData;
 
 /* The passes over a whole split (the data's scales, the start-ups, the thresholding and selection

@@ -103,8 +103,9 @@ def parse():
                    help="0: the frames' derivatives by tangents; W > 0: latent mode, the Savitzky-Golay "
                         "stencil of W frames and degree 3 applied to the codes (see latent_main)")
     p.add_argument("--run", type=int, default=1,
-                   help="latent mode: samples per run of an epoch's order; > 1 encodes each distinct frame "
-                        "of a batch once (torch.unique)")
+                   help="samples per run of an epoch's order; > 1: each distinct frame of a batch goes "
+                        "through the first layer once (torch.unique): latent mode encodes it once, frames "
+                        "mode forms the tangent rows as the stencil over the frames' products")
     p.add_argument("--selftest", action="store_true", help="check the layer's backward and exit")
     a = p.parse_args()
     if not a.selftest:
@@ -305,7 +306,13 @@ def latent_main(a, q, gen):
         opt.step()
         return loss.detach()
 
-    R = max(a.run, 1)
+    return step, run_order(valid, a.run)
+
+
+def run_order(valid, run):
+    """The epoch's order: the valid samples shuffled, or (run R > 1) runs of R consecutive ones, the
+    runs shuffled (framelaw's train.run_length)."""
+    R = max(run, 1)
     n_runs = (len(valid) + R - 1) // R
 
     def epoch_order():
@@ -315,7 +322,7 @@ def latent_main(a, q, gen):
         pos = (runs[:, None] * R + torch.arange(R)[None, :]).reshape(-1)
         return valid[pos[pos < len(valid)]]
 
-    return step, epoch_order
+    return epoch_order
 
 
 def main():
@@ -371,10 +378,26 @@ def main():
         torch.sub(q2, q0, out=xd).mul_(g1)
         if a.order == 2:
             torch.add(q2, q1, alpha=-2, out=X[2 * B:]).add_(q0).mul_(g2)
-        H = X
-        for l in range(L - 1):
-            H = layer(H @ eW[l], eb[l], B)
-        Z = H @ eW[L - 1]                                # (k B, latent)
+        if a.run > 1:
+            # runs: the first layer's products of each distinct frame once, P = x W; the tangent
+            # rows are the central stencil over them, x' W = (P[f+1] - P[f-1]) / (2 dt), x'' W =
+            # (P[f+1] - 2 P[f] + P[f-1]) / dt^2 (the layer is linear before its activation)
+            uniq, inv = torch.unique(torch.cat([f - 1, f, f + 1]), return_inverse=True)
+            P = q[uniq].float().mul_(g0) @ eW[0]
+            p0, p1, p2 = P[inv[:B]], P[inv[B:2 * B]], P[inv[2 * B:]]
+            blocks = [p1, (p2 - p0).mul_(0.5 / dt)]
+            if a.order == 2:
+                blocks.append((p2 - 2 * p1 + p0).mul_(1.0 / (dt * dt)))
+            A = torch.cat(blocks)
+        else:
+            A = X @ eW[0]
+        if L == 1:
+            Z = A
+        else:
+            H = layer(A, eb[0], B)
+            for l in range(1, L - 1):
+                H = layer(H @ eW[l], eb[l], B)
+            Z = H @ eW[L - 1]                            # (k B, latent)
         z, zd = Z[:B] + eb[L - 1], Z[B:2 * B]
         xim = xi * mask
         if a.order == 1:
@@ -398,7 +421,7 @@ def main():
         opt.step()
         return loss.detach()
 
-    run_epochs(a, step, lambda: valid[torch.randperm(len(valid))])
+    run_epochs(a, step, run_order(valid, a.run))
 
 
 def run_epochs(a, step, epoch_order):
