@@ -440,6 +440,15 @@ static void bias_rows(void *vc, long lo, long hi) {
         for (int j = 0; j < c->n_out; j++) c->A[r * c->n_out + j] += c->b[j];
 }
 
+/* dense_t's pass after its product A (k B, n_out): the bias on the primal rows only, then the
+ * activation and the tangents into c's value, one pass over the rows (c->k, c->act set) */
+static void dense_act_forward(Node *c, float *A, const float *bias, int B) {
+    int n_out = c->val.cols;
+    DenseRows dr = {A, c->val.d, NULL, bias, (long)B * n_out, n_out, c->k, c->act};
+    par_for(B, row_grain(n_out, c->act == ACT_NONE ? PAR_LIGHT : PAR_HEAVY),
+            c->act == ACT_NONE ? bias_rows : c->act == ACT_SIGMOID ? sigmoid_fwd_rows : dense_fwd_rows, &dr);
+}
+
 Node *nn_dense_t(Tape *t, Node *h, Node *W, Node *b, int k, ActId act) {
     int rows = h->val.rows, n_out = W->val.cols;
     NN_CHECK(k >= 1 && k <= 3 && rows % k == 0, "dense_t: %d rows do not split into k = %d blocks", rows, k);
@@ -457,10 +466,7 @@ Node *nn_dense_t(Tape *t, Node *h, Node *W, Node *b, int k, ActId act) {
     float *A = act == ACT_NONE ? c->val.d : arena_floats(&t->arena, (long)rows * n_out); /* (k*B, n_out) */
     c->saved = A;
     mat_gemm(0, 0, 1.0f, h->val, W->val, 0.0f, mat_view(A, rows, n_out));
-    DenseRows dr = {A, c->val.d, NULL, b->val.d, (long)B * n_out, n_out, k, act};
-    /* bias on the primal rows only; then the activation and the tangents, one pass over the rows */
-    par_for(B, row_grain(n_out, act == ACT_NONE ? PAR_LIGHT : PAR_HEAVY),
-            act == ACT_NONE ? bias_rows : act == ACT_SIGMOID ? sigmoid_fwd_rows : dense_fwd_rows, &dr);
+    dense_act_forward(c, A, b->val.d, B);
     return c;
 }
 
@@ -535,6 +541,16 @@ static void sigmoid_bwd_rows(void *vc, long lo, long hi) {
     else sigmoid_bwd3(n, o, g, g + nb, g + 2 * nb, A, A + nb, A + 2 * nb);
 }
 
+/* The gradient dA (k B, n) of the product before dense_t's activation: the output's gradient for a
+ * linear layer, else computed over the saved A in place (c->saved) */
+static float *dense_act_backward(Node *c) {
+    if (c->act == ACT_NONE) return c->grad;
+    int n = c->val.cols, B = c->val.rows / c->k;
+    DenseRows dr = {c->saved, c->val.d, c->grad, NULL, (long)B * n, n, c->k, c->act};
+    par_for(B, row_grain(n, PAR_HEAVY), c->act == ACT_SIGMOID ? sigmoid_bwd_rows : dense_bwd_rows, &dr);
+    return c->saved;
+}
+
 /* forward was:  a = (hW)[0:B] + b,  u = (hW)[B:2B],  v = (hW)[2B:3B]
  *               o0 = s(a),  o1 = s'(a) u,  o2 = s''(a) u^2 + s'(a) v
  * so, with g0, g1, g2 the gradients of o0, o1, o2:
@@ -546,15 +562,8 @@ static void sigmoid_bwd_rows(void *vc, long lo, long hi) {
  * written over the saved A (dead after this), so backward runs once per recording. */
 static void dense_t_backward(Tape *t, Node *c) {
     Node *h = c->in[0], *W = c->in[1], *b = c->in[2];
-    int rows = c->val.rows, n_out = c->val.cols, k = c->k, B = rows / k;
-    float *dA; /* (k*B, n_out) */
-    if (c->act == ACT_NONE) {
-        dA = c->grad;
-    } else {
-        dA = c->saved;
-        DenseRows dr = {c->saved, c->val.d, c->grad, NULL, (long)B * n_out, n_out, k, c->act};
-        par_for(B, row_grain(n_out, PAR_HEAVY), c->act == ACT_SIGMOID ? sigmoid_bwd_rows : dense_bwd_rows, &dr);
-    }
+    int rows = c->val.rows, n_out = c->val.cols, B = rows / c->k;
+    float *dA = dense_act_backward(c); /* (k*B, n_out) */
     Mat dAm = mat_view(dA, rows, n_out);
     if (b->grad) colsum_add(t, b->grad, dA, B, n_out);
     if (W->grad) mat_gemm(1, 0, 1.0f, h->val, dAm, 1.0f, grad_mat(W));
@@ -595,14 +604,7 @@ static void dense_map_backward(Tape *t, Node *c) {
     Node *F = c->in[0], *W = c->in[1], *b = c->in[2];
     const DenseMap *dm = c->ctx;
     int rows = c->val.rows, n = c->val.cols, k = c->k, B = rows / k, U = F->val.rows, m = dm->win / 2;
-    float *dA;
-    if (c->act == ACT_NONE) {
-        dA = c->grad;
-    } else {
-        dA = c->saved;
-        DenseRows dr = {c->saved, c->val.d, c->grad, NULL, (long)B * n, n, k, c->act};
-        par_for(B, row_grain(n, PAR_HEAVY), c->act == ACT_SIGMOID ? sigmoid_bwd_rows : dense_bwd_rows, &dr);
-    }
+    float *dA = dense_act_backward(c);
     if (b->grad) colsum_add(t, b->grad, dA, B, n);
     float *dP = arena_floats(&t->arena, (long)U * n);
     memset(dP, 0, (size_t)U * n * sizeof *dP);
@@ -648,9 +650,7 @@ Node *nn_dense_t_map(Tape *t, Node *F, Node *W, Node *b, int k, ActId act, const
     float *A = act == ACT_NONE ? c->val.d : arena_floats(&t->arena, (long)k * B * n_out);
     c->saved = A;
     dense_map_rows(dm, k, n_out, P, A);
-    DenseRows dr = {A, c->val.d, NULL, b->val.d, (long)B * n_out, n_out, k, act};
-    par_for(B, row_grain(n_out, act == ACT_NONE ? PAR_LIGHT : PAR_HEAVY),
-            act == ACT_NONE ? bias_rows : act == ACT_SIGMOID ? sigmoid_fwd_rows : dense_fwd_rows, &dr);
+    dense_act_forward(c, A, b->val.d, B);
     return c;
 }
 

@@ -209,6 +209,16 @@ static void test_window_gradients_second_order(void **state) { (void)state; chec
 static void test_first_order_model_gradients(void **state) { (void)state; check_model(1); }
 static void test_second_order_model_gradients(void **state) { (void)state; check_model(2); }
 
+/* Every gradient of ps within rel of the largest expanded gradient ge (which must not be all 0). */
+static void assert_grads_close(const ParamSet *ps, const float *ge, double rel, int order, int window) {
+    double gmax = 0;
+    for (size_t i = 0; i < ps->n; i++) gmax = fmax(gmax, fabs(ge[i]));
+    assert_true(gmax > 0);
+    for (size_t i = 0; i < ps->n; i++)
+        if (fabs(ps->grad[i] - ge[i]) > rel * gmax)
+            fail_msg("order %d window %d: grad %zu shared %g expanded %g", order, window, i, ps->grad[i], ge[i]);
+}
+
 /* Frame sharing (model_loss_shared): a batch whose samples overlap in time (neighbours, a repeat
  * and a far one) as its distinct frames once plus a map gives the loss and every parameter's
  * gradient of the expanded batch (each sample's win frames), to float rounding. Reference: the
@@ -261,11 +271,7 @@ static void check_shared(int order) {
         assert_close(pu.rec, pe.rec, 1e-5, 1e-7);
         assert_close(pu.dz, pe.dz, 1e-5, 1e-7);
         assert_close(pu.l1, pe.l1, 1e-6, 0);
-        double gmax = 0;
-        for (size_t i = 0; i < ps.n; i++) gmax = fmax(gmax, fabs(ge[i]));
-        assert_true(gmax > 0);
-        for (size_t i = 0; i < ps.n; i++)
-            if (fabs(ps.grad[i] - ge[i]) > 1e-5 * gmax) fail_msg("order %d: grad %zu shared %g expanded %g", order, i, ps.grad[i], ge[i]);
+        assert_grads_close(&ps, ge, 1e-5, order, WIN);
         free(ge);
     }
     tape_free(&t);
@@ -342,12 +348,7 @@ static void check_frames_shared(int order, int hidden, ActId act, int window) {
         assert_close(pu.dx, pe.dx, 1e-4, 1e-6);
         assert_close(pu.dz, pe.dz, 1e-4, 1e-6);
         assert_close(pu.l1, pe.l1, 1e-6, 0);
-        double gmax = 0;
-        for (size_t i = 0; i < ps.n; i++) gmax = fmax(gmax, fabs(ge[i]));
-        assert_true(gmax > 0);
-        for (size_t i = 0; i < ps.n; i++)
-            if (fabs(ps.grad[i] - ge[i]) > 1e-4 * gmax)
-                fail_msg("order %d window %d: grad %zu shared %g expanded %g", order, window, i, ps.grad[i], ge[i]);
+        assert_grads_close(&ps, ge, 1e-4, order, window);
         free(ge);
     }
     tape_free(&t);
