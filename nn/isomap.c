@@ -6,6 +6,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "nn/mat.h"
+
 /* LAPACK (Fortran interface, in OpenBLAS): eigenpairs of a symmetric matrix, by index range. */
 extern void dsyevr_(const char *jobz, const char *range, const char *uplo, const int *n, double *a, const int *lda,
                     const double *vl, const double *vu, const int *il, const int *iu, const double *abstol, int *m,
@@ -80,7 +82,7 @@ static HeapItem heap_pop(HeapItem *h, long *size) {
 
 /* ---- the embedding ----------------------------------------------------------------------------- */
 
-int isomap_embed(const float *X, long n, long dim, int d, int k, double *Y, int *k_used, int *bridges, Status *st) {
+static int embed(const float *X, long n, long dim, int d, int k, double *Y, int *k_used, int *bridges, Status *st) {
     if (d > 64) return status_set(st, ST_INPUT, "isomap: at most 64 dimensions (asked %d)", d);
     if (d < 1 || n < d + 2) return status_set(st, ST_INPUT, "isomap: %ld samples for %d dimensions", n, d);
     int kmax = ISOMAP_KMAX < n - 1 ? ISOMAP_KMAX : (int)(n - 1);
@@ -234,5 +236,12 @@ int isomap_embed(const float *X, long n, long dim, int d, int k, double *Y, int 
     }
 out:
     nn_free(D), nn_free(S), nn_free(sq), nn_free(nbr), nn_free(parent);
+    return rc;
+}
+
+int isomap_embed(const float *X, long n, long dim, int d, int k, double *Y, int *k_used, int *bridges, Status *st) {
+    int blas = nn_blas_wide(); /* the LAPACK and level-3 calls on every thread of the pool */
+    int rc = embed(X, n, dim, d, k, Y, k_used, bridges, st);
+    nn_set_blas_threads(blas);
     return rc;
 }

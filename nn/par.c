@@ -6,15 +6,19 @@
  * still running. The caller never waits for a worker to wake up: a worker that starts late finds
  * the chunks taken and goes back to waiting, so a call costs no more than running it alone.
  *
- * Between calls a worker sleeps on a condition variable; it does not spin. OpenBLAS's own threads
- * already spin on the other cores between products (sched_yield for about 0.1 s), and a second
- * spinner there slowed the products and the caller's passes more than it saved in wake-ups. A worker
- * woken late costs nothing: it finds the chunks taken. */
+ * Between calls a worker watches for the next job for PAR_SPIN_NS (0.1 ms), then sleeps on a
+ * condition variable. A training step is a chain of passes and products split here (mat_gemm
+ * splits its large products through par_for, with OpenBLAS's own threading at 1) with short serial
+ * stretches between them: a worker that waits for the next job awake takes its share at once, where
+ * one woken from sleep often comes too late for a short job. A longer pause (between epochs, the
+ * serial passes) costs it 0.1 ms of one core. A worker woken late costs nothing either: it finds the
+ * chunks taken. */
 #include "nn/par.h"
 
 #include <pthread.h>
 #include <sched.h>
 #include <stdatomic.h>
+#include <time.h>
 
 #include "nn/core.h"
 
@@ -32,6 +36,35 @@ static struct {
     atomic_long done;               /* chunks finished in the current job */
 } pool = {PTHREAD_MUTEX_INITIALIZER, PTHREAD_MUTEX_INITIALIZER, PTHREAD_COND_INITIALIZER, 1, 0, 0, 0, NULL, NULL,
           0, 0, 0, 0, 0};
+
+#ifndef PAR_SPIN_NS
+#define PAR_SPIN_NS 100000L
+#endif
+static inline void spin_pause(void) {
+#if defined(__x86_64__) || defined(__i386__)
+    __builtin_ia32_pause();
+#else
+    atomic_signal_fence(memory_order_seq_cst);
+#endif
+}
+
+static long now_ns(void) {
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return ts.tv_sec * 1000000000L + ts.tv_nsec;
+}
+
+/* A worker done with a job watches for the next one for PAR_SPIN_NS before it sleeps. */
+static void spin_while_idle(unsigned long seen) {
+    long until = now_ns() + PAR_SPIN_NS;
+    for (;;) {
+        for (int k = 0; k < 64; k++) {
+            if (atomic_load(&pool.gen) != seen) return;
+            spin_pause();
+        }
+        if (now_ns() > until) return;
+    }
+}
 
 static unsigned long start_gen[PAR_MAX_THREADS]; /* the generation current when worker i started */
 
@@ -54,6 +87,7 @@ static void *worker(void *arg) {
     unsigned long seen = start_gen[id];
     pthread_mutex_unlock(&pool.mu);
     for (;;) {
+        spin_while_idle(seen);
         pthread_mutex_lock(&pool.mu);
         if (pool.gen == seen) {
             pool.sleeping++;

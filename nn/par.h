@@ -11,9 +11,10 @@
  * blocks in index order afterwards; then the result is the same for every thread count (nn/tape.c's
  * reductions do so).
  *
- * The pool is process-wide, like OpenBLAS's own threads, and holds no data between calls. Its size
- * follows nn_set_threads (nn/mat.h), which sets both. A par_for called while another is running
- * (from a second thread) runs serially on its caller. */
+ * The pool is process-wide and holds no data between calls. Its size follows nn_set_threads
+ * (nn/mat.h), which also makes mat_gemm split its large products over it. A par_for called while
+ * another is running (from a second thread, or from one of its own chunks) runs serially on its
+ * caller. */
 #ifndef NN_PAR_H
 #define NN_PAR_H
 

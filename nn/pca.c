@@ -5,6 +5,8 @@
 #include <math.h>
 #include <string.h>
 
+#include "nn/mat.h"
+
 /* LAPACK (Fortran interface, in OpenBLAS): eigenpairs of a symmetric matrix, by index range. */
 extern void dsyevr_(const char *jobz, const char *range, const char *uplo, const int *n, double *a, const int *lda,
                     const double *vl, const double *vu, const int *il, const int *iu, const double *abstol, int *m,
@@ -51,7 +53,9 @@ void pca_add(Pca *p, const float *x, int B) {
         for (int b = 0; b < nb; b++)
             for (int j = 0; j < n; j++) p->sum[j] += p->work[(long)b * n + j];
         /* cov (lower, row-major) += work^T work */
+        int blas = nn_blas_wide();
         cblas_dsyrk(CblasRowMajor, CblasLower, CblasTrans, n, nb, 1.0, p->work, n, 1.0, p->cov, n);
+        nn_set_blas_threads(blas);
         p->count += nb;
     }
 }
@@ -156,7 +160,7 @@ done:
     return rc;
 }
 
-int pca_finish_total(Pca *p, int r, double *mean, double *vecs, double *vals, double *total, Status *st) {
+static int finish_total(Pca *p, int r, double *mean, double *vecs, double *vals, double *total, Status *st) {
     int n = p->n, rc = 0;
     if (r < 1 || r > n) {
         pca_free(p);
@@ -179,5 +183,12 @@ int pca_finish_total(Pca *p, int r, double *mean, double *vecs, double *vals, do
     }
     rc = top_eigs(p->cov, n, r, vecs, vals, st); /* row-major lower == column-major upper */
     pca_free(p);
+    return rc;
+}
+
+int pca_finish_total(Pca *p, int r, double *mean, double *vecs, double *vals, double *total, Status *st) {
+    int blas = nn_blas_wide(); /* the LAPACK and level-3 calls on every thread of the pool */
+    int rc = finish_total(p, r, mean, vecs, vals, total, st);
+    nn_set_blas_threads(blas);
     return rc;
 }

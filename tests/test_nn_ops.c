@@ -40,6 +40,39 @@ static void test_gemm_matches_reference(void **state) {
         }
 }
 
+/* A product large enough to be split over two threads (by C's rows when m >= n, else by its columns)
+ * matches the triple loop, every transpose combination, with beta != 0, and gives the same bits from
+ * call to call (common practice: each block is its own cblas_sgemm over the whole of k). A wrong
+ * block offset fails the comparison with the loop. */
+static void test_gemm_split_matches_reference(void **state) {
+    (void)state;
+    Rng r;
+    rng_seed(&r, 2);
+    int shapes[2][3] = {{301, 70, 64}, {40, 333, 96}}; /* m, n, k: split by rows, then by columns */
+    nn_set_threads(2);
+    for (int s = 0; s < 2; s++)
+        for (int ta = 0; ta < 2; ta++)
+            for (int tb = 0; tb < 2; tb++) {
+                int m = shapes[s][0], n = shapes[s][1], k = shapes[s][2];
+                float *A = malloc(sizeof(float) * m * k), *B = malloc(sizeof(float) * k * n);
+                float *C0 = malloc(sizeof(float) * m * n), *C[3];
+                Mat a = ta ? mat_view(A, k, m) : mat_view(A, m, k);
+                Mat b = tb ? mat_view(B, n, k) : mat_view(B, k, n);
+                fill(a, &r, -1, 1);
+                fill(b, &r, -1, 1);
+                fill(mat_view(C0, m, n), &r, -1, 1);
+                for (int i = 0; i < 3; i++) {
+                    C[i] = malloc(sizeof(float) * m * n);
+                    memcpy(C[i], C0, sizeof(float) * m * n);
+                    (i == 2 ? mat_gemm_ref : mat_gemm)(ta, tb, 0.5f, a, b, 0.25f, mat_view(C[i], m, n));
+                }
+                assert_memory_equal(C[0], C[1], sizeof(float) * m * n);
+                for (long i = 0; i < (long)m * n; i++) assert_close(C[0][i], C[2][i], 1e-5, 1e-5);
+                free(A), free(B), free(C0), free(C[0]), free(C[1]), free(C[2]);
+            }
+    nn_set_threads(1);
+}
+
 /* A hand example: [1 2; 3 4] [5 6; 7 8] = [19 22; 43 50]. */
 static void test_gemm_hand_example(void **state) {
     (void)state;
@@ -305,7 +338,8 @@ static void test_grad_dense_sq_err(void **state) {
 
 /* A step's passes give the same bits at 1 and 2 threads (elementwise passes are split over
  * threads; reductions are taken over fixed row blocks): a sigmoid dense_t layer with tangents
- * feeding dense_sq_err, forward and backward, on shapes large enough to be split. */
+ * feeding dense_sq_err, forward and backward, on shapes large enough to be split. The products stay
+ * whole here (mat_set_split_min): split, their blocks may round differently (see nn/mat.h). */
 static void test_ops_same_bits_any_thread_count(void **state) {
     (void)state;
     int k = 3, B = 600, n_in = 40, n_mid = 128, n_out = 700, blocks[2] = {0, 2};
@@ -324,7 +358,8 @@ static void test_ops_same_bits_any_thread_count(void **state) {
     float *y = malloc(sizeof(float) * (size_t)k * B * n_out), *grad[2], loss[2];
     for (long i = 0; i < (long)k * B * n_out; i++) y[i] = (float)(rng_uniform(&r) - 0.5);
     for (int th = 1; th <= 2; th++) {
-        par_set_threads(th);
+        nn_set_threads(th);
+        double split = mat_set_split_min(INFINITY);
         Tape t;
         tape_init(&t, 32, 1 << 20);
         params_zero_grad(&ps);
@@ -336,8 +371,9 @@ static void test_ops_same_bits_any_thread_count(void **state) {
         grad[th - 1] = malloc(ps.n * sizeof(float));
         memcpy(grad[th - 1], ps.grad, ps.n * sizeof(float));
         tape_free(&t);
+        mat_set_split_min(split);
     }
-    par_set_threads(1);
+    nn_set_threads(1);
     assert_true(loss[0] == loss[1]);
     assert_memory_equal(grad[0], grad[1], ps.n * sizeof(float));
     free(grad[0]), free(grad[1]), free(y);
@@ -360,6 +396,7 @@ int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_gemm_matches_reference),
         cmocka_unit_test(test_gemm_hand_example),
+        cmocka_unit_test(test_gemm_split_matches_reference),
         cmocka_unit_test(test_arena_reuses_memory_after_first_step),
         cmocka_unit_test(test_rng_reference_values),
         cmocka_unit_test(test_grad_matmul),
