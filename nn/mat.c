@@ -24,8 +24,8 @@ static void gemm_shapes(int ta, int tb, Mat a, Mat b, Mat c, int *m, int *n, int
 }
 
 /* One product split into blocks of C's rows (or columns) for par_for: each block is an independent
- * single-threaded cblas_sgemm over the whole of k, so every element of C is summed in the same order
- * whatever the split. */
+ * single-threaded cblas_sgemm over the whole of k, so there are no partial sums to combine and the
+ * result does not depend on which thread takes which block. */
 typedef struct {
     int ta, tb, m, n, k, by_rows;
     float alpha, beta;
@@ -69,7 +69,7 @@ void mat_gemm(int ta, int tb, float alpha, Mat a, Mat b, float beta, Mat c) {
         GemmJob j = {ta, tb, m, n, k, m >= n, alpha, beta, a, b, c};
         long len = m >= n ? m : n, blocks = 2L * P;
         long grain = (len + blocks - 1) / blocks;
-        grain = (grain + 15) / 16 * 16; /* whole register tiles */
+        grain = (grain + 15) / 16 * 16; /* blocks a multiple of 16 long, like the kernels' tiles */
         par_for(len, grain, gemm_block, &j);
         return;
     }
