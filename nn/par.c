@@ -37,9 +37,7 @@ static struct {
 } pool = {PTHREAD_MUTEX_INITIALIZER, PTHREAD_MUTEX_INITIALIZER, PTHREAD_COND_INITIALIZER, 1, 0, 0, 0, NULL, NULL,
           0, 0, 0, 0, 0};
 
-#ifndef PAR_SPIN_NS
-#define PAR_SPIN_NS 100000L
-#endif
+#define PAR_SPIN_NS 100000L /* how long a worker watches for the next job */
 static inline void spin_pause(void) {
 #if defined(__x86_64__) || defined(__i386__)
     __builtin_ia32_pause();

@@ -47,17 +47,17 @@ void pca_add(Pca *p, const float *x, int B) {
         p->count += B; /* beyond cap: counted, refused at the finish */
         return;
     }
+    int blas = nn_blas_wide(); /* the level-3 updates on every thread of the pool */
     for (int b0 = 0; b0 < B; b0 += p->chunk) {
         int nb = B - b0 < p->chunk ? B - b0 : p->chunk;
         for (long i = 0; i < (long)nb * n; i++) p->work[i] = x[(long)b0 * n + i];
         for (int b = 0; b < nb; b++)
             for (int j = 0; j < n; j++) p->sum[j] += p->work[(long)b * n + j];
         /* cov (lower, row-major) += work^T work */
-        int blas = nn_blas_wide();
         cblas_dsyrk(CblasRowMajor, CblasLower, CblasTrans, n, nb, 1.0, p->work, n, 1.0, p->cov, n);
-        nn_set_blas_threads(blas);
         p->count += nb;
     }
+    nn_set_blas_threads(blas);
 }
 
 void pca_free(Pca *p) {
