@@ -6,7 +6,10 @@
  * texts in the JSON took the digits of equations.txt (4, was 6), and for the equations JSON version 2
  * (products written with '*', "multipliers"): every number as before, only "digits", the version,
  * those names and the texts changed. Re-recorded when the ensemble object gained "fit" (how its
- * members were fitted): one line more, every number as before.
+ * members were fitted): one line more, every number as before. The lantern's re-recorded when latent
+ * mode took each distinct frame of a batch once with shuffled samples too (2026-12-05): the gradient
+ * sums over a frame's windows in another order, so the last bits differ; every coefficient of the
+ * law as before to 3 or 4 digits.
  *
  * The runs cover both derivative modes and every start-up: an image run (the lantern demo at 20 px,
  * Isomap start, derivatives in latent space, loss.normalize) and a numeric run (CSV recordings of a

@@ -356,6 +356,70 @@ static void test_frames_mode_sharing_trains_as_expanded(void **state) {
     test_rmtree(d3);
 }
 
+/* Latent mode (derivatives by the stencil over the codes) on the same frames: gather gives the
+ * 3-frame window of each sample as 3 blocks, gather_shared each distinct frame once. */
+static int frame_osc_gather_window(void *ctx, int split, const long *idx, int B, float *X, Status *st) {
+    (void)st;
+    FrameOsc *p = ctx;
+    for (int j = 0; j < 3; j++)
+        for (int b = 0; b < B; b++)
+            memcpy(X + ((long)j * B + b) * NCH, p->frames + (frame_osc_frame(split, idx[b]) - 1 + j) * NCH,
+                   NCH * sizeof(float));
+    return 0;
+}
+
+static int frame_osc_run_latent(Config *c, const char *dir, int shared, Model *m, ParamSet *ps, FrameOsc *p) {
+    TrainData ds = {NCH, 3, (long)(NREC - 1) * NT, NT, p->o.dt, frame_osc_gather_window, p, NULL, &p->sten, NULL,
+                    shared ? frame_osc_gather_shared : NULL, NULL};
+    TrainOpts opts = {c, dir, 0, 1, NULL, 0, NULL, NULL};
+    TrainResult res;
+    Status st;
+    int rc = train_run(&opts, &ds, m, ps, &res, &st);
+    if (rc) fprintf(stderr, "train_run: %s\n", st.msg);
+    return rc;
+}
+
+/* Latent mode shares frames with shuffled samples too (train.run_length 1, the default): every
+ * training step encodes the batch's distinct frames once (gather_shared), and training ends where
+ * encoding every window does, to float rounding, and deterministically. Reference: the expanded
+ * path (model_loss), and tests/test_model.c's check of model_loss_shared against it. */
+static void test_latent_mode_shares_frames_of_shuffled_samples(void **state) {
+    (void)state;
+    char d1[256], d2[256], d3[256];
+    assert_non_null(test_tmpdir(d1, sizeof d1));
+    assert_non_null(test_tmpdir(d2, sizeof d2));
+    assert_non_null(test_tmpdir(d3, sizeof d3));
+    static FrameOsc fo;
+    frame_osc_init(&fo);
+    Config c;
+    Model me, ms, ms2;
+    ParamSet pe, pss, ps2;
+    const char *dirs[3] = {d1, d2, d3};
+    Model *ms_[3] = {&me, &ms, &ms2};
+    ParamSet *ps_[3] = {&pe, &pss, &ps2};
+    for (int i = 0; i < 3; i++) {
+        small_config(&c, dirs[i]);
+        c.derivatives = DERIVS_LATENT;
+        c.run_length = 1, c.epochs = 3, c.refine_epochs = 0;
+        c.threshold = 0; /* no coefficient near a threshold to flip between the two */
+        fo.shared_calls = 0;
+        assert_int_equal(frame_osc_run_latent(&c, dirs[i], i > 0, ms_[i], ps_[i], &fo), 0);
+        /* every training step (1000 samples, batches of 100), none without sharing */
+        assert_int_equal(fo.shared_calls, i > 0 ? 3 * 10 : 0);
+    }
+    assert_int_equal(pe.step, pss.step);
+    double pmax = 0, dmax = 0;
+    for (size_t i = 0; i < pe.n; i++) pmax = fmax(pmax, fabs(pe.val[i])), dmax = fmax(dmax, fabs(pe.val[i] - pss.val[i]));
+    assert_true(pmax > 0);
+    /* 30 Adam steps of lr 3e-3 from the same start: rounding moves a weight by far less than a step */
+    print_message("latent shared vs expanded: largest difference %g, largest weight %g\n", dmax, pmax);
+    if (dmax > 1e-5) fail_msg("shared and expanded training differ by %g (largest weight %g)", dmax, pmax);
+    assert_true(same_params(&pss, &ps2));
+    for (int i = 0; i < 3; i++) model_free(ms_[i]), params_free(ps_[i]), test_rmtree(dirs[i]);
+    free(fo.frames);
+    free(fo.row_of);
+}
+
 /* train.run_length R: every epoch's training batches hold each training sample once, in runs
  * [k R, (k + 1) R) laid out whole and shuffled (common practice: a shuffle of blocks), and two
  * epochs deal different orders. */
@@ -817,6 +881,7 @@ int main(void) {
         cmocka_unit_test(test_resume_is_bit_exact_in_runs),
         cmocka_unit_test(test_run_length_deals_runs),
         cmocka_unit_test(test_frames_mode_sharing_trains_as_expanded),
+        cmocka_unit_test(test_latent_mode_shares_frames_of_shuffled_samples),
         cmocka_unit_test(test_corrupt_checkpoints_are_refused),
         cmocka_unit_test(test_divergence_stops_and_keeps_checkpoints),
         cmocka_unit_test(test_warmup_then_fit),

@@ -755,10 +755,14 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
     int B = c->batch < ds->n_train ? c->batch : (int)ds->n_train;
     long n_batches = (ds->n_train + B - 1) / B;
     float *X = nn_alloc((size_t)ds->k * B * ds->n_in * sizeof(float)); /* (k B, n_in) */
-    /* train.run_length > 1: batches of runs; with the stencil's window, each distinct frame once */
+    /* train.run_length > 1: batches of runs. Each distinct frame of a batch once: always in latent
+     * mode (the stencil windows overlap within a batch of shuffled samples too: on the benchmark's L,
+     * 1,536 samples of 8 recordings in batches of 256 with 9-frame windows, about 1,255 distinct frames
+     * of 2,304 a batch on average), in frames mode with runs (shuffled samples rarely share a frame of
+     * a 3-frame window) */
     long R = c->run_length > 1 ? c->run_length : 1;
     long *blk = R > 1 ? nn_alloc((size_t)((ds->n_train + R - 1) / R) * sizeof *blk) : NULL;
-    int shared = R > 1 && (m->win || m->fwin) && ds->gather_shared, fshared = shared && !m->win;
+    int shared = ds->gather_shared && (m->win || (m->fwin && R > 1)), fshared = shared && !m->win;
     int *map = shared ? nn_alloc((size_t)(m->win ? m->win : m->fwin) * B * sizeof *map) : NULL; /* (win B) */
     /* frames mode: the distinct frames apart from X, which holds the targets x, x' (, x'') */
     float *F = fshared ? nn_alloc((size_t)m->fwin * B * ds->n_in * sizeof *F) : NULL;

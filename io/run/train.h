@@ -35,7 +35,8 @@ typedef struct {
                              * next batch (batches_next returns TRAIN_STOPPED) */
     /* NULL, or the frames of the batch's stencil windows with each distinct frame once: X (U, n_in)
      * and map ((2m+1) B) as model_loss_shared (with sten) or model_loss_frames_shared (with
-     * frame_sten) take them; training uses it when train.run_length > 1 */
+     * frame_sten) take them; training uses it in latent mode, and in frames mode
+     * when train.run_length > 1 */
     int (*gather_shared)(void *ctx, int split, const long *idx, int B, float *X, int *map, int *U, Status *st);
     const Stencil *frame_sten; /* NULL, or (derivatives by tangents) the stencil of the frames' x', x'' */
 } TrainData;

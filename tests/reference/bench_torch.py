@@ -106,6 +106,9 @@ def parse():
                    help="samples per run of an epoch's order; > 1: each distinct frame of a batch goes "
                         "through the first layer once (torch.unique): latent mode encodes it once, frames "
                         "mode forms the tangent rows as the stencil over the frames' products")
+    p.add_argument("--share", type=int, default=1,
+                   help="latent mode with --run 1: 1 encodes each distinct frame of a batch once (torch.unique), "
+                        "as framelaw does; 0 encodes every window's frames (the reference before 2026-12-05)")
     p.add_argument("--selftest", action="store_true", help="check the layer's backward and exit")
     a = p.parse_args()
     if not a.selftest:
@@ -244,7 +247,8 @@ def latent_main(a, q, gen):
     reconstructs the centre frame only. Loss: w_rec |x - x_hat|^2 / var(x) + w_dz |z'' - Theta Xi|^2 /
     mean(z''^2) + w_l1 |Xi|_1, var(x) the pixels' mean variance over the training frames (as
     framelaw's loss.normalize). With --run R > 1 the epoch deals runs of R consecutive samples and
-    each distinct frame of a batch is encoded once (torch.unique, the codes gathered back)."""
+    each distinct frame of a batch is encoded once (torch.unique, the codes gathered back); so it is
+    with shuffled samples (--run 1) unless --share 0, since their windows overlap too."""
     assert a.order == 2 and a.latent >= 1
     W, m = a.window, a.window // 2
     per = a.frames // a.recordings
@@ -276,10 +280,12 @@ def latent_main(a, q, gen):
         z = s[:, :d]
         return torch.cat([th, torch.sin(z), torch.cos(z)], dim=1)
 
+    share = a.run > 1 or a.share
+
     def step(f):
         B = len(f)
         fw = (offs[:, None] + f[None, :]).reshape(-1)   # (W B): offset-major, as framelaw's blocks
-        if a.run > 1:
+        if share:
             uniq, inv = torch.unique(fw, return_inverse=True)
             X = q[uniq].float().mul_(1.0 / 255)
         else:
@@ -288,7 +294,7 @@ def latent_main(a, q, gen):
         for l in range(L - 1):
             H = torch.sigmoid(torch.addmm(eb[l], H, eW[l]))
         Z = torch.addmm(eb[L - 1], H, eW[L - 1])
-        Zw = (Z[inv] if a.run > 1 else Z).view(W, B, d)
+        Zw = (Z[inv] if share else Z).view(W, B, d)
         z = Zw[m]
         z1 = torch.tensordot(w1, Zw, dims=1)
         z2 = torch.tensordot(w2, Zw, dims=1)
@@ -297,7 +303,7 @@ def latent_main(a, q, gen):
         H = z
         for l in range(L - 1):
             H = torch.sigmoid(torch.addmm(db[l], H, dW[l]))
-        xc = X[inv[m * B:(m + 1) * B]] if a.run > 1 else X[m * B:(m + 1) * B]
+        xc = X[inv[m * B:(m + 1) * B]] if share else X[m * B:(m + 1) * B]
         l_rec = F.mse_loss(torch.addmm(db[L - 1], H, dW[L - 1]), xc)
         l_dz = F.mse_loss(pred, z2) / ((z2 * z2).mean() + 1e-12)
         loss = w_rec * rec_norm * l_rec + w_dz * l_dz + w_l1 * xim.abs().sum()
