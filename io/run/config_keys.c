@@ -206,9 +206,9 @@ const KeyDef config_keys[] = {
     K_INT("train.run_length", run_length, "1", 1, 1 << 20, NULL,
           "an epoch deals runs of this many consecutive training samples (a shuffle of runs); the samples "
           "of a batch then share their stencil's frames, and each distinct frame goes through the "
-          "encoder's first layer once a step (with model.derivatives latent through the whole encoder; "
-          "with frames the tangents' products are the stencil over the frames' products) "
-          "(docs/performance.md); 1 = single samples"),
+          "encoder's first layer once a step (with model.derivatives latent through the whole encoder, "
+          "as it does with single samples too; with frames the tangents' products are the stencil over "
+          "the frames' products) (docs/performance.md); 1 = single samples"),
     K_INT("train.epochs", epochs, "1500", 1, NOMAX, NULL, "epochs in all, refinement included"),
     K_INT("train.seed", seed, "1", 0, INT_EXACT, NULL,
           "seed of the random generator (initialisation, shuffling)"),
