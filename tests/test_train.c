@@ -478,6 +478,18 @@ static void test_run_length_deals_runs(void **state) {
         if (e) assert_true(memcmp(o, o - N, N * sizeof *o) != 0);
     }
     assert_int_equal(in_order_epochs, 0);
+    /* the step's learning rate is optimizer.lr / sqrt(R) (the square-root scaling rule for a batch
+     * of R times fewer independent stretches; io/run/train.c), as log.csv's lr column shows */
+    char path[512];
+    snprintf(path, sizeof path, "%s/log.csv", d);
+    char *log = test_slurp(path);
+    assert_non_null(log);
+    const char *row = strchr(log, '\n');
+    assert_non_null(row);
+    double lr = 0;
+    assert_int_equal(sscanf(row + 1, "%*d,%*[^,],%lf", &lr), 1);
+    if (!(fabs(lr - c.lr / sqrt((double)R)) < 1e-6 * c.lr)) fail_msg("lr %g, expected %g", lr, c.lr / sqrt((double)R));
+    free(log);
     model_free(&m);
     params_free(&ps);
     test_rmtree(d);

@@ -191,7 +191,8 @@ const KeyDef config_keys[] = {
            "over the training set, and |z' - z'_pred|^2 by the batch's mean of z'^2 (z''^2), so that the "
            "weights compare relative errors"),
     /* optimizer */
-    K_NUM("optimizer.lr", lr, "0.001", 0, INFINITY, LO_OPEN, "Adam learning rate"),
+    K_NUM("optimizer.lr", lr, "0.001", 0, INFINITY, LO_OPEN,
+          "Adam learning rate (with train.run_length R > 1 the steps use it over sqrt(R))"),
     K_NUM("optimizer.beta1", beta1, "0.9", 0, 1, HI_OPEN, "Adam decay of the first moment"),
     K_NUM("optimizer.beta2", beta2, "0.999", 0, 1, HI_OPEN, "Adam decay of the second moment"),
     K_NUM("optimizer.eps", eps, "1e-08", 0, INFINITY, LO_OPEN, "Adam epsilon"),
@@ -208,7 +209,9 @@ const KeyDef config_keys[] = {
           "of a batch then share their stencil's frames, and each distinct frame goes through the "
           "encoder's first layer once a step (with model.derivatives latent through the whole encoder, "
           "as it does with single samples too; with frames the tangents' products are the stencil over "
-          "the frames' products) (docs/performance.md); 1 = single samples"),
+          "the frames' products); a batch then holds about R times fewer independent stretches of the "
+          "motion, and the steps' learning rate is optimizer.lr / sqrt(R) (docs/performance.md); "
+          "1 = single samples"),
     K_INT("train.epochs", epochs, "1500", 1, NOMAX, NULL, "epochs in all, refinement included"),
     K_INT("train.seed", seed, "1", 0, INT_EXACT, NULL,
           "seed of the random generator (initialisation, shuffling)"),

@@ -66,6 +66,7 @@ timed), "loss FIRST LAST" (mean loss of the first and last epoch), "peak_rss_kb 
 import argparse
 import ctypes
 import itertools
+import math
 import resource
 import time
 
@@ -93,7 +94,9 @@ def parse():
     p.add_argument("--max-seconds", type=float, default=0,
                    help="stop after this many timed seconds once 3 epochs are timed (0: no limit)")
     p.add_argument("--w", default="1,1e-4,1e-3,1e-5", help="loss weights rec,dx,dz,l1")
-    p.add_argument("--lr", type=float, default=1e-3)
+    p.add_argument("--lr", type=float, default=1e-3,
+                   help="Adam learning rate; with --run R > 1 the steps use lr / sqrt(R), as framelaw's "
+                        "train.run_length")
     p.add_argument("--seed", type=int, default=1)
     p.add_argument("--malloc", type=int, default=1, help="1: glibc keeps freed memory (mallopt); 0: as it is")
     p.add_argument("--layer", choices=["function", "autograd"], default="function",
@@ -272,7 +275,7 @@ def latent_main(a, q, gen):
     n_terms = cols.shape[1] + 2 * d
     xi = torch.zeros(n_terms, d, requires_grad=True)
     mask = torch.ones(n_terms, d)
-    opt = adam_params(eW + eb + dW + db + [xi], a.flat, a.lr)
+    opt = adam_params(eW + eb + dW + db + [xi], a.flat, a.lr / math.sqrt(max(a.run, 1)))
 
     def theta(s):
         one_s = torch.cat([torch.ones(s.shape[0], 1), s], dim=1)
@@ -364,7 +367,7 @@ def main():
     n_terms = cols.shape[1] + (n_vars if a.trig else 0)
     xi = torch.zeros(n_terms, a.latent, requires_grad=True)
     mask = torch.ones(n_terms, a.latent)
-    opt = adam_params(eW + eb + dW + db + [xi], a.flat, a.lr)
+    opt = adam_params(eW + eb + dW + db + [xi], a.flat, a.lr / math.sqrt(max(a.run, 1)))
     layer = SigTangent.apply if a.layer == "function" else sig_tangent_autograd
     k = a.order + 1
     xbuf = torch.empty(k * a.batch, a.n)    # (k B, n): x; x'; x''
