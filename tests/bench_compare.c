@@ -49,7 +49,7 @@
  * The framelaw row at t threads is compared with PyTorch at t threads under the default policy,
  * and with PyTorch's best over the policies and the thread counts up to t; the targets printed at
  * the end are issue 16's (V at least 2.0x PyTorch's best at 2 threads and 1.4x at 1, S 2.0x at both
- * and faster at 2 threads than at 1, L 2.0x at both and L16's epoch 3x shorter than L1's, peak memory
+ * and faster at 2 threads than at 1, L 2.0x at both and L16's epoch 3x shorter than L1e's, peak memory
  * at most 1/4 of PyTorch's). The reference runs L in its latent mode (--window 9, --run 1 or 16: it
  * encodes each distinct frame of a batch once too, through torch.unique; --share 0 for L1e).
  *
