@@ -299,9 +299,24 @@ static void frame_osc_init(FrameOsc *p) {
         }
 }
 
-static int frame_osc_run(Config *c, const char *dir, int shared, Model *m, ParamSet *ps, FrameOsc *p) {
-    TrainData ds = {NCH, 2, (long)(NREC - 1) * NT, NT, p->o.dt, frame_osc_gather, p, NULL, NULL, NULL,
-                    shared ? frame_osc_gather_shared : NULL, &p->sten};
+/* Latent mode (derivatives by the stencil over the codes) on the same frames: gather gives the
+ * 3-frame window of each sample as 3 blocks, gather_shared each distinct frame once. */
+static int frame_osc_gather_window(void *ctx, int split, const long *idx, int B, float *X, Status *st) {
+    (void)st;
+    FrameOsc *p = ctx;
+    for (int j = 0; j < 3; j++)
+        for (int b = 0; b < B; b++)
+            memcpy(X + ((long)j * B + b) * NCH, p->frames + (frame_osc_frame(split, idx[b]) - 1 + j) * NCH,
+                   NCH * sizeof(float));
+    return 0;
+}
+
+/* Train on the frames by tangents (latent 0: x, x') or in latent mode (3-frame windows), with or
+ * without gather_shared. */
+static int frame_osc_run(Config *c, const char *dir, int latent, int shared, Model *m, ParamSet *ps, FrameOsc *p) {
+    TrainData ds = {NCH, latent ? 3 : 2, (long)(NREC - 1) * NT, NT, p->o.dt,
+                    latent ? frame_osc_gather_window : frame_osc_gather, p, NULL, latent ? &p->sten : NULL, NULL,
+                    shared ? frame_osc_gather_shared : NULL, latent ? NULL : &p->sten};
     TrainOpts opts = {c, dir, 0, 1, NULL, 0, NULL, NULL};
     TrainResult res;
     Status st;
@@ -331,11 +346,11 @@ static void test_frames_mode_sharing_trains_as_expanded(void **state) {
     c.epochs = 3;
     c.refine_epochs = 0;
     c.threshold = 0; /* no coefficient near a threshold to flip between the two */
-    assert_int_equal(frame_osc_run(&c, d1, 0, &me, &pe, &fo), 0);
+    assert_int_equal(frame_osc_run(&c, d1, 0, 0, &me, &pe, &fo), 0);
     assert_int_equal(fo.shared_calls, 0);
     small_config(&c, d2);
     c.run_length = 8, c.epochs = 3, c.refine_epochs = 0, c.threshold = 0;
-    assert_int_equal(frame_osc_run(&c, d2, 1, &ms, &pss, &fo), 0);
+    assert_int_equal(frame_osc_run(&c, d2, 0, 1, &ms, &pss, &fo), 0);
     assert_int_equal(fo.shared_calls, 3 * 10); /* every training step: 1000 samples, batches of 100 */
     assert_int_equal(pe.step, pss.step);
     double pmax = 0, dmax = 0;
@@ -345,7 +360,7 @@ static void test_frames_mode_sharing_trains_as_expanded(void **state) {
     if (dmax > 1e-5) fail_msg("shared and expanded training differ by %g (largest weight %g)", dmax, pmax);
     small_config(&c, d3);
     c.run_length = 8, c.epochs = 3, c.refine_epochs = 0, c.threshold = 0;
-    assert_int_equal(frame_osc_run(&c, d3, 1, &ms2, &ps2, &fo), 0);
+    assert_int_equal(frame_osc_run(&c, d3, 0, 1, &ms2, &ps2, &fo), 0);
     assert_true(same_params(&pss, &ps2));
     model_free(&me), model_free(&ms), model_free(&ms2);
     params_free(&pe), params_free(&pss), params_free(&ps2);
@@ -354,29 +369,6 @@ static void test_frames_mode_sharing_trains_as_expanded(void **state) {
     test_rmtree(d1);
     test_rmtree(d2);
     test_rmtree(d3);
-}
-
-/* Latent mode (derivatives by the stencil over the codes) on the same frames: gather gives the
- * 3-frame window of each sample as 3 blocks, gather_shared each distinct frame once. */
-static int frame_osc_gather_window(void *ctx, int split, const long *idx, int B, float *X, Status *st) {
-    (void)st;
-    FrameOsc *p = ctx;
-    for (int j = 0; j < 3; j++)
-        for (int b = 0; b < B; b++)
-            memcpy(X + ((long)j * B + b) * NCH, p->frames + (frame_osc_frame(split, idx[b]) - 1 + j) * NCH,
-                   NCH * sizeof(float));
-    return 0;
-}
-
-static int frame_osc_run_latent(Config *c, const char *dir, int shared, Model *m, ParamSet *ps, FrameOsc *p) {
-    TrainData ds = {NCH, 3, (long)(NREC - 1) * NT, NT, p->o.dt, frame_osc_gather_window, p, NULL, &p->sten, NULL,
-                    shared ? frame_osc_gather_shared : NULL, NULL};
-    TrainOpts opts = {c, dir, 0, 1, NULL, 0, NULL, NULL};
-    TrainResult res;
-    Status st;
-    int rc = train_run(&opts, &ds, m, ps, &res, &st);
-    if (rc) fprintf(stderr, "train_run: %s\n", st.msg);
-    return rc;
 }
 
 /* Latent mode shares frames with shuffled samples too (train.run_length 1, the default): every
@@ -403,7 +395,7 @@ static void test_latent_mode_shares_frames_of_shuffled_samples(void **state) {
         c.run_length = 1, c.epochs = 3, c.refine_epochs = 0;
         c.threshold = 0; /* no coefficient near a threshold to flip between the two */
         fo.shared_calls = 0;
-        assert_int_equal(frame_osc_run_latent(&c, dirs[i], i > 0, ms_[i], ps_[i], &fo), 0);
+        assert_int_equal(frame_osc_run(&c, dirs[i], 1, i > 0, ms_[i], ps_[i], &fo), 0);
         /* every training step (1000 samples, batches of 100), none without sharing */
         assert_int_equal(fo.shared_calls, i > 0 ? 3 * 10 : 0);
     }
