@@ -325,58 +325,11 @@ static int frame_osc_run(Config *c, const char *dir, int latent, int shared, Mod
     return rc;
 }
 
-/* Derivatives by tangents with train.run_length 8: training on the shared frames (each distinct
- * frame through the first layer once, model_loss_frames_shared) ends where training on the
- * expanded x, x' does, from the same start and order, to float rounding over its steps; and it is
- * deterministic. Reference: the expanded path (model_loss), and tests/test_model.c's check of the
- * shared loss and gradients against it. */
-static void test_frames_mode_sharing_trains_as_expanded(void **state) {
-    (void)state;
-    char d1[256], d2[256], d3[256];
-    assert_non_null(test_tmpdir(d1, sizeof d1));
-    assert_non_null(test_tmpdir(d2, sizeof d2));
-    assert_non_null(test_tmpdir(d3, sizeof d3));
-    static FrameOsc fo;
-    frame_osc_init(&fo);
-    Config c;
-    Model me, ms, ms2;
-    ParamSet pe, pss, ps2;
-    small_config(&c, d1);
-    c.run_length = 8;
-    c.epochs = 3;
-    c.refine_epochs = 0;
-    c.threshold = 0; /* no coefficient near a threshold to flip between the two */
-    assert_int_equal(frame_osc_run(&c, d1, 0, 0, &me, &pe, &fo), 0);
-    assert_int_equal(fo.shared_calls, 0);
-    small_config(&c, d2);
-    c.run_length = 8, c.epochs = 3, c.refine_epochs = 0, c.threshold = 0;
-    assert_int_equal(frame_osc_run(&c, d2, 0, 1, &ms, &pss, &fo), 0);
-    assert_int_equal(fo.shared_calls, 3 * 10); /* every training step: 1000 samples, batches of 100 */
-    assert_int_equal(pe.step, pss.step);
-    double pmax = 0, dmax = 0;
-    for (size_t i = 0; i < pe.n; i++) pmax = fmax(pmax, fabs(pe.val[i])), dmax = fmax(dmax, fabs(pe.val[i] - pss.val[i]));
-    assert_true(pmax > 0);
-    /* 30 Adam steps of lr 1e-3 from the same start: rounding moves a weight by far less than a step */
-    if (dmax > 1e-5) fail_msg("shared and expanded training differ by %g (largest weight %g)", dmax, pmax);
-    small_config(&c, d3);
-    c.run_length = 8, c.epochs = 3, c.refine_epochs = 0, c.threshold = 0;
-    assert_int_equal(frame_osc_run(&c, d3, 0, 1, &ms2, &ps2, &fo), 0);
-    assert_true(same_params(&pss, &ps2));
-    model_free(&me), model_free(&ms), model_free(&ms2);
-    params_free(&pe), params_free(&pss), params_free(&ps2);
-    free(fo.frames);
-    free(fo.row_of);
-    test_rmtree(d1);
-    test_rmtree(d2);
-    test_rmtree(d3);
-}
-
-/* Latent mode shares frames with shuffled samples too (train.run_length 1, the default): every
- * training step encodes the batch's distinct frames once (gather_shared), and training ends where
- * encoding every window does, to float rounding, and deterministically. Reference: the expanded
- * path (model_loss), and tests/test_model.c's check of model_loss_shared against it. */
-static void test_latent_mode_shares_frames_of_shuffled_samples(void **state) {
-    (void)state;
+/* Training on the shared frames (gather_shared: each distinct frame once) ends where training on
+ * the expanded batch does, from the same start and order, to float rounding over its steps, and
+ * is deterministic: trains once without sharing and twice with it. Reference: the expanded path
+ * (model_loss), and tests/test_model.c's checks of the shared losses and gradients against it. */
+static void sharing_trains_as_expanded(int latent, int run_length) {
     char d1[256], d2[256], d3[256];
     assert_non_null(test_tmpdir(d1, sizeof d1));
     assert_non_null(test_tmpdir(d2, sizeof d2));
@@ -391,11 +344,11 @@ static void test_latent_mode_shares_frames_of_shuffled_samples(void **state) {
     ParamSet *ps_[3] = {&pe, &pss, &ps2};
     for (int i = 0; i < 3; i++) {
         small_config(&c, dirs[i]);
-        c.derivatives = DERIVS_LATENT;
-        c.run_length = 1, c.epochs = 3, c.refine_epochs = 0;
+        if (latent) c.derivatives = DERIVS_LATENT;
+        c.run_length = run_length, c.epochs = 3, c.refine_epochs = 0;
         c.threshold = 0; /* no coefficient near a threshold to flip between the two */
         fo.shared_calls = 0;
-        assert_int_equal(frame_osc_run(&c, dirs[i], 1, i > 0, ms_[i], ps_[i], &fo), 0);
+        assert_int_equal(frame_osc_run(&c, dirs[i], latent, i > 0, ms_[i], ps_[i], &fo), 0);
         /* every training step (1000 samples, batches of 100), none without sharing */
         assert_int_equal(fo.shared_calls, i > 0 ? 3 * 10 : 0);
     }
@@ -403,13 +356,29 @@ static void test_latent_mode_shares_frames_of_shuffled_samples(void **state) {
     double pmax = 0, dmax = 0;
     for (size_t i = 0; i < pe.n; i++) pmax = fmax(pmax, fabs(pe.val[i])), dmax = fmax(dmax, fabs(pe.val[i] - pss.val[i]));
     assert_true(pmax > 0);
-    /* 30 Adam steps of lr 3e-3 from the same start: rounding moves a weight by far less than a step */
-    print_message("latent shared vs expanded: largest difference %g, largest weight %g\n", dmax, pmax);
+    /* 30 Adam steps of lr 3e-3 (over sqrt(R) with runs) from the same start: rounding moves a weight
+     * by far less than a step */
+    print_message("%s, runs of %d: shared vs expanded, largest difference %g, largest weight %g\n",
+                  latent ? "latent mode" : "frames mode", run_length, dmax, pmax);
     if (dmax > 1e-5) fail_msg("shared and expanded training differ by %g (largest weight %g)", dmax, pmax);
     assert_true(same_params(&pss, &ps2));
     for (int i = 0; i < 3; i++) model_free(ms_[i]), params_free(ps_[i]), test_rmtree(dirs[i]);
     free(fo.frames);
     free(fo.row_of);
+}
+
+/* Derivatives by tangents with train.run_length 8: each distinct frame through the first layer
+ * once (model_loss_frames_shared). */
+static void test_frames_mode_sharing_trains_as_expanded(void **state) {
+    (void)state;
+    sharing_trains_as_expanded(0, 8);
+}
+
+/* Latent mode shares frames with shuffled samples too (train.run_length 1, the default): every
+ * training step encodes the batch's distinct frames once (model_loss_shared). */
+static void test_latent_mode_shares_frames_of_shuffled_samples(void **state) {
+    (void)state;
+    sharing_trains_as_expanded(1, 1);
 }
 
 /* train.run_length R: every epoch's training batches hold each training sample once, in runs
