@@ -32,7 +32,7 @@ static const char *FULL =
     "  \"loss\": {\"reconstruction\": 0.5, \"dx\": 0.001, \"dz\": 1e-6, \"l1\": 0.1, \"normalize\": false},\n"
     "  \"optimizer\": {\"lr\": 3e-4, \"beta1\": 0.8, \"beta2\": 0.99, \"eps\": 1e-7, \"schedule\": \"cosine\",\n"
     "                \"decay_every\": 50, \"decay_factor\": 0.25, \"lr_min\": 1e-5},\n"
-    "  \"train\": {\"batch\": 64, \"run_length\": 16, \"epochs\": 20000, \"seed\": 9007199254740991, \"threads\": 4,\n"
+    "  \"train\": {\"batch\": 64, \"run_length\": 8, \"epochs\": 20000, \"seed\": 9007199254740991, \"threads\": 4,\n"
     "            \"validate_every\": 5, \"warmup_epochs\": 50, \"warmup_fit\": false, \"memory_budget\": 2.5},\n"
     "  \"threshold\": {\"value\": 0.05, \"measure\": \"coefficient\", \"select\": \"first\", \"every\": 300, \"refine_epochs\": 5000},\n"
     "  \"checkpoint\": {\"every\": 25, \"keep\": 7},\n"
@@ -100,15 +100,16 @@ static void test_defaults(void **state) {
     assert_int_equal(c.sched_every, 1000);
     assert_true(c.sched_factor == 0.5 && c.lr_min == 0);
     assert_int_equal(c.batch, 256);
-    assert_int_equal(c.epochs, 1500);
+    assert_int_equal(c.epochs, 3000);
+    assert_int_equal(c.run_length, 16);
     assert_int_equal(c.seed, 1);
     assert_int_equal(c.threads, 0);
     assert_int_equal(c.validate_every, 10);
     assert_true(c.threshold == 0.02);
     assert_int_equal(c.threshold_measure, MEASURE_CONTRIBUTION);
     assert_int_equal(c.threshold_select, SELECT_EVERY);
-    assert_int_equal(c.threshold_every, 250);
-    assert_int_equal(c.refine_epochs, 300);
+    assert_int_equal(c.threshold_every, 500);
+    assert_int_equal(c.refine_epochs, 600);
     assert_int_equal(c.ckpt_every, 100);
     assert_int_equal(c.ckpt_keep, 3);
     assert_string_equal(c.output, "");
@@ -295,8 +296,8 @@ static void test_schedule_follows_epochs(void **state) {
     (void)state;
     Config c;
     config_defaults(&c);
-    assert_int_equal(c.threshold_every, 250);
-    assert_int_equal(c.refine_epochs, 300);
+    assert_int_equal(c.threshold_every, 500);
+    assert_int_equal(c.refine_epochs, 600);
     set_ok(&c, "train.epochs=50");
     assert_int_equal(c.threshold_every, 8);
     assert_int_equal(c.refine_epochs, 10);

@@ -20,7 +20,8 @@
  * laws after a few hundred steps; the fixtures were recorded once with Cooperlake kernels, re-recorded
  * with Haswell kernels when they were pinned). Machines without AVX2 and FMA skip the test. The configs name every key
  * whose default changed with the template of round 2 (docs/battery.md), at its earlier value, so
- * that change of defaults left the fixtures as they were. This is a regression check
+ * that change of defaults left the fixtures as they were; likewise train.run_length 1 (single samples, the
+ * default until runs of 16 became it). This is a regression check
  * of our own output (no outside reference: what it guards is "the same as before"). */
 #include <sys/stat.h>
 
@@ -35,7 +36,7 @@ static const char LANTERN_CFG[] =
     "\"derivatives\": \"latent\", \"init_epochs\": 20},\n"
     " \"library\": {\"degree\": 3, \"trig\": true},\n"
     " \"loss\": {\"l1\": 1e-4, \"normalize\": true},\n"
-    " \"train\": {\"epochs\": 40, \"batch\": 64, \"threads\": 1, \"validate_every\": 10, \"warmup_epochs\": 0},\n"
+    " \"train\": {\"epochs\": 40, \"batch\": 64, \"run_length\": 1, \"threads\": 1, \"validate_every\": 10, \"warmup_epochs\": 0},\n"
     " \"threshold\": {\"value\": 0.002, \"measure\": \"coefficient\", \"select\": \"none\", \"every\": 10, "
     "\"refine_epochs\": 10},\n"
     " \"checkpoint\": {\"every\": 20, \"keep\": 2},\n"
@@ -47,7 +48,7 @@ static const char NUMERIC_CFG[] =
     "\"derivatives\": \"frames\"},\n"
     " \"library\": {\"degree\": 2, \"trig\": false},\n"
     " \"loss\": {\"dx\": 0.1, \"dz\": 1, \"l1\": 1e-3, \"normalize\": false},\n"
-    " \"train\": {\"batch\": 32, \"epochs\": 60, \"threads\": 1, \"validate_every\": 5, \"warmup_epochs\": 20, "
+    " \"train\": {\"batch\": 32, \"run_length\": 1, \"epochs\": 60, \"threads\": 1, \"validate_every\": 5, \"warmup_epochs\": 20, "
     "\"warmup_fit\": true},\n"
     " \"threshold\": {\"value\": 0.05, \"measure\": \"coefficient\", \"select\": \"none\", \"every\": 10, "
     "\"refine_epochs\": 10},\n"

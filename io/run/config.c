@@ -218,7 +218,7 @@ const char *config_old_term(const Config *c, const char **key) {
 }
 
 /* The schedule follows train.epochs unless given: a pass every sixth of the run, the last fifth
- * refines (250 and 300 of the default 1500), so that a short run (--set train.epochs=50) works. */
+ * refines (500 and 600 of the default 3000), so that a short run (--set train.epochs=50) works. */
 static void resolve(Config *c) {
     if (!given(c, "threshold.every")) c->threshold_every = c->epochs / 6 > 1 ? (int)((c->epochs + 3) / 6) : 1;
     if (!given(c, "threshold.refine_epochs")) c->refine_epochs = (c->epochs + 2) / 5;

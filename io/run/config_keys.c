@@ -204,7 +204,7 @@ const KeyDef config_keys[] = {
     K_NUM("optimizer.lr_min", lr_min, "0", 0, INFINITY, 0, "cosine schedule: the final learning rate"),
     /* train */
     K_INT("train.batch", batch, "256", 1, 1 << 20, NULL, "samples per mini-batch"),
-    K_INT("train.run_length", run_length, "1", 1, 1 << 20, NULL,
+    K_INT("train.run_length", run_length, "16", 1, 1 << 20, NULL,
           "an epoch deals runs of this many consecutive training samples (a shuffle of runs); the samples "
           "of a batch then share their stencil's frames, and each distinct frame goes through the "
           "encoder's first layer once a step (with model.derivatives latent through the whole encoder, "
@@ -212,7 +212,7 @@ const KeyDef config_keys[] = {
           "the frames' products); a batch then holds about R times fewer independent stretches of the "
           "motion, and the steps' learning rate is optimizer.lr / sqrt(R) (docs/performance.md); "
           "1 = single samples"),
-    K_INT("train.epochs", epochs, "1500", 1, NOMAX, NULL, "epochs in all, refinement included"),
+    K_INT("train.epochs", epochs, "3000", 1, NOMAX, NULL, "epochs in all, refinement included"),
     K_INT("train.seed", seed, "1", 0, INT_EXACT, NULL,
           "seed of the random generator (initialisation, shuffling)"),
     K_INT("train.threads", threads, "0", 0, 1024, NULL, "worker threads; 0 = all cores"),
@@ -239,11 +239,11 @@ const KeyDef config_keys[] = {
           "least squares on the encoded training set (nested libraries, a grid of contribution thresholds) "
           "are integrated over segments of the training recordings and scored by forecast error and number "
           "of terms (docs/training.md)"),
-    {.path = "threshold.every", .type = INTTYPE(threshold_every), .def = "250", .min = 1, .max = NOMAX,
-     .doc_def = "train.epochs / 6 (250)", FIELD(threshold_every),
+    {.path = "threshold.every", .type = INTTYPE(threshold_every), .def = "500", .min = 1, .max = NOMAX,
+     .doc_def = "train.epochs / 6 (500)", FIELD(threshold_every),
      .meaning = "epochs between thresholding passes; unless given, a sixth of train.epochs (rounded, at least 1)"},
-    {.path = "threshold.refine_epochs", .type = INTTYPE(refine_epochs), .def = "300", .min = 0, .max = NOMAX,
-     .doc_def = "train.epochs / 5 (300)", FIELD(refine_epochs),
+    {.path = "threshold.refine_epochs", .type = INTTYPE(refine_epochs), .def = "600", .min = 0, .max = NOMAX,
+     .doc_def = "train.epochs / 5 (600)", FIELD(refine_epochs),
      .meaning = "the last epochs: mask fixed, no L1, no thresholding; < train.epochs; unless given, a fifth of "
                 "train.epochs (rounded)"},
     /* checkpoint */
