@@ -200,9 +200,14 @@ static Node *model_loss_window(Tape *t, const Model *m, ParamSet *ps, float *X, 
         z0 = window_map(t, za, NULL, 1, map + (long)c * B, B);
         if (m->order == 2) z1 = window_map(t, za, m->lw1, win, map, B);
         zt = window_map(t, za, m->order == 2 ? m->lw2 : m->lw1, win, map, B);
-        Xc = arena_alloc(&t->arena, (size_t)B * m->n_in * sizeof *Xc);
-        for (int b = 0; b < B; b++)
-            memcpy(Xc + (long)b * m->n_in, X + (long)map[(long)c * B + b] * m->n_in, (size_t)m->n_in * sizeof *Xc);
+        int first = 1; /* the gather puts distinct samples' centre frames first, in order */
+        for (int b = 0; b < B && first; b++) first = map[(long)c * B + b] == b;
+        Xc = X;
+        if (!first) {
+            Xc = arena_alloc(&t->arena, (size_t)B * m->n_in * sizeof *Xc);
+            for (int b = 0; b < B; b++)
+                memcpy(Xc + (long)b * m->n_in, X + (long)map[(long)c * B + b] * m->n_in, (size_t)m->n_in * sizeof *Xc);
+        }
     }
     Node *s = m->order == 1 ? z0 : nn_hstack(t, z0, z1);
     Node *theta = library_op(t, &m->lib, s);

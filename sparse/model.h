@@ -96,8 +96,10 @@ Node *model_loss(Tape *t, const Model *m, ParamSet *ps, float *X, int B, const L
 /* model_loss with derivatives in latent space (win > 0) when the batch's samples share frames:
  * X (U, n_in) holds each distinct frame once and map (win B) places them, map[j B + b] the row of X
  * holding the frame at offset j - m of sample b. Each frame goes through the encoder once and its
- * code's gradient is the sum over the places it fills. The same loss and gradients as model_loss on
- * the expanded batch, to float rounding. */
+ * code's gradient is the sum over the places it fills. When rows 0..B-1 are the centre frames in
+ * order (map[m B + b] = b, as dataset_gather_window_shared lays them out), the reconstruction reads
+ * them in place; any other map costs a copy. The same loss and gradients as model_loss on the
+ * expanded batch, to float rounding. */
 Node *model_loss_shared(Tape *t, const Model *m, ParamSet *ps, float *X, int U, const int *map, int B,
                         const LossWeights *w, LossParts *parts);
 

@@ -156,7 +156,8 @@ static void test_gather_numeric(void **state) {
 
 /* The shared gather (each distinct frame once, and a map) places the same rows as the window
  * gather, bit for bit, and holds each frame once: a whole recording's samples in any order need
- * its frames and no more (common practice: a gather's result does not depend on its order). */
+ * its frames and no more (common practice: a gather's result does not depend on its order), the
+ * samples' centre frames in rows 0..B-1 (what the reconstruction reads in place). */
 static void test_gather_window_shared(void **state) {
     (void)state;
     char dir[256];
@@ -180,6 +181,8 @@ static void test_gather_window_shared(void **state) {
         dataset_gather_window(&ds, (SplitId)sp, idx, B, xw);
         int U = dataset_gather_window_shared(&ds, (SplitId)sp, idx, B, xu, map, work);
         assert_int_equal(U, B + win - 1); /* the recording's frames, each once */
+        for (int b = 0; b < B; b++) /* the centre frames first, in the samples' order */
+            assert_int_equal(map[(long)(win / 2) * B + b], b);
         for (long i = 0; i < (long)win * B; i++) {
             assert_true(map[i] >= 0 && map[i] < U);
             assert_memory_equal(xu + (long)map[i] * 3, xw + i * 3, 3 * sizeof(float));

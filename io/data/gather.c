@@ -335,13 +335,13 @@ static int cmp_long(const void *a, const void *b) {
 
 typedef struct {
     const Dataset *ds;
-    const long *frames;
+    const long *frames, *row; /* row == NULL: frame u to row u */
     float *x;
 } FramesJob;
 
 static void frames_range(void *ctx, long lo, long hi) {
     const FramesJob *j = ctx;
-    for (long u = lo; u < hi; u++) dataset_frame(j->ds, j->frames[u], j->x + u * j->ds->n);
+    for (long u = lo; u < hi; u++) dataset_frame(j->ds, j->frames[u], j->x + (j->row ? j->row[u] : u) * j->ds->n);
 }
 
 int dataset_gather_window_shared(const Dataset *ds, SplitId split, const long *idx, int B, float *x, int *map,
@@ -366,7 +366,16 @@ int dataset_gather_window_shared(const Dataset *ds, SplitId split, const long *i
         }
         map[i] = (int)lo;
     }
-    FramesJob j = {ds, uniq, x};
+    /* The rows: the centre frames first, in the samples' order, then the others in frame order.
+     * all[] is free now and holds each sorted frame's row. */
+    long *row = all, next = 0;
+    for (long u = 0; u < U; u++) row[u] = -1;
+    for (int b = 0; b < B; b++)
+        if (row[map[(long)m * B + b]] < 0) row[map[(long)m * B + b]] = next++;
+    for (long u = 0; u < U; u++)
+        if (row[u] < 0) row[u] = next++;
+    for (long i = 0; i < nw; i++) map[i] = (int)row[map[i]];
+    FramesJob j = {ds, uniq, row, x};
     par_for(U, 8, frames_range, &j);
     return (int)U;
 }

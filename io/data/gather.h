@@ -51,9 +51,11 @@ void dataset_gather(const Dataset *ds, SplitId split, const long *idx, int B, fl
 void dataset_gather_window(const Dataset *ds, SplitId split, const long *idx, int B, float *x);
 
 /* The same with each distinct frame once (samples that are neighbours share most of their
- * stencil's frames): x (U, n) the distinct frames in frame order, map (2m+1) B the row of x that
- * holds the frame at offset j - m of sample b at map[j B + b]; returns U (at most (2m+1) B). work:
- * 2 (2m+1) B longs of scratch. The rows are those dataset_gather_window would give, bit for bit. */
+ * stencil's frames): x (U, n) the distinct frames, map (2m+1) B the row of x that holds the frame
+ * at offset j - m of sample b at map[j B + b]; returns U (at most (2m+1) B). The samples' centre
+ * frames come first, in the samples' order (with distinct samples map[m B + b] = b, so rows 0..B-1
+ * are the centre block with no copy), then the other frames in frame order. work: 2 (2m+1) B longs
+ * of scratch. The rows are those dataset_gather_window would give, bit for bit. */
 int dataset_gather_window_shared(const Dataset *ds, SplitId split, const long *idx, int B, float *x, int *map,
                                  long *work);
 
