@@ -190,6 +190,11 @@ static void test_gather_window_shared(void **state) {
         /* two samples, far apart: nothing to share */
         long two[2] = {0, B - 1};
         assert_int_equal(dataset_gather_window_shared(&ds, (SplitId)sp, two, 2, xu, map, work), 2 * win);
+        /* a sample twice, and one a frame further: each frame once, every row where the window gather puts it */
+        long dup[3] = {1, 1, 0};
+        dataset_gather_window(&ds, (SplitId)sp, dup, 3, xw);
+        assert_int_equal(dataset_gather_window_shared(&ds, (SplitId)sp, dup, 3, xu, map, work), win + 1);
+        for (long i = 0; i < 3L * win; i++) assert_memory_equal(xu + (long)map[i] * 3, xw + i * 3, 3 * sizeof(float));
         free(idx), free(work), free(xw), free(xu), free(map);
     }
     dataset_free(&ds);

@@ -1,6 +1,7 @@
 /* io/data/gather.c: split, valid samples, scaling and the batch gather (see gather.h). */
 #include "io/data/gather.h"
 
+#include <limits.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdint.h>
@@ -328,11 +329,6 @@ int dataset_recording_of(const Dataset *ds, long frame) {
     return lo;
 }
 
-static int cmp_long(const void *a, const void *b) {
-    long x = *(const long *)a, y = *(const long *)b;
-    return (x > y) - (x < y);
-}
-
 typedef struct {
     const Dataset *ds;
     const long *frames, *row; /* row == NULL: frame u to row u */
@@ -344,27 +340,31 @@ static void frames_range(void *ctx, long lo, long hi) {
     for (long u = lo; u < hi; u++) dataset_frame(j->ds, j->frames[u], j->x + (j->row ? j->row[u] : u) * j->ds->n);
 }
 
+typedef struct {
+    long f, b;
+} FrameOfSample;
+
+static int cmp_frame_of_sample(const void *a, const void *b) {
+    const FrameOfSample *x = a, *y = b;
+    return x->f != y->f ? (x->f > y->f) - (x->f < y->f) : (x->b > y->b) - (x->b < y->b);
+}
+
 int dataset_gather_window_shared(const Dataset *ds, SplitId split, const long *idx, int B, float *x, int *map,
                                  long *work) {
     int m = ds->sten.m, win = 2 * m + 1;
     long nw = (long)win * B, *all = work, *uniq = work + nw;
-    for (int b = 0; b < B; b++) {
-        long f = ds->samples[split][idx[b]];
-        for (int k = 0; k < win; k++) all[(long)k * B + b] = f - m + k;
-    }
-    memcpy(uniq, all, (size_t)nw * sizeof *uniq);
-    qsort(uniq, (size_t)nw, sizeof *uniq, cmp_long);
-    long U = 0;
-    for (long i = 0; i < nw; i++)
-        if (i == 0 || uniq[i] != uniq[U - 1]) uniq[U++] = uniq[i];
-    for (long i = 0; i < nw; i++) {
-        long lo = 0, hi = U - 1; /* uniq[lo..hi] holds all[i] */
-        while (lo < hi) {
-            long mid = (lo + hi) / 2;
-            if (uniq[mid] < all[i]) lo = mid + 1;
-            else hi = mid;
-        }
-        map[i] = (int)lo;
+    /* Sample b's window is the run of frames f_b - m .. f_b + m: with the samples sorted by f_b the
+     * distinct frames come out in order by merging the runs, and each window is a stretch of
+     * consecutive rows (2 B <= nw longs of all[] hold the sorted pairs) */
+    FrameOfSample *srt = (FrameOfSample *)all;
+    for (int b = 0; b < B; b++) srt[b] = (FrameOfSample){ds->samples[split][idx[b]], b};
+    qsort(srt, (size_t)B, sizeof *srt, cmp_frame_of_sample);
+    long U = 0, last = LONG_MIN; /* the last frame so far */
+    for (int i = 0; i < B; i++) {
+        long lo = srt[i].f - m, hi = srt[i].f + m;
+        for (long f = lo > last ? lo : last + 1; f <= hi; f++) uniq[U++] = f;
+        last = hi; /* hi never falls: the frames lo .. hi are the last win rows */
+        for (int k = 0; k < win; k++) map[(long)k * B + srt[i].b] = (int)(U - win + k);
     }
     /* The rows: the centre frames first, in the samples' order, then the others in frame order.
      * all[] is free now and holds each sorted frame's row. */
