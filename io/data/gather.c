@@ -8,6 +8,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "nn/core.h"
 #include "nn/par.h"
 
 void dataset_free(Dataset *ds) {
@@ -331,13 +332,13 @@ int dataset_recording_of(const Dataset *ds, long frame) {
 
 typedef struct {
     const Dataset *ds;
-    const long *frames, *row; /* row == NULL: frame u to row u */
+    const long *frames, *row; /* frame u to row row[u] */
     float *x;
 } FramesJob;
 
 static void frames_range(void *ctx, long lo, long hi) {
     const FramesJob *j = ctx;
-    for (long u = lo; u < hi; u++) dataset_frame(j->ds, j->frames[u], j->x + (j->row ? j->row[u] : u) * j->ds->n);
+    for (long u = lo; u < hi; u++) dataset_frame(j->ds, j->frames[u], j->x + j->row[u] * j->ds->n);
 }
 
 typedef struct {
@@ -353,6 +354,7 @@ int dataset_gather_window_shared(const Dataset *ds, SplitId split, const long *i
                                  long *work) {
     int m = ds->sten.m, win = 2 * m + 1;
     long nw = (long)win * B, *all = work, *uniq = work + nw;
+    NN_CHECK(m >= 1, "dataset_gather_window_shared: a stencil of %d frames", win);
     /* Sample b's window is the run of frames f_b - m .. f_b + m: with the samples sorted by f_b the
      * distinct frames come out in order by merging the runs, and each window is a stretch of
      * consecutive rows (2 B <= nw longs of all[] hold the sorted pairs) */
