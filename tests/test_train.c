@@ -266,9 +266,10 @@ static int frame_osc_gather_shared(void *ctx, int split, const long *idx, int B,
     FrameOsc *p = ctx;
     p->shared_calls++;
     for (long f = 0; f < (long)NREC * (NT + 2); f++) p->row_of[f] = -1;
+    static const int blocks[3] = {1, 0, 2}; /* the centre frames first, as dataset_gather_window_shared */
     int u = 0;
-    for (int jj = 0; jj < 3; jj++) /* the centre frames first, as dataset_gather_window_shared lays them out */
-        for (int b = 0, j = jj == 0 ? 1 : jj == 1 ? 0 : 2; b < B; b++) {
+    for (int jj = 0; jj < 3; jj++)
+        for (int b = 0, j = blocks[jj]; b < B; b++) {
             long f = frame_osc_frame(split, idx[b]) - 1 + j;
             if (p->row_of[f] < 0) {
                 p->row_of[f] = u;

@@ -808,9 +808,9 @@ int train_run(const TrainOpts *o, const TrainData *ds, Model *m, ParamSet *ps, T
      * square-root scaling rule for Adam would have it for a batch R times smaller (S. Malladi, K.
      * Lyu, A. Panigrahi, S. Arora, "On the SDEs and Scaling Rules for Adaptive Gradient Algorithms",
      * NeurIPS 2022; from memory). Measured on the battery's pulse: runs of 8 at the unscaled 0.001
-     * fail 5 of 5 seeds, at 0.00035 pass 4 of 5, runs of 16 at 0.00025 pass 5 of 5; but at 0.00025
-     * the puck's fast mode reads its damping a third low, with runs or without (docs/performance.md),
-     * which is why runs stay opt-in. */
+     * fail 5 of 5 seeds, at 0.00035 pass 4 of 5, runs of 16 at 0.00025 pass 5 of 5; at 0.00025 the
+     * puck's fast mode needs 3000 epochs, with runs or without, which is why the default runs of 16
+     * come with 3000 epochs (docs/battery.md). */
     double lr_scale = 1.0 / sqrt((double)R);
     long refine_from = c->epochs - c->refine_epochs; /* first epoch of the refinement phase */
     double t_start = clock_seconds(), seconds0 = r.meta.seconds;
